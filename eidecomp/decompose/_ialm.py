@@ -1,0 +1,169 @@
+"""Principal Component Pursuit by the inexact augmented Lagrange multiplier method.
+
+Solves  min ||L||_* + lam ||P_Omega(S)||_1  subject to  P_Omega(L + S) = P_Omega(W)
+(Candes, Li, Ma, Wright 2011, eq. 1.1; Omega the observed entries) by the inexact
+ALM of Lin, Chen and Ma (2010, arXiv:1009.5055, Algorithm 5):
+
+    L   <- SVT_{1/mu}(W - S + Y/mu)
+    S   <- shrink_{lam/mu}(W - L + Y/mu)      (on Omega; off Omega unpenalised)
+    Y   <- Y + mu (W - L - S)
+
+Two departures from the textbook schedule, both for the same reason: a stop on
+the primal residual alone, with mu growing by 1.5 every step, halts at a feasible
+point that is not optimal (on an unplanted Gaussian matrix, 0.8 % above the
+optimal objective). Here
+
+* the stop needs both the primal residual ||W - L - S||_F / ||W||_F and the dual
+  residual mu ||S_k - S_{k-1}||_F / ||Y_k||_F (Boyd et al. 2011, section 3.3)
+  below ``tol``; the dual residual is exactly the distance of the multiplier from
+  the subdifferential of the nuclear norm at L, so both small is the KKT system;
+* mu grows by ``rho`` every step (the textbook schedule) only until the primal
+  residual first falls below ``tol``; from then on it grows while the primal
+  residual dominates and shrinks when the dual residual dominates (residual
+  balancing, Boyd et al. 2011, section 3.4.1), an ADMM that converges to the
+  optimum. On planted problems the dual residual is already small at the
+  switch and nothing is spent; on the unplanted 60 x 60 Gaussian matrix the
+  second phase closes the 0.8 % gap.
+
+Memory: besides W, the loop holds six m x n arrays (L, S, Y and three work
+buffers); every elementwise step writes into one of them.
+"""
+
+import numpy as np
+
+from ._svt import svt
+
+__all__ = ["ialm"]
+
+_GROW = 0.5     # mu grows while dual < primal / _GROW ...
+_SHRINK = 10.0  # ... and shrinks once dual > _SHRINK * primal
+_MU_MAX_FACTOR = 1e10  # mu never exceeds this multiple of its start
+
+
+def _spectral_norm(W):
+    from scipy.sparse.linalg import svds
+
+    if min(W.shape) <= 120:
+        return float(np.linalg.norm(W, 2))
+    try:
+        return float(svds(W, k=1, return_singular_vectors=False, tol=1e-4,
+                          random_state=np.random.default_rng(0))[0])
+    except Exception:  # ARPACK can fail to converge; the norm is only a scale
+        return float(np.linalg.norm(W, 2))
+
+
+def _next_rank(sv_prev, r, n_small):
+    """Rank to compute next: a little above the predicted rank r."""
+    if r < sv_prev:
+        return min(r + 1 + max(2, r // 20), n_small)
+    return min(r + 5 + max(5, r // 10), n_small)
+
+
+def ialm(W, lam, *, observed=None, tol=1e-8, max_iter=1000, rho=1.5,
+         init=None, rng=None, callback=None):
+    """Solve PCP by inexact ALM; arrays in, arrays out.
+
+    Parameters
+    ----------
+    W : ndarray of shape (m, n), float
+    lam : float
+    observed : ndarray of bool, shape (m, n), or None
+        Entries that enter the constraint; None means all.
+    tol : float
+        Bound on both relative residuals.
+    max_iter : int
+    rho : float
+        Factor by which mu grows (or shrinks) when the residuals are unbalanced.
+    init : tuple (L, S, Y, mu) or None
+        Warm start, e.g. from a neighbouring lam on a path.
+    rng : numpy.random.Generator or None
+        For the random part of the partial SVD's starting block.
+    callback : callable or None
+        Called as ``callback(iteration, primal, dual, rank, mu)`` every step.
+
+    Returns
+    -------
+    L, S, Y : ndarray of shape (m, n)
+    info : dict
+        ``n_iter``, ``converged``, ``history`` (one row ``(primal, dual, rank,
+        mu)`` per iteration), ``mu``.
+    """
+    m, n = W.shape
+    dtype = W.dtype
+    n_small = min(m, n)
+    if rng is None:
+        rng = np.random.default_rng(0)
+    mask = None
+    if observed is not None and not observed.all():
+        mask = observed.astype(dtype)
+        W = W * mask
+    norm_W = float(np.linalg.norm(W))
+    if norm_W == 0.0:
+        zero = np.zeros_like(W)
+        return zero, zero.copy(), zero.copy(), {
+            "n_iter": 0, "converged": True, "history": [], "mu": 0.0}
+
+    if init is None:
+        # Y_0 = 0 rather than the textbook W / J(W): the first threshold 1/mu_0
+        # then keeps only the top of the spectrum, so no step starts with a
+        # near-full SVD (any Y_0 converges; this one is cheap).
+        norm_two = _spectral_norm(W)
+        Y = np.zeros_like(W)
+        S = np.zeros_like(W)
+        L = np.zeros_like(W)
+        mu = 1.25 / norm_two
+        k = min(10, n_small)
+    else:
+        L, S, Y, mu = (np.array(a, dtype=dtype, copy=True) for a in init[:3]) + (
+            float(init[3]),)
+        k = min(_next_rank(0, int(np.linalg.matrix_rank(L)) if n_small <= 120
+                           else 10, n_small), n_small)
+    mu_max = mu * _MU_MAX_FACTOR
+    A = np.empty_like(W)   # W + Y/mu
+    T = np.empty_like(W)   # work buffer
+    C = np.empty_like(W)   # work buffer: clipped residual, then the new Y
+    V = None
+    r = 0
+    history = []
+    converged = False
+    polishing = False  # phase 2: balance the residuals instead of growing mu
+    it = 0
+    for it in range(1, max_iter + 1):
+        np.multiply(Y, 1.0 / mu, out=A)
+        A += W
+        np.subtract(A, S, out=T)
+        U, s, Vt, V, _ = svt(T, 1.0 / mu, k=k, V0=V, rng=rng)
+        r_prev, r = r, len(s)
+        k = _next_rank(r_prev if it > 1 else r + 1, r, n_small)
+        if r:
+            np.matmul(U * s, Vt, out=L)
+        else:
+            L.fill(0.0)
+        np.subtract(A, L, out=T)                 # T = W - L + Y/mu
+        thr = lam / mu
+        np.clip(T, -thr, thr, out=C)             # Y_new / mu on Omega
+        if mask is not None:
+            C *= mask                            # off Omega: Y = 0, S absorbs
+        np.subtract(T, C, out=T)                 # T = S_new
+        np.subtract(S, T, out=S)                 # S = S_old - S_new
+        dS = float(np.linalg.norm(S))
+        S, T = T, S
+        C *= mu                                  # C = Y_new
+        np.subtract(Y, C, out=Y)                 # Y = Y_old - Y_new = -mu Z
+        primal = float(np.linalg.norm(Y)) / mu / norm_W
+        Y, C = C, Y
+        norm_Y = float(np.linalg.norm(Y))
+        dual = mu * dS / max(norm_Y, np.finfo(dtype).tiny)
+        history.append((primal, dual, r, mu))
+        if callback is not None:
+            callback(it, primal, dual, r, mu)
+        if primal < tol and dual < tol:
+            converged = True
+            break
+        polishing = polishing or primal < tol
+        if not polishing or primal > _GROW * dual:
+            mu = min(mu * rho, mu_max)
+        elif dual > _SHRINK * primal:
+            mu = mu / rho
+    return L, S, Y, {"n_iter": it, "converged": converged, "history": history,
+                     "mu": mu}
