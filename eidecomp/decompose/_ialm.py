@@ -31,25 +31,13 @@ buffers); every elementwise step writes into one of them.
 
 import numpy as np
 
-from ._svt import svt
+from ._svt import spectral_norm, svt
 
 __all__ = ["ialm"]
 
 _GROW = 0.5     # mu grows while dual < primal / _GROW ...
 _SHRINK = 10.0  # ... and shrinks once dual > _SHRINK * primal
 _MU_MAX_FACTOR = 1e10  # mu never exceeds this multiple of its start
-
-
-def _spectral_norm(W):
-    from scipy.sparse.linalg import svds
-
-    if min(W.shape) <= 120:
-        return float(np.linalg.norm(W, 2))
-    try:
-        return float(svds(W, k=1, return_singular_vectors=False, tol=1e-4,
-                          random_state=np.random.default_rng(0))[0])
-    except Exception:  # ARPACK can fail to converge; the norm is only a scale
-        return float(np.linalg.norm(W, 2))
 
 
 def _next_rank(sv_prev, r, n_small):
@@ -86,7 +74,8 @@ def ialm(W, lam, *, observed=None, tol=1e-8, max_iter=1000, rho=1.5,
     L, S, Y : ndarray of shape (m, n)
     info : dict
         ``n_iter``, ``converged``, ``history`` (one row ``(primal, dual, rank,
-        mu)`` per iteration), ``mu``.
+        mu)`` per iteration), ``mu`` (to warm-start a neighbour), and
+        ``singular_values`` of the returned L.
     """
     m, n = W.shape
     dtype = W.dtype
@@ -101,23 +90,23 @@ def ialm(W, lam, *, observed=None, tol=1e-8, max_iter=1000, rho=1.5,
     if norm_W == 0.0:
         zero = np.zeros_like(W)
         return zero, zero.copy(), zero.copy(), {
-            "n_iter": 0, "converged": True, "history": [], "mu": 0.0}
+            "n_iter": 0, "converged": True, "history": [], "mu": 0.0,
+            "singular_values": np.zeros(0)}
 
     if init is None:
         # Y_0 = 0 rather than the textbook W / J(W): the first threshold 1/mu_0
         # then keeps only the top of the spectrum, so no step starts with a
         # near-full SVD (any Y_0 converges; this one is cheap).
-        norm_two = _spectral_norm(W)
+        norm_two = spectral_norm(W)
         Y = np.zeros_like(W)
         S = np.zeros_like(W)
         L = np.zeros_like(W)
         mu = 1.25 / norm_two
         k = min(10, n_small)
     else:
-        L, S, Y, mu = (np.array(a, dtype=dtype, copy=True) for a in init[:3]) + (
-            float(init[3]),)
-        k = min(_next_rank(0, int(np.linalg.matrix_rank(L)) if n_small <= 120
-                           else 10, n_small), n_small)
+        L, S, Y = (np.array(a, dtype=dtype, copy=True) for a in init[:3])
+        mu = float(init[3])
+        k = min(10, n_small)
     mu_max = mu * _MU_MAX_FACTOR
     A = np.empty_like(W)   # W + Y/mu
     T = np.empty_like(W)   # work buffer
@@ -166,4 +155,4 @@ def ialm(W, lam, *, observed=None, tol=1e-8, max_iter=1000, rho=1.5,
         elif dual > _SHRINK * primal:
             mu = mu / rho
     return L, S, Y, {"n_iter": it, "converged": converged, "history": history,
-                     "mu": mu}
+                     "mu": mu, "singular_values": np.array(s)}

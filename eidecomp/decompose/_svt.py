@@ -16,7 +16,7 @@ the smaller dimension a full SVD is used instead.
 
 import numpy as np
 
-__all__ = ["svt"]
+__all__ = ["spectral_norm", "svt"]
 
 # Below this size a full SVD is as cheap as any partial scheme.
 _SMALL = 120
@@ -79,6 +79,27 @@ def _partial_svd(A, k, V0, rng, power_iter):
     Ub, s = Ub[:, keep], s[keep]
     Vt = (Ub.T @ B) / s[:, None]
     return Q @ Ub, s, Vt
+
+
+def spectral_norm(A, *, rtol=1e-6, max_iter=200, seed=0):
+    """Largest singular value of A by power iteration on A^T A (numpy only)."""
+    m, n = A.shape
+    if min(m, n) <= _SMALL:
+        return float(np.linalg.norm(A, 2))
+    v = np.random.default_rng(seed).standard_normal(n)
+    sigma = 0.0
+    for _ in range(max_iter):
+        u = A @ v
+        v = A.T @ u
+        norm_v = float(np.linalg.norm(v))
+        if norm_v == 0.0:
+            return 0.0
+        v /= norm_v
+        new = np.sqrt(norm_v)
+        if abs(new - sigma) <= rtol * new:
+            return float(new)
+        sigma = new
+    return float(sigma)
 
 
 def svt(A, tau, *, k=None, V0=None, rng=None, full_fraction=0.25, power_iter=1):

@@ -1,0 +1,367 @@
+"""Public entry points of robust PCA: one solve, a lam path, a target rank.
+
+``robust_pca`` validates its input, runs the fast ALM solver or a convex
+program on arrays, and packs the arrays into a :class:`~eidecomp.types.Decomposition`
+with an :class:`~eidecomp.types.OptimalityReport`. ``lambda_path`` and
+``robust_pca(..., target_rank=k)`` are loops over the same solver with warm
+starts.
+"""
+
+import math
+import warnings
+
+import numpy as np
+
+from ..errors import ConvergenceWarning, InputError
+from ..types import Decomposition, OptimalityReport, PathPoint
+from ._convex import ConvexPCP
+from ._ialm import ialm
+from ._svt import spectral_norm
+
+__all__ = ["default_lam", "lambda_path", "pcp_objective", "robust_pca"]
+
+METHODS = ("ialm", "convex")
+RANK_RTOL = 1e-6  # convex solutions: singular values below this x the largest
+ZERO_RTOL = 1e-7  # convex solutions: |S_ij| below this x max|W| is solver noise
+
+
+def default_lam(shape):
+    """lam = 1 / sqrt(max(m, n)) (Candes et al. 2011, Theorem 1.1)."""
+    return 1.0 / math.sqrt(max(shape))
+
+
+def pcp_objective(L, S, lam, observed=None):
+    """||L||_* + lam ||P_Omega S||_1, computed with numpy norms."""
+    l1 = np.abs(S if observed is None else S[observed]).sum()
+    return float(np.linalg.norm(L, "nuc") + lam * l1)
+
+
+def _check_matrix(W, name="W"):
+    W = np.asarray(W)
+    if W.dtype == object or not (np.issubdtype(W.dtype, np.number)
+                                 or W.dtype == bool):
+        raise InputError(f"{name} must be numeric, got dtype {W.dtype}")
+    if np.iscomplexobj(W):
+        raise InputError(f"{name} must be real, got complex values")
+    if W.ndim != 2:
+        raise InputError(f"{name} must be a 2-D matrix, got {W.ndim}-D "
+                         f"shape {W.shape}")
+    if W.size == 0:
+        raise InputError(f"{name} is empty (shape {W.shape})")
+    dtype = W.dtype if W.dtype in (np.float32, np.float64) else np.float64
+    W = np.array(W, dtype=dtype, copy=True)
+    bad = ~np.isfinite(W)
+    if bad.any():
+        i, j = np.argwhere(bad)[0]
+        raise InputError(f"{name} has {int(bad.sum())} non-finite value(s) "
+                         f"(NaN or Inf), first at row {i}, column {j}")
+    return W
+
+
+def _check_observed(observed, shape, ignore_diagonal):
+    if observed is None:
+        obs = None
+    else:
+        obs = np.asarray(observed)
+        if obs.shape != shape:
+            raise InputError(f"mask has shape {obs.shape} but W has shape {shape}")
+        if obs.dtype != bool:
+            if not np.isin(obs, (0, 1)).all():
+                raise InputError("mask must hold only 0/1 or True/False")
+            obs = obs.astype(bool)
+    if ignore_diagonal:
+        if shape[0] != shape[1]:
+            raise InputError(f"ignore_diagonal needs a square W, got {shape}")
+        obs = np.ones(shape, bool) if obs is None else obs.copy()
+        np.fill_diagonal(obs, False)
+    if obs is not None and not obs.any():
+        raise InputError("mask leaves no observed entry")
+    return obs
+
+
+def _report(W, L, S, Y, lam, observed, *, nuclear, dual, n_iter, converged,
+            solver, status):
+    l1 = float(np.abs(S if observed is None else S[observed]).sum())
+    R = W - L - S
+    if observed is not None:
+        R = R[observed]
+        norm_W = float(np.linalg.norm(W[observed]))
+    else:
+        norm_W = float(np.linalg.norm(W))
+    primal = float(np.linalg.norm(R)) / norm_W if norm_W else 0.0
+    spec = maxn = None
+    if Y is not None:
+        spec = spectral_norm(Y)
+        maxn = float(np.abs(Y).max()) / lam
+    return OptimalityReport(
+        objective=float(nuclear + lam * l1), nuclear_norm=float(nuclear),
+        l1_norm=l1, primal_residual=primal, dual_residual=dual,
+        multiplier_spectral_norm=spec, multiplier_max_norm_over_lam=maxn,
+        n_iter=int(n_iter), converged=bool(converged), solver=solver,
+        status=status)
+
+
+def _ialm_decomposition(W, lam, observed, *, tol, max_iter, rho, seed,
+                        progress, init=None):
+    L, S, Y, info = ialm(W, lam, observed=observed, tol=tol, max_iter=max_iter,
+                         rho=rho, rng=np.random.default_rng(seed),
+                         init=init, callback=progress)
+    if observed is not None:
+        S[~observed] = 0.0  # unobserved: L is the completion, S carries nothing
+    hist = info["history"]
+    dual = hist[-1][1] if hist else 0.0
+    sv = info["singular_values"]
+    report = _report(W, L, S, Y, lam, observed, nuclear=float(sv.sum()),
+                     dual=float(dual), n_iter=info["n_iter"],
+                     converged=info["converged"], solver="ialm",
+                     status="converged" if info["converged"] else "max_iter")
+    dec = Decomposition(low_rank=L, sparse=S, rank=len(sv), lam=float(lam),
+                        objective=report.objective, n_iter=info["n_iter"],
+                        converged=info["converged"], history=tuple(hist),
+                        method="ialm", report=report, observed=observed)
+    return dec, (L, S, Y, info["mu"])
+
+
+def _convex_decomposition(W, lam, observed, *, program, solver, max_iter):
+    L, S, Y, info = program.solve(lam, solver=solver, max_iter=max_iter)
+    S = np.where(np.abs(S) <= ZERO_RTOL * np.abs(W).max(), 0.0, S)
+    if observed is not None:
+        S[~observed] = 0.0
+    sv = np.linalg.svd(L, compute_uv=False)
+    rank = int(np.count_nonzero(sv > RANK_RTOL * sv[0])) if sv[0] > 0 else 0
+    report = _report(W, L, S, Y, lam, observed, nuclear=float(sv.sum()),
+                     dual=None, n_iter=info["n_iter"],
+                     converged=info["converged"], solver=info["solver"],
+                     status=info["status"])
+    return Decomposition(low_rank=L, sparse=S, rank=rank, lam=float(lam),
+                         objective=report.objective, n_iter=info["n_iter"],
+                         converged=info["converged"], method="convex",
+                         report=report, observed=observed)
+
+
+def _warn_if_stopped(dec):
+    if not dec.converged:
+        warnings.warn(
+            f"robust PCA stopped after {dec.n_iter} iterations before reaching "
+            f"its tolerance (primal residual {dec.report.primal_residual:.2e}, "
+            f"dual residual {dec.report.dual_residual or float('nan'):.2e}); "
+            "raise max_iter or loosen tol", ConvergenceWarning, stacklevel=3)
+
+
+def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
+               target_rank=None, tol=1e-8, max_iter=None, rho=1.5, delta=None,
+               low_rank_sign=None, solver="CLARABEL", seed=0, progress=None):
+    r"""Split W into a low-rank part L and a sparse part S by robust PCA.
+
+    Solves Principal Component Pursuit (Candes, Li, Ma, Wright 2011, eq. 1.1)
+
+    .. math:: \min_{L, S} \|L\|_* + \lambda \|P_\Omega S\|_1
+              \quad \text{s.t.} \quad P_\Omega(L + S) = P_\Omega(W),
+
+    where :math:`\Omega` are the observed entries (all, unless a mask is given).
+
+    Parameters
+    ----------
+    W : array_like of shape (n_post, n_pre)
+        Signed weight matrix, W[post, pre].
+    lam : float or None
+        Weight of the l1 term. None: 1 / sqrt(max(m, n)) (Theorem 1.1).
+    method : {"ialm", "convex"}
+        ``"ialm"``: inexact augmented Lagrange multipliers (Lin, Chen, Ma 2010),
+        fast, stopped on primal and dual residuals. ``"convex"``: an exact
+        convex program solved by cvxpy with ``solver``.
+    mask : array_like of bool or None
+        True where W is *observed*. Unobserved entries are left out of the
+        constraint and of the l1 term; L fills them in and S is zero there.
+    ignore_diagonal : bool
+        Treat the diagonal (self-connections) as unobserved.
+    target_rank : int or None
+        Search lam for a solution whose L has this rank (``lam`` is then
+        the starting guess). See :func:`lambda_path` for a sweep.
+    tol : float
+        ALM: bound on the relative primal and dual residuals.
+    max_iter : int or None
+        Iteration limit. ALM: default 1000, a ``ConvergenceWarning`` if
+        reached. Convex: passed to the solver; None keeps the solver's own.
+    rho : float
+        ALM: growth factor of the penalty mu.
+    delta : float or None
+        Convex only: stable PCP (Zhou et al. 2010) with the noise bound
+        ||P_Omega(W - L - S)||_F <= delta.
+    low_rank_sign : {None, "nonpositive"}
+        Convex only: constrain L <= 0 entrywise (a purely inhibitory low-rank
+        part).
+    solver : {"CLARABEL", "SCS"}
+        cvxpy solver for ``method="convex"``.
+    seed : int
+        Seed of the random starting block of the partial SVD.
+    progress : callable or None
+        ALM: called as ``progress(iteration, primal, dual, rank, mu)``.
+
+    Returns
+    -------
+    Decomposition
+
+    Warns
+    -----
+    ConvergenceWarning
+        When the ALM solver stops at ``max_iter``.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from eidecomp import robust_pca
+    >>> rng = np.random.default_rng(0)
+    >>> L0 = rng.standard_normal((60, 2)) @ rng.standard_normal((2, 60))
+    >>> S0 = np.where(rng.random((60, 60)) < 0.05, 10.0, 0.0)
+    >>> dec = robust_pca(L0 + S0)
+    >>> dec.rank, dec.converged
+    (2, True)
+    >>> bool(np.allclose(dec.low_rank, L0, atol=1e-6))
+    True
+    """
+    W = _check_matrix(W)
+    observed = _check_observed(mask, W.shape, ignore_diagonal)
+    if method not in METHODS:
+        raise InputError(f"unknown method {method!r}; choose one of "
+                         f"{', '.join(METHODS)}")
+    if method == "ialm" and (delta is not None or low_rank_sign is not None):
+        raise InputError("stable PCP (delta) and low_rank_sign need "
+                         "method='convex'")
+    if low_rank_sign not in (None, "nonpositive"):
+        raise InputError(f"low_rank_sign must be None or 'nonpositive', got "
+                         f"{low_rank_sign!r}")
+    if delta is not None and not (np.isfinite(delta) and delta >= 0):
+        raise InputError(f"delta must be a finite number >= 0, got {delta!r}")
+    lam = default_lam(W.shape) if lam is None else _check_lam(lam)
+    if max_iter is not None and not (isinstance(max_iter, (int, np.integer))
+                                     and max_iter >= 1):
+        raise InputError(f"max_iter must be a positive integer, got {max_iter!r}")
+    if not tol > 0:
+        raise InputError(f"tol must be positive, got {tol!r}")
+    if not rho > 1:
+        raise InputError(f"rho must be greater than 1, got {rho!r}")
+
+    if method == "ialm":
+        def solve(lam_, init=None):
+            return _ialm_decomposition(W, lam_, observed, tol=tol,
+                                       max_iter=max_iter or 1000, rho=rho,
+                                       seed=seed,
+                                       progress=progress, init=init)
+    else:
+        program = ConvexPCP(W, observed=observed, delta=delta,
+                            low_rank_sign=low_rank_sign)
+
+        def solve(lam_, init=None):
+            dec = _convex_decomposition(W, lam_, observed, program=program,
+                                        solver=solver, max_iter=max_iter)
+            return dec, None
+
+    if target_rank is None:
+        dec, _ = solve(lam)
+    else:
+        dec = _search_rank(solve, lam, int(_check_rank(target_rank, W.shape)))
+    _warn_if_stopped(dec)
+    return dec
+
+
+def _check_lam(lam):
+    try:
+        lam = float(lam)
+    except (TypeError, ValueError):
+        raise InputError(f"lam must be a positive number, got {lam!r}") from None
+    if not (np.isfinite(lam) and lam > 0):
+        raise InputError(f"lam must be a positive finite number, got {lam!r}")
+    return lam
+
+
+def _check_rank(k, shape):
+    if not isinstance(k, (int, np.integer)) or not 0 <= k <= min(shape):
+        raise InputError(f"target rank must be an integer from 0 to "
+                         f"{min(shape)}, got {k!r}")
+    return k
+
+
+def _search_rank(solve, lam, k, max_evals=40):
+    """Bisect log(lam) until rank(L) == k; rank grows with lam."""
+    cache = {}
+
+    def at(lam_):
+        near = min(cache, key=lambda x: abs(math.log(x / lam_)), default=None)
+        dec, state = solve(lam_, init=None if near is None else cache[near][1])
+        cache[lam_] = (dec, state)
+        return dec
+
+    lo = hi = None
+    dec = at(lam)
+    for _ in range(max_evals):
+        if dec.rank == k:
+            return dec
+        if dec.rank < k:
+            lo = lam
+            lam = lam * 2.0 if hi is None else math.sqrt(lam * hi)
+        else:
+            hi = lam
+            lam = lam / 2.0 if lo is None else math.sqrt(lam * lo)
+        if lo is not None and hi is not None and hi / lo < 1 + 1e-6:
+            break
+        dec = at(lam)
+    best = min((d for d, _ in cache.values()),
+               key=lambda d: (abs(d.rank - k), d.lam))
+    warnings.warn(f"no lam found that gives rank {k} exactly; closest: rank "
+                  f"{best.rank} at lam {best.lam:.6g}", UserWarning, stacklevel=3)
+    return best
+
+
+def lambda_path(W, lams=None, *, n_lams=12, mask=None, ignore_diagonal=False,
+                tol=1e-8, max_iter=1000, seed=0):
+    """Solve PCP over a range of lam with warm starts (fast ALM solver).
+
+    Parameters
+    ----------
+    W : array_like of shape (n_post, n_pre)
+    lams : sequence of float or None
+        The values of lam. None: ``n_lams`` values log-spaced from a quarter
+        to four times the default 1 / sqrt(max(m, n)).
+    n_lams : int
+    mask, ignore_diagonal, tol, max_iter, seed
+        As in :func:`robust_pca`.
+
+    Returns
+    -------
+    points : list of PathPoint
+        One per lam, in increasing lam: rank, sparsity, ||L||_*, ||S||_1 and
+        primal residual.
+    decompositions : list of Decomposition
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from eidecomp import lambda_path
+    >>> W = np.random.default_rng(0).standard_normal((30, 30))
+    >>> points, _ = lambda_path(W, n_lams=4)
+    >>> [p.rank for p in points] == sorted(p.rank for p in points)
+    True
+    """
+    W = _check_matrix(W)
+    observed = _check_observed(mask, W.shape, ignore_diagonal)
+    if lams is None:
+        lam0 = default_lam(W.shape)
+        lams = np.geomspace(lam0 / 4, lam0 * 4, int(n_lams))
+    lams = sorted(_check_lam(x) for x in lams)
+    if not lams:
+        raise InputError("lambda_path needs at least one lam")
+    points, decs, state = [], [], None
+    for lam in lams:
+        dec, state = _ialm_decomposition(W, lam, observed, tol=tol,
+                                         max_iter=max_iter, rho=1.5, seed=seed,
+                                         progress=None, init=state)
+        _warn_if_stopped(dec)
+        r = dec.report
+        points.append(PathPoint(lam=lam, rank=dec.rank, sparsity=dec.sparsity,
+                                nuclear_norm=r.nuclear_norm, l1_norm=r.l1_norm,
+                                primal_residual=r.primal_residual,
+                                objective=r.objective, n_iter=dec.n_iter,
+                                converged=dec.converged))
+        decs.append(dec)
+    return points, decs

@@ -1,0 +1,110 @@
+"""Principal Component Pursuit and its variants as exact convex programs (cvxpy).
+
+Three programs, all over L, S of W's shape, with Omega the observed entries:
+
+* PCP (Candes, Li, Ma, Wright 2011, eq. 1.1):
+  min ||L||_* + lam ||P_Omega S||_1  s.t.  P_Omega(L + S) = P_Omega(W);
+* stable PCP (Zhou, Li, Wright, Candes, Ma 2010, eq. 4):
+  the same objective s.t. ||P_Omega(W - L - S)||_F <= delta;
+* sign-constrained PCP: PCP with L <= 0 entrywise, a low-rank part that may
+  only inhibit (what the circuit builder maps onto interneurons).
+
+cvxpy is imported inside the functions: it is slow to import and only these
+programs need it. The solver is always named; Clarabel (interior point) is the
+default, SCS (first order, looser) for larger problems.
+"""
+
+import numpy as np
+
+from ..errors import InputError, SolverError
+
+__all__ = ["ConvexPCP", "solve_convex"]
+
+SOLVERS = ("CLARABEL", "SCS")
+
+
+class ConvexPCP:
+    """A PCP program built once, with lam a ``cp.Parameter`` for sweeps.
+
+    Parameters
+    ----------
+    W : ndarray of shape (m, n)
+    observed : ndarray of bool or None
+    delta : float or None
+        Noise bound of stable PCP; None for exact equality.
+    low_rank_sign : {None, "nonpositive"}
+    """
+
+    def __init__(self, W, *, observed=None, delta=None, low_rank_sign=None):
+        import cvxpy as cp
+
+        self._cp = cp
+        m, n = W.shape
+        self.L = cp.Variable((m, n), name="L")
+        self.S = cp.Variable((m, n), name="S")
+        self.lam = cp.Parameter(nonneg=True, name="lam", value=1.0)
+        if observed is None or observed.all():
+            mask = None
+            resid = W - self.L - self.S
+            l1 = cp.sum(cp.abs(self.S))
+        else:
+            mask = observed.astype(float)
+            resid = cp.multiply(mask, W - self.L - self.S)
+            l1 = cp.sum(cp.abs(cp.multiply(mask, self.S)))
+        if delta is None:
+            self.coupling = resid == 0
+        else:
+            self.coupling = cp.norm(resid, "fro") <= float(delta)
+        constraints = [self.coupling]
+        if mask is not None:  # S carries nothing where W is not observed
+            constraints.append(cp.multiply(1.0 - mask, self.S) == 0)
+        if low_rank_sign == "nonpositive":
+            constraints.append(self.L <= 0)
+        self.problem = cp.Problem(cp.Minimize(cp.normNuc(self.L) + self.lam * l1),
+                                  constraints)
+        self.equality = delta is None
+
+    def solve(self, lam, *, solver="CLARABEL", max_iter=None, verbose=False):
+        """Solve at ``lam``; returns (L, S, Y or None, info)."""
+        cp = self._cp
+        solver = solver.upper()
+        if solver not in SOLVERS:
+            raise InputError(f"unknown convex solver {solver!r}; choose one of "
+                             f"{', '.join(SOLVERS)}")
+        if solver not in cp.installed_solvers():
+            raise SolverError(f"cvxpy solver {solver} is not installed")
+        self.lam.value = float(lam)
+        kwargs = {}
+        if max_iter is not None:
+            kwargs["max_iter"] = int(max_iter)
+        try:
+            self.problem.solve(solver=solver, verbose=verbose, **kwargs)
+        except cp.error.SolverError as exc:
+            raise SolverError(f"cvxpy solver {solver} failed: {exc}") from exc
+        status = self.problem.status
+        if status not in (cp.OPTIMAL, cp.OPTIMAL_INACCURATE):
+            raise SolverError(f"cvxpy solver {solver} ended with status {status}")
+        Y = None
+        if self.equality and self.coupling.dual_value is not None:
+            # cvxpy's multiplier of (W - L - S == 0); at the optimum it lies in
+            # the subdifferentials of ||L||_* and lam ||S||_1 (the sign of the
+            # convention does not change the two norms reported).
+            Y = np.asarray(self.coupling.dual_value, dtype=float)
+        stats = self.problem.solver_stats
+        info = {
+            "status": status,
+            "solver": solver,
+            "n_iter": int(stats.num_iters or 0) if stats is not None else 0,
+            "converged": status == cp.OPTIMAL,
+            "solve_time": getattr(stats, "solve_time", None),
+        }
+        return (np.asarray(self.L.value, dtype=float),
+                np.asarray(self.S.value, dtype=float), Y, info)
+
+
+def solve_convex(W, lam, *, observed=None, delta=None, low_rank_sign=None,
+                 solver="CLARABEL", max_iter=None):
+    """Build and solve one convex PCP program; see :class:`ConvexPCP`."""
+    program = ConvexPCP(W, observed=observed, delta=delta,
+                        low_rank_sign=low_rank_sign)
+    return program.solve(lam, solver=solver, max_iter=max_iter)

@@ -1,0 +1,309 @@
+"""Read weight matrices and masks; write result folders atomically.
+
+Formats read (chosen by the file's ending):
+
+``.npy``
+    One array. Loaded with ``allow_pickle=False``: a file holding Python
+    objects is refused, never unpickled.
+``.npz``
+    Several named arrays; ``key`` names one, or the file must hold exactly one.
+``.csv`` / ``.tsv`` / ``.txt``
+    Numbers separated by commas, tabs, or (``.txt``) commas, tabs or white
+    space. An optional header row (any non-numeric cell in the first row) and
+    an optional index column (a first column that is non-numeric in every data
+    row, or under an empty header cell). Anything else non-numeric is an error
+    that names its row and column (1-based, as a spreadsheet shows them).
+``.mat``
+    MATLAB files up to v7 (scipy.io.loadmat); ``key`` names the variable, or
+    the file must hold exactly one.
+
+Every matrix is W[post, pre]: row = target, column = source. ``transpose=True``
+reads a file stored as [pre, post]. Errors are :class:`~eidecomp.errors.InputError`
+with one line that names the file.
+
+Writing: :func:`write_folder` writes every file of a result into a temporary
+folder beside the target and renames it into place, so a failed or interrupted
+run leaves no half-written output; an existing target is replaced only with
+``force=True``.
+"""
+
+import csv
+import hashlib
+import io as _io
+import json
+import os
+import shutil
+import tempfile
+import zipfile
+from pathlib import Path
+
+import numpy as np
+
+from .errors import InputError
+
+__all__ = ["file_checksum", "read_mask", "read_matrix", "write_folder"]
+
+MATRIX_SUFFIXES = (".npy", ".npz", ".csv", ".tsv", ".txt", ".mat")
+
+
+def file_checksum(path):
+    """SHA-256 of a file's bytes, as hex."""
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for chunk in iter(lambda: fh.read(1 << 20), b""):
+            h.update(chunk)
+    return h.hexdigest()
+
+
+def _parse_float(cell):
+    try:
+        return float(cell)
+    except ValueError:
+        return None
+
+
+def _read_text(path, suffix):
+    try:
+        text = Path(path).read_text(encoding="utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise InputError(f"{path}: not UTF-8 text (byte {exc.start})") from None
+    lines = [ln for ln in text.splitlines() if ln.strip()]
+    if not lines:
+        raise InputError(f"{path}: file is empty")
+    if suffix == ".csv":
+        rows = list(csv.reader(lines))
+    elif suffix == ".tsv":
+        rows = list(csv.reader(lines, delimiter="\t"))
+    elif "," in lines[0]:
+        rows = list(csv.reader(lines))
+    elif "\t" in lines[0]:
+        rows = list(csv.reader(lines, delimiter="\t"))
+    else:
+        rows = [ln.split() for ln in lines]
+    rows = [[c.strip() for c in row] for row in rows]
+    header = None
+    if any(_parse_float(c) is None for c in rows[0]):
+        header, rows = rows[0], rows[1:]
+    if not rows:
+        raise InputError(f"{path}: a header row but no numbers")
+    first_col_text = all(_parse_float(r[0]) is None for r in rows if r)
+    index = first_col_text or (header is not None and header[0] == ""
+                               and len(header) == len(rows[0]))
+    width = len(rows[0])
+    values = []
+    for i, row in enumerate(rows):
+        line_no = i + 1 + (header is not None)
+        if len(row) != width:
+            raise InputError(f"{path}: row {line_no} has {len(row)} cells, "
+                             f"expected {width} as in the first data row")
+        cells = row[1:] if index else row
+        parsed = []
+        for j, cell in enumerate(cells):
+            v = _parse_float(cell)
+            if v is None:
+                col = j + 1 + index
+                what = "empty cell" if cell == "" else f"non-numeric cell {cell!r}"
+                raise InputError(f"{path}: {what} at row {line_no}, column {col}")
+            parsed.append(v)
+        values.append(parsed)
+    if header is not None and len(header) != width:
+        raise InputError(f"{path}: header has {len(header)} cells but rows have "
+                         f"{width}")
+    return np.array(values, dtype=np.float64)
+
+
+def _pick(path, names, key, kind):
+    if key is not None:
+        if key not in names:
+            raise InputError(f"{path}: no {kind} named {key!r}; it holds "
+                             f"{', '.join(sorted(names)) or 'nothing'}")
+        return key
+    if len(names) != 1:
+        raise InputError(f"{path}: holds {len(names)} {kind}s "
+                         f"({', '.join(sorted(names))}); name one with --key")
+    return next(iter(names))
+
+
+def _load_array(path, key):
+    suffix = path.suffix.lower()
+    if suffix == ".npy":
+        try:
+            return np.load(path, allow_pickle=False)
+        except ValueError as exc:
+            if "pickle" in str(exc).lower() or "object" in str(exc).lower():
+                raise InputError(f"{path}: holds Python objects; refused "
+                                 "(eidecomp never unpickles)") from None
+            raise InputError(f"{path}: not a valid .npy file ({exc})") from None
+        except (OSError, EOFError) as exc:
+            raise InputError(f"{path}: not a valid .npy file ({exc})") from None
+    if suffix == ".npz":
+        try:
+            with np.load(path, allow_pickle=False) as data:
+                name = _pick(path, data.files, key, "array")
+                return data[name]
+        except (ValueError, OSError, EOFError, zipfile.BadZipFile) as exc:
+            if isinstance(exc, InputError):
+                raise
+            msg = str(exc)
+            if "pickle" in msg.lower() or "object" in msg.lower():
+                raise InputError(f"{path}: holds Python objects; refused "
+                                 "(eidecomp never unpickles)") from None
+            raise InputError(f"{path}: not a valid .npz file ({msg})") from None
+    if suffix in (".csv", ".tsv", ".txt"):
+        return _read_text(path, suffix)
+    if suffix == ".mat":
+        import scipy.io
+
+        try:
+            data = scipy.io.loadmat(path)
+        except NotImplementedError:
+            raise InputError(f"{path}: MATLAB v7.3 (HDF5) files are not read; "
+                             "save with -v7 or as .npy") from None
+        except (ValueError, OSError, TypeError) as exc:
+            raise InputError(f"{path}: not a valid .mat file ({exc})") from None
+        names = [k for k in data if not k.startswith("__")]
+        return data[_pick(path, names, key, "variable")]
+    raise InputError(f"{path}: unknown file type {suffix or '(none)'!r}; "
+                     f"expected one of {', '.join(MATRIX_SUFFIXES)}")
+
+
+def read_matrix(path, *, key=None, transpose=False, square=True, what="matrix"):
+    """Read a real 2-D float64 matrix W[post, pre] from ``path``.
+
+    Parameters
+    ----------
+    path : str or Path
+    key : str or None
+        Array name in an ``.npz`` or variable in a ``.mat`` file.
+    transpose : bool
+        The file is stored [pre, post]; return its transpose.
+    square : bool
+        Require a square matrix (a weight matrix among one set of neurons).
+    what : str
+        Word used in error messages.
+
+    Returns
+    -------
+    ndarray of float64, shape (n_post, n_pre)
+
+    Raises
+    ------
+    InputError
+        Missing file, unreadable format, non-numeric or non-finite values,
+        wrong dimensionality or shape; the message names the file.
+
+    Examples
+    --------
+    >>> import numpy as np, tempfile, os
+    >>> from eidecomp.io import read_matrix
+    >>> path = os.path.join(tempfile.mkdtemp(), "w.csv")
+    >>> _ = open(path, "w").write("post,a,b\\na,0,1.5\\nb,-2,0\\n")
+    >>> read_matrix(path)
+    array([[ 0. ,  1.5],
+           [-2. ,  0. ]])
+    """
+    path = Path(path)
+    if not path.exists():
+        raise InputError(f"{path}: no such file")
+    if path.is_dir():
+        raise InputError(f"{path}: is a folder, expected a {what} file")
+    if path.stat().st_size == 0:
+        raise InputError(f"{path}: file is empty")
+    arr = np.asarray(_load_array(path, key))
+    if arr.dtype.kind not in "biuf":
+        kind = {"c": "complex", "U": "text", "S": "text", "O": "object",
+                "V": "structured"}.get(arr.dtype.kind, str(arr.dtype))
+        raise InputError(f"{path}: holds {kind} values; a real numeric {what} "
+                         "is needed")
+    if arr.ndim != 2:
+        raise InputError(f"{path}: {what} must be 2-D, got {arr.ndim}-D shape "
+                         f"{arr.shape}")
+    if arr.size == 0:
+        raise InputError(f"{path}: {what} is empty (shape {arr.shape})")
+    if arr.dtype.kind in "iu" and np.abs(arr).max() > 2**53:
+        raise InputError(f"{path}: integer values beyond 2**53 lose precision "
+                         "as float64")
+    with np.errstate(over="ignore"):
+        W = arr.astype(np.float64)
+    bad = ~np.isfinite(W)
+    if bad.any():
+        i, j = np.argwhere(bad)[0]
+        raise InputError(f"{path}: {int(bad.sum())} non-finite value(s) (NaN or "
+                         f"Inf), first at row {i + 1}, column {j + 1}")
+    if transpose:
+        W = np.ascontiguousarray(W.T)
+    if square and W.shape[0] != W.shape[1]:
+        raise InputError(f"{path}: {what} must be square (W[post, pre] among one "
+                         f"set of neurons), got shape {W.shape}")
+    return W
+
+
+def read_mask(path, shape, *, key=None, transpose=False):
+    """Read a mask of *unobserved* entries; return the *observed* boolean array.
+
+    The file holds 1 (or True) where an entry is unobserved and 0 where it is
+    observed, with W's shape and orientation.
+    """
+    M = read_matrix(path, key=key, transpose=transpose, square=False,
+                    what="mask")
+    if M.shape != tuple(shape):
+        raise InputError(f"{path}: mask has shape {M.shape} but the matrix has "
+                         f"shape {tuple(shape)}")
+    if not np.isin(M, (0.0, 1.0)).all():
+        raise InputError(f"{path}: mask must hold only 0 (observed) and 1 "
+                         "(unobserved)")
+    return M == 0.0
+
+
+def _npy_bytes(arr):
+    buf = _io.BytesIO()
+    np.save(buf, np.ascontiguousarray(arr), allow_pickle=False)
+    return buf.getvalue()
+
+
+def write_folder(out, files, *, force=False):
+    """Write ``files`` (name -> ndarray | dict | str | bytes) into folder ``out``.
+
+    Arrays become ``.npy``, dicts JSON, str text. Everything is written into a
+    temporary folder beside ``out`` and renamed into place at the end; on any
+    error (or interrupt) the temporary folder is removed and ``out`` is left
+    as it was. An existing ``out`` is an error unless ``force``.
+    """
+    out = Path(out)
+    if out.exists() and not force:
+        raise InputError(f"{out}: already exists; use --force to replace it")
+    if out.exists() and not out.is_dir():
+        raise InputError(f"{out}: exists and is not a folder")
+    parent = out.resolve().parent
+    if not parent.is_dir():
+        raise InputError(f"{out}: parent folder {parent} does not exist")
+    tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.", suffix=".partial",
+                                dir=parent))
+    old = None
+    try:
+        for name, value in files.items():
+            if isinstance(value, np.ndarray):
+                data = _npy_bytes(value)
+            elif isinstance(value, dict):
+                data = (json.dumps(value, indent=2, sort_keys=True,
+                                   allow_nan=True) + "\n").encode()
+            elif isinstance(value, str):
+                data = value.encode()
+            else:
+                data = bytes(value)
+            with open(tmp / name, "wb") as fh:
+                fh.write(data)
+                fh.flush()
+                os.fsync(fh.fileno())
+        if out.exists():
+            old = out.with_name(f".{out.name}.old-{os.getpid()}")
+            os.rename(out, old)
+        os.rename(tmp, out)
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        if old is not None and not out.exists():
+            os.rename(old, out)
+        raise
+    if old is not None:
+        shutil.rmtree(old, ignore_errors=True)
+    return out
