@@ -76,7 +76,7 @@ def _get_parser():
     dec.add_argument("--tol", type=_positive_float, default=1e-8,
                      help="ALM tolerance on primal and dual residuals")
     dec.add_argument("--max-iter", type=_count, metavar="N",
-                     help="iteration limit (ALM default 1000)")
+                     help="iteration limit (ALM default 5000)")
     dec.add_argument("--seed", type=_count, default=0)
     dec.add_argument("--force", action="store_true",
                      help="replace OUT if it exists")

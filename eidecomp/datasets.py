@@ -6,8 +6,10 @@ uniformly random support of the given fraction and independent random signs.
 
 ``example_lateral`` is invented data for the demo only, a scenario of our own:
 a ring of orientation-tuned model units whose lateral weights mix broad
-inhibition (low-rank), sparse like-to-like excitation and sparse
-feature-specific suppression, plus a little measurement noise.
+inhibition (rank 3), sparse like-to-like excitation and sparse
+feature-specific suppression, with optional dense measurement noise (PCP
+spreads dense noise over many tiny singular values; stable PCP, with
+``delta``, is the program for noisy data).
 """
 
 import numpy as np
@@ -48,12 +50,20 @@ def make_planted(n, *, rank=None, corruption=0.05, magnitude=1.0, seed=0,
     return L0 + S0, L0, S0
 
 
-def example_lateral(n=120, *, seed=7):
+def example_lateral(n=120, *, noise=0.0, seed=7):
     """Invented lateral weight matrix W[post, pre] of ``n`` orientation-tuned units.
+
+    Parameters
+    ----------
+    n : int
+    noise : float
+        Standard deviation of dense Gaussian noise added to every entry.
+    seed : int
 
     Returns
     -------
     W : ndarray of shape (n, n)
+        Zero diagonal (no self-connections).
     preferred : ndarray of shape (n,)
         Preferred orientation of each unit, degrees in [0, 180).
     """
@@ -65,6 +75,6 @@ def example_lateral(n=120, *, seed=7):
     excite = np.where(like, rng.uniform(0.2, 0.5, (n, n)), 0.0)
     unlike = (np.cos(d) < -0.7) & (rng.random((n, n)) < 0.1)
     suppress = np.where(unlike, -rng.uniform(0.2, 0.4, (n, n)), 0.0)
-    W = broad + excite + suppress + 1e-3 * rng.standard_normal((n, n))
+    W = broad + excite + suppress + noise * rng.standard_normal((n, n))
     np.fill_diagonal(W, 0.0)
     return W, theta

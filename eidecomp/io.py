@@ -127,6 +127,9 @@ def _pick(path, names, key, kind):
 def _load_array(path, key):
     suffix = path.suffix.lower()
     if suffix == ".npy":
+        with open(path, "rb") as fh:
+            if fh.read(6) != b"\x93NUMPY":  # else np.load would try pickle
+                raise InputError(f"{path}: not a .npy file (no NumPy header)")
         try:
             return np.load(path, allow_pickle=False)
         except ValueError as exc:
@@ -197,7 +200,8 @@ def read_matrix(path, *, key=None, transpose=False, square=True, what="matrix"):
     >>> import numpy as np, tempfile, os
     >>> from eidecomp.io import read_matrix
     >>> path = os.path.join(tempfile.mkdtemp(), "w.csv")
-    >>> _ = open(path, "w").write("post,a,b\\na,0,1.5\\nb,-2,0\\n")
+    >>> with open(path, "w") as fh:
+    ...     _ = fh.write("post,a,b\\na,0,1.5\\nb,-2,0\\n")
     >>> read_matrix(path)
     array([[ 0. ,  1.5],
            [-2. ,  0. ]])

@@ -22,6 +22,7 @@ __all__ = ["default_lam", "lambda_path", "pcp_objective", "robust_pca"]
 
 METHODS = ("ialm", "convex")
 RANK_RTOL = 1e-6  # convex solutions: singular values below this x the largest
+MAX_ITER = 5000  # ALM default: planted problems stop in ~30, degenerate ones need more
 ZERO_RTOL = 1e-7  # convex solutions: |S_ij| below this x max|W| is solver noise
 
 
@@ -103,9 +104,26 @@ def _report(W, L, S, Y, lam, observed, *, nuclear, dual, n_iter, converged,
 
 def _ialm_decomposition(W, lam, observed, *, tol, max_iter, rho, seed,
                         progress, init=None):
-    L, S, Y, info = ialm(W, lam, observed=observed, tol=tol, max_iter=max_iter,
-                         rho=rho, rng=np.random.default_rng(seed),
-                         init=init, callback=progress)
+    """One ALM solve; ``init`` is a neighbour's (L, S, Y, mu, n_iter).
+
+    A warm start enters with the neighbour's large mu and a multiplier made
+    for another lam; where that puts it in the slow, linearly converging
+    regime, a cold start is faster (it converges superlinearly as mu grows).
+    So the warm start gets a budget of twice the neighbour's iterations (at
+    least 50) and is replaced by a cold start if it has not converged by then.
+    """
+    info = None
+    if init is not None:
+        budget = min(max_iter, max(50, 2 * int(init[4])))
+        L, S, Y, info = ialm(W, lam, observed=observed, tol=tol, max_iter=budget,
+                             rho=rho, rng=np.random.default_rng(seed),
+                             init=init[:4], callback=progress)
+        if not info["converged"]:
+            info = None
+    if info is None:
+        L, S, Y, info = ialm(W, lam, observed=observed, tol=tol,
+                             max_iter=max_iter, rho=rho,
+                             rng=np.random.default_rng(seed), callback=progress)
     if observed is not None:
         S[~observed] = 0.0  # unobserved: L is the completion, S carries nothing
     hist = info["history"]
@@ -119,7 +137,7 @@ def _ialm_decomposition(W, lam, observed, *, tol, max_iter, rho, seed,
                         objective=report.objective, n_iter=info["n_iter"],
                         converged=info["converged"], history=tuple(hist),
                         method="ialm", report=report, observed=observed)
-    return dec, (L, S, Y, info["mu"])
+    return dec, (L, S, Y, info["mu"], info["n_iter"])
 
 
 def _convex_decomposition(W, lam, observed, *, program, solver, max_iter):
@@ -181,7 +199,7 @@ def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
     tol : float
         ALM: bound on the relative primal and dual residuals.
     max_iter : int or None
-        Iteration limit. ALM: default 1000, a ``ConvergenceWarning`` if
+        Iteration limit. ALM: default 5000, a ``ConvergenceWarning`` if
         reached. Convex: passed to the solver; None keeps the solver's own.
     rho : float
         ALM: growth factor of the penalty mu.
@@ -245,7 +263,7 @@ def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
     if method == "ialm":
         def solve(lam_, init=None):
             return _ialm_decomposition(W, lam_, observed, tol=tol,
-                                       max_iter=max_iter or 1000, rho=rho,
+                                       max_iter=max_iter or MAX_ITER, rho=rho,
                                        seed=seed,
                                        progress=progress, init=init)
     else:
@@ -314,7 +332,7 @@ def _search_rank(solve, lam, k, max_evals=40):
 
 
 def lambda_path(W, lams=None, *, n_lams=12, mask=None, ignore_diagonal=False,
-                tol=1e-8, max_iter=1000, seed=0):
+                tol=1e-8, max_iter=MAX_ITER, seed=0):
     """Solve PCP over a range of lam with warm starts (fast ALM solver).
 
     Parameters

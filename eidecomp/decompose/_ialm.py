@@ -35,7 +35,7 @@ from ._svt import spectral_norm, svt
 
 __all__ = ["ialm"]
 
-_GROW = 0.5     # mu grows while dual < primal / _GROW ...
+_GROW = 0.5     # phase 2: mu grows while dual < primal / _GROW ...
 _SHRINK = 10.0  # ... and shrinks once dual > _SHRINK * primal
 _MU_MAX_FACTOR = 1e10  # mu never exceeds this multiple of its start
 
@@ -47,7 +47,7 @@ def _next_rank(sv_prev, r, n_small):
     return min(r + 5 + max(5, r // 10), n_small)
 
 
-def ialm(W, lam, *, observed=None, tol=1e-8, max_iter=1000, rho=1.5,
+def ialm(W, lam, *, observed=None, tol=1e-8, max_iter=5000, rho=1.5,
          init=None, rng=None, callback=None):
     """Solve PCP by inexact ALM; arrays in, arrays out.
 

@@ -1,0 +1,146 @@
+"""The decompose command, called as main([...]) on a temporary folder.
+
+Reference for the numbers it writes: the library call robust_pca on the same
+matrix, itself checked against cvxpy and tensorly in the other suites.
+"""
+
+import json
+
+import numpy as np
+import pytest
+
+from eidecomp import __version__, robust_pca
+from eidecomp.cli import main
+from eidecomp.datasets import make_planted
+from eidecomp.io import file_checksum
+
+
+@pytest.fixture
+def planted(tmp_path):
+    W, L0, S0 = make_planted(60, seed=11)
+    path = tmp_path / "w.npy"
+    np.save(path, W)
+    return path, W, L0
+
+
+def test_decompose_writes_outputs(planted, tmp_path, capsys):
+    path, W, L0 = planted
+    out = tmp_path / "out"
+    assert main(["decompose", str(path), "-o", str(out), "--quiet"]) == 0
+    L, S = np.load(out / "low_rank.npy"), np.load(out / "sparse.npy")
+    ref = robust_pca(W)
+    assert np.array_equal(L, ref.low_rank) and np.array_equal(S, ref.sparse)
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["converged"] is True
+    assert summary["rank"] == 3
+    assert summary["input"]["sha256"] == file_checksum(path)
+    assert summary["eidecomp_version"] == __version__
+    opt = summary["optimality"]
+    assert opt["primal_residual"] < 1e-8
+    assert opt["multiplier_spectral_norm"] < 1 + 1e-6
+    assert "rank of L" in capsys.readouterr().out
+
+
+def test_transpose_and_diagonal(planted, tmp_path):
+    path, W, _ = planted
+    np.save(tmp_path / "wt.npy", W.T)
+    a, b = tmp_path / "a", tmp_path / "b"
+    assert main(["decompose", str(path), "-o", str(a), "-q",
+                 "--ignore-diagonal"]) == 0
+    assert main(["decompose", str(tmp_path / "wt.npy"), "-o", str(b), "-q",
+                 "--transpose", "--ignore-diagonal"]) == 0
+    assert np.array_equal(np.load(a / "low_rank.npy"), np.load(b / "low_rank.npy"))
+    assert json.loads((a / "summary.json").read_text())["mask"]["n_unobserved"] == 60
+
+
+def test_force_needed_to_overwrite(planted, tmp_path, capsys):
+    path, _, _ = planted
+    out = tmp_path / "out"
+    assert main(["decompose", str(path), "-o", str(out), "-q"]) == 0
+    before = (out / "summary.json").read_bytes()
+    assert main(["decompose", str(path), "-o", str(out), "-q", "--lam", "0.3"]) == 2
+    assert "already exists; use --force" in capsys.readouterr().err
+    assert (out / "summary.json").read_bytes() == before
+    assert main(["decompose", str(path), "-o", str(out), "-q", "--lam", "0.3",
+                 "--force"]) == 0
+    assert json.loads((out / "summary.json").read_text())["lam"] == 0.3
+
+
+def _write(tmp_path, name, content):
+    p = tmp_path / name
+    if isinstance(content, np.ndarray):
+        np.save(p, content)
+    else:
+        p.write_text(content)
+    return p
+
+
+@pytest.mark.parametrize(("name", "content", "extra", "message"), [
+    ("missing.npy", None, [], "missing.npy: no such file"),
+    ("w.csv", "1,2\n3,abc\n", [], "non-numeric cell 'abc' at row 2, column 2"),
+    ("w.csv", "1,2\n3,nan\n", [], "non-finite value"),
+    ("w.csv", "1,inf\n3,4\n", [], "non-finite value"),
+    ("w.csv", "", [], "file is empty"),
+    ("w.npy", np.ones((2, 3)), [], "must be square"),
+    ("w.npz", None, ["--key", "nope"], "no array named 'nope'"),
+    ("w.npy", np.eye(3), ["--lam", "abc"], "argument --lam: not a number"),
+    ("w.npy", np.eye(3), ["--lam", "-1"], "must be a positive number"),
+    ("w.npy", np.eye(3), ["--method", "magic"], "invalid choice: 'magic'"),
+    ("w.npy", np.eye(3), ["--frobnicate"], "unrecognized arguments: --frobnicate"),
+    ("w.npy", np.eye(3), ["--mask", "MASK"], "mask has shape (2, 2)"),
+])
+def test_bad_input_one_line_exit_2_nothing_written(tmp_path, capsys, name,
+                                                   content, extra, message):
+    if name == "w.npz":
+        np.savez(tmp_path / name, W=np.eye(3))
+        path = tmp_path / name
+    elif content is None:
+        path = tmp_path / name
+    else:
+        path = _write(tmp_path, name, content)
+    np.save(tmp_path / "MASK.npy", np.zeros((2, 2)))
+    extra = [str(tmp_path / "MASK.npy") if e == "MASK" else e for e in extra]
+    before = sorted(p.name for p in tmp_path.iterdir())
+    code = main(["decompose", str(path), "-o", str(tmp_path / "out")] + extra)
+    err = capsys.readouterr().err
+    assert code == 2
+    assert message in err
+    assert len(err.strip().splitlines()) == 1 and "Traceback" not in err
+    assert sorted(p.name for p in tmp_path.iterdir()) == before
+
+
+def test_iteration_limit_warns_and_records(planted, tmp_path, capsys):
+    path, _, _ = planted
+    out = tmp_path / "out"
+    assert main(["decompose", str(path), "-o", str(out), "-q",
+                 "--max-iter", "3"]) == 0
+    assert "stopped after 3 iterations" in capsys.readouterr().err
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["converged"] is False
+    assert summary["optimality"]["converged"] is False
+
+
+def test_target_rank_and_convex(planted, tmp_path):
+    path, _, _ = planted
+    assert main(["decompose", str(path), "-o", str(tmp_path / "r"), "-q",
+                 "--target-rank", "2"]) == 0
+    assert json.loads((tmp_path / "r" / "summary.json").read_text())["rank"] == 2
+    small = tmp_path / "small.npy"
+    np.save(small, make_planted(20, rank=2, seed=1)[0])
+    assert main(["decompose", str(small), "-o", str(tmp_path / "c"), "-q",
+                 "--method", "convex"]) == 0
+    assert main(["decompose", str(small), "-o", str(tmp_path / "f"), "-q"]) == 0
+    fast = json.loads((tmp_path / "f" / "summary.json").read_text())
+    exact = json.loads((tmp_path / "c" / "summary.json").read_text())
+    assert exact["optimality"]["solver"] == "CLARABEL"
+    assert exact["objective"] == pytest.approx(fast["objective"], rel=1e-6)
+    ranked = json.loads((tmp_path / "r" / "summary.json").read_text())
+    assert ranked["parameters"]["target_rank"] == 2
+
+
+def test_builtin_example(tmp_path):
+    out = tmp_path / "ex"
+    assert main(["decompose", "example", "-o", str(out), "-q",
+                 "--ignore-diagonal"]) == 0
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["converged"] and summary["rank"] == 3

@@ -1,0 +1,58 @@
+"""Against tensorly.decomposition.robust_pca, a general-purpose reference library.
+
+Parameter mapping, worked out from tensorly's source (robust_decomposition.py,
+tensorly 0.8 to 0.10): for a matrix (ndim = 2) it minimises
+    sum_{i=0,1} reg_J ||J_i||_* + reg_E ||E||_1,  J_0 = D, J_1 = unfold(D, 1) = D^T,
+and ||D^T||_* = ||D||_*, so its objective is 2 reg_J ||D||_* + reg_E ||E||_1.
+That is PCP (||L||_* + lam ||S||_1) for reg_J = 1/2 and reg_E = lam. Its
+defaults (reg_J = reg_E = 1, 100 iterations) solve a different problem. Its
+``tol`` is absolute on ||X - D - E||_F, so we scale it by ||W||_F, start mu at
+1.25 / ||W||_2 as Lin et al. (2010) do, and let it run to that tolerance.
+"""
+
+import numpy as np
+import pytest
+
+tensorly_rpca = pytest.importorskip("tensorly.decomposition").robust_pca
+
+from eidecomp import robust_pca  # noqa: E402
+from eidecomp.datasets import make_planted  # noqa: E402
+
+
+def _tensorly_pcp(W, lam, mask=None):
+    return tensorly_rpca(W, mask=mask, reg_J=0.5, reg_E=lam,
+                         tol=1e-10 * np.linalg.norm(W),
+                         mu_init=1.25 / np.linalg.norm(W, 2), learning_rate=1.1,
+                         n_iter_max=3000, verbose=0)
+
+
+def _rel(a, b):
+    return np.linalg.norm(a - b) / np.linalg.norm(b)
+
+
+@pytest.mark.parametrize("seed", [1, 2])
+def test_same_L_and_S_as_tensorly_on_planted(seed):
+    W, _, _ = make_planted(100, seed=seed)
+    dec = robust_pca(W)
+    D, E = _tensorly_pcp(W, dec.lam)
+    assert _rel(dec.low_rank, D) < 1e-4
+    assert _rel(dec.sparse, E) < 1e-4
+
+
+def test_tensorly_defaults_solve_another_problem():
+    # guards the mapping above: at its defaults tensorly is far from PCP
+    W, _, _ = make_planted(100, seed=1)
+    D, _ = tensorly_rpca(W, verbose=0)
+    assert _rel(robust_pca(W).low_rank, D) > 1e-2
+
+
+def test_same_as_tensorly_with_unobserved_diagonal():
+    # tensorly's mask (1 = observed) removes entries from the l1 term and lets
+    # E absorb them, the same as our unobserved entries; compare on observed
+    # entries of S and everywhere for L.
+    W, _, _ = make_planted(100, seed=3)
+    observed = ~np.eye(100, dtype=bool)
+    dec = robust_pca(W, ignore_diagonal=True)
+    D, E = _tensorly_pcp(W, dec.lam, mask=observed.astype(float))
+    assert _rel(dec.low_rank, D) < 1e-4
+    assert _rel(dec.sparse[observed], E[observed]) < 1e-4
