@@ -65,11 +65,12 @@ def main():
         try:
             lam = dec.lam
             if n <= args.tensorly_max:
-                t_tl, (D, tl_iters) = _time(lambda W=W: _tensorly(W, lam, 5000))
+                t_tl, (D, tl_iters) = _time(lambda W=W, lam=lam: _tensorly(W, lam, 5000))
                 tl = f"{t_tl:11.2f} {_rel(D, L0):8.1e}"
             else:
                 block = 5
-                t_blk, _ = _time(lambda W=W: _tensorly(W, lam, block))
+                t_blk, _ = _time(lambda W=W, lam=lam, block=block:
+                                  _tensorly(W, lam, block))
                 t_tl = t_blk / block * (tl_iters or 300)
                 tl = f"{t_tl:7.0f} est {'-':>8}"
             ratio = f"{t_tl / t_ours:8.0f}"

@@ -1,8 +1,9 @@
 """Synthetic matrices: planted low-rank + sparse problems and the example.
 
 ``make_planted`` is the setting of the numerical experiments of Candes, Li, Ma,
-Wright (2011), section 4.1: L0 = X Y^T with X, Y of i.i.d. N(0, 1/n) entries, and S0 with a
-uniformly random support of the given fraction and independent random signs.
+Wright (2011), section 4.1: L0 = X Y^T with X, Y of i.i.d. N(0, 1/n) entries,
+and S0 with a uniformly random support of the given fraction and independent
+random signs.
 
 ``example_lateral`` is invented data for the demo only, a scenario of our own:
 a ring of orientation-tuned model units whose lateral weights mix broad

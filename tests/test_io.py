@@ -32,7 +32,8 @@ def test_csv_header_and_index_column(tmp_path):
     p = tmp_path / "w.csv"
     names = ["a", "b", "c"]
     rows = ["post\\pre," + ",".join(names)]
-    rows += [f"{n}," + ",".join(repr(float(v)) for v in row) for n, row in zip(names, W)]
+    rows += [f"{n}," + ",".join(repr(float(v)) for v in row)
+             for n, row in zip(names, W, strict=True)]
     p.write_text("\ufeff" + "\n".join(rows) + "\n")  # with a byte-order mark
     assert np.array_equal(read_matrix(p), W)
 
