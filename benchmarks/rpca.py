@@ -65,7 +65,8 @@ def main():
         try:
             lam = dec.lam
             if n <= args.tensorly_max:
-                t_tl, (D, tl_iters) = _time(lambda W=W, lam=lam: _tensorly(W, lam, 5000))
+                t_tl, (D, tl_iters) = _time(
+                    lambda W=W, lam=lam: _tensorly(W, lam, 5000))
                 tl = f"{t_tl:11.2f} {_rel(D, L0):8.1e}"
             else:
                 block = 5
