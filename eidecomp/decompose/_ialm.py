@@ -25,19 +25,21 @@ optimal objective). Here
   switch and nothing is spent; on the unplanted 60 x 60 Gaussian matrix the
   second phase closes the 0.8 % gap.
 
-Memory: besides W, the loop holds six m x n arrays (L, S, Y and three work
-buffers); every elementwise step writes into one of them.
+Memory: besides W, the loop holds three m x n arrays (S, Y and the SVT's
+argument T), the factors of L and three row blocks; L itself is formed once,
+at the end.
 """
 
 import numpy as np
 
-from ._svt import spectral_norm, svt
+from ._svt import sketch_plan, spectral_norm, svt
 
 __all__ = ["ialm"]
 
 _GROW = 0.5     # phase 2: mu grows while dual < primal / _GROW ...
 _SHRINK = 10.0  # ... and shrinks once dual > _SHRINK * primal
 _MU_MAX_FACTOR = 1e10  # mu never exceeds this multiple of its start
+_BLOCK_ELEMENTS = 1 << 18  # elements per row block of the elementwise passes
 
 
 def _next_rank(sv_prev, r, n_small):
@@ -96,21 +98,27 @@ def ialm(W, lam, *, observed=None, tol=1e-8, max_iter=5000, rho=1.5,
     if init is None:
         # Y_0 = 0 rather than the textbook W / J(W): the first threshold 1/mu_0
         # then keeps only the top of the spectrum, so no step starts with a
-        # near-full SVD (any Y_0 converges; this one is cheap).
-        norm_two = spectral_norm(W)
-        Y = np.zeros_like(W)
+        # near-full SVD (any Y_0 converges; this one is cheap). mu_0 only
+        # sets a scale, so ||W||_2 is needed to a few digits.
+        mu = 1.25 / spectral_norm(W, rtol=1e-3)
         S = np.zeros_like(W)
-        L = np.zeros_like(W)
-        mu = 1.25 / norm_two
-        k = min(10, n_small)
+        Y = np.zeros_like(W)
     else:
-        L, S, Y = (np.array(a, dtype=dtype, copy=True) for a in init[:3])
+        S, Y = (np.array(a, dtype=dtype, copy=True) for a in init[1:3])
         mu = float(init[3])
-        k = min(10, n_small)
+    k = min(10, n_small)
     mu_max = mu * _MU_MAX_FACTOR
-    A = np.empty_like(W)   # W + Y/mu
-    T = np.empty_like(W)   # work buffer
-    C = np.empty_like(W)   # work buffer: clipped residual, then the new Y
+    # The elementwise steps run over blocks of rows; the pass that forms the
+    # SVT's argument T also forms T @ Omega for the partial SVD, and the pass
+    # after it forms L = U s V^T block by block, so L is never stored inside
+    # the loop and each iteration streams W, S and Y twice.
+    rows = max(1, min(m, _BLOCK_ELEMENTS // n))
+    blocks = [slice(i, min(i + rows, m)) for i in range(0, m, rows)]
+    T = np.empty_like(W)   # W + Y/mu - S, the argument of the SVT
+    t = np.empty((rows, n), dtype)
+    c = np.empty((rows, n), dtype)
+    d = np.empty((rows, n), dtype)
+    U = Vt = s = None
     V = None
     r = 0
     history = []
@@ -118,31 +126,50 @@ def ialm(W, lam, *, observed=None, tol=1e-8, max_iter=5000, rho=1.5,
     polishing = False  # phase 2: balance the residuals instead of growing mu
     it = 0
     for it in range(1, max_iter + 1):
-        np.multiply(Y, 1.0 / mu, out=A)
-        A += W
-        np.subtract(A, S, out=T)
-        U, s, Vt, V, _ = svt(T, 1.0 / mu, k=k, V0=V, rng=rng)
+        inv_mu = 1.0 / mu
+        plan = sketch_plan(W.shape, k, V, rng)
+        if plan is not None:
+            P = np.empty((m, plan[0].shape[1]), dtype)
+        for b in blocks:
+            tb = T[b]
+            np.multiply(Y[b], inv_mu, out=tb)
+            tb += W[b]
+            tb -= S[b]
+            if plan is not None:
+                np.matmul(tb, plan[0], out=P[b])
+        sketch = None if plan is None else (*plan, P)
+        U, s, Vt, V, _ = svt(T, inv_mu, k=k, V0=V, rng=rng, sketch=sketch)
         r_prev, r = r, len(s)
         k = _next_rank(r_prev if it > 1 else r + 1, r, n_small)
-        if r:
-            np.matmul(U * s, Vt, out=L)
-        else:
-            L.fill(0.0)
-        np.subtract(A, L, out=T)                 # T = W - L + Y/mu
-        thr = lam / mu
-        np.clip(T, -thr, thr, out=C)             # Y_new / mu on Omega
-        if mask is not None:
-            C *= mask                            # off Omega: Y = 0, S absorbs
-        np.subtract(T, C, out=T)                 # T = S_new
-        np.subtract(S, T, out=S)                 # S = S_old - S_new
-        dS = float(np.linalg.norm(S))
-        S, T = T, S
-        C *= mu                                  # C = Y_new
-        np.subtract(Y, C, out=Y)                 # Y = Y_old - Y_new = -mu Z
-        primal = float(np.linalg.norm(Y)) / mu / norm_W
-        Y, C = C, Y
-        norm_Y = float(np.linalg.norm(Y))
-        dual = mu * dS / max(norm_Y, np.finfo(dtype).tiny)
+        Us = U * s
+        thr = lam * inv_mu
+        dS2 = dY2 = Y2 = 0.0
+        for b in blocks:
+            h = b.stop - b.start
+            tb, cb, db = t[:h], c[:h], d[:h]
+            if r:
+                np.matmul(Us[b], Vt, out=tb)         # L
+                np.subtract(W[b], tb, out=tb)        # W - L
+            else:
+                tb[...] = W[b]
+            np.multiply(Y[b], inv_mu, out=cb)
+            tb += cb                                 # W - L + Y/mu
+            np.clip(tb, -thr, thr, out=cb)           # Y_new / mu on Omega
+            if mask is not None:
+                cb *= mask[b]                        # off Omega: Y = 0
+            tb -= cb                                 # S_new
+            Sb = S[b]
+            np.subtract(Sb, tb, out=db)
+            dS2 += float(np.vdot(db, db))
+            Sb[...] = tb
+            cb *= mu                                 # Y_new
+            Yb = Y[b]
+            np.subtract(Yb, cb, out=db)              # -mu (W - L - S_new)
+            dY2 += float(np.vdot(db, db))
+            Yb[...] = cb
+            Y2 += float(np.vdot(cb, cb))
+        primal = np.sqrt(dY2) / mu / norm_W
+        dual = mu * np.sqrt(dS2) / max(np.sqrt(Y2), np.finfo(dtype).tiny)
         history.append((primal, dual, r, mu))
         if callback is not None:
             callback(it, primal, dual, r, mu)
@@ -154,5 +181,6 @@ def ialm(W, lam, *, observed=None, tol=1e-8, max_iter=5000, rho=1.5,
             mu = min(mu * rho, mu_max)
         elif dual > _SHRINK * primal:
             mu = mu / rho
+    L = Us @ Vt if r else np.zeros_like(W)
     return L, S, Y, {"n_iter": it, "converged": converged, "history": history,
                      "mu": mu, "singular_values": np.array(s)}

@@ -16,7 +16,7 @@ the smaller dimension a full SVD is used instead.
 
 import numpy as np
 
-__all__ = ["spectral_norm", "svt"]
+__all__ = ["sketch_plan", "spectral_norm", "svt"]
 
 # Below this size a full SVD is as cheap as any partial scheme.
 _SMALL = 120
@@ -52,20 +52,45 @@ def _orth(Y):
         return np.linalg.qr(Y)[0]
 
 
-def _partial_svd(A, k, V0, rng, power_iter):
-    """Top-k singular triplets of A (m >= n) by a warm-started range finder."""
-    n = A.shape[1]
+def _start_block(n, k, V0, rng):
+    """Starting block of the range finder, and whether it is a warm start."""
     width = min(k + _OVERSAMPLE, n)
     if V0 is not None and V0.shape[0] != n:
         V0 = None
     if V0 is not None and V0.shape[1] >= width:
-        Omega = V0[:, :width]
-        power_iter = 0  # the solver's own iterations are the power steps
+        return np.ascontiguousarray(V0[:, :width]), True
+    have = 0 if V0 is None else V0.shape[1]
+    block = rng.standard_normal((n, width - have))
+    # Warm when the previous vectors span at least the k wanted: only the
+    # oversampling columns are fresh, and the solver's iterations refine them.
+    return (block if V0 is None else np.hstack([V0, block])), have >= k
+
+
+def sketch_plan(shape, k, V0, rng, full_fraction=0.25):
+    """The starting block ``svt`` would use for these arguments, or None.
+
+    A caller that already streams through A can form ``A @ Omega`` in the same
+    pass and hand ``(Omega, warm, A @ Omega)`` to ``svt`` as ``sketch``. None
+    means the call takes another path (a full SVD, or the transposed range
+    finder of a wide matrix) and no product is needed.
+    """
+    m, n = shape
+    small = min(m, n)
+    if k is None or small <= _SMALL or k >= full_fraction * small or m < n:
+        return None
+    return _start_block(n, max(int(k), 1), V0, rng)
+
+
+def _partial_svd(A, k, V0, rng, power_iter, sketch=None):
+    """Top-k singular triplets of A (m >= n) by a warm-started range finder."""
+    if sketch is None:
+        Omega, warm = _start_block(A.shape[1], k, V0, rng)
+        P = A @ Omega
     else:
-        extra = width - (0 if V0 is None else V0.shape[1])
-        block = rng.standard_normal((n, extra))
-        Omega = block if V0 is None else np.hstack([V0, block])
-    Q = _orth(A @ Omega)
+        Omega, warm, P = sketch
+    if warm:
+        power_iter = 0  # the solver's own iterations are the power steps
+    Q = _orth(P)
     for _ in range(power_iter):
         Q = _orth(A @ _orth(A.T @ Q))
     B = Q.T @ A
@@ -102,7 +127,8 @@ def spectral_norm(A, *, rtol=1e-6, max_iter=200, seed=0):
     return float(sigma)
 
 
-def svt(A, tau, *, k=None, V0=None, rng=None, full_fraction=0.25, power_iter=1):
+def svt(A, tau, *, k=None, V0=None, rng=None, full_fraction=0.25, power_iter=1,
+        sketch=None):
     """Singular value thresholding of A at ``tau``.
 
     Parameters
@@ -120,6 +146,10 @@ def svt(A, tau, *, k=None, V0=None, rng=None, full_fraction=0.25, power_iter=1):
         Above ``full_fraction * min(m, n)`` triplets a full SVD is used.
     power_iter : int
         Subspace iterations per call on the partial path.
+    sketch : tuple or None
+        ``(Omega, warm, A @ Omega)`` with ``(Omega, warm)`` from
+        ``sketch_plan`` for the same arguments: the first product, already
+        formed by the caller.
 
     Returns
     -------
@@ -137,7 +167,8 @@ def svt(A, tau, *, k=None, V0=None, rng=None, full_fraction=0.25, power_iter=1):
     if k is None or small <= _SMALL or k >= full_fraction * small:
         U, s, Vt = _full_svd(A)
         r = int(np.count_nonzero(s > tau))
-        return U[:, :r], s[:r] - tau, Vt[:r], Vt[: r + _OVERSAMPLE].T, small
+        keep = min(small, 2 * r + 2 * _OVERSAMPLE)  # room for the rank to grow
+        return U[:, :r], s[:r] - tau, Vt[:r], Vt[:keep].T, small
     if rng is None:
         rng = np.random.default_rng(0)
     transposed = m < n
@@ -145,7 +176,8 @@ def svt(A, tau, *, k=None, V0=None, rng=None, full_fraction=0.25, power_iter=1):
         A = A.T
     k = max(int(k), 1)
     while True:
-        U, s, Vt = _partial_svd(A, k, V0, rng, power_iter)
+        U, s, Vt = _partial_svd(A, k, V0, rng, power_iter, sketch)
+        sketch = None
         if len(s) < k or s[k - 1] <= tau or k >= small:
             break
         k = _GROWTH * k
@@ -153,7 +185,7 @@ def svt(A, tau, *, k=None, V0=None, rng=None, full_fraction=0.25, power_iter=1):
         if k >= full_fraction * small:
             return svt(A.T if transposed else A, tau, k=None)
     r = int(np.count_nonzero(s > tau))
-    V_next = Vt[: r + _OVERSAMPLE].T
+    V_next = Vt.T  # every computed vector: the next call starts warm
     U, s, Vt = U[:, :r], s[:r] - tau, Vt[:r]
     if transposed:  # V_next stays a basis of the working (taller) side
         U, Vt = Vt.T, U.T
