@@ -81,15 +81,20 @@ def main():
               f"{t_ours / t_svd:6.2f} {t_thin:7.2f} {t_ours / t_thin:6.2f} {tl} "
               f"{ratio}", flush=True)
     print()
+    # SCS stops at a far lower accuracy than our default tolerance; the last
+    # columns run ours at tol = 1e-5 as well, still more accurate than SCS.
     print(f"{'n':>5} {'ours s':>8} {'err L':>8} {'cvxpy/SCS s':>12} {'err L':>8} "
-          f"{'cvxpy/ours':>11}")
+          f"{'cvxpy/ours':>11} {'ours@1e-5 s':>12} {'err L':>8} {'ratio':>6}")
     for n in (int(x) for x in args.cvxpy.split(",") if x):
         W, L0, _ = make_planted(n, seed=0)
         t_ours, dec = _time(lambda W=W: robust_pca(W))
+        t_loose, loose = _time(lambda W=W: robust_pca(W, tol=1e-5))
         t_cvx, ref = _time(lambda W=W: robust_pca(W, method="convex",
                                                    solver="SCS"))
         print(f"{n:5d} {t_ours:8.3f} {_rel(dec.low_rank, L0):8.1e} {t_cvx:12.1f} "
-              f"{_rel(ref.low_rank, L0):8.1e} {t_cvx / t_ours:11.0f}", flush=True)
+              f"{_rel(ref.low_rank, L0):8.1e} {t_cvx / t_ours:11.0f} "
+              f"{t_loose:12.4f} {_rel(loose.low_rank, L0):8.1e} "
+              f"{t_cvx / t_loose:6.0f}", flush=True)
 
 
 if __name__ == "__main__":

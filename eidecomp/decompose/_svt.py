@@ -19,7 +19,7 @@ import numpy as np
 __all__ = ["sketch_plan", "spectral_norm", "svt"]
 
 # Below this size a full SVD is as cheap as any partial scheme.
-_SMALL = 120
+_SMALL = 64
 _OVERSAMPLE = 10
 _GROWTH = 3  # factor by which k grows when k triplets were not enough
 
