@@ -7,21 +7,33 @@ Public names are imported here; nothing heavy is (cvxpy is imported only by
 the convex solvers, matplotlib only by plotting).
 """
 
+from .assemble import assemble  # the function; the subpackage stays importable
 from .decompose import RobustPCA, default_lam, lambda_path, pcp_objective, robust_pca
 from .errors import ConvergenceWarning, InputError, SolverError
-from .types import Decomposition, OptimalityReport, PathPoint
+from .types import (
+    AssemblyReport,
+    Circuit,
+    Decomposition,
+    OptimalityReport,
+    PathPoint,
+    Population,
+)
 
 __version__ = "0.1.0"
 
 __all__ = [
+    "AssemblyReport",
+    "Circuit",
     "ConvergenceWarning",
     "Decomposition",
     "InputError",
     "OptimalityReport",
     "PathPoint",
+    "Population",
     "RobustPCA",
     "SolverError",
     "__version__",
+    "assemble",
     "default_lam",
     "lambda_path",
     "pcp_objective",

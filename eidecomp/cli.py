@@ -45,7 +45,8 @@ def _count(text):
 def _get_parser():
     parser = _Parser(prog="eidecomp", description=(
         "Turn a signed lateral weight matrix W[post, pre] into low-rank and "
-        "sparse parts (robust PCA), the first step towards a Dale's-law circuit."))
+        "sparse parts (robust PCA) and into a Dale's-law circuit of excitatory, "
+        "untuned-inhibitory and tuned-inhibitory populations."))
     parser.add_argument("--version", action="version",
                         version=f"eidecomp {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND",
@@ -82,7 +83,60 @@ def _get_parser():
                      help="replace OUT if it exists")
     dec.add_argument("-q", "--quiet", action="store_true",
                      help="no progress lines")
+    asm = sub.add_parser("assemble", help="Dale's-law circuit from a matrix",
+                         description="Build an excitatory / untuned-inhibitory "
+                         "/ tuned-inhibitory circuit that reproduces W at the "
+                         "chosen E:I ratio, and write it as a bundle folder.")
+    asm.add_argument("matrix", help="W[post, pre] (as for decompose), "
+                     "'example', or a folder written by 'eidecomp decompose'")
+    run = sub.add_parser("run", help="decompose and assemble in one go",
+                         description="Robust PCA of W, then the Dale's-law "
+                         "circuit, written as one bundle folder.")
+    run.add_argument("matrix", help="W[post, pre] (as for decompose) or "
+                     "'example'")
+    for p in (asm, run):
+        p.add_argument("-o", "--output", required=True, metavar="CIRCUIT",
+                       help="bundle folder to write (must not exist, unless "
+                       "--force)")
+        p.add_argument("--ei-ratio", default="4:1", metavar="E:I",
+                       help="excitatory units per interneuron, e.g. 4:1 "
+                       "(default) or 9:2")
+        p.add_argument("--untuned-share", default="auto", metavar="auto|F",
+                       help="fraction of interneurons that are untuned; 'auto' "
+                       "(default) takes the rank of the low-rank part")
+        p.add_argument("--alpha", type=_nonnegative_float,
+                       help="weight of ||J_EE||_1 (default 0.02 max|W|)")
+        p.add_argument("--units", metavar="CSV",
+                       help="unit table: a 'feature' column in degrees, "
+                       "optional id, x, y; one row per unit of W")
+        p.add_argument("--period", type=_positive_float, default=180.0,
+                       help="period of the feature in degrees (180 "
+                       "orientation, 360 direction)")
+        p.add_argument("--key", help="array name in .npz / variable in .mat")
+        p.add_argument("--transpose", action="store_true",
+                       help="the file is stored [pre, post]")
+        p.add_argument("--mask", metavar="FILE",
+                       help="matrix of W's shape: 1 where an entry is unobserved")
+        p.add_argument("--ignore-diagonal", action="store_true",
+                       help="treat self-connections as unobserved")
+        p.add_argument("--lam", type=_positive_float,
+                       help="weight of ||S||_1 (default 1/sqrt(n))")
+        p.add_argument("--seed", type=_count, default=0)
+        p.add_argument("--force", action="store_true",
+                       help="replace CIRCUIT if it exists")
+        p.add_argument("-q", "--quiet", action="store_true",
+                       help="no progress lines")
     return parser
+
+
+def _nonnegative_float(text):
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not a number: {text!r}") from None
+    if not value >= 0 or value == float("inf"):
+        raise argparse.ArgumentTypeError(f"must be 0 or more: {text!r}")
+    return value
 
 
 class _Progress:
@@ -140,6 +194,45 @@ def _decompose(args):
     return 0
 
 
+def _circuit_table(result):
+    m = result.meta
+    c, met = m["counts"], m["metrics"]
+    lines = [
+        f"circuit: {c['excitatory']} E, {c['untuned']} untuned I, "
+        f"{c['tuned']} tuned I  ({met['share_rule']})",
+        f"{'construction':<18} {'n_I':>6} {'rel. error':>11} {'J_EE density':>13}",
+        f"{'this circuit':<18} {c['untuned'] + c['tuned']:>6} "
+        f"{met['relative_error']:>11.4f} {met['ee_density']:>13.4f}",
+    ]
+    for b in m["baselines"]:
+        lines.append(f"{b['name']:<18} {b['n_inhibitory']:>6} "
+                     f"{b['relative_error']:>11.4f} {b['ee_density']:>13.4f}")
+    st = m["stability"]
+    ratio = st.get("max_stable_tau_ratio")
+    lines.append("stable up to tau_I/tau_E: " + (
+        "-" if st.get("circuit_spectral_abscissa_equal_taus") is None
+        else "beyond 100" if ratio is None else f"{ratio:.3g}"))
+    if not met["converged"]:
+        lines.append("refinement converged: NO")
+    lines.append(f"written to {result.output}")
+    return "\n".join(lines)
+
+
+def _assemble(args):
+    from .pipeline import AssembleConfig, run_assemble
+
+    config = AssembleConfig(
+        input=args.matrix, output=args.output, ei_ratio=args.ei_ratio,
+        untuned_share=args.untuned_share, alpha=args.alpha, units=args.units,
+        period=args.period, key=args.key, transpose=args.transpose,
+        mask=args.mask, ignore_diagonal=args.ignore_diagonal, lam=args.lam,
+        seed=args.seed, force=args.force)
+    progress = None if args.quiet else _Progress(sys.stderr)
+    result = run_assemble(config, progress=progress)
+    print(_circuit_table(result))
+    return 0
+
+
 def _show_warning(message, category, filename, lineno, file=None, line=None):
     print(f"eidecomp: warning: {message}", file=sys.stderr)
 
@@ -155,7 +248,8 @@ def main(argv=None):
         with warnings.catch_warnings():
             warnings.simplefilter("always", ConvergenceWarning)
             warnings.showwarning = _show_warning
-            return {"decompose": _decompose}[args.command](args)
+            return {"decompose": _decompose, "assemble": _assemble,
+                    "run": _assemble}[args.command](args)
     except InputError as exc:
         print(f"eidecomp: error: {exc}", file=sys.stderr)
         return 2

@@ -5,6 +5,12 @@ Wright (2011), section 4.1: L0 = X Y^T with X, Y of i.i.d. N(0, 1/n) entries,
 and S0 with a uniformly random support of the given fraction and independent
 random signs.
 
+``make_planted_circuit`` builds a ground-truth Dale's-law circuit on a ring of
+feature-tuned units whose truth is identifiable from W_eff alone: like-to-like
+excitation and tuned inhibition (pooling like units, suppressing units of the
+opposite feature) have disjoint supports (docs/assembly.md). It is synthetic
+ground truth for tests and benchmarks, not a model of any real circuit.
+
 ``example_lateral`` is invented data for the demo only, a scenario of our own:
 a ring of orientation-tuned model units whose lateral weights mix broad
 inhibition (rank 3), sparse like-to-like excitation and sparse
@@ -15,7 +21,7 @@ spreads dense noise over many tiny singular values; stable PCP, with
 
 import numpy as np
 
-__all__ = ["example_lateral", "make_planted"]
+__all__ = ["example_lateral", "make_planted", "make_planted_circuit"]
 
 
 def make_planted(n, *, rank=None, corruption=0.05, magnitude=1.0, seed=0,
@@ -64,7 +70,8 @@ def example_lateral(n=120, *, noise=0.0, seed=7):
     Returns
     -------
     W : ndarray of shape (n, n)
-        Zero diagonal (no self-connections).
+        Zero diagonal (no self-connections). Its linear dynamics
+        dr/dt = -r + W r are stable (largest real eigenvalue of W below 1).
     preferred : ndarray of shape (n,)
         Preferred orientation of each unit, degrees in [0, 180).
     """
@@ -73,9 +80,70 @@ def example_lateral(n=120, *, noise=0.0, seed=7):
     d = np.deg2rad(theta[:, None] - theta[None, :]) * 2.0   # period 180 deg
     broad = -0.04 * (1.0 + 0.5 * np.cos(d))                 # rank 3
     like = (np.cos(d) > 0.85) & (rng.random((n, n)) < 0.3)
-    excite = np.where(like, rng.uniform(0.2, 0.5, (n, n)), 0.0)
+    excite = np.where(like, rng.uniform(0.05, 0.15, (n, n)), 0.0)
     unlike = (np.cos(d) < -0.7) & (rng.random((n, n)) < 0.1)
     suppress = np.where(unlike, -rng.uniform(0.2, 0.4, (n, n)), 0.0)
     W = broad + excite + suppress + noise * rng.standard_normal((n, n))
     np.fill_diagonal(W, 0.0)
     return W, theta
+
+
+def _ring_distance(i, j, n):
+    d = np.abs(np.subtract.outer(i, j)) % n
+    return np.minimum(d, n - d)
+
+
+def make_planted_circuit(n_e=400, *, n_untuned=5, n_tuned=95, ee_density=0.08,
+                         pool=8, untuned_scale=0.3, seed=0):
+    """A planted Dale's-law circuit on a ring of feature-tuned units.
+
+    Unit i prefers feature 180 i / n_e degrees (an orientation). J_EE links
+    units less than 45 degrees apart, at random with the given density and
+    weights U(0.5, 1.5), no self-connections. Each untuned interneuron has
+    dense U(0, untuned_scale) input and output pools. Tuned interneuron t
+    pools ``pool`` neighbouring units around a centre c_t (evenly spaced, with
+    a random offset) with weights U(0.5, 1.5), and inhibits ``pool`` units
+    around c_t + n_e / 2 (the opposite feature) with weights U(0.5, 1.5).
+
+    Returns
+    -------
+    W_eff : ndarray (n_e, n_e)
+        The effective E-to-E matrix, all an assembler is given.
+    truth : eidecomp.types.Circuit
+    features : ndarray (n_e,)
+        Preferred features in degrees, period 180.
+
+    Examples
+    --------
+    >>> W, truth, theta = make_planted_circuit(40, n_untuned=2, n_tuned=8,
+    ...                                        pool=4, seed=1)
+    >>> W.shape, truth.n_inhibitory
+    ((40, 40), 10)
+    """
+    from .types import Circuit
+
+    rng = np.random.default_rng(seed)
+    idx = np.arange(n_e)
+    features = 180.0 * idx / n_e
+    near = _ring_distance(idx, idx, n_e) < n_e / 4  # within 45 degrees
+    np.fill_diagonal(near, False)
+    p = ee_density * n_e * n_e / max(near.sum(), 1)
+    if p > 1:
+        raise ValueError("ee_density too high for like-to-like support")
+    J_EE = np.where(near & (rng.random((n_e, n_e)) < p),
+                    rng.uniform(0.5, 1.5, (n_e, n_e)), 0.0)
+    J_EU = rng.uniform(0, untuned_scale, (n_e, n_untuned))
+    J_UE = rng.uniform(0, untuned_scale, (n_untuned, n_e))
+    J_ET = np.zeros((n_e, n_tuned))
+    J_TE = np.zeros((n_tuned, n_e))
+    offset = rng.uniform(0, n_e / max(n_tuned, 1))
+    half = pool // 2
+    for t in range(n_tuned):
+        c = int(round(offset + t * n_e / n_tuned)) % n_e
+        src = (c - half + np.arange(pool)) % n_e
+        dst = (c + n_e // 2 - half + np.arange(pool)) % n_e
+        J_TE[t, src] = rng.uniform(0.5, 1.5, pool)
+        J_ET[dst, t] = rng.uniform(0.5, 1.5, pool)
+    truth = Circuit(J_EE=J_EE, J_EU=J_EU, J_UE=J_UE, J_ET=J_ET, J_TE=J_TE,
+                    params={"planted": True, "seed": seed})
+    return truth.effective_weights(), truth, features

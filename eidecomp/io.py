@@ -41,7 +41,21 @@ import numpy as np
 
 from .errors import InputError
 
-__all__ = ["file_checksum", "read_mask", "read_matrix", "write_folder"]
+__all__ = [
+    "CIRCUIT_FORMAT",
+    "CIRCUIT_VERSION",
+    "circuit_files",
+    "file_checksum",
+    "read_circuit",
+    "read_mask",
+    "read_matrix",
+    "read_units",
+    "write_folder",
+]
+
+CIRCUIT_FORMAT = "eidecomp-circuit"
+CIRCUIT_VERSION = 1
+CIRCUIT_BLOCKS = ("J_EE", "J_EU", "J_UE", "J_ET", "J_TE")
 
 MATRIX_SUFFIXES = (".npy", ".npz", ".csv", ".tsv", ".txt", ".mat")
 
@@ -311,3 +325,139 @@ def write_folder(out, files, *, force=False):
     if old is not None:
         shutil.rmtree(old, ignore_errors=True)
     return out
+
+
+# --- unit tables ---------------------------------------------------------------
+
+def read_units(path, n_units, *, period=180.0):
+    """A table of the excitatory units, one row per unit of W, in W's order.
+
+    A CSV file with a header row. Columns: ``feature`` (the preferred
+    feature in degrees, in [0, period)), and optionally ``id`` (unique
+    names), ``x`` and ``y`` (positions in micrometres).
+
+    Returns a dict of arrays: ``feature``, and ``id``, ``x``, ``y`` when
+    present.
+    """
+    path = Path(path)
+    if not path.is_file():
+        raise InputError(f"{path}: unit table not found")
+    try:
+        text = path.read_text(encoding="utf-8-sig")
+    except UnicodeDecodeError:
+        raise InputError(f"{path}: unit table is not UTF-8 text") from None
+    rows = [r for r in csv.reader(_io.StringIO(text)) if any(c.strip() for c in r)]
+    if not rows:
+        raise InputError(f"{path}: unit table is empty")
+    header = [c.strip().lower() for c in rows[0]]
+    if "feature" not in header:
+        raise InputError(f"{path}: unit table has no 'feature' column "
+                         f"(columns: {', '.join(header)})")
+    if len(set(header)) != len(header):
+        raise InputError(f"{path}: unit table has a repeated column name")
+    body = rows[1:]
+    if len(body) != n_units:
+        raise InputError(f"{path}: unit table has {len(body)} rows, W has "
+                         f"{n_units} units")
+    out = {}
+    for name in ("feature", "x", "y"):
+        if name not in header:
+            continue
+        j = header.index(name)
+        vals = np.empty(len(body))
+        for i, row in enumerate(body):
+            cell = row[j].strip() if j < len(row) else ""
+            try:
+                vals[i] = float(cell)
+            except ValueError:
+                raise InputError(f"{path}: row {i + 2}, column '{name}': "
+                                 f"not a number: {cell!r}") from None
+            if not np.isfinite(vals[i]):
+                raise InputError(f"{path}: row {i + 2}, column '{name}': "
+                                 f"{cell} is not finite")
+        out[name] = vals
+    bad = np.flatnonzero((out["feature"] < 0) | (out["feature"] >= period))
+    if bad.size:
+        i = int(bad[0])
+        raise InputError(f"{path}: row {i + 2}, column 'feature': "
+                         f"{out['feature'][i]:g} is outside [0, {period:g})")
+    if "id" in header:
+        j = header.index("id")
+        ids = [row[j].strip() if j < len(row) else "" for row in body]
+        seen = {}
+        for i, name in enumerate(ids):
+            if not name:
+                raise InputError(f"{path}: row {i + 2}: missing unit id")
+            if name in seen:
+                raise InputError(f"{path}: row {i + 2}: duplicate unit id "
+                                 f"{name!r} (first on row {seen[name] + 2})")
+            seen[name] = i
+        out["id"] = np.array(ids, dtype=str)
+    return out
+
+
+# --- circuit bundles ------------------------------------------------------------
+
+def circuit_files(circuit, meta):
+    """The files of a circuit bundle: the blocks as .npy, and circuit.json.
+
+    ``meta`` (a dict: parameters, metrics, provenance) is stored in
+    circuit.json with the format name and version, the populations and the
+    SHA-256 of every block file, which :func:`read_circuit` verifies.
+    """
+    files = {f"{b}.npy": np.asarray(getattr(circuit, b)) for b in CIRCUIT_BLOCKS}
+    sums = {name: hashlib.sha256(_npy_bytes(a)).hexdigest()
+            for name, a in files.items()}
+    doc = {"format": CIRCUIT_FORMAT, "format_version": CIRCUIT_VERSION,
+           "convention": "blocks are nonnegative magnitudes, [post, pre]; "
+                         "the sign is the presynaptic population's",
+           "populations": [{"name": p.name, "kind": p.kind, "size": p.size,
+                            "sign": p.sign} for p in circuit.populations],
+           "sha256": sums, **meta}
+    files["circuit.json"] = doc
+    return files
+
+
+def read_circuit(folder):
+    """Load a circuit bundle written by ``eidecomp assemble`` or ``run``.
+
+    Checks the format name and version, every block's checksum, and the
+    shapes and signs of the blocks. Returns ``(Circuit, meta)`` where meta is
+    the parsed circuit.json.
+    """
+    from .types import Circuit
+
+    folder = Path(folder)
+    doc_path = folder / "circuit.json"
+    if not folder.is_dir():
+        raise InputError(f"{folder}: not a folder (expected a circuit bundle)")
+    if not doc_path.is_file():
+        raise InputError(f"{folder}: no circuit.json; not a circuit bundle")
+    try:
+        doc = json.loads(doc_path.read_text(encoding="utf-8"))
+    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise InputError(f"{doc_path}: corrupt JSON ({exc})") from None
+    if not isinstance(doc, dict) or doc.get("format") != CIRCUIT_FORMAT:
+        raise InputError(f"{doc_path}: not an eidecomp circuit bundle")
+    version = doc.get("format_version")
+    if not isinstance(version, int) or version > CIRCUIT_VERSION:
+        raise InputError(f"{doc_path}: format version {version!r} is newer than "
+                         f"this eidecomp reads ({CIRCUIT_VERSION}); upgrade")
+    sums = doc.get("sha256") or {}
+    blocks = {}
+    for b in CIRCUIT_BLOCKS:
+        p = folder / f"{b}.npy"
+        if not p.is_file():
+            raise InputError(f"{p}: missing from the bundle")
+        if sums.get(p.name) != file_checksum(p):
+            raise InputError(f"{p}: checksum does not match circuit.json "
+                             "(the file was changed or truncated)")
+        try:
+            blocks[b] = np.load(p, allow_pickle=False)
+        except ValueError as exc:
+            raise InputError(f"{p}: unreadable block ({exc})") from None
+    try:
+        circuit = Circuit(**blocks, params=doc.get("parameters", {}))
+    except ValueError as exc:
+        raise InputError(f"{folder}: {exc}") from None
+    return circuit, doc

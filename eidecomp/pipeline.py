@@ -4,6 +4,7 @@ No argparse and no printing here: :mod:`eidecomp.cli` builds the config and
 shows the result; a script can call these functions directly.
 """
 
+import json
 import math
 import warnings
 from dataclasses import asdict, dataclass
@@ -16,7 +17,14 @@ from .decompose import default_lam, robust_pca
 from .errors import ConvergenceWarning, InputError
 from .io import file_checksum, read_mask, read_matrix, write_folder
 
-__all__ = ["DecomposeConfig", "DecomposeResult", "run_decompose"]
+__all__ = [
+    "AssembleConfig",
+    "AssembleResult",
+    "DecomposeConfig",
+    "DecomposeResult",
+    "run_assemble",
+    "run_decompose",
+]
 
 BUNDLE_FORMAT = "eidecomp-decomposition"
 BUNDLE_VERSION = 1
@@ -125,3 +133,168 @@ def run_decompose(config, *, progress=None):
              "sparse.npy": np.asarray(dec.sparse), "summary.json": summary}
     write_folder(out, files, force=config.force)
     return DecomposeResult(decomposition=dec, summary=summary, output=out)
+
+
+# --- assemble / run ----------------------------------------------------------
+
+STABILITY_MAX_UNITS = 800  # eigenvalue scans above this size are left to the API
+
+
+@dataclass(frozen=True)
+class AssembleConfig:
+    """What ``eidecomp assemble`` and ``eidecomp run`` do.
+
+    ``input`` is a matrix file, ``"example"``, or (assemble only) a folder
+    written by ``eidecomp decompose``.
+    """
+
+    input: str
+    output: str
+    ei_ratio: str = "4:1"
+    untuned_share: str = "auto"
+    alpha: float | None = None
+    units: str | None = None
+    period: float = 180.0
+    key: str | None = None
+    transpose: bool = False
+    mask: str | None = None
+    ignore_diagonal: bool = False
+    lam: float | None = None
+    tol: float = 1e-8
+    seed: int = 0
+    force: bool = False
+
+
+@dataclass(frozen=True)
+class AssembleResult:
+    circuit: object
+    meta: dict
+    output: Path
+
+
+def _read_decomposition(folder):
+    from .types import Decomposition
+
+    folder = Path(folder)
+    try:
+        summary = json.loads((folder / "summary.json").read_text("utf-8"))
+    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise InputError(f"{folder}: not a decomposition folder ({exc})") from None
+    if summary.get("format") != BUNDLE_FORMAT:
+        raise InputError(f"{folder}: summary.json is not an eidecomp decomposition")
+    if summary.get("format_version", 0) > BUNDLE_VERSION:
+        raise InputError(f"{folder}: decomposition format version "
+                         f"{summary.get('format_version')} is newer than this "
+                         "eidecomp reads; upgrade")
+    L = read_matrix(folder / "low_rank.npy", what="low-rank part")
+    S = read_matrix(folder / "sparse.npy", what="sparse part")
+    if L.shape != S.shape:
+        raise InputError(f"{folder}: low_rank and sparse shapes differ")
+    dec = Decomposition(low_rank=L, sparse=S, rank=int(summary["rank"]),
+                        lam=float(summary["lam"]),
+                        objective=float(summary["objective"]),
+                        n_iter=int(summary["n_iter"]),
+                        converged=bool(summary["converged"]))
+    return dec, {"path": str(folder), "sha256": summary["input"].get("sha256"),
+                 "decomposition": str(folder)}
+
+
+def _stability(circuit, W):
+    from . import dynamics
+
+    n_total = circuit.n_excitatory + circuit.n_inhibitory
+    a_orig = dynamics.spectral_abscissa(W - np.eye(W.shape[0]))
+    if n_total > STABILITY_MAX_UNITS:
+        return {"original_spectral_abscissa": a_orig,
+                "circuit_spectral_abscissa_equal_taus": None,
+                "max_stable_tau_ratio": None,
+                "note": f"{n_total} units: the tau scan was skipped (above "
+                        f"{STABILITY_MAX_UNITS}); call "
+                        "eidecomp.dynamics.max_stable_tau_ratio"}
+    W_full = circuit.signed_weights()
+    a_circ = dynamics.spectral_abscissa(
+        dynamics.jacobian(W_full, circuit.n_excitatory, 1.0, 1.0))
+    ratio = dynamics.max_stable_tau_ratio(circuit, lo=1e-2, hi=1e2, n_grid=17,
+                                          rtol=1e-3)
+    return {"original_spectral_abscissa": a_orig,
+            "circuit_spectral_abscissa_equal_taus": a_circ,
+            "max_stable_tau_ratio": _clean(ratio),
+            "note": "tau_I / tau_E scanned over [0.01, 100]; null means "
+                    "stable over the whole range"}
+
+
+def run_assemble(config, *, progress=None):
+    """Decompose W (unless given a decomposition), assemble, write the bundle.
+
+    The bundle holds J_EE.npy, J_EU.npy, J_UE.npy, J_ET.npy, J_TE.npy (the
+    nonnegative blocks), low_rank.npy and sparse.npy (the split it was
+    built from) and circuit.json (populations, parameters, metrics, the
+    baselines, stability, per-interneuron pools, provenance, checksums).
+    """
+    from .analysis import interneuron_pools
+    from .assemble import assemble, inhibitory_count, parse_ratio
+    from .io import circuit_files, read_units
+
+    out = Path(config.output)
+    if out.exists() and not config.force:
+        raise InputError(f"{out}: already exists; use --force to replace it")
+    ratio = parse_ratio(config.ei_ratio)  # bad options fail before any work
+    if Path(config.input).is_dir():
+        dec, source = _read_decomposition(config.input)
+        W = np.asarray(dec.low_rank) + np.asarray(dec.sparse)
+    else:
+        W, source = _load(config)
+        dec = None
+    if W.shape[0] != W.shape[1]:
+        raise InputError(f"{config.input}: W is {W.shape[0]}x{W.shape[1]}; a "
+                         "circuit needs a square matrix")
+    inhibitory_count(W.shape[0], ratio)
+    units = None
+    if config.units is not None:
+        units = read_units(config.units, W.shape[0], period=config.period)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", ConvergenceWarning)
+        if dec is None:
+            observed = None
+            if config.mask is not None:
+                observed = read_mask(config.mask, W.shape,
+                                     transpose=config.transpose)
+            dec = robust_pca(W, lam=config.lam, mask=observed,
+                             ignore_diagonal=config.ignore_diagonal,
+                             tol=config.tol, seed=config.seed,
+                             progress=progress)
+        circuit = assemble(dec, ei_ratio=ratio,
+                           untuned_share=config.untuned_share,
+                           alpha=config.alpha, seed=config.seed)
+    for w in caught:
+        warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+    W_target = np.asarray(dec.low_rank) + np.asarray(dec.sparse)
+    report = circuit.report
+    pools = interneuron_pools(circuit, None if units is None else units["feature"],
+                              config.period)
+    meta = {
+        "eidecomp_version": __version__,
+        "input": {**source, "shape": list(W.shape), "key": config.key,
+                  "transpose": config.transpose, "units": config.units},
+        "parameters": {**{k: _clean(v) if isinstance(v, float) else v
+                          for k, v in circuit.params.items()},
+                       "ei_ratio_text": str(config.ei_ratio),
+                       "period": config.period},
+        "decomposition": {"lam": dec.lam, "rank": dec.rank,
+                          "converged": dec.converged, "n_iter": dec.n_iter},
+        "counts": {"excitatory": circuit.n_excitatory,
+                   "untuned": circuit.n_untuned, "tuned": circuit.n_tuned},
+        "metrics": {k: v for k, v in report.as_dict().items()
+                    if k not in ("history", "baselines")},
+        "baselines": report.as_dict()["baselines"],
+        "stability": _stability(circuit, W_target),
+        "interneurons": pools,
+        "hypothesis": "a model circuit consistent with W, not a measurement",
+    }
+    files = circuit_files(circuit, meta)
+    files["low_rank.npy"] = np.asarray(dec.low_rank)
+    files["sparse.npy"] = np.asarray(dec.sparse)
+    if units is not None and "feature" in units:
+        files["features.npy"] = units["feature"]
+    write_folder(out, files, force=config.force)
+    return AssembleResult(circuit=circuit, meta=files["circuit.json"], output=out)

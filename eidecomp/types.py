@@ -9,7 +9,15 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["Decomposition", "OptimalityReport", "PathPoint"]
+__all__ = [
+    "AssemblyReport",
+    "BaselineResult",
+    "Circuit",
+    "Decomposition",
+    "OptimalityReport",
+    "PathPoint",
+    "Population",
+]
 
 
 def _freeze(obj, *names):
@@ -140,3 +148,195 @@ class PathPoint:
 
     def as_dict(self):
         return {k: getattr(self, k) for k in self.__dataclass_fields__}
+
+
+# --- circuits ----------------------------------------------------------------
+
+EXCITATORY, UNTUNED, TUNED = "excitatory", "untuned", "tuned"
+_KINDS = (EXCITATORY, UNTUNED, TUNED)
+
+
+@dataclass(frozen=True)
+class Population:
+    """A population of a Dale's-law circuit.
+
+    ``kind`` is ``"excitatory"``, ``"untuned"`` (untuned inhibitory) or
+    ``"tuned"`` (tuned inhibitory); ``sign`` is the sign of every synapse its
+    units make (+1 or -1).
+    """
+
+    name: str
+    kind: str
+    size: int
+
+    def __post_init__(self):
+        if self.kind not in _KINDS:
+            raise ValueError(f"unknown population kind {self.kind!r}")
+        if self.size < 0:
+            raise ValueError("population size must be >= 0")
+
+    @property
+    def sign(self):
+        return 1 if self.kind == EXCITATORY else -1
+
+
+@dataclass(frozen=True)
+class BaselineResult:
+    """One reference construction, scored like the circuit."""
+
+    name: str
+    description: str
+    n_inhibitory: int
+    relative_error: float
+    ee_density: float
+
+
+@dataclass(frozen=True)
+class AssemblyReport:
+    """What an assembly achieved and what it gave up.
+
+    Attributes
+    ----------
+    relative_error : float
+        ||W - W_eff||_F / ||W||_F.
+    ee_density : float
+        Fraction of nonzero entries of J_EE.
+    share_rule : str
+        How the untuned/tuned split was chosen, in words.
+    baselines : tuple of BaselineResult
+    n_iter : int
+        Sweeps of the joint refinement.
+    converged : bool
+        Whether the refinement met its tolerance.
+    history : tuple of float
+        Objective after each sweep.
+    """
+
+    relative_error: float
+    ee_density: float
+    share_rule: str
+    baselines: tuple = ()
+    n_iter: int = 0
+    converged: bool = True
+    history: tuple = field(default=(), repr=False)
+
+    def as_dict(self):
+        out = {k: getattr(self, k) for k in self.__dataclass_fields__}
+        out["baselines"] = [b.__dict__.copy() for b in self.baselines]
+        out["history"] = list(self.history)
+        return out
+
+
+_BLOCKS = ("J_EE", "J_EU", "J_UE", "J_ET", "J_TE")
+
+
+@dataclass(frozen=True)
+class Circuit:
+    """An excitatory/inhibitory circuit obeying Dale's law.
+
+    All blocks hold nonnegative magnitudes in the [post, pre] convention; the
+    sign of a synapse is that of its presynaptic population. With N excitatory
+    units, n_u untuned and n_t tuned interneurons:
+
+    ============  ==========  =====================================
+    block         shape       meaning
+    ============  ==========  =====================================
+    ``J_EE``      (N, N)      E -> E excitation
+    ``J_EU``      (N, n_u)    untuned I -> E inhibition (magnitude)
+    ``J_UE``      (n_u, N)    E -> untuned I excitation
+    ``J_ET``      (N, n_t)    tuned I -> E inhibition (magnitude)
+    ``J_TE``      (n_t, N)    E -> tuned I excitation
+    ============  ==========  =====================================
+
+    Units are ordered E, then untuned, then tuned, in every full matrix.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> c = Circuit(J_EE=np.eye(2), J_EU=np.ones((2, 1)), J_UE=np.ones((1, 2)),
+    ...             J_ET=np.zeros((2, 0)), J_TE=np.zeros((0, 2)))
+    >>> c.effective_weights()
+    array([[ 0., -1.],
+           [-1.,  0.]])
+    >>> c.signed_weights()[:, 2]   # the interneuron's column: one sign
+    array([-1., -1.,  0.])
+    """
+
+    J_EE: np.ndarray
+    J_EU: np.ndarray
+    J_UE: np.ndarray
+    J_ET: np.ndarray
+    J_TE: np.ndarray
+    params: dict = field(default_factory=dict, repr=False)
+    report: AssemblyReport | None = field(default=None, repr=False)
+
+    def __post_init__(self):
+        for name in _BLOCKS:
+            a = np.asarray(getattr(self, name), dtype=float)
+            if a.ndim != 2:
+                raise ValueError(f"{name} must be 2-D")
+            if not np.isfinite(a).all():
+                raise ValueError(f"{name} has NaN or Inf entries")
+            if (a < 0).any():
+                raise ValueError(f"{name} has negative entries; blocks hold "
+                                 "magnitudes and Dale's law gives the signs")
+            object.__setattr__(self, name, a)
+        _freeze(self, *_BLOCKS)
+        n = self.J_EE.shape[0]
+        nu, nt = self.J_EU.shape[1], self.J_ET.shape[1]
+        expected = {"J_EE": (n, n), "J_EU": (n, nu), "J_UE": (nu, n),
+                    "J_ET": (n, nt), "J_TE": (nt, n)}
+        for name, shape in expected.items():
+            if getattr(self, name).shape != shape:
+                raise ValueError(f"{name} has shape {getattr(self, name).shape},"
+                                 f" expected {shape}")
+
+    @property
+    def n_excitatory(self):
+        return self.J_EE.shape[0]
+
+    @property
+    def n_untuned(self):
+        return self.J_EU.shape[1]
+
+    @property
+    def n_tuned(self):
+        return self.J_ET.shape[1]
+
+    @property
+    def n_inhibitory(self):
+        return self.n_untuned + self.n_tuned
+
+    @property
+    def populations(self):
+        return (Population("E", EXCITATORY, self.n_excitatory),
+                Population("I_untuned", UNTUNED, self.n_untuned),
+                Population("I_tuned", TUNED, self.n_tuned))
+
+    @property
+    def J_EI(self):
+        """All inhibitory-to-E magnitudes, untuned columns first."""
+        return np.hstack([self.J_EU, self.J_ET])
+
+    @property
+    def J_IE(self):
+        """All E-to-inhibitory weights, untuned rows first."""
+        return np.vstack([self.J_UE, self.J_TE])
+
+    def signed_weights(self):
+        """The full (N + n_I) square signed matrix W_full[post, pre].
+
+        E columns are >= 0 and inhibitory columns <= 0 (Dale's law); there
+        are no inhibitory-to-inhibitory synapses.
+        """
+        n, ni = self.n_excitatory, self.n_inhibitory
+        full = np.zeros((n + ni, n + ni))
+        full[:n, :n] = self.J_EE
+        full[:n, n:] = -self.J_EI
+        full[n:, :n] = self.J_IE
+        return full
+
+    def effective_weights(self):
+        """E-to-E coupling at the interneurons' steady state (linear
+        interneurons driven only by E): J_EE - J_EU J_UE - J_ET J_TE."""
+        return self.J_EE - self.J_EU @ self.J_UE - self.J_ET @ self.J_TE

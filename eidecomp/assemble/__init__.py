@@ -1,0 +1,9 @@
+"""Dale's-law circuits from a low-rank + sparse split (docs/assembly.md)."""
+
+from ._assemble import assemble
+from ._baselines import baselines
+from ._counts import inhibitory_count, parse_ratio, split_counts
+from ._nmf import hals, nndsvd
+
+__all__ = ["assemble", "baselines", "hals", "inhibitory_count", "nndsvd",
+           "parse_ratio", "split_counts"]

@@ -1,0 +1,207 @@
+"""From W = L + S to a Dale's-law circuit (docs/assembly.md).
+
+1. counts: n_I = round(N / ratio); n_u untuned (the rank of L, or a share),
+   n_t = n_I - n_u tuned;
+2. untuned interneurons: a nonnegative factorisation of the inhibitory side
+   of the low-rank part, max(-L, 0) ~ J_EU J_UE;
+3. tuned interneurons: a sparse nonnegative factorisation of the inhibitory
+   side of the sparse part, max(-S, 0) ~ J_ET J_TE, whose supports become
+   each tuned interneuron's pool and targets;
+4. joint refinement of all blocks, counts and tuned supports fixed:
+
+       min  0.5 ||W - J_EE + J_EI J_IE||_F^2 + alpha ||J_EE||_1,  all >= 0,
+
+   by block coordinate descent: J_EE = max(W + J_EI J_IE - alpha, 0) exactly,
+   then one HALS sweep over (J_EI, J_IE); every step solves its convex
+   subproblem (J_EE) or a convex one-dimensional piece of it (HALS), so the
+   objective never increases;
+5. debiasing: the same descent with alpha = 0 on the support of J_EE found
+   in step 4, which removes the shrinkage of the l1 term.
+"""
+
+import warnings
+
+import numpy as np
+
+from ..errors import ConvergenceWarning, InputError
+from ..types import AssemblyReport, BaselineResult, Circuit, Decomposition
+from ._baselines import _prune_to_density
+from ._baselines import baselines as score_baselines
+from ._counts import inhibitory_count, parse_ratio, split_counts
+from ._nmf import hals, nndsvd, sweep
+
+__all__ = ["assemble"]
+
+ALPHA_DEFAULT = 0.02   # l1 weight on J_EE, times max |W|
+TUNED_L1 = 0.01        # l1 weight on the tuned factors, times max(-S)
+SUPPORT_RTOL = 1e-6    # factor entries below this x their column max are zero
+
+
+def _split(W_or_dec, seed, decompose_kwargs):
+    if isinstance(W_or_dec, Decomposition):
+        dec = W_or_dec
+    else:
+        from ..decompose import robust_pca
+
+        dec = robust_pca(W_or_dec, seed=seed, **(decompose_kwargs or {}))
+    L = np.asarray(dec.low_rank, dtype=float)
+    S = np.asarray(dec.sparse, dtype=float)
+    return L + S, L, S, dec
+
+
+def _fill_dead(A, B, scale, rng):
+    """Give components that a factorisation left empty a small random start."""
+    dead = (A.sum(axis=0) == 0) | (B.sum(axis=1) == 0)
+    if dead.any():
+        A[:, dead] = scale * rng.random((A.shape[0], int(dead.sum())))
+        B[dead] = scale * rng.random((int(dead.sum()), B.shape[1]))
+    return A, B
+
+
+def _support(F, axis):
+    peak = F.max(axis=axis, keepdims=True)
+    return F > SUPPORT_RTOL * np.where(peak > 0, peak, np.inf)
+
+
+def _objective(W, J_EE, A, B, alpha):
+    R = W - J_EE + A @ B
+    return 0.5 * float(np.vdot(R, R)) + alpha * float(J_EE.sum())
+
+
+def _descend(W, A, B, mask_a, mask_b, alpha, ee_support, max_iter, tol,
+             history):
+    """Block coordinate descent on J_EE and (A, B); returns J_EE, n, ok."""
+    converged = False
+    scale = max(0.5 * float(np.vdot(W, W)), 1e-300)  # the objective at zero
+    start = len(history)
+    while not converged and len(history) - start < max_iter:
+        J_EE = np.maximum(W + A @ B - alpha, 0.0)
+        if ee_support is not None:
+            J_EE *= ee_support
+        sweep(J_EE - W, A, B, mask_a=mask_a, mask_b=mask_b)
+        history.append(_objective(W, J_EE, A, B, alpha))
+        converged = (len(history) - start > 1
+                     and history[-2] - history[-1] <= tol * scale)
+    it = len(history) - start
+    J_EE = np.maximum(W + A @ B - alpha, 0.0)
+    if ee_support is not None:
+        J_EE *= ee_support
+    return J_EE, it, converged
+
+
+def assemble(W_or_dec, *, ei_ratio=4.0, untuned_share="auto", alpha=None,
+             max_iter=500, tol=1e-6, seed=0, baselines=True,
+             decompose_kwargs=None):
+    """Assemble a Dale's-law circuit that reproduces W as closely as it can.
+
+    Parameters
+    ----------
+    W_or_dec : ndarray (N, N) or Decomposition
+        The signed matrix W[post, pre], or its robust PCA (then W = L + S).
+        An array is decomposed with ``robust_pca`` at its defaults.
+    ei_ratio : float or str
+        Excitatory units per interneuron: 4, "4:1", "9:2".
+    untuned_share : "auto" or float in [0, 1]
+        Fraction of the interneurons that are untuned; "auto" takes the rank
+        of the low-rank part.
+    alpha : float or None
+        Weight of ||J_EE||_1; None means 0.02 max|W|.
+    max_iter : int
+        Sweeps of the joint refinement (and of each debiasing pass).
+    tol : float
+        The refinement stops when a sweep lowers the objective by less than
+        ``tol`` times its value at zero blocks, 0.5 ||W||_F^2.
+    seed : int
+        Seeds the decomposition and the start of empty factor columns.
+    baselines : bool
+        Score the reference constructions as well.
+    decompose_kwargs : dict or None
+        Passed to ``robust_pca`` when an array is given.
+
+    Returns
+    -------
+    Circuit
+        With ``report`` (an AssemblyReport) and ``params``.
+
+    Examples
+    --------
+    >>> from eidecomp.datasets import make_planted_circuit
+    >>> W, truth, _ = make_planted_circuit(60, n_untuned=2, n_tuned=13,
+    ...                                    pool=4, seed=3)
+    >>> c = assemble(W, ei_ratio="4:1", baselines=False)
+    >>> (c.n_excitatory, c.n_untuned, c.n_tuned)
+    (60, 2, 13)
+    >>> bool((c.signed_weights()[:, 60:] <= 0).all())
+    True
+    """
+    ratio = parse_ratio(ei_ratio)
+    W, L, S, dec = _split(W_or_dec, seed, decompose_kwargs)
+    if W.ndim != 2 or W.shape[0] != W.shape[1]:
+        raise InputError(f"W must be square to build a circuit, got {W.shape}")
+    n = W.shape[0]
+    n_i = inhibitory_count(n, ratio)
+    M_u = np.maximum(-L, 0.0)
+    M_t = np.maximum(-S, 0.0)
+    n_u, n_t, rule = split_counts(n_i, untuned_share, dec.rank, bool(M_t.any()))
+    rng = np.random.default_rng(seed)
+    scale = float(np.abs(W).max()) if W.size else 0.0
+    alpha = ALPHA_DEFAULT * scale if alpha is None else float(alpha)
+    if not np.isfinite(alpha) or alpha < 0:
+        raise InputError(f"alpha must be a nonnegative number, got {alpha!r}")
+
+    # 2. untuned: dense pools from the inhibitory side of L
+    A_u, B_u = nndsvd(M_u, n_u)
+    A_u, B_u = _fill_dead(A_u, B_u, 1e-3 * np.sqrt(max(scale, 1e-300)), rng)
+    A_u, B_u, _ = hals(M_u, A_u, B_u, max_iter=max_iter, tol=1e-6)
+    # 3. tuned: sparse pools from the inhibitory side of S
+    A_t, B_t = nndsvd(M_t, n_t)
+    A_t, B_t = _fill_dead(A_t, B_t, 1e-3 * np.sqrt(max(scale, 1e-300)), rng)
+    l1 = TUNED_L1 * float(M_t.max()) if M_t.size and M_t.any() else 0.0
+    A_t, B_t, _ = hals(M_t, A_t, B_t, l1_a=l1, l1_b=l1, max_iter=max_iter,
+                       tol=1e-6)
+    mask_t_a, mask_t_b = _support(A_t, 0), _support(B_t, 1)
+    A_t *= mask_t_a
+    B_t *= mask_t_b
+
+    # 4-5. joint refinement, then debiasing on the support of J_EE
+    A = np.hstack([A_u, A_t])
+    B = np.vstack([B_u, B_t])
+    mask_a = np.hstack([np.ones_like(A_u, bool), mask_t_a])
+    mask_b = np.vstack([np.ones_like(B_u, bool), mask_t_b])
+    history = []
+    J_EE, it1, ok1 = _descend(W, A, B, mask_a, mask_b, alpha, None, max_iter,
+                              tol, history)
+    J_EE, it2, ok2 = _descend(W, A, B, mask_a, mask_b, 0.0, J_EE > 0,
+                              max_iter, tol, history)
+    converged = ok1 and ok2
+    if not converged:
+        warnings.warn(f"circuit refinement stopped after {max_iter} sweeps "
+                      "before its tolerance; raise max_iter", ConvergenceWarning,
+                      stacklevel=2)
+    circuit = Circuit(J_EE=J_EE, J_EU=A[:, :n_u], J_UE=B[:n_u],
+                      J_ET=A[:, n_u:], J_TE=B[n_u:])
+    err = float(np.linalg.norm(W - circuit.effective_weights())
+                / max(np.linalg.norm(W), 1e-300))
+    dens = float(np.count_nonzero(J_EE) / J_EE.size)
+    base = ()
+    if baselines:
+        base = score_baselines(W, n_i, circuit_error=err, circuit_density=dens,
+                               max_iter=max_iter)
+        nmf = next(b for b in base if b.name == "nmf")
+        if dens > nmf.ee_density:  # compare at equal density: prune ours
+            J = _prune_to_density(J_EE, nmf.ee_density)
+            pruned = J - circuit.J_EI @ circuit.J_IE
+            base += (BaselineResult(
+                "circuit@density", "this circuit, J_EE pruned to nmf's density",
+                n_i, float(np.linalg.norm(W - pruned) / np.linalg.norm(W)),
+                float(np.count_nonzero(J) / J.size)),)
+    report = AssemblyReport(relative_error=err, ee_density=dens,
+                            share_rule=rule, baselines=base, n_iter=it1 + it2,
+                            converged=converged, history=tuple(history))
+    params = {"ei_ratio": ratio, "untuned_share": untuned_share,
+              "alpha": alpha, "max_iter": max_iter, "tol": tol, "seed": seed,
+              "n_inhibitory": n_i, "lam": dec.lam, "rank": dec.rank,
+              "decomposition_converged": dec.converged}
+    return Circuit(J_EE=circuit.J_EE, J_EU=circuit.J_EU, J_UE=circuit.J_UE,
+                   J_ET=circuit.J_ET, J_TE=circuit.J_TE, params=params,
+                   report=report)

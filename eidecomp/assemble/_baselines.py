@@ -1,0 +1,102 @@
+"""Reference constructions to score a circuit against (docs/assembly.md).
+
+(a) one private interneuron per E unit: exact, at a 1:1 ratio;
+(b) one global interneuron with compensating excitation: exact, dense J_EE;
+(c) dropping the negative weights: no interneurons;
+(d) a plain nonnegative factorisation of the negative side of W with the
+    circuit's n_I, without the low-rank/sparse split.
+(b) and (d) are also scored at the circuit's operating point: (b) with its
+smallest excitatory weights pruned until its error equals the circuit's, and
+(d) with J_EE pruned to the circuit's density.
+"""
+
+import numpy as np
+
+from ..types import BaselineResult
+from ._nmf import hals, nndsvd
+
+__all__ = ["baselines"]
+
+
+def _rel(W, W_eff):
+    n = np.linalg.norm(W)
+    return float(np.linalg.norm(W - W_eff) / n) if n else 0.0
+
+
+def _density(J):
+    return float(np.count_nonzero(J) / J.size) if J.size else 0.0
+
+
+def private_interneurons(W):
+    """(a): interneuron j is driven by E unit j alone and carries its
+    negative outputs: J_IE = I, J_EI = max(-W, 0), J_EE = max(W, 0)."""
+    n = W.shape[0]
+    return np.maximum(W, 0), np.maximum(-W, 0), np.eye(n)
+
+
+def global_interneuron(W):
+    """(b): J_EE = W + e 1^T with e_i = max(0, -min_j W_ij), J_EI = e,
+    J_IE = 1^T; W_eff = W exactly."""
+    e = np.maximum(0.0, -W.min(axis=1))
+    return W + e[:, None], e[:, None], np.ones((1, W.shape[1]))
+
+
+def _prune_to_error(J_EE, W_eff_rest, W, target):
+    """Drop the smallest entries of J_EE while the error stays <= target."""
+    base = W - (J_EE + W_eff_rest)  # zero for the exact constructions
+    if np.any(np.abs(base) > 1e-9 * max(np.abs(W).max(), 1e-300)):
+        raise ValueError("pruning to an error needs an exact construction")
+    vals = np.sort(J_EE[J_EE > 0])
+    budget = (target * np.linalg.norm(W)) ** 2
+    removable = int(np.searchsorted(np.cumsum(vals ** 2), budget, side="right"))
+    return (np.count_nonzero(J_EE) - removable) / J_EE.size
+
+
+def _prune_to_density(J_EE, density):
+    keep = int(round(density * J_EE.size))
+    if keep >= np.count_nonzero(J_EE):
+        return J_EE
+    flat = J_EE.ravel()
+    out = np.zeros_like(flat)
+    if keep > 0:
+        top = np.argpartition(flat, flat.size - keep)[flat.size - keep:]
+        out[top] = flat[top]
+    return out.reshape(J_EE.shape)
+
+
+def baselines(W, n_i, *, circuit_error=None, circuit_density=None,
+              max_iter=300):
+    """Score the four reference constructions on W.
+
+    Returns a tuple of BaselineResult; with ``circuit_error`` and
+    ``circuit_density``, two more rows score (b) and (d) at the circuit's
+    error and density.
+    """
+    out = []
+    J, EI, IE = private_interneurons(W)
+    out.append(BaselineResult("private", "one private interneuron per E unit",
+                              W.shape[0], _rel(W, J - EI @ IE), _density(J)))
+    Jg, e, one = global_interneuron(W)
+    out.append(BaselineResult("global", "one global interneuron, compensating "
+                              "excitation", 1, _rel(W, Jg - e @ one),
+                              _density(Jg)))
+    Jp = np.maximum(W, 0)
+    out.append(BaselineResult("drop", "negative weights dropped", 0,
+                              _rel(W, Jp), _density(Jp)))
+    Mneg = np.maximum(-W, 0)
+    A, B = nndsvd(Mneg, n_i)
+    A, B, _ = hals(Mneg, A, B, max_iter=max_iter, tol=1e-6)
+    out.append(BaselineResult("nmf", f"nonnegative factorisation, {n_i} "
+                              "interneurons, no split", n_i,
+                              _rel(W, Jp - A @ B), _density(Jp)))
+    if circuit_error is not None:
+        dens = _prune_to_error(Jg, -e @ one, W, circuit_error)
+        out.append(BaselineResult("global@error", "global, pruned to the "
+                                  "circuit's error", 1, float(circuit_error),
+                                  float(dens)))
+    if circuit_density is not None:
+        Jd = _prune_to_density(Jp, circuit_density)
+        out.append(BaselineResult("nmf@density", "nmf, J_EE pruned to the "
+                                  "circuit's density", n_i,
+                                  _rel(W, Jd - A @ B), _density(Jd)))
+    return tuple(out)

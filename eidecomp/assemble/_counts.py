@@ -1,0 +1,84 @@
+"""E:I ratio and population counts."""
+
+import math
+import re
+
+from ..errors import InputError
+
+__all__ = ["inhibitory_count", "parse_ratio", "split_counts"]
+
+_RATIO = re.compile(r"^\s*([0-9.eE+-]+)\s*(?::\s*([0-9.eE+-]+)\s*)?$")
+
+
+def parse_ratio(text):
+    """E:I ratio from ``"4:1"``, ``"4"`` or a number: excitatory per inhibitory.
+
+    >>> parse_ratio("4:1"), parse_ratio("9:2"), parse_ratio(3)
+    (4.0, 4.5, 3.0)
+    """
+    if isinstance(text, (int, float)) and not isinstance(text, bool):
+        value = float(text)
+    else:
+        m = _RATIO.match(str(text))
+        try:
+            e = float(m.group(1))
+            i = float(m.group(2)) if m.group(2) is not None else 1.0
+        except (AttributeError, ValueError):
+            raise InputError(f"E:I ratio {text!r} is not a ratio like 4:1 or a "
+                             "number") from None
+        if i <= 0:
+            raise InputError(f"E:I ratio {text!r}: the inhibitory side must be "
+                             "positive")
+        value = e / i
+    if not math.isfinite(value) or value <= 0:
+        raise InputError(f"E:I ratio {text!r} must be positive and finite")
+    return value
+
+
+def inhibitory_count(n_e, ratio):
+    """n_I = round(N / ratio), checked to lie in [1, N].
+
+    >>> inhibitory_count(400, 4.0)
+    100
+    """
+    n_i = int(round(n_e / ratio))
+    if n_i < 1:
+        raise InputError(f"E:I ratio {ratio:g}:1 leaves no interneuron for "
+                         f"{n_e} excitatory units (round({n_e}/{ratio:g}) = 0)")
+    if n_i > n_e:
+        raise InputError(f"E:I ratio {ratio:g}:1 asks for {n_i} interneurons, "
+                         f"more than the {n_e} excitatory units")
+    return n_i
+
+
+def split_counts(n_i, share, rank_low, has_tuned):
+    """(n_untuned, n_tuned, rule) for a share in [0, 1] or ``"auto"``.
+
+    ``"auto"`` gives the untuned population one unit per dimension of the
+    low-rank part (its rank), leaving at least one tuned interneuron when the
+    sparse part inhibits anything.
+
+    >>> split_counts(100, "auto", 5, True)[:2]
+    (5, 95)
+    >>> split_counts(10, 0.25, 5, True)[:2]
+    (2, 8)
+    """
+    if isinstance(share, str):
+        if share != "auto":
+            try:
+                share = float(share)
+            except ValueError:
+                raise InputError(f"untuned share {share!r} is neither 'auto' "
+                                 "nor a number in [0, 1]") from None
+    if share == "auto":
+        keep = 1 if has_tuned and n_i > 1 else 0
+        n_u = max(0, min(int(rank_low), n_i - keep))
+        rule = (f"auto: untuned = rank of the low-rank part ({rank_low})"
+                + (f", capped at {n_u}" if n_u < rank_low else ""))
+    else:
+        share = float(share)
+        if not 0.0 <= share <= 1.0 or math.isnan(share):
+            raise InputError(f"untuned share {share:g} is outside [0, 1]")
+        n_u = int(round(share * n_i))
+        rule = f"fixed: untuned share {share:g} of {n_i}"
+    return n_u, n_i - n_u, rule
