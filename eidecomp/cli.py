@@ -155,6 +155,19 @@ class _Progress:
                   flush=True)
 
 
+class _StageProgress(_Progress):
+    """Assembly stages and refinement sweeps, throttled like _Progress."""
+
+    def __call__(self, stage, step, objective):
+        now = time.monotonic()
+        if now - self.last >= 1.0:
+            self.last = now
+            what = f"{stage}" + (f", sweep {step}, objective {objective:.6g}"
+                                 if step else "")
+            print(f"  assembling: {what}  ({now - self.start:.0f} s)",
+                  file=self.stream, flush=True)
+
+
 def _summary_table(result):
     s = result.summary
     o = s["optimality"]
@@ -209,9 +222,15 @@ def _circuit_table(result):
                      f"{b['relative_error']:>11.4f} {b['ee_density']:>13.4f}")
     st = m["stability"]
     ratio = st.get("max_stable_tau_ratio")
-    lines.append("stable up to tau_I/tau_E: " + (
-        "-" if st.get("circuit_spectral_abscissa_equal_taus") is None
-        else "beyond 100" if ratio is None else f"{ratio:.3g}"))
+    if st.get("circuit_spectral_abscissa_equal_taus") is None:
+        lines.append(f"stability: {st['note']}")
+    elif ratio == 0.0:
+        lines.append("stability: unstable at every tau_I/tau_E (spectral "
+                     "abscissa of -I + W is "
+                     f"{st['original_spectral_abscissa']:.3g})")
+    else:
+        lines.append("stable up to tau_I/tau_E: "
+                     + ("beyond 100" if ratio is None else f"{ratio:.3g}"))
     if not met["converged"]:
         lines.append("refinement converged: NO")
     lines.append(f"written to {result.output}")
@@ -228,7 +247,8 @@ def _assemble(args):
         mask=args.mask, ignore_diagonal=args.ignore_diagonal, lam=args.lam,
         seed=args.seed, force=args.force)
     progress = None if args.quiet else _Progress(sys.stderr)
-    result = run_assemble(config, progress=progress)
+    stages = None if args.quiet else _StageProgress(sys.stderr)
+    result = run_assemble(config, progress=progress, stage_progress=stages)
     print(_circuit_table(result))
     return 0
 

@@ -223,13 +223,14 @@ def _stability(circuit, W):
                     "stable over the whole range"}
 
 
-def run_assemble(config, *, progress=None):
+def run_assemble(config, *, progress=None, stage_progress=None):
     """Decompose W (unless given a decomposition), assemble, write the bundle.
 
     The bundle holds J_EE.npy, J_EU.npy, J_UE.npy, J_ET.npy, J_TE.npy (the
     nonnegative blocks), low_rank.npy and sparse.npy (the split it was
     built from) and circuit.json (populations, parameters, metrics, the
     baselines, stability, per-interneuron pools, provenance, checksums).
+    ``progress`` goes to robust_pca, ``stage_progress`` to assemble.
     """
     from .analysis import interneuron_pools
     from .assemble import assemble, inhibitory_count, parse_ratio
@@ -265,7 +266,8 @@ def run_assemble(config, *, progress=None):
                              progress=progress)
         circuit = assemble(dec, ei_ratio=ratio,
                            untuned_share=config.untuned_share,
-                           alpha=config.alpha, seed=config.seed)
+                           alpha=config.alpha, seed=config.seed,
+                           progress=stage_progress)
     for w in caught:
         warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
     W_target = np.asarray(dec.low_rank) + np.asarray(dec.sparse)

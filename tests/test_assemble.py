@@ -155,3 +155,15 @@ def test_tuned_pools_are_tuned(planted400):
     cv_t = [p["circular_variance"] for p in pools if p["kind"] == "tuned"]
     # dense random pools are broadly tuned; 8 neighbouring units are not
     assert np.median(cv_t) < 0.1 < np.min(cv_u)
+
+
+def test_progress_reports_every_stage():
+    W, _, _ = make_planted_circuit(60, n_untuned=2, n_tuned=13, pool=4, seed=3)
+    seen = []
+    c = assemble(W, progress=lambda stage, step, obj: seen.append((stage, step)))
+    stages = [s for s, _ in seen]
+    for stage in ("untuned factorisation", "tuned factorisation", "refinement",
+                  "debiasing", "baselines"):
+        assert stage in stages
+    sweeps = sum(1 for s, k in seen if s in ("refinement", "debiasing") and k)
+    assert sweeps == c.report.n_iter

@@ -69,7 +69,7 @@ def _objective(W, J_EE, A, B, alpha):
 
 
 def _descend(W, A, B, mask_a, mask_b, alpha, ee_support, max_iter, tol,
-             history):
+             history, progress=None, stage=""):
     """Block coordinate descent on J_EE and (A, B); returns J_EE, n, ok."""
     converged = False
     scale = max(0.5 * float(np.vdot(W, W)), 1e-300)  # the objective at zero
@@ -80,6 +80,8 @@ def _descend(W, A, B, mask_a, mask_b, alpha, ee_support, max_iter, tol,
             J_EE *= ee_support
         sweep(J_EE - W, A, B, mask_a=mask_a, mask_b=mask_b)
         history.append(_objective(W, J_EE, A, B, alpha))
+        if progress is not None:
+            progress(stage, len(history) - start, history[-1])
         converged = (len(history) - start > 1
                      and history[-2] - history[-1] <= tol * scale)
     it = len(history) - start
@@ -91,7 +93,7 @@ def _descend(W, A, B, mask_a, mask_b, alpha, ee_support, max_iter, tol,
 
 def assemble(W_or_dec, *, ei_ratio=4.0, untuned_share="auto", alpha=None,
              max_iter=500, tol=1e-6, seed=0, baselines=True,
-             decompose_kwargs=None):
+             decompose_kwargs=None, progress=None):
     """Assemble a Dale's-law circuit that reproduces W as closely as it can.
 
     Parameters
@@ -117,6 +119,9 @@ def assemble(W_or_dec, *, ei_ratio=4.0, untuned_share="auto", alpha=None,
         Score the reference constructions as well.
     decompose_kwargs : dict or None
         Passed to ``robust_pca`` when an array is given.
+    progress : callable or None
+        Called as ``progress(stage, step, objective)``: once at the start of
+        each stage, and after every sweep of the refinement and debiasing.
 
     Returns
     -------
@@ -149,11 +154,17 @@ def assemble(W_or_dec, *, ei_ratio=4.0, untuned_share="auto", alpha=None,
     if not np.isfinite(alpha) or alpha < 0:
         raise InputError(f"alpha must be a nonnegative number, got {alpha!r}")
 
+    def tell(stage):
+        if progress is not None:
+            progress(stage, 0, float("nan"))
+
     # 2. untuned: dense pools from the inhibitory side of L
+    tell("untuned factorisation")
     A_u, B_u = nndsvd(M_u, n_u)
     A_u, B_u = _fill_dead(A_u, B_u, 1e-3 * np.sqrt(max(scale, 1e-300)), rng)
     A_u, B_u, _ = hals(M_u, A_u, B_u, max_iter=max_iter, tol=1e-6)
     # 3. tuned: sparse pools from the inhibitory side of S
+    tell("tuned factorisation")
     A_t, B_t = nndsvd(M_t, n_t)
     A_t, B_t = _fill_dead(A_t, B_t, 1e-3 * np.sqrt(max(scale, 1e-300)), rng)
     l1 = TUNED_L1 * float(M_t.max()) if M_t.size and M_t.any() else 0.0
@@ -170,9 +181,9 @@ def assemble(W_or_dec, *, ei_ratio=4.0, untuned_share="auto", alpha=None,
     mask_b = np.vstack([np.ones_like(B_u, bool), mask_t_b])
     history = []
     J_EE, it1, ok1 = _descend(W, A, B, mask_a, mask_b, alpha, None, max_iter,
-                              tol, history)
+                              tol, history, progress, "refinement")
     J_EE, it2, ok2 = _descend(W, A, B, mask_a, mask_b, 0.0, J_EE > 0,
-                              max_iter, tol, history)
+                              max_iter, tol, history, progress, "debiasing")
     converged = ok1 and ok2
     if not converged:
         warnings.warn(f"circuit refinement stopped after {max_iter} sweeps "
@@ -185,6 +196,7 @@ def assemble(W_or_dec, *, ei_ratio=4.0, untuned_share="auto", alpha=None,
     dens = float(np.count_nonzero(J_EE) / J_EE.size)
     base = ()
     if baselines:
+        tell("baselines")
         base = score_baselines(W, n_i, circuit_error=err, circuit_density=dens,
                                max_iter=max_iter)
         nmf = next(b for b in base if b.name == "nmf")
