@@ -126,6 +126,16 @@ def _get_parser():
                        help="replace CIRCUIT if it exists")
         p.add_argument("-q", "--quiet", action="store_true",
                        help="no progress lines")
+    exp = sub.add_parser("export", help="write a circuit as a graph file",
+                         description="Write the neuron-level graph of a "
+                         "circuit bundle (edges pre -> post, nonnegative weights, "
+                         "synapse kind) as GraphML, node-link JSON or a CSV edge "
+                         "list.")
+    exp.add_argument("bundle", metavar="CIRCUIT", help="a circuit bundle folder")
+    exp.add_argument("--format", required=True, choices=("graphml", "json", "csv"))
+    exp.add_argument("-o", "--output", required=True, metavar="FILE")
+    exp.add_argument("--force", action="store_true",
+                     help="replace FILE if it exists")
     return parser
 
 
@@ -253,6 +263,14 @@ def _assemble(args):
     return 0
 
 
+def _export(args):
+    from .pipeline import run_export
+
+    path = run_export(args.bundle, args.format, args.output, force=args.force)
+    print(f"written to {path}")
+    return 0
+
+
 def _show_warning(message, category, filename, lineno, file=None, line=None):
     print(f"eidecomp: warning: {message}", file=sys.stderr)
 
@@ -269,7 +287,7 @@ def main(argv=None):
             warnings.simplefilter("always", ConvergenceWarning)
             warnings.showwarning = _show_warning
             return {"decompose": _decompose, "assemble": _assemble,
-                    "run": _assemble}[args.command](args)
+                    "run": _assemble, "export": _export}[args.command](args)
     except InputError as exc:
         print(f"eidecomp: error: {exc}", file=sys.stderr)
         return 2

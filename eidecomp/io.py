@@ -50,6 +50,7 @@ __all__ = [
     "read_mask",
     "read_matrix",
     "read_units",
+    "write_file",
     "write_folder",
 ]
 
@@ -277,6 +278,31 @@ def _npy_bytes(arr):
     buf = _io.BytesIO()
     np.save(buf, np.ascontiguousarray(arr), allow_pickle=False)
     return buf.getvalue()
+
+
+def write_file(out, data, *, force=False):
+    """Write bytes to ``out`` through a temporary file renamed into place."""
+    out = Path(out)
+    if out.exists() and not force:
+        raise InputError(f"{out}: already exists; use --force to replace it")
+    if out.is_dir():
+        raise InputError(f"{out}: is a folder")
+    parent = out.resolve().parent
+    if not parent.is_dir():
+        raise InputError(f"{out}: parent folder {parent} does not exist")
+    fd, tmp = tempfile.mkstemp(prefix=f".{out.name}.", suffix=".partial",
+                               dir=parent)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, out)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+    return out
 
 
 def write_folder(out, files, *, force=False):

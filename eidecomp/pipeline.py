@@ -23,6 +23,7 @@ __all__ = [
     "DecomposeConfig",
     "DecomposeResult",
     "run_assemble",
+    "run_export",
     "run_decompose",
 ]
 
@@ -300,3 +301,32 @@ def run_assemble(config, *, progress=None, stage_progress=None):
         files["features.npy"] = units["feature"]
     write_folder(out, files, force=config.force)
     return AssembleResult(circuit=circuit, meta=files["circuit.json"], output=out)
+
+
+# --- export ------------------------------------------------------------------
+
+def run_export(bundle, fmt, output, *, force=False):
+    """Write the neuron-level graph of a circuit bundle as graphml, json or csv.
+
+    Returns the path written. Features stored in the bundle (from
+    ``--units``) become node attributes.
+    """
+    from .export import FORMATS
+    from .export.edges_csv import edge_csv_text
+    from .export.graph_files import to_graphml_bytes, to_json_bytes
+    from .graph import neuron_graph
+    from .io import read_circuit, write_file
+
+    if fmt not in FORMATS:
+        raise InputError(f"unknown export format {fmt!r} (choose from "
+                         f"{', '.join(FORMATS)})")
+    out = Path(output)
+    if out.exists() and not force:
+        raise InputError(f"{out}: already exists; use --force to replace it")
+    circuit, _ = read_circuit(bundle)
+    feat_path = Path(bundle) / "features.npy"
+    features = np.load(feat_path, allow_pickle=False) if feat_path.is_file() else None
+    G = neuron_graph(circuit, features=features)
+    data = {"graphml": to_graphml_bytes, "json": to_json_bytes,
+            "csv": lambda g: edge_csv_text(g).encode()}[fmt](G)
+    return write_file(out, data, force=force)
