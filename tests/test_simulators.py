@@ -6,8 +6,8 @@ references here; they are an optional extra, installed by .ci/run.
 
 import numpy as np
 import pytest
-
 from conftest import require
+
 from eidecomp import assemble
 from eidecomp.datasets import make_planted_circuit
 from eidecomp.dynamics import spectral_abscissa
