@@ -132,10 +132,35 @@ def _get_parser():
                          "synapse kind) as GraphML, node-link JSON or a CSV edge "
                          "list.")
     exp.add_argument("bundle", metavar="CIRCUIT", help="a circuit bundle folder")
-    exp.add_argument("--format", required=True, choices=("graphml", "json", "csv"))
-    exp.add_argument("-o", "--output", required=True, metavar="FILE")
+    exp.add_argument("--format", required=True, choices=(
+        "graphml", "json", "csv", "neuroml", "pynn", "nest", "brian2"),
+        help="graphml, json, csv, neuroml: one file; pynn, nest, brian2: a "
+        "folder with a runnable script and its data")
+    exp.add_argument("-o", "--output", required=True, metavar="FILE_OR_DIR")
+    exp.add_argument("--tau-e", type=_positive_float, default=10.0,
+                     help="E time constant in ms (simulator formats)")
+    exp.add_argument("--tau-i", type=_positive_float, default=5.0,
+                     help="interneuron time constant in ms (simulator formats)")
     exp.add_argument("--force", action="store_true",
                      help="replace FILE if it exists")
+    sim = sub.add_parser("simulate", help="run the circuit and the original "
+                         "network", description="Simulate the circuit's linear "
+                         "rate model and the original network on the same drive, "
+                         "and print how closely the circuit's E rates match the "
+                         "fixed points of W and of W_eff.")
+    sim.add_argument("bundle", metavar="CIRCUIT", help="a circuit bundle folder")
+    sim.add_argument("--engine", choices=("internal", "nest", "brian2"),
+                     default="internal",
+                     help="internal (scipy's solve_ivp), nest or brian2")
+    sim.add_argument("--input", default="random", metavar="random|FILE",
+                     help="drive of the E units: random (seeded) or a file of "
+                     "N values")
+    sim.add_argument("--tau-e", type=_positive_float, default=10.0,
+                     help="E time constant in ms")
+    sim.add_argument("--tau-i", type=_positive_float, default=5.0,
+                     help="interneuron time constant in ms (default 5: "
+                     "interneurons faster than E cells, common practice)")
+    sim.add_argument("--seed", type=_count, default=0)
     return parser
 
 
@@ -266,8 +291,32 @@ def _assemble(args):
 def _export(args):
     from .pipeline import run_export
 
-    path = run_export(args.bundle, args.format, args.output, force=args.force)
+    path = run_export(args.bundle, args.format, args.output, force=args.force,
+                      tau_e=args.tau_e, tau_i=args.tau_i)
     print(f"written to {path}")
+    return 0
+
+
+def _simulate(args):
+    from .pipeline import run_simulate
+
+    r = run_simulate(args.bundle, engine=args.engine, drive=args.input,
+                     tau_e=args.tau_e, tau_i=args.tau_i, seed=args.seed)
+    rows = [
+        ("engine", r["engine"]),
+        ("drive", r["drive"]),
+        ("tau_E, tau_I", f"{r['tau_e_ms']:g} ms, {r['tau_i_ms']:g} ms"),
+        ("simulated", f"{r['t_ms']:.4g} ms"),
+        ("circuit E rates vs fixed point of W_eff",
+         f"{r['circuit_vs_fixed_point_W_eff']:.2e}"),
+        ("circuit E rates vs fixed point of W", f"{r['circuit_vs_fixed_point_W']:.2e}"),
+        ("original network vs fixed point of W",
+         f"{r['original_vs_fixed_point_W']:.2e}"),
+        ("circuit vs original network", f"{r['circuit_vs_original']:.2e}"),
+        ("||W - W_eff|| / ||W||", f"{r['reconstruction_error']:.2e}"),
+    ]
+    width = max(len(k) for k, _ in rows)
+    print("\n".join(f"{k:<{width}}  {v}" for k, v in rows))
     return 0
 
 
@@ -287,7 +336,8 @@ def main(argv=None):
             warnings.simplefilter("always", ConvergenceWarning)
             warnings.showwarning = _show_warning
             return {"decompose": _decompose, "assemble": _assemble,
-                    "run": _assemble, "export": _export}[args.command](args)
+                    "run": _assemble, "export": _export,
+                    "simulate": _simulate}[args.command](args)
     except InputError as exc:
         print(f"eidecomp: error: {exc}", file=sys.stderr)
         return 2

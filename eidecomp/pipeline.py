@@ -24,6 +24,7 @@ __all__ = [
     "DecomposeResult",
     "run_assemble",
     "run_export",
+    "run_simulate",
     "run_decompose",
 ]
 
@@ -305,16 +306,26 @@ def run_assemble(config, *, progress=None, stage_progress=None):
 
 # --- export ------------------------------------------------------------------
 
-def run_export(bundle, fmt, output, *, force=False):
-    """Write the neuron-level graph of a circuit bundle as graphml, json or csv.
+def _require_simulator(module):
+    """Import check with a one-line answer instead of an ImportError."""
+    import importlib.util
 
-    Returns the path written. Features stored in the bundle (from
-    ``--units``) become node attributes.
+    if importlib.util.find_spec(module) is None:
+        raise InputError(f"{module} is not installed; it comes with the "
+                         "simulator extra: pip install 'eidecomp[sim]'")
+
+
+def run_export(bundle, fmt, output, *, force=False, tau_e=10.0, tau_i=5.0):
+    """Write a circuit bundle in one export format; returns the path written.
+
+    graphml, json, csv and neuroml write one file; pynn, nest and brian2 a
+    folder holding a script and its data (the E drive is zero: the scripts
+    take the circuit, not an experiment). Features stored in the bundle
+    (from ``--units``) become node attributes of the graph formats.
     """
-    from .export import FORMATS
-    from .export.edges_csv import edge_csv_text
-    from .export.graph_files import to_graphml_bytes, to_json_bytes
-    from .graph import neuron_graph
+    import tempfile
+
+    from .export import FOLDER_FORMATS, FORMATS
     from .io import read_circuit, write_file
 
     if fmt not in FORMATS:
@@ -324,9 +335,117 @@ def run_export(bundle, fmt, output, *, force=False):
     if out.exists() and not force:
         raise InputError(f"{out}: already exists; use --force to replace it")
     circuit, _ = read_circuit(bundle)
+    if fmt in FOLDER_FORMATS:
+        if fmt == "pynn":
+            from .export.pynn_script import pynn_files
+
+            files = pynn_files(circuit, tau_e=tau_e, tau_i=tau_i)
+        else:
+            from .export.rate_scripts import rate_script_files
+
+            files = rate_script_files(circuit, fmt, tau_e=tau_e, tau_i=tau_i)
+        return write_folder(out, files, force=force)
+    if fmt == "neuroml":
+        _require_simulator("neuroml")
+        from .export.neuroml2 import write_neuroml
+
+        with tempfile.TemporaryDirectory() as tmp:
+            path = Path(tmp) / "circuit.net.nml"
+            write_neuroml(circuit, path, tau_e=tau_e, tau_i=tau_i)
+            data = path.read_bytes()
+        return write_file(out, data, force=force)
+    from .export.edges_csv import edge_csv_text
+    from .export.graph_files import to_graphml_bytes, to_json_bytes
+    from .graph import neuron_graph
+
     feat_path = Path(bundle) / "features.npy"
     features = np.load(feat_path, allow_pickle=False) if feat_path.is_file() else None
     G = neuron_graph(circuit, features=features)
     data = {"graphml": to_graphml_bytes, "json": to_json_bytes,
             "csv": lambda g: edge_csv_text(g).encode()}[fmt](G)
     return write_file(out, data, force=force)
+
+
+# --- simulate ----------------------------------------------------------------
+
+ENGINES = ("internal", "nest", "brian2")
+
+
+def _read_drive(spec, n, seed):
+    if spec == "random":
+        return np.random.default_rng(seed).uniform(0.5, 1.5, n), "random U(0.5, 1.5)"
+    h = read_matrix(spec, square=False, what="drive")
+    h = np.asarray(h, dtype=float).ravel()
+    if h.size != n:
+        raise InputError(f"{spec}: drive has {h.size} values, the circuit has "
+                         f"{n} excitatory units")
+    return h, str(spec)
+
+
+def run_simulate(bundle, *, engine="internal", drive="random", tau_e=10.0,
+                 tau_i=5.0, seed=0):
+    """Run the circuit and the original network on the same drive.
+
+    Both are linear rate networks (the original with W = L + S from the
+    bundle, the circuit with W_full), simulated by ``engine`` long enough for
+    40 time constants of their slowest mode. Returns a dict of relative
+    errors: the circuit's E rates against the fixed points of W_eff and of
+    W, and the original network's rates against its own fixed point.
+    """
+    from . import dynamics
+    from .io import read_circuit
+
+    if engine not in ENGINES:
+        raise InputError(f"unknown engine {engine!r} (choose from "
+                         f"{', '.join(ENGINES)})")
+    circuit, _ = read_circuit(bundle)
+    try:
+        W = (read_matrix(Path(bundle) / "low_rank.npy", what="low-rank part")
+             + read_matrix(Path(bundle) / "sparse.npy", what="sparse part"))
+    except InputError:
+        W = circuit.effective_weights()  # a bundle without its split
+    n_e = circuit.n_excitatory
+    h, source = _read_drive(drive, n_e, seed)
+    W_full = circuit.signed_weights()
+    tau = np.full(W_full.shape[0], float(tau_i))
+    tau[:n_e] = tau_e
+    a_orig = dynamics.spectral_abscissa((W - np.eye(n_e)) / tau_e)
+    a_circ = dynamics.spectral_abscissa((W_full - np.eye(len(tau))) / tau[:, None])
+    if not a_orig < 0:
+        raise InputError(f"{bundle}: the original network is unstable (growth "
+                         f"rate {a_orig:.3g} per ms); its fixed point is never "
+                         "reached")
+    if not a_circ < 0:
+        limit = dynamics.max_stable_tau_ratio(circuit, lo=1e-2, hi=1e2, n_grid=17)
+        raise InputError(f"{bundle}: the circuit is unstable at tau_I/tau_E = "
+                         f"{tau_i / tau_e:g} (stable up to {limit:.3g}); choose a "
+                         "smaller --tau-i")
+    t_ms = float(math.ceil(40.0 / -max(a_orig, a_circ)))  # whole ms: a multiple
+    # of every simulator's resolution
+    H = np.r_[h, np.zeros(circuit.n_inhibitory)]
+    if engine == "internal":
+        _, r = dynamics.simulate(W_full, h, n_e=n_e, tau_e=tau_e, tau_i=tau_i,
+                                 t_max=t_ms)
+        _, r0 = dynamics.simulate(W, h, tau_e=tau_e, t_max=t_ms)
+        rates, orig = r[:, -1], r0[:, -1]
+    else:
+        _require_simulator("nest" if engine == "nest" else "brian2")
+        if engine == "nest":
+            from .export.nest_builder import run_rate_matrix
+        else:
+            from .export.brian2_builder import run_rate_matrix
+        rates = run_rate_matrix(W_full, H, tau, t_ms=t_ms)
+        orig = run_rate_matrix(W, h, np.full(n_e, float(tau_e)), t_ms=t_ms)
+    fp_eff = dynamics.fixed_point(circuit.effective_weights(), h)
+    fp_W = dynamics.fixed_point(W, h)
+
+    def rel(a, b):
+        return float(np.linalg.norm(a - b) / max(np.linalg.norm(b), 1e-300))
+
+    return {"engine": engine, "drive": source, "tau_e_ms": tau_e,
+            "tau_i_ms": tau_i, "t_ms": t_ms,
+            "circuit_vs_fixed_point_W_eff": rel(rates[:n_e], fp_eff),
+            "circuit_vs_fixed_point_W": rel(rates[:n_e], fp_W),
+            "original_vs_fixed_point_W": rel(orig, fp_W),
+            "circuit_vs_original": rel(rates[:n_e], orig),
+            "reconstruction_error": rel(circuit.effective_weights(), W)}

@@ -6,7 +6,7 @@ connections and every simulator sees the same list.
 
 import numpy as np
 
-__all__ = ["connection_list", "drive_vector", "population_slices"]
+__all__ = ["connection_list", "drive_vector", "npz_bytes", "population_slices"]
 
 
 def population_slices(circuit):
@@ -34,3 +34,12 @@ def drive_vector(circuit, h):
         raise ValueError(f"drive h must have shape ({circuit.n_excitatory},), "
                          f"got {h.shape}")
     return np.r_[h, np.zeros(circuit.n_inhibitory)]
+
+
+def npz_bytes(arrays):
+    """An uncompressed .npz of ``arrays`` (no object arrays), as bytes."""
+    import io
+
+    buf = io.BytesIO()
+    np.savez(buf, **arrays)
+    return buf.getvalue()

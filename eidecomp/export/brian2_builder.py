@@ -9,9 +9,10 @@ whose fixed point is exactly r = W_full r + h.
 
 import numpy as np
 
-from ._lists import connection_list, drive_vector
+from ._lists import drive_vector
 
-__all__ = ["build_rate", "read_weights", "run_rate"]
+__all__ = ["build_rate", "build_rate_matrix", "read_weights", "run_rate",
+           "run_rate_matrix"]
 
 _EQS = """
 dr/dt = (-r + s + h) / tau : 1
@@ -21,26 +22,40 @@ tau : second (constant)
 """
 
 
-def build_rate(circuit, h, *, tau_e=10.0, tau_i=10.0, dt_ms=0.1):
-    """A brian2.Network of the rate model; returns (network, group, synapses)."""
+def build_rate_matrix(W_full, drive, tau, *, dt_ms=0.1):
+    """A brian2.Network for any signed W_full[post, pre]."""
     import brian2 as b2
 
     b2.prefs.codegen.target = "numpy"
-    H = drive_vector(circuit, h)
-    n = H.size
-    tau = np.full(n, float(tau_i))
-    tau[: circuit.n_excitatory] = tau_e
-    G = b2.NeuronGroup(n, _EQS, method="euler", dt=dt_ms * b2.ms,
+    W_full = np.asarray(W_full, dtype=float)
+    G = b2.NeuronGroup(W_full.shape[0], _EQS, method="euler", dt=dt_ms * b2.ms,
                        name="eidecomp_units")
-    G.h = H
-    G.tau = tau * b2.ms
+    G.h = np.asarray(drive, float)
+    G.tau = np.asarray(tau, float) * b2.ms
     S = b2.Synapses(G, G, "w : 1\ns_post = w * r_pre : 1 (summed)",
                     dt=dt_ms * b2.ms, name="eidecomp_synapses")
-    pre, post, w = connection_list(circuit)
-    if len(w):
+    post, pre = np.nonzero(W_full)
+    if len(pre):
         S.connect(i=pre, j=post)
-        S.w = w
+        S.w = W_full[post, pre]
     return b2.Network(G, S), G, S
+
+
+def build_rate(circuit, h, *, tau_e=10.0, tau_i=10.0, dt_ms=0.1):
+    """The circuit's rate network; returns (network, group, synapses)."""
+    H = drive_vector(circuit, h)
+    tau = np.full(H.size, float(tau_i))
+    tau[: circuit.n_excitatory] = tau_e
+    return build_rate_matrix(circuit.signed_weights(), H, tau, dt_ms=dt_ms)
+
+
+def run_rate_matrix(W_full, drive, tau, *, t_ms=2000.0, dt_ms=0.1):
+    """Simulate any signed matrix; returns the final rates."""
+    import brian2 as b2
+
+    net, G, _ = build_rate_matrix(W_full, drive, tau, dt_ms=dt_ms)
+    net.run(float(t_ms) * b2.ms, namespace={})
+    return np.asarray(G.r[:], dtype=float)
 
 
 def run_rate(circuit, h, *, t_ms=2000.0, **kwargs):

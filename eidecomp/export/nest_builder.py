@@ -20,7 +20,8 @@ import numpy as np
 
 from ._lists import connection_list, drive_vector, population_slices
 
-__all__ = ["build_rate", "build_spiking", "read_weights", "run_rate"]
+__all__ = ["build_rate", "build_rate_matrix", "build_spiking", "read_weights",
+           "run_rate", "run_rate_matrix"]
 
 
 def _nest():
@@ -32,25 +33,41 @@ def _nest():
     return nest
 
 
-def build_rate(circuit, h, *, tau_e=10.0, tau_i=10.0, resolution=0.1):
-    """Create the rate network in a fresh NEST kernel; returns the nodes."""
+def build_rate_matrix(W_full, drive, tau, *, resolution=0.1):
+    """Rate network of any signed W_full[post, pre] (one node per row)."""
     nest = _nest()
     nest.resolution = resolution
-    H = drive_vector(circuit, h)
-    n = H.size
-    tau = np.full(n, float(tau_i))
-    tau[: circuit.n_excitatory] = tau_e
-    nodes = nest.Create("lin_rate_ipn", n, params={
+    W_full = np.asarray(W_full, dtype=float)
+    nodes = nest.Create("lin_rate_ipn", W_full.shape[0], params={
         "lambda": 1.0, "sigma": 0.0, "g": 1.0, "linear_summation": True,
         "rate": 0.0})
-    nodes.set(tau=tau.tolist(), mu=H.tolist())
-    pre, post, w = connection_list(circuit)
+    nodes.set(tau=np.asarray(tau, float).tolist(),
+              mu=np.asarray(drive, float).tolist())
+    post, pre = np.nonzero(W_full)
     ids = np.asarray(nodes.tolist())
-    if len(w):
+    if len(pre):
         nest.Connect(ids[pre], ids[post], conn_spec="one_to_one",
                      syn_spec={"synapse_model": "rate_connection_instantaneous",
-                               "weight": w})
+                               "weight": W_full[post, pre]})
     return nodes
+
+
+def build_rate(circuit, h, *, tau_e=10.0, tau_i=10.0, resolution=0.1):
+    """Create the circuit's rate network in a fresh NEST kernel."""
+    H = drive_vector(circuit, h)
+    tau = np.full(H.size, float(tau_i))
+    tau[: circuit.n_excitatory] = tau_e
+    return build_rate_matrix(circuit.signed_weights(), H, tau,
+                             resolution=resolution)
+
+
+def run_rate_matrix(W_full, drive, tau, *, t_ms=2000.0, resolution=0.1):
+    """Simulate any signed matrix; returns the final rates."""
+    import nest
+
+    nodes = build_rate_matrix(W_full, drive, tau, resolution=resolution)
+    nest.Simulate(float(t_ms))
+    return np.asarray(nodes.get("rate"), dtype=float)
 
 
 def run_rate(circuit, h, *, t_ms=2000.0, **kwargs):
