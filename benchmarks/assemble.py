@@ -12,6 +12,8 @@ only W_eff at 4:1 and the script prints, per size and seed:
   planted ones (scipy's linear_sum_assignment; target >= 0.7),
 * the error of baseline (d), a plain nonnegative factorisation with the same
   n_I, and the J_EE density that baseline (b) needs at the circuit's error,
+* the median circular variance of the input pools of the untuned and of
+  the tuned interneurons (tuned pools should be far more selective),
 * the time of decomposition + assembly + baselines.
 
 Usage: python benchmarks/assemble.py [--sizes 200,400,800] [--seeds 0,1,2]
@@ -25,6 +27,7 @@ import numpy as np
 from scipy.optimize import linear_sum_assignment
 
 from eidecomp import assemble
+from eidecomp.analysis import interneuron_pools
 from eidecomp.datasets import make_planted_circuit
 
 
@@ -50,21 +53,28 @@ def main():
     args = ap.parse_args()
     print(f"{'N':>5} {'seed':>4} {'n_u':>3} {'n_t':>4} {'error':>7} "
           f"{'F1 J_EE':>8} {'Jaccard':>8} {'dens':>6} {'(d) err':>8} "
-          f"{'(b) dens':>9} {'time s':>7}")
+          f"{'(b) dens':>9} {'CV unt':>7} {'CV tun':>7} {'time s':>7}")
     for n in (int(x) for x in args.sizes.split(",")):
         for seed in (int(x) for x in args.seeds.split(",")):
-            W, truth, _ = make_planted_circuit(n, n_untuned=5,
-                                               n_tuned=n // 4 - 5, seed=seed)
+            W, truth, features = make_planted_circuit(n, n_untuned=5,
+                                                      n_tuned=n // 4 - 5,
+                                                      seed=seed)
             t = time.perf_counter()
             c = assemble(W, ei_ratio="4:1", seed=seed)
             t = time.perf_counter() - t
             b = {x.name: x for x in c.report.baselines}
             r = c.report
+            pools = interneuron_pools(c, features)
+            cv = {k: np.median([p["circular_variance"] for p in pools
+                                if p["kind"] == k
+                                and p["circular_variance"] is not None])
+                  for k in ("untuned", "tuned")}
             print(f"{n:5d} {seed:4d} {c.n_untuned:3d} {c.n_tuned:4d} "
                   f"{r.relative_error:7.4f} {f1(c.J_EE, truth.J_EE):8.3f} "
                   f"{mean_jaccard(c.J_TE, truth.J_TE):8.3f} "
                   f"{r.ee_density:6.3f} {b['nmf'].relative_error:8.4f} "
-                  f"{b['global@error'].ee_density:9.3f} {t:7.1f}", flush=True)
+                  f"{b['global@error'].ee_density:9.3f} {cv['untuned']:7.3f} "
+                  f"{cv['tuned']:7.3f} {t:7.1f}", flush=True)
     if args.big:
         n = args.big
         W, truth, _ = make_planted_circuit(n, n_untuned=5, n_tuned=n // 4 - 5,

@@ -112,6 +112,13 @@ def _get_parser():
         p.add_argument("--period", type=_positive_float, default=180.0,
                        help="period of the feature in degrees (180 "
                        "orientation, 360 direction)")
+        p.add_argument("--position-unit", choices=("um", "deg"), default="um",
+                       help="unit of the x, y columns: micrometres of cortex, "
+                       "or degrees of visual field (then give --magnification)")
+        p.add_argument("--magnification", type=_positive_float, metavar="UM_PER_DEG",
+                       help="cortical magnification, micrometres per degree")
+        p.add_argument("--report", action="store_true",
+                       help="also write CIRCUIT/report.html in the same pass")
         p.add_argument("--key", help="array name in .npz / variable in .mat")
         p.add_argument("--transpose", action="store_true",
                        help="the file is stored [pre, post]")
@@ -143,6 +150,25 @@ def _get_parser():
                      help="interneuron time constant in ms (simulator formats)")
     exp.add_argument("--force", action="store_true",
                      help="replace FILE if it exists")
+    rep = sub.add_parser("report", help="an HTML report of a circuit",
+                         description="Write one self-contained HTML file with "
+                         "the inputs, parameters, the assembly against the "
+                         "baselines, connection rules, tuning, stability and "
+                         "figures.")
+    rep.add_argument("bundle", metavar="CIRCUIT", help="a circuit bundle folder")
+    rep.add_argument("-o", "--output", required=True, metavar="FILE")
+    rep.add_argument("--force", action="store_true",
+                     help="replace FILE if it exists")
+    demo = sub.add_parser("demo", help="the whole job on invented demo data",
+                          description="Write an invented demo matrix and unit "
+                          "table, and run decompose, assemble and report on "
+                          "them into one folder.")
+    demo.add_argument("-o", "--output", default="eidecomp-demo", metavar="DIR",
+                      help="folder to write (default eidecomp-demo)")
+    demo.add_argument("--force", action="store_true",
+                      help="replace DIR if it exists")
+    demo.add_argument("-q", "--quiet", action="store_true",
+                      help="no progress lines")
     sim = sub.add_parser("simulate", help="run the circuit and the original "
                          "network", description="Simulate the circuit's linear "
                          "rate model and the original network on the same drive, "
@@ -266,6 +292,9 @@ def _circuit_table(result):
     else:
         lines.append("stable up to tau_I/tau_E: "
                      + ("beyond 100" if ratio is None else f"{ratio:.3g}"))
+    if met.get("silent_interneurons"):
+        lines.append(f"silent interneurons (no input or no target): "
+                     f"{met['silent_interneurons']}")
     if not met["converged"]:
         lines.append("refinement converged: NO")
     lines.append(f"written to {result.output}")
@@ -278,7 +307,9 @@ def _assemble(args):
     config = AssembleConfig(
         input=args.matrix, output=args.output, ei_ratio=args.ei_ratio,
         untuned_share=args.untuned_share, alpha=args.alpha, units=args.units,
-        period=args.period, key=args.key, transpose=args.transpose,
+        period=args.period, position_unit=args.position_unit,
+        magnification=args.magnification, report=args.report,
+        key=args.key, transpose=args.transpose,
         mask=args.mask, ignore_diagonal=args.ignore_diagonal, lam=args.lam,
         seed=args.seed, force=args.force)
     progress = None if args.quiet else _Progress(sys.stderr)
@@ -294,6 +325,23 @@ def _export(args):
     path = run_export(args.bundle, args.format, args.output, force=args.force,
                       tau_e=args.tau_e, tau_i=args.tau_i)
     print(f"written to {path}")
+    return 0
+
+
+def _report(args):
+    from .pipeline import run_report
+
+    print(f"written to {run_report(args.bundle, args.output, force=args.force)}")
+    return 0
+
+
+def _demo(args):
+    from .pipeline import run_demo
+
+    stages = None if args.quiet else _StageProgress(sys.stderr)
+    result = run_demo(args.output, force=args.force, progress=stages)
+    print(_circuit_table(result))
+    print(f"report: {result.output / 'report.html'}")
     return 0
 
 
@@ -337,7 +385,8 @@ def main(argv=None):
             warnings.showwarning = _show_warning
             return {"decompose": _decompose, "assemble": _assemble,
                     "run": _assemble, "export": _export,
-                    "simulate": _simulate}[args.command](args)
+                    "simulate": _simulate, "report": _report,
+                    "demo": _demo}[args.command](args)
     except InputError as exc:
         print(f"eidecomp: error: {exc}", file=sys.stderr)
         return 2

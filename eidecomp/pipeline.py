@@ -23,7 +23,10 @@ __all__ = [
     "DecomposeConfig",
     "DecomposeResult",
     "run_assemble",
+    "demo_inputs",
+    "run_demo",
     "run_export",
+    "run_report",
     "run_simulate",
     "run_decompose",
 ]
@@ -157,6 +160,9 @@ class AssembleConfig:
     alpha: float | None = None
     units: str | None = None
     period: float = 180.0
+    position_unit: str = "um"
+    magnification: float | None = None
+    report: bool = False
     key: str | None = None
     transpose: bool = False
     mask: str | None = None
@@ -253,8 +259,20 @@ def run_assemble(config, *, progress=None, stage_progress=None):
                          "circuit needs a square matrix")
     inhibitory_count(W.shape[0], ratio)
     units = None
+    positions = None
+    if config.position_unit not in ("um", "deg"):
+        raise InputError(f"position unit {config.position_unit!r}: use um or deg")
+    if config.position_unit == "deg" and not (config.magnification or 0) > 0:
+        raise InputError("positions in degrees need --magnification "
+                         "(micrometres of cortex per degree of visual field)")
     if config.units is not None:
         units = read_units(config.units, W.shape[0], period=config.period)
+        if "x" in units and "y" in units:
+            scale = config.magnification if config.position_unit == "deg" else 1.0
+            positions = np.column_stack([units["x"], units["y"]]) * scale
+        elif "x" in units or "y" in units:
+            raise InputError(f"{config.units}: positions need both an x and a "
+                             "y column")
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", ConvergenceWarning)
         if dec is None:
@@ -279,7 +297,9 @@ def run_assemble(config, *, progress=None, stage_progress=None):
     meta = {
         "eidecomp_version": __version__,
         "input": {**source, "shape": list(W.shape), "key": config.key,
-                  "transpose": config.transpose, "units": config.units},
+                  "transpose": config.transpose, "units": config.units,
+                  "position_unit": config.position_unit,
+                  "magnification_um_per_deg": config.magnification},
         "parameters": {**{k: _clean(v) if isinstance(v, float) else v
                           for k, v in circuit.params.items()},
                        "ei_ratio_text": str(config.ei_ratio),
@@ -288,8 +308,11 @@ def run_assemble(config, *, progress=None, stage_progress=None):
                           "converged": dec.converged, "n_iter": dec.n_iter},
         "counts": {"excitatory": circuit.n_excitatory,
                    "untuned": circuit.n_untuned, "tuned": circuit.n_tuned},
-        "metrics": {k: v for k, v in report.as_dict().items()
-                    if k not in ("history", "baselines")},
+        "metrics": {**{k: v for k, v in report.as_dict().items()
+                       if k not in ("history", "baselines")},
+                    "silent_interneurons": sum(
+                        1 for p in pools
+                        if p["n_inputs"] == 0 or p["n_targets"] == 0)},
         "baselines": report.as_dict()["baselines"],
         "stability": _stability(circuit, W_target),
         "interneurons": pools,
@@ -300,6 +323,12 @@ def run_assemble(config, *, progress=None, stage_progress=None):
     files["sparse.npy"] = np.asarray(dec.sparse)
     if units is not None and "feature" in units:
         files["features.npy"] = units["feature"]
+    if positions is not None:
+        files["positions.npy"] = positions
+    if config.report:
+        files["report.html"] = _render(
+            circuit, files["circuit.json"], W_target, np.asarray(dec.low_rank),
+            None if units is None else units["feature"], positions)
     write_folder(out, files, force=config.force)
     return AssembleResult(circuit=circuit, meta=files["circuit.json"], output=out)
 
@@ -449,3 +478,84 @@ def run_simulate(bundle, *, engine="internal", drive="random", tau_e=10.0,
             "original_vs_fixed_point_W": rel(orig, fp_W),
             "circuit_vs_original": rel(rates[:n_e], orig),
             "reconstruction_error": rel(circuit.effective_weights(), W)}
+
+
+# --- report and demo ---------------------------------------------------------
+
+PATH_MAX_UNITS = 600  # the report's lam path re-solves robust PCA 8 times
+
+
+def _render(circuit, meta, W, L, features, positions):
+    from .analysis.report import render_report
+    from .decompose import lambda_path
+
+    points = None
+    if W.shape[0] <= PATH_MAX_UNITS:
+        # a figure, not a result: a looser tolerance and an iteration cap;
+        # rank and sparsity are settled long before either stops
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", ConvergenceWarning)
+            points, _ = lambda_path(W, n_lams=8, tol=1e-6, max_iter=1000)
+    return render_report(circuit, meta, W, low_rank=L, features=features,
+                         positions=positions, path_points=points)
+
+
+def run_report(bundle, output, *, force=False):
+    """Write the HTML report of a circuit bundle to ``output``."""
+    from .io import read_circuit, write_file
+
+    out = Path(output)
+    if out.exists() and not force:
+        raise InputError(f"{out}: already exists; use --force to replace it")
+    circuit, meta = read_circuit(bundle)
+    bundle = Path(bundle)
+
+    def optional(name):
+        p = bundle / name
+        return np.load(p, allow_pickle=False) if p.is_file() else None
+
+    L = optional("low_rank.npy")
+    S = optional("sparse.npy")
+    W = L + S if L is not None and S is not None else circuit.effective_weights()
+    page = _render(circuit, meta, W, L, optional("features.npy"),
+                   optional("positions.npy"))
+    return write_file(out, page.encode("utf-8"), force=force)
+
+
+def demo_inputs(seed=7):
+    """The invented demo: the example matrix and a unit table for it.
+
+    Units are laid out along a line of cortex by preferred orientation (4 um
+    per degree, with 20 um of jitter across), a scenario of our own, so
+    like-to-like connections are also local ones.
+    """
+    W, theta = datasets.example_lateral(seed=seed)
+    rng = np.random.default_rng(seed)
+    x = 4.0 * theta
+    y = rng.normal(0.0, 20.0, len(theta))
+    rows = zip(theta.tolist(), x.tolist(), y.tolist(), strict=True)
+    lines = ["id,feature,x,y"] + [f"unit{i:03d},{t!r},{a!r},{b!r}"
+                                  for i, (t, a, b) in enumerate(rows)]
+    return W, "\n".join(lines) + "\n"
+
+
+def run_demo(output, *, force=False, progress=None):
+    """Write the demo inputs and run decompose + assemble + report on them."""
+    import tempfile
+
+    out = Path(output)
+    if out.exists() and not force:
+        raise InputError(f"{out}: already exists; use --force to replace it")
+    W, units_csv = demo_inputs()
+    with tempfile.TemporaryDirectory() as tmp:
+        np.save(Path(tmp) / "demo_weights.npy", W)
+        (Path(tmp) / "demo_units.csv").write_text(units_csv, encoding="utf-8")
+        config = AssembleConfig(input=str(Path(tmp) / "demo_weights.npy"),
+                                output=str(out), units=str(Path(tmp) /
+                                                           "demo_units.csv"),
+                                ignore_diagonal=True, report=True, force=force)
+        result = run_assemble(config, stage_progress=progress)
+        # keep the inputs beside the bundle's files, for the reader
+        for name in ("demo_weights.npy", "demo_units.csv"):
+            (out / name).write_bytes((Path(tmp) / name).read_bytes())
+    return result

@@ -16,3 +16,18 @@ def require(module):
     if os.environ.get("EIDECOMP_REQUIRE_SIMULATORS"):
         return importlib.import_module(module)
     return pytest.importorskip(module)
+
+
+def require_browser():
+    """Path of a headless Chromium, or skip; under .ci/run (which installs
+    Debian's chromium) a missing browser fails instead of skipping."""
+    import os
+    import shutil
+
+    for name in ("chromium", "chromium-browser", "google-chrome"):
+        path = shutil.which(name)
+        if path:
+            return path
+    if os.environ.get("EIDECOMP_REQUIRE_BROWSER"):
+        pytest.fail("no Chromium on PATH (CI installs Debian's chromium)")
+    pytest.skip("no Chromium on PATH")

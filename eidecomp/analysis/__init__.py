@@ -1,5 +1,13 @@
-"""What a circuit predicts: interneuron tuning (and, later, connection rules)."""
+"""What a circuit predicts: connection rules, interneuron tuning, figures, the
+report. plotting.py is the only module that imports matplotlib."""
 
-from .tuning import circular_variance, interneuron_pools
+from .circular import (
+    circular_difference,
+    circular_mean,
+    circular_variance,
+    orientation_selectivity,
+)
+from .tuning import interneuron_pools, pool_features
 
-__all__ = ["circular_variance", "interneuron_pools"]
+__all__ = ["circular_difference", "circular_mean", "circular_variance",
+           "interneuron_pools", "orientation_selectivity", "pool_features"]

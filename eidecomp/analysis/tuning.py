@@ -1,35 +1,17 @@
 """Tuning of an interneuron's input pool over the units' preferred features.
 
-For features theta_j with period P (180 degrees for orientations, 360 for
-directions) and input weights w_j >= 0, the pool's resultant is
-
-    z = sum_j w_j exp(2 pi i theta_j / P) / sum_j w_j,
-
-and its circular variance is 1 - |z| (Mardia & Jupp 2000, Directional
-Statistics, section 2.3.1): 0 when the pool shares one feature, 1 when its
-weights are spread evenly around the circle.
+An interneuron's input pool is its row of J_IE: the E units that drive it,
+with their weights. Its tuning is the circular variance of that pool over
+the units' preferred features (analysis/circular.py): 0 when the pool shares
+one feature, 1 when its weights are spread evenly around the circle; and the
+orientation selectivity index of the pool's binned profile.
 """
 
 import numpy as np
 
-__all__ = ["circular_variance", "interneuron_pools"]
+from .circular import circular_mean, circular_variance, orientation_selectivity
 
-
-def circular_variance(weights, features, period=180.0):
-    """Circular variance of each row of ``weights`` over ``features``.
-
-    >>> circular_variance([[1, 0, 0, 0], [1, 1, 1, 1]], [0, 45, 90, 135])
-    array([0., 1.])
-    >>> float(circular_variance([[1, 1, 0, 0]], [0, 45, 90, 135])[0]).__round__(4)
-    0.2929
-    """
-    w = np.atleast_2d(np.asarray(weights, dtype=float))
-    phase = np.exp(2j * np.pi * np.asarray(features, dtype=float) / period)
-    total = w.sum(axis=1)
-    z = np.abs(w @ phase) / np.where(total > 0, total, 1.0)
-    cv = 1.0 - z
-    cv[total == 0] = np.nan
-    return cv
+__all__ = ["interneuron_pools", "pool_features"]
 
 
 def interneuron_pools(circuit, features=None, period=180.0, rtol=1e-6):
@@ -48,6 +30,8 @@ def interneuron_pools(circuit, features=None, period=180.0, rtol=1e-6):
     peak_out = J_EI.max(axis=0, initial=0.0)
     cv = (circular_variance(J_IE, features, period) if features is not None
           else [None] * len(kinds))
+    osi = (orientation_selectivity(J_IE, features, period)
+           if features is not None else [None] * len(kinds))
     out = []
     for k in range(len(kinds)):
         out.append({
@@ -58,5 +42,28 @@ def interneuron_pools(circuit, features=None, period=180.0, rtol=1e-6):
             if peak_out[k] > 0 else 0,
             "circular_variance": None if cv[k] is None or np.isnan(cv[k])
             else float(cv[k]),
+            "selectivity_index": None if osi[k] is None or np.isnan(osi[k])
+            else float(osi[k]),
         })
     return out
+
+
+def pool_features(circuit, features=None, positions=None, period=180.0):
+    """Feature and position of each interneuron, from its input pool.
+
+    The preferred feature is the weighted circular mean of the pool's
+    features and the position the weighted mean of its positions; both are
+    NaN for an interneuron with no input. Returns (features, positions) of
+    the interneurons, untuned first, with None where nothing was given.
+    """
+    J_IE = circuit.J_IE
+    total = J_IE.sum(axis=1)
+    feats = None
+    if features is not None:
+        feats = np.array([circular_mean(features, row, period) if t > 0
+                          else np.nan for row, t in zip(J_IE, total, strict=True)])
+    pos = None
+    if positions is not None:
+        with np.errstate(invalid="ignore", divide="ignore"):
+            pos = (J_IE @ np.asarray(positions, float)) / total[:, None]
+    return feats, pos
