@@ -8,12 +8,20 @@ the convex solvers, matplotlib only by plotting).
 """
 
 from .assemble import assemble  # the function; the subpackage stays importable
-from .decompose import RobustPCA, default_lam, lambda_path, pcp_objective, robust_pca
+from .decompose import (
+    RobustPCA,
+    default_lam,
+    lambda_path,
+    pcp_objective,
+    robust_pca,
+    robust_pca_kernel,
+)
 from .errors import ConvergenceWarning, InputError, SolverError
 from .types import (
     AssemblyReport,
     Circuit,
     Decomposition,
+    KernelDecomposition,
     OptimalityReport,
     PathPoint,
     Population,
@@ -27,6 +35,7 @@ __all__ = [
     "ConvergenceWarning",
     "Decomposition",
     "InputError",
+    "KernelDecomposition",
     "OptimalityReport",
     "PathPoint",
     "Population",
@@ -38,4 +47,5 @@ __all__ = [
     "lambda_path",
     "pcp_objective",
     "robust_pca",
+    "robust_pca_kernel",
 ]

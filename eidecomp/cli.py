@@ -55,8 +55,16 @@ def _get_parser():
                          description="Split W into low-rank L and sparse S "
                          "(Principal Component Pursuit) and write OUT/low_rank.npy, "
                          "OUT/sparse.npy and OUT/summary.json.")
-    dec.add_argument("matrix", help="W[post, pre] as .npy, .npz, .csv, .tsv, "
-                     ".txt or .mat; 'example' for the built-in invented example")
+    dec.add_argument("matrix", nargs="?", help="W[post, pre] as .npy, .npz, .csv, "
+                     ".tsv, .txt or .mat; 'example' for the built-in invented "
+                     "example (omit with --kernel)")
+    dec.add_argument("--kernel", metavar="K.npy",
+                     help="a lateral kernel K[post_feature, pre_feature, dy, dx] "
+                     "(odd, centred) tiled over --grid, instead of a matrix")
+    dec.add_argument("--grid", metavar="HxW", help="grid of the kernel, e.g. 64x64")
+    dec.add_argument("--boundary", choices=("periodic", "zero"), default="periodic",
+                     help="periodic: structured solver on the kernel; zero: "
+                     "expanded to the dense matrix (memory permitting)")
     dec.add_argument("-o", "--output", required=True, metavar="OUT",
                      help="folder to write (must not exist, unless --force)")
     dec.add_argument("--key", help="array name in .npz / variable in .mat")
@@ -229,8 +237,28 @@ class _StageProgress(_Progress):
                   file=self.stream, flush=True)
 
 
+def _kernel_table(result):
+    s = result.summary
+    ranks = result.decomposition.ranks
+    rows = [
+        ("kernel", "x".join(map(str, s["input"]["kernel_shape"]))),
+        ("grid", "x".join(map(str, s["input"]["grid"])) + "  (periodic)"),
+        ("units", str(s["n_units"])),
+        ("lam", f"{s['lam']:.6g}"),
+        ("rank of L", f"{s['rank']}  (at most {int(ranks.max())} per frequency)"),
+        ("objective", f"{s['objective']:.10g}"),
+        ("iterations", str(s["n_iter"])),
+        ("converged", "yes" if s["converged"] else "NO"),
+        ("written to", str(result.output)),
+    ]
+    width = max(len(k) for k, _ in rows)
+    return "\n".join(f"{k:<{width}}  {v}" for k, v in rows)
+
+
 def _summary_table(result):
     s = result.summary
+    if s["format"] == "eidecomp-kernel-decomposition":
+        return _kernel_table(result)
     o = s["optimality"]
     rows = [
         ("shape", "x".join(map(str, s["input"]["shape"]))),
@@ -256,8 +284,12 @@ def _summary_table(result):
 def _decompose(args):
     from .pipeline import DecomposeConfig, run_decompose
 
+    if (args.matrix is None) == (args.kernel is None):
+        raise InputError("give either a matrix or --kernel (see 'eidecomp "
+                         "decompose --help')")
     config = DecomposeConfig(
         input=args.matrix, output=args.output, key=args.key,
+        kernel=args.kernel, grid=args.grid, boundary=args.boundary,
         transpose=args.transpose, mask=args.mask,
         ignore_diagonal=args.ignore_diagonal, lam=args.lam,
         target_rank=args.target_rank, method=args.method, solver=args.solver,

@@ -47,6 +47,7 @@ __all__ = [
     "circuit_files",
     "file_checksum",
     "read_circuit",
+    "read_kernel",
     "read_mask",
     "read_matrix",
     "read_units",
@@ -351,6 +352,23 @@ def write_folder(out, files, *, force=False):
     if old is not None:
         shutil.rmtree(old, ignore_errors=True)
     return out
+
+
+# --- kernels -------------------------------------------------------------------
+
+def read_kernel(path, *, key=None):
+    """A 4-D kernel K[post_feature, pre_feature, dy, dx] from .npy or .npz."""
+    path = Path(path)
+    if not path.is_file():
+        raise InputError(f"{path}: kernel file not found")
+    if path.suffix.lower() not in (".npy", ".npz"):
+        raise InputError(f"{path}: a kernel must be a .npy or .npz file")
+    arr = _load_array(path, key)
+    if arr.ndim != 4:
+        raise InputError(f"{path}: expected a 4-D kernel K[post_feature, "
+                         f"pre_feature, dy, dx], got a {arr.ndim}-D array "
+                         f"of shape {arr.shape}")
+    return arr
 
 
 # --- unit tables ---------------------------------------------------------------

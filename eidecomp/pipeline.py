@@ -58,6 +58,9 @@ class DecomposeConfig:
     max_iter: int | None = None
     seed: int = 0
     force: bool = False
+    kernel: str | None = None
+    grid: str | None = None
+    boundary: str = "periodic"
 
 
 @dataclass(frozen=True)
@@ -74,6 +77,62 @@ def _load(config):
     W = read_matrix(config.input, key=config.key, transpose=config.transpose,
                     what="weight matrix")
     return W, {"path": str(config.input), "sha256": file_checksum(config.input)}
+
+
+KERNEL_FORMAT = "eidecomp-kernel-decomposition"
+
+
+def _run_decompose_kernel(config, out, progress):
+    from .decompose import robust_pca_kernel
+    from .io import read_kernel
+    from .kernels import check_kernel, parse_grid
+
+    if config.grid is None:
+        raise InputError("--kernel needs --grid HxW")
+    grid = parse_grid(config.grid)
+    K = check_kernel(read_kernel(config.kernel, key=config.key), grid,
+                     config.boundary, name=str(config.kernel))
+    source = {"path": str(config.kernel), "sha256": file_checksum(config.kernel),
+              "kernel_shape": list(K.shape), "grid": list(grid),
+              "boundary": config.boundary}
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", ConvergenceWarning)
+        dec = robust_pca_kernel(K, grid, lam=config.lam, boundary=config.boundary,
+                                tol=config.tol, max_iter=config.max_iter,
+                                progress=progress, seed=config.seed)
+    for w in caught:
+        warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+    n_units = K.shape[0] * grid[0] * grid[1]
+    summary = {
+        "format": KERNEL_FORMAT if config.boundary == "periodic" else BUNDLE_FORMAT,
+        "format_version": BUNDLE_VERSION, "eidecomp_version": __version__,
+        "convention": "kernels K[post_feature, pre_feature, offset]; the tiled "
+                      "matrix is W[post, pre]",
+        "input": source, "n_units": n_units,
+        "parameters": {"lam": config.lam, "tol": config.tol,
+                       "max_iter": config.max_iter, "method": "ialm",
+                       "target_rank": None},
+        "lam": dec.lam, "lam_default": 1.0 / math.sqrt(n_units),
+        "rank": dec.rank, "objective": dec.objective, "n_iter": dec.n_iter,
+        "converged": dec.converged,
+    }
+    if config.boundary == "periodic":
+        summary["layout"] = ("low_rank_kernel.npy and sparse_kernel.npy are "
+                             "full-grid kernels (F, F, H, W): entry [a, b, oy, ox] "
+                             "is the weight onto feature a from feature b at "
+                             "offset (oy, ox) mod the grid; ranks.npy is the rank "
+                             "of L at each spatial frequency")
+        files = {"low_rank_kernel.npy": np.asarray(dec.low_rank),
+                 "sparse_kernel.npy": np.asarray(dec.sparse),
+                 "ranks.npy": np.asarray(dec.ranks), "summary.json": summary}
+    else:
+        summary["input"]["shape"] = [n_units, n_units]
+        summary["sparsity"] = dec.sparsity
+        summary["optimality"] = {k: _clean(v) for k, v in dec.report.as_dict().items()}
+        files = {"low_rank.npy": np.asarray(dec.low_rank),
+                 "sparse.npy": np.asarray(dec.sparse), "summary.json": summary}
+    write_folder(out, files, force=config.force)
+    return DecomposeResult(decomposition=dec, summary=summary, output=out)
 
 
 def _clean(value):
@@ -99,6 +158,8 @@ def run_decompose(config, *, progress=None):
     out = Path(config.output)
     if out.exists() and not config.force:  # fail before any work is done
         raise InputError(f"{out}: already exists; use --force to replace it")
+    if config.kernel is not None:
+        return _run_decompose_kernel(config, out, progress)
     W, source = _load(config)
     observed = None
     if config.mask is not None:

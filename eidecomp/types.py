@@ -14,6 +14,7 @@ __all__ = [
     "BaselineResult",
     "Circuit",
     "Decomposition",
+    "KernelDecomposition",
     "OptimalityReport",
     "PathPoint",
     "Population",
@@ -130,6 +131,49 @@ class Decomposition:
         if self.observed is not None:
             return float(nz[self.observed].mean()) if self.observed.any() else 0.0
         return float(nz.mean())
+
+
+@dataclass(frozen=True)
+class KernelDecomposition:
+    """PCP of a kernel tiled over a periodic grid, as kernels.
+
+    Attributes
+    ----------
+    low_rank, sparse : ndarray (F, F, H, W)
+        Full-grid kernels of L and S: entry [a, b, oy, ox] is the weight onto
+        feature a from feature b at offset (oy, ox) mod the grid
+        (eidecomp.kernels).
+    ranks : ndarray (H, W) of int
+        Rank of L's F x F Fourier block at each spatial frequency; the rank
+        of the tiled L is their sum.
+    lam, objective : float
+        Objective of the tiled N x N problem, N = F H W.
+    n_iter, converged, history
+        As in Decomposition.
+    grid : tuple (H, W)
+    """
+
+    low_rank: np.ndarray
+    sparse: np.ndarray
+    ranks: np.ndarray
+    lam: float
+    objective: float
+    n_iter: int
+    converged: bool
+    grid: tuple
+    history: tuple = field(default=(), repr=False)
+
+    def __post_init__(self):
+        _freeze(self, "low_rank", "sparse", "ranks")
+
+    @property
+    def rank(self):
+        """Rank of the tiled low-rank matrix."""
+        return int(self.ranks.sum())
+
+    @property
+    def n_units(self):
+        return self.low_rank.shape[0] * self.grid[0] * self.grid[1]
 
 
 @dataclass(frozen=True)

@@ -4,11 +4,13 @@ Public names: :func:`robust_pca` (one solve), :func:`lambda_path` (a sweep over
 lam), :func:`default_lam`, :func:`pcp_objective` and the estimator
 :class:`RobustPCA`. The numerics live in private modules that take and return
 arrays: ``_ialm`` (inexact ALM), ``_svt`` (singular value thresholding),
-``_convex`` (cvxpy programs).
+``_convex`` (cvxpy programs), ``_circulant`` (the same ALM on the kernel of a
+translation-invariant matrix); :func:`robust_pca_kernel` is its public entry.
 """
 
 from ._api import default_lam, lambda_path, pcp_objective, robust_pca
+from ._kernel_api import robust_pca_kernel
 from .estimator import RobustPCA
 
 __all__ = ["RobustPCA", "default_lam", "lambda_path", "pcp_objective",
-           "robust_pca"]
+           "robust_pca", "robust_pca_kernel"]
