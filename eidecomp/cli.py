@@ -95,8 +95,16 @@ def _get_parser():
                          description="Build an excitatory / untuned-inhibitory "
                          "/ tuned-inhibitory circuit that reproduces W at the "
                          "chosen E:I ratio, and write it as a bundle folder.")
-    asm.add_argument("matrix", help="W[post, pre] (as for decompose), "
-                     "'example', or a folder written by 'eidecomp decompose'")
+    asm.add_argument("matrix", nargs="?", help="W[post, pre] (as for decompose), "
+                     "'example', or a folder written by 'eidecomp decompose' "
+                     "(omit with --kernel)")
+    asm.add_argument("--kernel", metavar="K.npy",
+                     help="a lateral kernel tiled over --grid (periodic): "
+                     "assemble a tiled circuit of translation-invariant kernels")
+    asm.add_argument("--grid", metavar="HxW", help="grid of the kernel")
+    asm.add_argument("--expand", action="store_true",
+                     help="with --kernel: write the explicit circuit (a regular "
+                     "bundle) instead of kernels, after a memory estimate")
     run = sub.add_parser("run", help="decompose and assemble in one go",
                          description="Robust PCA of W, then the Dale's-law "
                          "circuit, written as one bundle folder.")
@@ -336,17 +344,33 @@ def _circuit_table(result):
 def _assemble(args):
     from .pipeline import AssembleConfig, run_assemble
 
+    kernel = getattr(args, "kernel", None)
+    if (args.matrix is None) == (kernel is None):
+        raise InputError("give either a matrix or --kernel (see 'eidecomp "
+                         f"{args.command} --help')")
+    tiled = {"kernel": kernel, "grid": getattr(args, "grid", None),
+             "expand": getattr(args, "expand", False)}
     config = AssembleConfig(
         input=args.matrix, output=args.output, ei_ratio=args.ei_ratio,
         untuned_share=args.untuned_share, alpha=args.alpha, units=args.units,
         period=args.period, position_unit=args.position_unit,
-        magnification=args.magnification, report=args.report,
+        magnification=args.magnification, report=args.report, **tiled,
         key=args.key, transpose=args.transpose,
         mask=args.mask, ignore_diagonal=args.ignore_diagonal, lam=args.lam,
         seed=args.seed, force=args.force)
     progress = None if args.quiet else _Progress(sys.stderr)
     stages = None if args.quiet else _StageProgress(sys.stderr)
     result = run_assemble(config, progress=progress, stage_progress=stages)
+    if "per_site" in result.meta:
+        m = result.meta
+        print(f"tiled circuit on a {'x'.join(map(str, m['input']['grid']))} grid: "
+              f"per site {m['per_site']['excitatory']} E, "
+              f"{m['per_site']['untuned']} untuned I, {m['per_site']['tuned']} "
+              f"tuned I; relative error {m['metrics']['relative_error']:.4f}; "
+              f"expanded it is {sum(m['counts'].values())} units "
+              f"(~{m['memory_estimate_expanded_bytes'] / 2**20:.0f} MiB dense)")
+        print(f"written to {result.output}")
+        return 0
     print(_circuit_table(result))
     return 0
 

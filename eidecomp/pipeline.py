@@ -224,6 +224,9 @@ class AssembleConfig:
     position_unit: str = "um"
     magnification: float | None = None
     report: bool = False
+    kernel: str | None = None
+    grid: str | None = None
+    expand: bool = False
     key: str | None = None
     transpose: bool = False
     mask: str | None = None
@@ -268,6 +271,82 @@ def _read_decomposition(folder):
                  "decomposition": str(folder)}
 
 
+TILED_FORMAT = "eidecomp-tiled-circuit"
+
+
+def _run_assemble_tiled(config, out, progress):
+    """A tiled circuit from a kernel; its kernels, or with ``expand`` an
+    explicit circuit bundle (after a memory estimate)."""
+    from .assemble import assemble_tiled, parse_ratio
+    from .decompose import robust_pca_kernel
+    from .io import circuit_files, read_kernel
+    from .kernels import check_kernel, dense_bytes, full_grid, memory_limit, parse_grid
+
+    if config.grid is None:
+        raise InputError("--kernel needs --grid HxW")
+    grid = parse_grid(config.grid)
+    ratio = parse_ratio(config.ei_ratio)
+    K = check_kernel(read_kernel(config.kernel, key=config.key), grid,
+                     "periodic", name=str(config.kernel))
+    F = K.shape[0]
+    m = int(round(F / ratio))
+    n_total = (F + m) * grid[0] * grid[1]
+    need = dense_bytes(n_total, arrays=3)
+    if config.expand and memory_limit() and need > memory_limit() // 2:
+        raise InputError(f"the expanded circuit would have {n_total} units and "
+                         f"need about {need / 2**30:.1f} GiB; drop --expand to "
+                         "keep it as kernels")
+    G = full_grid(K, grid)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", ConvergenceWarning)
+        dec = robust_pca_kernel(G, grid, offsets=True, lam=config.lam,
+                                tol=config.tol, progress=progress)
+        tiled = assemble_tiled(dec, G, ei_ratio=ratio,
+                               untuned_share=config.untuned_share,
+                               alpha=config.alpha, seed=config.seed)
+    for w in caught:
+        warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+    F, mu, mt = tiled.per_site
+    meta = {
+        "eidecomp_version": __version__,
+        "input": {"path": str(config.kernel), "sha256": file_checksum(config.kernel),
+                  "kernel_shape": list(K.shape), "grid": list(grid),
+                  "boundary": "periodic", "shape": [F * grid[0] * grid[1]] * 2},
+        "parameters": {**tiled.params, "lam": dec.lam, "rank": dec.rank},
+        "per_site": {"excitatory": F, "untuned": mu, "tuned": mt},
+        "counts": {"excitatory": F * grid[0] * grid[1],
+                   "untuned": mu * grid[0] * grid[1],
+                   "tuned": mt * grid[0] * grid[1]},
+        "metrics": {"relative_error": tiled.relative_error,
+                    "ee_density": float(np.count_nonzero(tiled.J_EE)
+                                        / tiled.J_EE.size),
+                    "share_rule": f"per site: {mu} untuned, {mt} tuned",
+                    "converged": True},
+        "baselines": [],
+        "memory_estimate_expanded_bytes": need,
+        "hypothesis": "a model circuit consistent with W, not a measurement",
+    }
+    if config.expand:
+        circuit = tiled.expand()
+        stability = {"original_spectral_abscissa": None,
+                     "circuit_spectral_abscissa_equal_taus": None,
+                     "max_stable_tau_ratio": None,
+                     "note": "not computed for tiled circuits"}
+        files = circuit_files(circuit, {**meta, "stability": stability,
+                                        "interneurons": []})
+    else:
+        circuit = tiled
+        files = {f"{b}_kernel.npy": np.asarray(getattr(tiled, b))
+                 for b in ("J_EE", "J_EU", "J_UE", "J_ET", "J_TE")}
+        files["tiled.json"] = {"format": TILED_FORMAT, "format_version": 1,
+                               "layout": "full-grid kernels (P, Q, H, W), "
+                                         "[post, pre, offset mod grid]", **meta}
+        meta = files["tiled.json"]
+    write_folder(out, files, force=config.force)
+    return AssembleResult(circuit=circuit, meta=meta if not config.expand
+                          else files["circuit.json"], output=out)
+
+
 def _stability(circuit, W):
     from . import dynamics
 
@@ -308,6 +387,8 @@ def run_assemble(config, *, progress=None, stage_progress=None):
     out = Path(config.output)
     if out.exists() and not config.force:
         raise InputError(f"{out}: already exists; use --force to replace it")
+    if config.kernel is not None:
+        return _run_assemble_tiled(config, out, progress)
     ratio = parse_ratio(config.ei_ratio)  # bad options fail before any work
     if Path(config.input).is_dir():
         dec, source = _read_decomposition(config.input)

@@ -128,3 +128,59 @@ def test_kernel_command(tmp_path, capsys):
         err = capsys.readouterr().err
         assert msg in err and "Traceback" not in err
         assert not (tmp_path / "x").exists()
+
+
+@pytest.mark.parametrize("F,grid", [(4, (8, 8)), (8, (6, 6))])
+def test_tiled_circuit_matches_the_dense_assembler(F, grid):
+    # reference: the dense assembler (test_assemble.py) on the expanded matrix
+    from eidecomp import assemble
+    from eidecomp.assemble import assemble_tiled
+
+    G = _planted_full(F, grid, seed=F)
+    tiled = assemble_tiled(robust_pca_kernel(G, grid, offsets=True), G)
+    c = tiled.expand()
+    n_e = F * grid[0] * grid[1]
+    assert c.n_excitatory == n_e
+    assert c.n_inhibitory == round(F / 4) * grid[0] * grid[1]
+    full = c.signed_weights()
+    assert (full[:, :n_e] >= 0).all() and (full[:, n_e:] <= 0).all()
+    # the expanded circuit is exactly the tiled one
+    np.testing.assert_allclose(c.effective_weights(),
+                               expand_full(tiled.effective_kernel()), atol=1e-12)
+    M = expand_full(G)
+    err = np.linalg.norm(M - c.effective_weights()) / np.linalg.norm(M)
+    assert err == pytest.approx(tiled.relative_error, rel=1e-9)
+    dense = assemble(M, baselines=False)
+    # "the same error as the dense assembler": no worse than it, to 10 %
+    assert err <= 1.1 * dense.report.relative_error
+
+
+def test_tiled_expansion_checks_memory():
+    from eidecomp.assemble import assemble_tiled
+
+    G = _planted_full(4, (6, 6), seed=1)
+    tiled = assemble_tiled(robust_pca_kernel(G, (6, 6), offsets=True), G,
+                           max_iter=5)
+    with pytest.raises(InputError, match="GiB"):
+        tiled.expand(max_bytes=1000)
+
+
+def test_tiled_assemble_command(tmp_path, capsys):
+    from eidecomp.io import read_circuit
+    from eidecomp.kernels import to_local
+
+    G = _planted_full(8, (7, 7), seed=2)
+    np.save(tmp_path / "k.npy", to_local(G))
+    assert main(["assemble", "--kernel", str(tmp_path / "k.npy"), "--grid",
+                 "7x7", "-o", str(tmp_path / "t"), "-q"]) == 0
+    doc = json.loads((tmp_path / "t" / "tiled.json").read_text())
+    assert doc["per_site"] == {"excitatory": 8, "untuned": 1, "tuned": 1}
+    assert np.load(tmp_path / "t" / "J_EU_kernel.npy").shape == (8, 1, 7, 7)
+    assert main(["assemble", "--kernel", str(tmp_path / "k.npy"), "--grid",
+                 "7x7", "-o", str(tmp_path / "x"), "-q", "--expand"]) == 0
+    c, meta = read_circuit(tmp_path / "x")  # a regular, checksummed bundle
+    assert (c.n_excitatory, c.n_inhibitory) == (392, 98)
+    assert "expanded it is 490 units" in capsys.readouterr().out
+    assert main(["assemble", "--kernel", str(tmp_path / "k.npy"), "--grid",
+                 "7x7", "-o", str(tmp_path / "y"), "--ei-ratio", "20"]) == 2
+    assert "no interneuron per site" in capsys.readouterr().err

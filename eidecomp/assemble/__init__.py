@@ -4,6 +4,8 @@ from ._assemble import assemble
 from ._baselines import baselines
 from ._counts import inhibitory_count, parse_ratio, split_counts
 from ._nmf import hals, nndsvd
+from ._tiled import TiledCircuit, assemble_tiled
 
-__all__ = ["assemble", "baselines", "hals", "inhibitory_count", "nndsvd",
+__all__ = ["TiledCircuit", "assemble", "assemble_tiled", "baselines", "hals",
+           "inhibitory_count", "nndsvd",
            "parse_ratio", "split_counts"]
