@@ -5,6 +5,7 @@ traceback, nothing written), 1 when a solver fails.
 """
 
 import argparse
+import math
 import sys
 import time
 import warnings
@@ -82,11 +83,15 @@ def _get_parser():
                      help="fast ALM solver or exact convex program (cvxpy)")
     dec.add_argument("--solver", choices=("CLARABEL", "SCS"), default="CLARABEL",
                      type=str.upper, help="cvxpy solver for --method convex")
-    dec.add_argument("--tol", type=_positive_float, default=1e-8,
-                     help="ALM tolerance on primal and dual residuals")
+    dec.add_argument("--tol", type=_positive_float,
+                     help="ALM tolerance on primal and dual residuals "
+                     "(default 1e-8, or 1e-6 with --float32)")
     dec.add_argument("--max-iter", type=_count, metavar="N",
                      help="iteration limit (ALM default 5000)")
     dec.add_argument("--seed", type=_count, default=0)
+    dec.add_argument("--float32", action="store_true",
+                     help="work in float32: half the memory, residuals to "
+                     "about 1e-6 (default tol 1e-6)")
     dec.add_argument("--force", action="store_true",
                      help="replace OUT if it exists")
     dec.add_argument("-q", "--quiet", action="store_true",
@@ -217,19 +222,40 @@ def _nonnegative_float(text):
 
 
 class _Progress:
-    """Progress lines on stderr, at most one a second, after the first second."""
+    """Progress lines on stderr, at most one a second, after the first second,
+    with an estimate of the time left; silent when stderr is not a terminal
+    (a log file or a pipe) unless ``always``."""
 
-    def __init__(self, stream):
+    def __init__(self, stream, tol=1e-8, always=False):
         self.stream = stream
+        self.tol = tol
         self.start = self.last = time.monotonic()
+        self.enabled = always or getattr(stream, "isatty", lambda: False)()
+        self.trail = []
+
+    def _eta(self, it, worst, now):
+        """Seconds left, from the recent rate at which the larger residual
+        falls (log-linear); None while it is not falling."""
+        self.trail.append((it, now, math.log10(max(worst, 1e-300))))
+        self.trail = self.trail[-20:]
+        if len(self.trail) < 5:
+            return None
+        (i0, t0, r0), (i1, t1, r1) = self.trail[0], self.trail[-1]
+        if r1 >= r0 or i1 == i0:
+            return None
+        per_it = (r0 - r1) / (i1 - i0)
+        left_its = (r1 - math.log10(self.tol)) / per_it
+        return max(left_its, 0.0) * (t1 - t0) / (i1 - i0)
 
     def __call__(self, it, primal, dual, rank, mu):
         now = time.monotonic()
-        if now - self.last >= 1.0:
+        eta = self._eta(it, max(primal, dual), now)
+        if self.enabled and now - self.last >= 1.0:
             self.last = now
+            left = "" if eta is None else f", ~{eta:.0f} s left"
             print(f"  iteration {it:5d}  primal {primal:.2e}  dual {dual:.2e}  "
-                  f"rank {rank}  ({now - self.start:.0f} s)", file=self.stream,
-                  flush=True)
+                  f"rank {rank}  ({now - self.start:.0f} s{left})",
+                  file=self.stream, flush=True)
 
 
 class _StageProgress(_Progress):
@@ -237,7 +263,7 @@ class _StageProgress(_Progress):
 
     def __call__(self, stage, step, objective):
         now = time.monotonic()
-        if now - self.last >= 1.0:
+        if self.enabled and now - self.last >= 1.0:
             self.last = now
             what = f"{stage}" + (f", sweep {step}, objective {objective:.6g}"
                                  if step else "")
@@ -301,8 +327,10 @@ def _decompose(args):
         transpose=args.transpose, mask=args.mask,
         ignore_diagonal=args.ignore_diagonal, lam=args.lam,
         target_rank=args.target_rank, method=args.method, solver=args.solver,
-        tol=args.tol, max_iter=args.max_iter, seed=args.seed, force=args.force)
-    progress = None if args.quiet else _Progress(sys.stderr)
+        tol=args.tol, max_iter=args.max_iter, seed=args.seed, force=args.force,
+        dtype="float32" if args.float32 else "float64")
+    progress = None if args.quiet else _Progress(
+        sys.stderr, tol=args.tol or (1e-6 if args.float32 else 1e-8))
     result = run_decompose(config, progress=progress)
     print(_summary_table(result))
     return 0

@@ -54,13 +54,14 @@ class DecomposeConfig:
     target_rank: int | None = None
     method: str = "ialm"
     solver: str = "CLARABEL"
-    tol: float = 1e-8
+    tol: float | None = None
     max_iter: int | None = None
     seed: int = 0
     force: bool = False
     kernel: str | None = None
     grid: str | None = None
     boundary: str = "periodic"
+    dtype: str = "float64"
 
 
 @dataclass(frozen=True)
@@ -170,7 +171,7 @@ def run_decompose(config, *, progress=None):
                          ignore_diagonal=config.ignore_diagonal,
                          target_rank=config.target_rank, tol=config.tol,
                          max_iter=config.max_iter, solver=config.solver,
-                         seed=config.seed, progress=progress)
+                         seed=config.seed, progress=progress, dtype=config.dtype)
     for w in caught:  # pass them on to the caller, once each
         warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
     n_unobserved = 0 if dec.observed is None else int((~dec.observed).sum())
@@ -185,7 +186,7 @@ def run_decompose(config, *, progress=None):
                  "n_unobserved": n_unobserved},
         "parameters": {k: v for k, v in asdict(config).items()
                        if k in ("lam", "target_rank", "method", "solver", "tol",
-                                "max_iter", "seed")},
+                                "max_iter", "seed", "dtype")},
         "lam": dec.lam,
         "lam_default": default_lam(W.shape),
         "rank": dec.rank,

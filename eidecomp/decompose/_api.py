@@ -13,7 +13,7 @@ import warnings
 import numpy as np
 
 from ..errors import ConvergenceWarning, InputError
-from ..types import Decomposition, OptimalityReport, PathPoint
+from ..types import Decomposition, OptimalityReport, PathPoint, handing_over
 from ._convex import ConvexPCP
 from ._ialm import ialm
 from ._svt import spectral_norm
@@ -37,7 +37,7 @@ def pcp_objective(L, S, lam, observed=None):
     return float(np.linalg.norm(L, "nuc") + lam * l1)
 
 
-def _check_matrix(W, name="W"):
+def _check_matrix(W, name="W", dtype=np.float64):
     W = np.asarray(W)
     if W.dtype == object or not (np.issubdtype(W.dtype, np.number)
                                  or W.dtype == bool):
@@ -49,14 +49,44 @@ def _check_matrix(W, name="W"):
                          f"shape {W.shape}")
     if W.size == 0:
         raise InputError(f"{name} is empty (shape {W.shape})")
-    dtype = W.dtype if W.dtype in (np.float32, np.float64) else np.float64
-    W = np.array(W, dtype=dtype, copy=True)
-    bad = ~np.isfinite(W)
-    if bad.any():
-        i, j = np.argwhere(bad)[0]
-        raise InputError(f"{name} has {int(bad.sum())} non-finite value(s) "
-                         f"(NaN or Inf), first at row {i}, column {j}")
+    # no copy when W already has the working dtype: the solvers never
+    # write into it, and at 20,000 units a copy is 3.2 GB
+    W = np.ascontiguousarray(W, dtype=dtype)
+    rows = max(1, (1 << 22) // max(W.shape[1], 1))
+    for start in range(0, W.shape[0], rows):
+        bad = ~np.isfinite(W[start:start + rows])
+        if bad.any():
+            n_bad = int((~np.isfinite(W)).sum())
+            i, j = np.argwhere(bad)[0]
+            raise InputError(f"{name} has {n_bad} non-finite value(s) "
+                             f"(NaN or Inf), first at row {start + i}, column {j}")
     return W
+
+
+def _sum_abs(A, observed=None):
+    """sum |A| (over ``observed``) in row blocks, without a full temporary."""
+    rows = max(1, (1 << 22) // max(A.shape[1], 1))
+    total = 0.0
+    for s in range(0, A.shape[0], rows):
+        block = np.abs(A[s:s + rows])
+        total += float(block[observed[s:s + rows]].sum() if observed is not None
+                       else block.sum())
+    return total
+
+
+def _residual_norm(W, L, S, observed=None):
+    """(||W - L - S||_F, ||W||_F) over ``observed``, in row blocks."""
+    rows = max(1, (1 << 22) // max(W.shape[1], 1))
+    r2 = w2 = 0.0
+    for s in range(0, W.shape[0], rows):
+        R = W[s:s + rows] - L[s:s + rows]
+        R -= S[s:s + rows]
+        Wb = W[s:s + rows]
+        if observed is not None:
+            R, Wb = R[observed[s:s + rows]], Wb[observed[s:s + rows]]
+        r2 += float(np.vdot(R, R))
+        w2 += float(np.vdot(Wb, Wb))
+    return np.sqrt(r2), np.sqrt(w2)
 
 
 def _check_observed(observed, shape, ignore_diagonal):
@@ -82,18 +112,13 @@ def _check_observed(observed, shape, ignore_diagonal):
 
 def _report(W, L, S, Y, lam, observed, *, nuclear, dual, n_iter, converged,
             solver, status):
-    l1 = float(np.abs(S if observed is None else S[observed]).sum())
-    R = W - L - S
-    if observed is not None:
-        R = R[observed]
-        norm_W = float(np.linalg.norm(W[observed]))
-    else:
-        norm_W = float(np.linalg.norm(W))
-    primal = float(np.linalg.norm(R)) / norm_W if norm_W else 0.0
+    l1 = _sum_abs(S, observed)
+    norm_R, norm_W = _residual_norm(W, L, S, observed)
+    primal = norm_R / norm_W if norm_W else 0.0
     spec = maxn = None
     if Y is not None:
         spec = spectral_norm(Y)
-        maxn = float(np.abs(Y).max()) / lam
+        maxn = max(float(Y.max()), -float(Y.min())) / lam
     return OptimalityReport(
         objective=float(nuclear + lam * l1), nuclear_norm=float(nuclear),
         l1_norm=l1, primal_residual=primal, dual_residual=dual,
@@ -133,10 +158,11 @@ def _ialm_decomposition(W, lam, observed, *, tol, max_iter, rho, seed,
                      dual=float(dual), n_iter=info["n_iter"],
                      converged=info["converged"], solver="ialm",
                      status="converged" if info["converged"] else "max_iter")
-    dec = Decomposition(low_rank=L, sparse=S, rank=len(sv), lam=float(lam),
-                        objective=report.objective, n_iter=info["n_iter"],
-                        converged=info["converged"], history=tuple(hist),
-                        method="ialm", report=report, observed=observed)
+    with handing_over():  # L and S are this solve's own: no copies
+        dec = Decomposition(low_rank=L, sparse=S, rank=len(sv), lam=float(lam),
+                            objective=report.objective, n_iter=info["n_iter"],
+                            converged=info["converged"], history=tuple(hist),
+                            method="ialm", report=report, observed=observed)
     return dec, (L, S, Y, info["mu"], info["n_iter"])
 
 
@@ -157,6 +183,53 @@ def _convex_decomposition(W, lam, observed, *, program, solver, max_iter):
                          report=report, observed=observed)
 
 
+DTYPES = {"float64": np.float64, "float32": np.float32}
+FLOAT32_TOL = 1e-6  # float32 residuals bottom out near 1e-7
+
+
+def _check_dtype(dtype):
+    name = np.dtype(dtype).name if not isinstance(dtype, str) else dtype
+    if name not in DTYPES:
+        raise InputError(f"dtype must be float64 or float32, got {dtype!r}")
+    return DTYPES[name]
+
+
+def memory_estimate(shape, dtype=np.float64, method="ialm"):
+    """Bytes robust_pca needs for a matrix of this shape: W and at most four
+    more m x n arrays (S, Y, the SVT's argument, then L) for the ALM; the
+    convex programs need far more and are estimated at 40 arrays."""
+    m, n = shape
+    arrays = 5 if method == "ialm" else 40
+    return arrays * m * n * np.dtype(dtype).itemsize
+
+
+def _available_memory():
+    try:
+        with open("/proc/meminfo") as fh:
+            for line in fh:
+                if line.startswith("MemAvailable:"):
+                    return int(line.split()[1]) * 1024
+    except OSError:
+        pass
+    from ..kernels import memory_limit
+
+    return memory_limit()
+
+
+def _check_memory(shape, dtype, method):
+    if len(shape) != 2:
+        return  # _check_matrix gives the message
+    need = memory_estimate(shape, dtype, method)
+    have = _available_memory()
+    if have and need > have:
+        alt = ("float32 mode (dtype='float32', --float32) halves it; "
+               if np.dtype(dtype) == np.float64 else "")
+        raise InputError(
+            f"a {shape[0]}x{shape[1]} robust PCA needs about {need / 2**30:.1f} "
+            f"GiB and {have / 2**30:.1f} GiB are available; {alt}a kernel "
+            "(--kernel) avoids the matrix altogether")
+
+
 def _warn_if_stopped(dec):
     if not dec.converged:
         warnings.warn(
@@ -167,8 +240,9 @@ def _warn_if_stopped(dec):
 
 
 def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
-               target_rank=None, tol=1e-8, max_iter=None, rho=1.5, delta=None,
-               low_rank_sign=None, solver="CLARABEL", seed=0, progress=None):
+               target_rank=None, tol=None, max_iter=None, rho=1.5, delta=None,
+               low_rank_sign=None, solver="CLARABEL", seed=0, progress=None,
+               dtype="float64", check_memory=True):
     r"""Split W into a low-rank part L and a sparse part S by robust PCA.
 
     Solves Principal Component Pursuit (Candes, Li, Ma, Wright 2011, eq. 1.1)
@@ -196,8 +270,10 @@ def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
     target_rank : int or None
         Search lam for a solution whose L has this rank (``lam`` is then
         the starting guess). See :func:`lambda_path` for a sweep.
-    tol : float
-        ALM: bound on the relative primal and dual residuals.
+    tol : float or None
+        ALM: bound on the relative primal and dual residuals; None means
+        1e-8 (float64) or 1e-6 (float32, whose residuals bottom out near
+        1e-7).
     max_iter : int or None
         Iteration limit. ALM: default 5000, a ``ConvergenceWarning`` if
         reached. Convex: passed to the solver; None keeps the solver's own.
@@ -215,6 +291,12 @@ def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
         Seed of the random starting block of the partial SVD.
     progress : callable or None
         ALM: called as ``progress(iteration, primal, dual, rank, mu)``.
+    dtype : "float64" or "float32"
+        Working precision (float64 by default). float32 halves the memory;
+        a float64 W is converted, a float32 W used as it is.
+    check_memory : bool
+        Refuse, before any work, a matrix whose solve would need more
+        memory than is available (the figure is in the message).
 
     Returns
     -------
@@ -238,7 +320,12 @@ def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
     >>> bool(np.allclose(dec.low_rank, L0, atol=1e-6))
     True
     """
-    W = _check_matrix(W)
+    dtype = _check_dtype(dtype)
+    if tol is None:
+        tol = FLOAT32_TOL if dtype is np.float32 else 1e-8
+    if check_memory:
+        _check_memory(np.shape(W), dtype, method)
+    W = _check_matrix(W, dtype=dtype)
     observed = _check_observed(mask, W.shape, ignore_diagonal)
     if method not in METHODS:
         raise InputError(f"unknown method {method!r}; choose one of "

@@ -27,7 +27,8 @@ optimal objective). Here
 
 Memory: besides W, the loop holds three m x n arrays (S, Y and the SVT's
 argument T), the factors of L and three row blocks; L itself is formed once,
-at the end.
+at the end, after T is freed: at most four m x n arrays besides W. Every
+array has W's dtype (float64, or float32 in float32 mode).
 """
 
 import numpy as np
@@ -127,7 +128,7 @@ def ialm(W, lam, *, observed=None, tol=1e-8, max_iter=5000, rho=1.5,
     it = 0
     for it in range(1, max_iter + 1):
         inv_mu = 1.0 / mu
-        plan = sketch_plan(W.shape, k, V, rng)
+        plan = sketch_plan(W.shape, k, V, rng, dtype=dtype)
         if plan is not None:
             P = np.empty((m, plan[0].shape[1]), dtype)
         for b in blocks:
@@ -181,6 +182,7 @@ def ialm(W, lam, *, observed=None, tol=1e-8, max_iter=5000, rho=1.5,
             mu = min(mu * rho, mu_max)
         elif dual > _SHRINK * primal:
             mu = mu / rho
-    L = Us @ Vt if r else np.zeros_like(W)
+    del T, t, c, d  # the work arrays go before L arrives
+    L = (Us @ Vt).astype(dtype, copy=False) if r else np.zeros_like(W)
     return L, S, Y, {"n_iter": it, "converged": converged, "history": history,
                      "mu": mu, "singular_values": np.array(s)}

@@ -14,7 +14,7 @@ __all__ = ["robust_pca_kernel"]
 
 
 def robust_pca_kernel(K, grid, *, lam=None, boundary="periodic", offsets=False,
-                      tol=1e-8, max_iter=None, rho=1.5, progress=None, seed=0):
+                      tol=None, max_iter=None, rho=1.5, progress=None, seed=0):
     """Robust PCA of the matrix of a kernel tiled over an H x W grid.
 
     Parameters
@@ -40,6 +40,7 @@ def robust_pca_kernel(K, grid, *, lam=None, boundary="periodic", offsets=False,
     >>> dec.low_rank.shape, dec.converged
     ((2, 2, 5, 5), True)
     """
+    tol = 1e-8 if tol is None else tol
     h, w = (int(g) for g in grid)
     if offsets:
         G = np.asarray(K, dtype=float)

@@ -52,21 +52,26 @@ def _orth(Y):
         return np.linalg.qr(Y)[0]
 
 
-def _start_block(n, k, V0, rng):
-    """Starting block of the range finder, and whether it is a warm start."""
+def _start_block(n, k, V0, rng, dtype=np.float64):
+    """Starting block of the range finder, and whether it is a warm start.
+
+    It has the matrix's dtype: a float64 block against a float32 matrix
+    would make numpy copy the whole matrix to float64 for each product.
+    """
     width = min(k + _OVERSAMPLE, n)
     if V0 is not None and V0.shape[0] != n:
         V0 = None
     if V0 is not None and V0.shape[1] >= width:
-        return np.ascontiguousarray(V0[:, :width]), True
+        return np.ascontiguousarray(V0[:, :width], dtype=dtype), True
     have = 0 if V0 is None else V0.shape[1]
-    block = rng.standard_normal((n, width - have))
+    block = rng.standard_normal((n, width - have)).astype(dtype, copy=False)
     # Warm when the previous vectors span at least the k wanted: only the
     # oversampling columns are fresh, and the solver's iterations refine them.
-    return (block if V0 is None else np.hstack([V0, block])), have >= k
+    Omega = block if V0 is None else np.hstack([V0.astype(dtype, copy=False), block])
+    return Omega, have >= k
 
 
-def sketch_plan(shape, k, V0, rng, full_fraction=0.25):
+def sketch_plan(shape, k, V0, rng, full_fraction=0.25, dtype=np.float64):
     """The starting block ``svt`` would use for these arguments, or None.
 
     A caller that already streams through A can form ``A @ Omega`` in the same
@@ -78,13 +83,13 @@ def sketch_plan(shape, k, V0, rng, full_fraction=0.25):
     small = min(m, n)
     if k is None or small <= _SMALL or k >= full_fraction * small or m < n:
         return None
-    return _start_block(n, max(int(k), 1), V0, rng)
+    return _start_block(n, max(int(k), 1), V0, rng, dtype)
 
 
 def _partial_svd(A, k, V0, rng, power_iter, sketch=None):
     """Top-k singular triplets of A (m >= n) by a warm-started range finder."""
     if sketch is None:
-        Omega, warm = _start_block(A.shape[1], k, V0, rng)
+        Omega, warm = _start_block(A.shape[1], k, V0, rng, A.dtype)
         P = A @ Omega
     else:
         Omega, warm, P = sketch
@@ -111,7 +116,7 @@ def spectral_norm(A, *, rtol=1e-6, max_iter=200, seed=0):
     m, n = A.shape
     if min(m, n) <= _SMALL:
         return float(np.linalg.norm(A, 2))
-    v = np.random.default_rng(seed).standard_normal(n)
+    v = np.random.default_rng(seed).standard_normal(n).astype(A.dtype)
     sigma = 0.0
     for _ in range(max_iter):
         u = A @ v

@@ -1,0 +1,107 @@
+"""Time and peak memory of the in-memory robust PCA against N.
+
+Planted problems in the setting of Candes et al. (2011): rank N / 200,
+5 % of entries corrupted by random signs. Each size runs in a fresh process
+that loads W from a .npy file and reports its own time and peak resident
+memory (ru_maxrss, read before the planted L0 is loaded to score the
+result). Beside each, one full numpy SVD of a matrix of that size: measured
+up to --svd-max, above it extrapolated as n^3 from the largest measured
+(marked "est").
+
+Targets (issue 7): N = 10,000 (rank 50) recovers L to 1e-5 in under 2
+full-SVD times and 6 GB; float32 to 1e-4 in under 3.5 GB; N = 20,000 in
+float32 completes.
+
+Usage: python benchmarks/scale.py [--sizes 1000,2000,5000,10000]
+       [--float32 10000,20000] [--svd-max 5000]
+"""
+
+import argparse
+import json
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+CHILD = r"""
+import json, resource, sys, time
+import numpy as np
+from eidecomp import robust_pca
+path, dtype = sys.argv[1], sys.argv[2]
+W = np.load(path + "_W.npy")
+t = time.perf_counter()
+dec = robust_pca(W, dtype=dtype)
+t = time.perf_counter() - t
+peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+del W
+L0 = np.load(path + "_L0.npy", mmap_mode="r")
+num = den = 0.0
+for s in range(0, L0.shape[0], 1000):
+    a = np.asarray(L0[s:s + 1000], dtype=np.float64)
+    d = dec.low_rank[s:s + 1000] - a
+    num += float(np.vdot(d, d)); den += float(np.vdot(a, a))
+print(json.dumps({"time": t, "peak": peak, "n_iter": dec.n_iter, "rank": dec.rank,
+                  "converged": dec.converged, "err": (num / den) ** 0.5}))
+"""
+
+
+def planted(n, dtype, seed=0):
+    """W, L0 of the Candes et al. setting, built in ``dtype`` to save memory."""
+    rng = np.random.default_rng(seed)
+    r = max(1, n // 200)
+    X = (rng.standard_normal((n, r)) / np.sqrt(n)).astype(dtype)
+    Y = (rng.standard_normal((n, r)) / np.sqrt(n)).astype(dtype)
+    L0 = X @ Y.T
+    W = L0.copy()
+    for s in range(0, n, 1000):  # 5 % random signs, block by block
+        block = W[s:s + 1000]
+        hit = rng.random(block.shape) < 0.05
+        block[hit] += rng.choice(np.array([-1.0, 1.0], dtype), hit.sum())
+    return W, L0
+
+
+def main():
+    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+    ap.add_argument("--sizes", default="1000,2000,5000,10000")
+    ap.add_argument("--float32", default="10000,20000")
+    ap.add_argument("--svd-max", type=int, default=5000)
+    args = ap.parse_args()
+    runs = [(int(n), "float64") for n in args.sizes.split(",") if n] + \
+           [(int(n), "float32") for n in args.float32.split(",") if n]
+    svd = {}
+    print(f"{'N':>6} {'dtype':>8} {'rank':>5} {'iters':>5} {'time s':>8} "
+          f"{'peak GB':>8} {'err L':>8} {'svd s':>9} {'x svd':>6}")
+    with tempfile.TemporaryDirectory() as tmp:
+        for n, dtype in runs:
+            W, L0 = planted(n, np.float32 if dtype == "float32" else np.float64)
+            base = str(Path(tmp) / f"p{n}")
+            np.save(base + "_W.npy", W)
+            np.save(base + "_L0.npy", L0)
+            if n not in svd and n <= args.svd_max:
+                A = W.astype(np.float64)
+                t = time.perf_counter()
+                np.linalg.svd(A)
+                svd[n] = (time.perf_counter() - t, "")
+                del A
+            del W, L0
+            if n not in svd:
+                top = max(svd) if svd else None
+                svd[n] = ((svd[top][0] * (n / top) ** 3, " est") if top
+                          else (float("nan"), " -"))
+            out = subprocess.run([sys.executable, "-c", CHILD, base, dtype],
+                                 capture_output=True, text=True, check=True)
+            r = json.loads(out.stdout.strip().splitlines()[-1])
+            t_svd, tag = svd[n]
+            print(f"{n:6d} {dtype:>8} {r['rank']:5d} {r['n_iter']:5d} "
+                  f"{r['time']:8.1f} {r['peak'] / 1e9:8.2f} {r['err']:8.1e} "
+                  f"{t_svd:8.1f}{tag:4s} {r['time'] / t_svd:6.2f}"
+                  + ("" if r["converged"] else "  (not converged)"), flush=True)
+            for f in (base + "_W.npy", base + "_L0.npy"):
+                Path(f).unlink()
+
+
+if __name__ == "__main__":
+    main()
