@@ -89,6 +89,12 @@ def _get_parser():
     dec.add_argument("--max-iter", type=_count, metavar="N",
                      help="iteration limit (ALM default 5000)")
     dec.add_argument("--seed", type=_count, default=0)
+    dec.add_argument("--engine", choices=("memory", "dask"), default="memory",
+                     help="memory (default) or dask: the matrix read lazily "
+                     "from a .npy file and decomposed on a Dask cluster")
+    dec.add_argument("--scheduler", metavar="ADDRESS",
+                     help="dask scheduler address (default: start a local "
+                     "cluster of two workers)")
     dec.add_argument("--float32", action="store_true",
                      help="work in float32: half the memory, residuals to "
                      "about 1e-6 (default tol 1e-6)")
@@ -293,6 +299,13 @@ def _summary_table(result):
     s = result.summary
     if s["format"] == "eidecomp-kernel-decomposition":
         return _kernel_table(result)
+    if s["format"] == "eidecomp-dask-decomposition":
+        return "\n".join([f"engine      dask ({s['engine']['scheduler']})",
+                          f"shape       {'x'.join(map(str, s['input']['shape']))}",
+                          f"lam         {s['lam']:.6g}", f"rank of L   {s['rank']}",
+                          f"iterations  {s['n_iter']}",
+                          f"converged   {'yes' if s['converged'] else 'NO'}",
+                          f"written to  {result.output}"])
     o = s["optimality"]
     rows = [
         ("shape", "x".join(map(str, s["input"]["shape"]))),
@@ -328,7 +341,8 @@ def _decompose(args):
         ignore_diagonal=args.ignore_diagonal, lam=args.lam,
         target_rank=args.target_rank, method=args.method, solver=args.solver,
         tol=args.tol, max_iter=args.max_iter, seed=args.seed, force=args.force,
-        dtype="float32" if args.float32 else "float64")
+        dtype="float32" if args.float32 else "float64", engine=args.engine,
+        scheduler=args.scheduler)
     progress = None if args.quiet else _Progress(
         sys.stderr, tol=args.tol or (1e-6 if args.float32 else 1e-8))
     result = run_decompose(config, progress=progress)

@@ -62,6 +62,8 @@ class DecomposeConfig:
     grid: str | None = None
     boundary: str = "periodic"
     dtype: str = "float64"
+    engine: str = "memory"
+    scheduler: str | None = None
 
 
 @dataclass(frozen=True)
@@ -78,6 +80,75 @@ def _load(config):
     W = read_matrix(config.input, key=config.key, transpose=config.transpose,
                     what="weight matrix")
     return W, {"path": str(config.input), "sha256": file_checksum(config.input)}
+
+
+DASK_FORMAT = "eidecomp-dask-decomposition"
+
+
+def _run_decompose_dask(config, out, progress):
+    """The dask engine: W memory-mapped from a .npy file, L written as its
+    factors and S streamed to sparse.npy, all inside a temporary folder
+    renamed into place at the end."""
+    import importlib.util
+    import os
+    import shutil
+    import tempfile
+
+    if importlib.util.find_spec("distributed") is None:
+        raise InputError("the dask engine needs the dist extra: "
+                         "pip install 'eidecomp[dist]'")
+    from .decompose import robust_pca_dask
+
+    if config.input is None or Path(config.input).suffix != ".npy":
+        raise InputError(f"{config.input}: the dask engine reads a .npy file")
+    if config.mask or config.ignore_diagonal or config.transpose or \
+            config.target_rank or config.method != "ialm":
+        raise InputError("the dask engine runs plain PCP with the ALM: no "
+                         "--mask, --ignore-diagonal, --transpose, --target-rank "
+                         "or --method convex")
+    parent = out.resolve().parent
+    if not parent.is_dir():
+        raise InputError(f"{out}: parent folder {parent} does not exist")
+    tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.", suffix=".partial",
+                                dir=parent))
+    try:
+        dec = robust_pca_dask(config.input, lam=config.lam, tol=config.tol,
+                              max_iter=config.max_iter or 5000,
+                              dtype=config.dtype, scheduler=config.scheduler,
+                              seed=config.seed, progress=progress,
+                              sparse_out=tmp / "sparse.npy")
+        U, s, Vt = dec.low_rank_factors
+        np.save(tmp / "low_rank_U.npy", U)
+        np.save(tmp / "low_rank_s.npy", s)
+        np.save(tmp / "low_rank_Vt.npy", Vt)
+        shape = list(dec.sparse.shape)
+        summary = {
+            "format": DASK_FORMAT, "format_version": BUNDLE_VERSION,
+            "eidecomp_version": __version__,
+            "convention": "W[post, pre]; L = (U * s) @ Vt from the three "
+                          "low_rank_*.npy factors",
+            "input": {"path": str(config.input),
+                      "sha256": file_checksum(config.input), "shape": shape},
+            "engine": {"name": "dask", "scheduler": config.scheduler or
+                       "local cluster, 2 workers"},
+            "parameters": {"lam": config.lam, "tol": config.tol,
+                           "dtype": config.dtype, "target_rank": None},
+            "lam": dec.lam, "rank": dec.rank, "n_iter": dec.n_iter,
+            "converged": dec.converged,
+        }
+        (tmp / "summary.json").write_text(json.dumps(summary, indent=2) + "\n")
+        del dec  # release the memory map of sparse.npy before the rename
+        if out.exists():
+            old = out.with_name(f".{out.name}.old-{os.getpid()}")
+            os.rename(out, old)
+            os.rename(tmp, out)
+            shutil.rmtree(old, ignore_errors=True)
+        else:
+            os.rename(tmp, out)
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+    return DecomposeResult(decomposition=None, summary=summary, output=out)
 
 
 KERNEL_FORMAT = "eidecomp-kernel-decomposition"
@@ -161,6 +232,8 @@ def run_decompose(config, *, progress=None):
         raise InputError(f"{out}: already exists; use --force to replace it")
     if config.kernel is not None:
         return _run_decompose_kernel(config, out, progress)
+    if config.engine == "dask":
+        return _run_decompose_dask(config, out, progress)
     W, source = _load(config)
     observed = None
     if config.mask is not None:
