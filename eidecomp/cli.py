@@ -43,6 +43,20 @@ def _count(text):
     return value
 
 
+def _add_matrix_options(p):
+    """How the matrix is read and which entries count: shared by every
+    command that decomposes one."""
+    p.add_argument("--key", help="array name in .npz / variable in .mat")
+    p.add_argument("--transpose", action="store_true",
+                   help="the file is stored [pre, post]")
+    p.add_argument("--mask", metavar="FILE",
+                   help="matrix of W's shape: 1 where an entry is unobserved")
+    p.add_argument("--ignore-diagonal", action="store_true",
+                   help="treat self-connections as unobserved")
+    p.add_argument("--lam", type=_positive_float,
+                   help="weight of ||S||_1 (default 1/sqrt(n))")
+
+
 def _get_parser():
     parser = _Parser(prog="eidecomp", description=(
         "Turn a signed lateral weight matrix W[post, pre] into low-rank and "
@@ -68,15 +82,7 @@ def _get_parser():
                      "expanded to the dense matrix (memory permitting)")
     dec.add_argument("-o", "--output", required=True, metavar="OUT",
                      help="folder to write (must not exist, unless --force)")
-    dec.add_argument("--key", help="array name in .npz / variable in .mat")
-    dec.add_argument("--transpose", action="store_true",
-                     help="the file is stored [pre, post]")
-    dec.add_argument("--mask", metavar="FILE",
-                     help="matrix of W's shape: 1 where an entry is unobserved")
-    dec.add_argument("--ignore-diagonal", action="store_true",
-                     help="treat self-connections as unobserved")
-    dec.add_argument("--lam", type=_positive_float,
-                     help="weight of ||S||_1 (default 1/sqrt(n))")
+    _add_matrix_options(dec)
     dec.add_argument("--target-rank", type=_count, metavar="K",
                      help="search lam for a low-rank part of rank K")
     dec.add_argument("--method", choices=("ialm", "convex"), default="ialm",
@@ -146,15 +152,7 @@ def _get_parser():
                        help="cortical magnification, micrometres per degree")
         p.add_argument("--report", action="store_true",
                        help="also write CIRCUIT/report.html in the same pass")
-        p.add_argument("--key", help="array name in .npz / variable in .mat")
-        p.add_argument("--transpose", action="store_true",
-                       help="the file is stored [pre, post]")
-        p.add_argument("--mask", metavar="FILE",
-                       help="matrix of W's shape: 1 where an entry is unobserved")
-        p.add_argument("--ignore-diagonal", action="store_true",
-                       help="treat self-connections as unobserved")
-        p.add_argument("--lam", type=_positive_float,
-                       help="weight of ||S||_1 (default 1/sqrt(n))")
+        _add_matrix_options(p)
         p.add_argument("--seed", type=_count, default=0)
         p.add_argument("--force", action="store_true",
                        help="replace CIRCUIT if it exists")

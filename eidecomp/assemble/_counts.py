@@ -35,19 +35,22 @@ def parse_ratio(text):
     return value
 
 
-def inhibitory_count(n_e, ratio):
+def inhibitory_count(n_e, ratio, *, where="", units="excitatory units"):
     """n_I = round(N / ratio), checked to lie in [1, N].
+
+    ``where`` and ``units`` word the errors (" per site", "features" for
+    tiled circuits).
 
     >>> inhibitory_count(400, 4.0)
     100
     """
     n_i = int(round(n_e / ratio))
     if n_i < 1:
-        raise InputError(f"E:I ratio {ratio:g}:1 leaves no interneuron for "
-                         f"{n_e} excitatory units (round({n_e}/{ratio:g}) = 0)")
+        raise InputError(f"E:I ratio {ratio:g}:1 leaves no interneuron{where} "
+                         f"for {n_e} {units} (round({n_e}/{ratio:g}) = 0)")
     if n_i > n_e:
-        raise InputError(f"E:I ratio {ratio:g}:1 asks for {n_i} interneurons, "
-                         f"more than the {n_e} excitatory units")
+        raise InputError(f"E:I ratio {ratio:g}:1 asks for {n_i} interneurons"
+                         f"{where}, more than the {n_e} {units}")
     return n_i
 
 

@@ -36,7 +36,7 @@ import numpy as np
 from ..errors import InputError
 from ..kernels import dense_bytes, expand_full, memory_limit
 from ..types import Circuit
-from ._counts import parse_ratio
+from ._counts import inhibitory_count, parse_ratio
 
 __all__ = ["TiledCircuit", "assemble_tiled"]
 
@@ -164,13 +164,7 @@ def assemble_tiled(dec, W, *, ei_ratio=4.0, untuned_share="auto", alpha=None,
     G = np.asarray(W, dtype=float)
     F = G.shape[0]
     grid = G.shape[2:]
-    m = int(round(F / ratio))
-    if m < 1:
-        raise InputError(f"E:I ratio {ratio:g}:1 leaves no interneuron per site "
-                         f"for {F} features (round({F}/{ratio:g}) = 0)")
-    if m > F:
-        raise InputError(f"E:I ratio {ratio:g}:1 asks for {m} interneurons per "
-                         f"site, more than the {F} features")
+    m = inhibitory_count(F, ratio, where=" per site", units="features")
     L, S = np.asarray(dec.low_rank), np.asarray(dec.sparse)
     Mu, Mt = np.maximum(-L, 0.0), np.maximum(-S, 0.0)
     if untuned_share == "auto":

@@ -24,7 +24,7 @@ residuals), on arrays of F * F * H * W numbers instead of (F H W)^2.
 
 import numpy as np
 
-from ._ialm import _GROW, _MU_MAX_FACTOR, _SHRINK
+from ._ialm import _MU_MAX_FACTOR, next_penalty
 
 __all__ = ["kernel_ialm"]
 
@@ -111,11 +111,8 @@ def kernel_ialm(G, lam, *, tol=1e-8, max_iter=5000, rho=1.5, callback=None):
         if primal < tol and dual < tol:
             converged = True
             break
-        polishing = polishing or primal < tol
-        if not polishing or primal > _GROW * dual:
-            mu = min(mu * rho, mu_max)
-        elif dual > _SHRINK * primal:
-            mu = mu / rho
+        mu, polishing = next_penalty(mu, primal, dual, polishing, tol=tol,
+                                     rho=rho, mu_max=mu_max)
     # ranks at every frequency of the full grid: f and -f share a rank
     ranks = np.zeros(grid, int)
     half = w // 2 + 1

@@ -18,7 +18,7 @@ start every iteration leaves the SVT too inexact for the ALM to reach
 
 import numpy as np
 
-from ._ialm import _GROW, _MU_MAX_FACTOR, _SHRINK
+from ._ialm import _MU_MAX_FACTOR, next_penalty
 
 __all__ = ["dask_ialm"]
 
@@ -123,10 +123,7 @@ def dask_ialm(W, lam, *, tol=1e-8, max_iter=5000, rho=1.5, n_power_iter=2,
         if primal < tol and dual < tol:
             converged = True
             break
-        polishing = polishing or primal < tol
-        if not polishing or primal > _GROW * dual:
-            mu = min(mu * rho, mu_max)
-        elif dual > _SHRINK * primal:
-            mu = mu / rho
+        mu, polishing = next_penalty(mu, primal, dual, polishing, tol=tol,
+                                     rho=rho, mu_max=mu_max)
     return U, s, Vt, S, {"n_iter": it, "converged": converged,
                          "history": history}

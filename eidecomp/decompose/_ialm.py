@@ -35,12 +35,27 @@ import numpy as np
 
 from ._svt import sketch_plan, spectral_norm, svt
 
-__all__ = ["ialm"]
+__all__ = ["ialm", "next_penalty"]
 
 _GROW = 0.5     # phase 2: mu grows while dual < primal / _GROW ...
 _SHRINK = 10.0  # ... and shrinks once dual > _SHRINK * primal
 _MU_MAX_FACTOR = 1e10  # mu never exceeds this multiple of its start
 _BLOCK_ELEMENTS = 1 << 18  # elements per row block of the elementwise passes
+
+
+def next_penalty(mu, primal, dual, polishing, *, tol, rho, mu_max):
+    """The penalty schedule every ALM engine shares; returns (mu, polishing).
+
+    Growth by rho until the primal residual first falls below tol, then
+    residual balancing: grow while the primal residual dominates, shrink
+    once the dual residual does (module docstring).
+    """
+    polishing = polishing or primal < tol
+    if not polishing or primal > _GROW * dual:
+        mu = min(mu * rho, mu_max)
+    elif dual > _SHRINK * primal:
+        mu = mu / rho
+    return mu, polishing
 
 
 def _next_rank(sv_prev, r, n_small):
@@ -177,11 +192,8 @@ def ialm(W, lam, *, observed=None, tol=1e-8, max_iter=5000, rho=1.5,
         if primal < tol and dual < tol:
             converged = True
             break
-        polishing = polishing or primal < tol
-        if not polishing or primal > _GROW * dual:
-            mu = min(mu * rho, mu_max)
-        elif dual > _SHRINK * primal:
-            mu = mu / rho
+        mu, polishing = next_penalty(mu, primal, dual, polishing, tol=tol,
+                                     rho=rho, mu_max=mu_max)
     del T, t, c, d  # the work arrays go before L arrives
     L = (Us @ Vt).astype(dtype, copy=False) if r else np.zeros_like(W)
     return L, S, Y, {"n_iter": it, "converged": converged, "history": history,
