@@ -25,8 +25,8 @@ import numpy as np
 
 from .errors import InputError
 
-__all__ = ["check_kernel", "dense_bytes", "expand", "expand_full", "full_grid",
-           "kernel_norms", "memory_limit", "parse_grid", "to_local"]
+__all__ = ["check_fits", "check_kernel", "dense_bytes", "expand", "expand_full",
+           "full_grid", "kernel_norms", "memory_limit", "parse_grid", "to_local"]
 
 
 def parse_grid(text):
@@ -110,6 +110,15 @@ def memory_limit():
         return 0
 
 
+def check_fits(need, what, *, max_bytes=None, advice=""):
+    """Refuse (InputError, with the figure) a dense array of ``need`` bytes
+    above ``max_bytes`` (default: half the machine's memory)."""
+    limit = memory_limit() // 2 if max_bytes is None else max_bytes
+    if limit and need > limit:
+        raise InputError(f"{what} needs about {need / 2**30:.1f} GiB, more than "
+                         f"the {limit / 2**30:.1f} GiB allowed{advice}")
+
+
 def expand(K, grid, boundary="periodic", *, max_bytes=None):
     """The dense matrix M[post, pre] of the kernel tiled over the grid.
 
@@ -120,14 +129,9 @@ def expand(K, grid, boundary="periodic", *, max_bytes=None):
     F = K.shape[0]
     h, w = grid
     n = F * h * w
-    need = dense_bytes(n)
-    limit = memory_limit() // 2 if max_bytes is None else max_bytes
-    if limit and need > limit:
-        raise InputError(f"expanding {F} features on a {h}x{w} grid gives "
-                         f"{n} units: a dense solve needs about "
-                         f"{need / 2**30:.1f} GiB, more than the "
-                         f"{limit / 2**30:.1f} GiB allowed; use the structured "
-                         "solver (--boundary periodic) instead")
+    check_fits(dense_bytes(n), f"expanding {F} features on a {h}x{w} grid gives "
+               f"{n} units: a dense solve", max_bytes=max_bytes,
+               advice="; use the structured solver (--boundary periodic) instead")
     ry, rx = K.shape[2] // 2, K.shape[3] // 2
     M = np.zeros((F, h, w, F, h, w))
     ys, xs = np.arange(h), np.arange(w)
@@ -149,19 +153,18 @@ def expand(K, grid, boundary="periodic", *, max_bytes=None):
 
 
 def expand_full(G, *, max_bytes=None):
-    """The dense matrix of a full-grid kernel G (F, F, H, W) on the torus."""
-    F, _, h, w = G.shape
-    n = F * h * w
-    need = dense_bytes(n)
-    limit = memory_limit() // 2 if max_bytes is None else max_bytes
-    if limit and need > limit:
-        raise InputError(f"{n} units: a dense matrix needs about "
-                         f"{need / 2**30:.1f} GiB, more than the "
-                         f"{limit / 2**30:.1f} GiB allowed")
+    """The dense matrix of a full-grid kernel G (P, Q, H, W) on the torus:
+    (P H W) x (Q H W), square when P = Q (a kernel between two populations
+    otherwise)."""
+    P, Q, h, w = G.shape
+    check_fits(dense_bytes(max(P, Q) * h * w),
+               f"{P * h * w}x{Q * h * w} units: a dense matrix",
+               max_bytes=max_bytes)
     oy = (np.arange(h)[None, :] - np.arange(h)[:, None]) % h   # [p, q] -> q - p
     ox = (np.arange(w)[None, :] - np.arange(w)[:, None]) % w
     M = G[:, :, oy[:, None, :, None], ox[None, :, None, :]]  # a, b, py, px, qy, qx
-    return np.ascontiguousarray(M.transpose(0, 2, 3, 1, 4, 5)).reshape(n, n)
+    return np.ascontiguousarray(M.transpose(0, 2, 3, 1, 4, 5)).reshape(
+        P * h * w, Q * h * w)
 
 
 def kernel_norms(G):

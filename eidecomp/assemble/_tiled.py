@@ -34,7 +34,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..errors import InputError
-from ..kernels import dense_bytes, expand_full, memory_limit
+from ..kernels import check_fits, dense_bytes, expand_full
 from ..types import Circuit
 from ._counts import inhibitory_count, parse_ratio
 
@@ -89,26 +89,13 @@ class TiledCircuit:
         F, mu, mt = self.per_site
         h, w = self.grid
         n = (F + mu + mt) * h * w
-        need = dense_bytes(n, arrays=3)
-        limit = memory_limit() // 2 if max_bytes is None else max_bytes
-        if limit and need > limit:
-            raise InputError(f"expanding the tiled circuit gives {n} units and "
-                             f"needs about {need / 2**30:.1f} GiB, more than the "
-                             f"{limit / 2**30:.1f} GiB allowed")
-        return Circuit(J_EE=expand_full(self.J_EE),
-                       J_EU=_expand_rect(self.J_EU), J_UE=_expand_rect(self.J_UE),
-                       J_ET=_expand_rect(self.J_ET), J_TE=_expand_rect(self.J_TE),
+        check_fits(dense_bytes(n, arrays=3),
+                   f"expanding the tiled circuit gives {n} units and",
+                   max_bytes=max_bytes)
+        blocks = {b: expand_full(getattr(self, b), max_bytes=max_bytes)
+                  for b in ("J_EE", "J_EU", "J_UE", "J_ET", "J_TE")}
+        return Circuit(**blocks,
                        params={**self.params, "tiled": True})
-
-
-def _expand_rect(G):
-    """Dense matrix of a tiled (P, Q, H, W) kernel between two populations."""
-    P, Q, h, w = G.shape
-    oy = (np.arange(h)[None, :] - np.arange(h)[:, None]) % h
-    ox = (np.arange(w)[None, :] - np.arange(w)[:, None]) % w
-    M = G[:, :, oy[:, None, :, None], ox[None, :, None, :]]
-    return np.ascontiguousarray(M.transpose(0, 2, 3, 1, 4, 5)).reshape(
-        P * h * w, Q * h * w)
 
 
 def _lipschitz(X):
