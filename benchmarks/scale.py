@@ -16,7 +16,8 @@ With --dask N[,N...] it also runs the dask engine (a local cluster of two
 single-threaded workers limited to 1.5 GB each) on the float32 matrix of
 each size read from disk, and prints its time, the peak memory of this
 process and the workers' limit, and whether its rank matches the in-memory
-engine's.
+engine's. S and Y live in .npy files beside the output (4 files of the size
+of W), so the run needs that much free disk.
 
 Usage: python benchmarks/scale.py [--sizes 1000,2000,5000,10000]
        [--float32 10000,20000] [--svd-max 5000] [--dask 20000]
@@ -94,6 +95,18 @@ def planted(n, dtype, seed=0):
     return W, L0
 
 
+def child(code, *args):
+    """Run one measurement in a fresh process; its JSON line, or None after
+    printing why it failed (the tail of its stderr)."""
+    out = subprocess.run([sys.executable, "-c", code, *args],
+                         capture_output=True, text=True)
+    if out.returncode != 0:
+        tail = "\n".join(out.stderr.strip().splitlines()[-15:])
+        print(f"  run failed with status {out.returncode}:\n{tail}", flush=True)
+        return None
+    return json.loads(out.stdout.strip().splitlines()[-1])
+
+
 def main():
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     ap.add_argument("--sizes", default="1000,2000,5000,10000")
@@ -123,18 +136,18 @@ def main():
                 top = max(svd) if svd else None
                 svd[n] = ((svd[top][0] * (n / top) ** 3, " est") if top
                           else (float("nan"), " -"))
-            out = subprocess.run([sys.executable, "-c", CHILD, base, dtype],
-                                 capture_output=True, text=True, check=True)
-            r = json.loads(out.stdout.strip().splitlines()[-1])
+            r = child(CHILD, base, dtype)
+            if r is None:
+                continue
             t_svd, tag = svd[n]
             print(f"{n:6d} {dtype:>8} {r['rank']:5d} {r['n_iter']:5d} "
                   f"{r['time']:8.1f} {r['peak'] / 1e9:8.2f} {r['err']:8.1e} "
                   f"{t_svd:8.1f}{tag:4s} {r['time'] / t_svd:6.2f}"
                   + ("" if r["converged"] else "  (not converged)"), flush=True)
             if dtype == "float32" and str(n) in args.dask.split(","):
-                d = subprocess.run([sys.executable, "-c", DASK_CHILD, base],
-                                   capture_output=True, text=True, check=True)
-                q = json.loads(d.stdout.strip().splitlines()[-1])
+                q = child(DASK_CHILD, base)
+                if q is None:
+                    continue
                 print(f"{n:6d} {'dask f32':>8} {q['rank']:5d} {q['n_iter']:5d} "
                       f"{q['time']:8.1f} {q['peak'] / 1e9:8.2f} {q['err']:8.1e} "
                       f"   2 workers x 1.5 GB; rank "

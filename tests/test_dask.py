@@ -9,6 +9,7 @@ extra, installed by .ci/run).
 import json
 
 import numpy as np
+import pytest
 from conftest import require
 
 from eidecomp import robust_pca
@@ -49,3 +50,53 @@ def test_dask_command(tmp_path, capsys):
                  "-q", "--engine", "dask", "--ignore-diagonal"]) == 2
     assert "plain PCP" in capsys.readouterr().err
     assert not (tmp_path / "x").exists()
+
+
+def test_dask_engine_reads_zarr_and_keeps_nothing_in_the_work_folder(tmp_path):
+    """Reference: the in-memory ALM on the same matrix, stored by zarr (the
+    dist extra) in its own format; the work folder of S and Y is removed."""
+    require("distributed")
+    zarr = require("zarr")
+    from eidecomp.decompose import robust_pca_dask
+
+    W, _, _ = make_planted(240, seed=2)
+    z = zarr.open_array(str(tmp_path / "w.zarr"), mode="w", shape=W.shape,
+                        chunks=(100, 100), dtype="f8")
+    z[:] = W
+    work = tmp_path / "work"
+    work.mkdir()
+    dec = robust_pca_dask(tmp_path / "w.zarr", chunks=(100, 100), workdir=work)
+    ref = robust_pca(W)
+    assert dec.converged and dec.rank == ref.rank
+    np.testing.assert_allclose(dec.low_rank(), ref.low_rank, atol=1e-6)
+    np.testing.assert_allclose(dec.sparse, ref.sparse, atol=1e-6)
+    assert list(work.iterdir()) == []
+
+
+def test_dask_engine_refuses_nan_and_object_arrays(tmp_path):
+    require("distributed")
+    from eidecomp.errors import InputError
+    from eidecomp.decompose import robust_pca_dask
+
+    W = np.ones((50, 50))
+    W[3, 4] = np.nan
+    np.save(tmp_path / "nan.npy", W)
+    with pytest.raises(InputError, match="NaN or Inf"):
+        robust_pca_dask(tmp_path / "nan.npy", chunks=(25, 25))
+    np.save(tmp_path / "obj.npy", np.array([[{"a": 1}]], dtype=object))
+    with pytest.raises(InputError, match="object arrays are refused"):
+        robust_pca_dask(tmp_path / "obj.npy")
+
+
+def test_wide_cold_starts_orthonormalise_here(monkeypatch):
+    """The range finder used when dask's tsqr would need too much memory on
+    one worker (forced here at N = 300) gives the in-memory solution."""
+    require("distributed")
+    from eidecomp.decompose import _dask, robust_pca_dask
+
+    monkeypatch.setattr(_dask, "_TSQR_BYTES", 0)
+    W, _, _ = make_planted(300, seed=4)
+    dec = robust_pca_dask(W, chunks=(150, 150))
+    ref = robust_pca(W)
+    assert dec.converged and dec.rank == ref.rank
+    np.testing.assert_allclose(dec.low_rank(), ref.low_rank, atol=1e-6)

@@ -1,7 +1,10 @@
 """robust_pca_dask: the same PCP on a Dask cluster (the ``dist`` extra)."""
 
+import shutil
+import tempfile
 import warnings
 from dataclasses import dataclass, field
+from pathlib import Path
 
 import numpy as np
 
@@ -12,11 +15,11 @@ __all__ = ["DaskDecomposition", "robust_pca_dask"]
 
 @dataclass(frozen=True)
 class DaskDecomposition:
-    """PCP on a cluster: L as its factors, S as a (computed) dask array.
+    """PCP on a cluster: L as its factors, S as an array on disk or in memory.
 
     ``low_rank_factors`` is (U, s, Vt) with L = (U * s) @ Vt; ``sparse`` is
-    a dask array held on the cluster until the client closes, so write it
-    (``sparse.to_zarr``, ``dask.array.store``) or compute it before.
+    the memory-mapped ``sparse_out`` file when one was given, else a numpy
+    array.
     """
 
     low_rank_factors: tuple
@@ -32,67 +35,82 @@ class DaskDecomposition:
         return (U * s) @ Vt
 
 
-def _load_block(path, rows, cols, dtype):
-    """One block of a .npy file, read by a worker through a memory map."""
-    arr = np.load(path, mmap_mode="r", allow_pickle=False)
-    return np.array(arr[rows[0]:rows[1], cols[0]:cols[1]], dtype=dtype)
-
-
-def _open(W, chunks, dtype):
-    """W as a dask array; a .npy path is read lazily, block by block, by the
-    workers themselves (nothing of it passes through this process)."""
-    import dask
-    import dask.array as da
-
+def _source(W, workdir, chunks):
+    """(source, shape) for the workers: a .npy file or zarr array is read
+    where it is; an in-memory or dask array is first written, block by
+    block, to W.npy in the work folder."""
     if isinstance(W, (str, bytes)) or hasattr(W, "__fspath__"):
-        from pathlib import Path
-
         path = Path(W)
-        if path.suffix != ".npy" or not path.is_file():
-            raise InputError(f"{path}: the dask engine reads a .npy file "
-                             "(memory-mapped, never loaded whole)")
-        try:
-            head = np.load(path, mmap_mode="r", allow_pickle=False)
-        except ValueError as exc:
-            raise InputError(f"{path}: not a readable .npy array ({exc})") from None
-        if head.ndim != 2:
-            raise InputError(f"{path}: W must be 2-D, got shape {head.shape}")
-        m, n = head.shape
-        del head
-        cr, cc = chunks
-        rows = [(i, min(i + cr, m)) for i in range(0, m, cr)]
-        cols = [(j, min(j + cc, n)) for j in range(0, n, cc)]
-        load = dask.delayed(_load_block, pure=True)
-        return da.block([[da.from_delayed(load(str(path), r, c, dtype),
-                                          (r[1] - r[0], c[1] - c[0]), dtype=dtype)
-                          for c in cols] for r in rows])
-    if not hasattr(W, "chunks"):
-        W = da.from_array(np.asarray(W), chunks=chunks)
+        if path.suffix == ".npy" and path.is_file():
+            try:
+                head = np.load(path, mmap_mode="r", allow_pickle=False)
+            except ValueError as exc:
+                raise InputError(f"{path}: not a readable .npy array "
+                                 f"(object arrays are refused; {exc})") from None
+            shape, kind = head.shape, head.dtype.kind
+            del head
+        elif path.suffix == ".zarr" and path.exists():
+            try:
+                import zarr
+            except ImportError:
+                raise InputError(f"{path}: reading zarr needs the dist extra: "
+                                 "pip install 'eidecomp[dist]'") from None
+            try:
+                head = zarr.open_array(str(path), mode="r")
+            except Exception as exc:  # zarr raises several kinds
+                raise InputError(f"{path}: not a readable zarr array ({exc})") from None
+            shape, kind = head.shape, head.dtype.kind
+        else:
+            raise InputError(f"{path}: the dask engine reads a .npy file or a "
+                             ".zarr array (never loaded whole)")
+        if len(shape) != 2:
+            raise InputError(f"{path}: W must be 2-D, got shape {shape}")
+        if kind not in "fiu":
+            raise InputError(f"{path}: W must be numeric, got dtype kind {kind!r}")
+        return str(path), shape
     if W.ndim != 2:
         raise InputError(f"W must be 2-D, got shape {W.shape}")
-    return W.astype(dtype)
+    target = Path(workdir) / "W.npy"
+    out = np.lib.format.open_memmap(target, mode="w+", dtype=np.float64,
+                                    shape=W.shape)
+    for start in range(0, W.shape[0], chunks[0]):
+        block = W[start:start + chunks[0]]
+        out[start:start + chunks[0]] = np.asarray(
+            block.compute() if hasattr(block, "compute") else block)
+    out.flush()
+    del out
+    return str(target), W.shape
 
 
 def robust_pca_dask(W, *, lam=None, tol=None, max_iter=5000, dtype="float64",
                     scheduler=None, n_workers=2, memory_limit="auto",
                     chunks=(2000, 2000), seed=0, progress=None, client=None,
-                    sparse_out=None):
-    """Robust PCA of W on a Dask cluster.
+                    sparse_out=None, workdir=None):
+    """Robust PCA of W on a Dask cluster, with no N x N array in memory.
+
+    W is read block by block by the workers; S and the multiplier Y live in
+    ``.npy`` files of a work folder (see ``_dask.py``), so each worker holds
+    a few ``chunks``-sized blocks at a time whatever the size of W.
 
     Parameters
     ----------
-    W : path to a .npy file, numpy array or dask array
-        A .npy file is memory-mapped and read chunk by chunk by the workers.
+    W : path to a .npy file or a .zarr array, numpy array or dask array
+        A file is read where it is, block by block, by the workers; an
+        array is first written to the work folder.
     scheduler : str or None
         Address of a running scheduler; None starts a local cluster of
         ``n_workers`` single-threaded workers with ``memory_limit`` each.
     client : distributed.Client or None
-        Use this client instead (it is not closed, and ``sparse`` stays a
-        dask array on it).
+        Use this client instead (it is not closed).
     sparse_out : path or None
-        Write S there as a .npy file, chunk by chunk from the workers
-        (``dask.array.store`` into a memory-mapped file); ``sparse`` is then
-        that memory-mapped array. Otherwise S is computed into memory.
+        Keep S there, as a .npy file (moved from the work folder at the end);
+        ``sparse`` is then that file memory-mapped. Otherwise S is loaded
+        into memory.
+    workdir : path or None
+        Where S and Y live during the run (4 files of the size of W, in
+        ``dtype``); by default a temporary folder beside ``sparse_out``, or
+        in the system's temporary folder. Every worker must see it at the
+        same path (shared storage for a remote cluster). Removed at the end.
 
     Returns
     -------
@@ -108,50 +126,47 @@ def robust_pca_dask(W, *, lam=None, tol=None, max_iter=5000, dtype="float64",
     """
     from distributed import Client, LocalCluster
 
-    from ._dask import dask_ialm
+    from ._dask import BlockStore, dask_ialm
 
     dt = {"float64": np.float64, "float32": np.float32}.get(str(dtype))
     if dt is None:
         raise InputError(f"dtype must be float64 or float32, got {dtype!r}")
     tol = (1e-6 if dt is np.float32 else 1e-8) if tol is None else tol
+    if workdir is None and sparse_out is not None:
+        workdir = Path(sparse_out).resolve().parent
+    work = Path(tempfile.mkdtemp(prefix=".eidecomp-dask-", dir=workdir))
     own = client is None
     cluster = None
-    if own:
-        if scheduler:
-            client = Client(scheduler)
-        else:
-            cluster = LocalCluster(n_workers=n_workers, threads_per_worker=1,
-                                   memory_limit=memory_limit,
-                                   dashboard_address=None)
-            client = Client(cluster)
     try:
-        Wd = _open(W, chunks, dt)
-        lam = 1.0 / np.sqrt(max(Wd.shape)) if lam is None else float(lam)
-        U, s, Vt, S, info = dask_ialm(Wd, lam, tol=tol, max_iter=max_iter,
-                                      seed=seed, callback=progress)
+        source, shape = _source(W, work, chunks)
+        if own:
+            if scheduler:
+                client = Client(scheduler)
+            else:
+                cluster = LocalCluster(n_workers=n_workers, threads_per_worker=1,
+                                       memory_limit=memory_limit,
+                                       dashboard_address=None)
+                client = Client(cluster)
+        store = BlockStore(source, shape, dt, chunks, work)
+        lam = 1.0 / np.sqrt(max(shape)) if lam is None else float(lam)
+        U, s, Vt, s_path, info = dask_ialm(store, lam, tol=tol,
+                                           max_iter=max_iter, seed=seed,
+                                           callback=progress)
         if sparse_out is not None:
-            # row block by row block through this process: the workers
-            # cannot write into a memory map that lives here
-            out = np.lib.format.open_memmap(sparse_out, mode="w+", dtype=dt,
-                                            shape=S.shape)
-            start = 0
-            for rows in S.chunks[0]:
-                out[start:start + rows] = S[start:start + rows].compute()
-                start += rows
-            out.flush()
-            del out
+            shutil.move(s_path, sparse_out)
             S = np.load(sparse_out, mmap_mode="r")
-        elif own:
-            S = S.compute()
+        else:
+            S = np.load(s_path)
         dec = DaskDecomposition(low_rank_factors=(U, s, Vt), sparse=S,
                                 rank=len(s), lam=lam, n_iter=info["n_iter"],
                                 converged=info["converged"],
                                 history=tuple(info["history"]))
     finally:
-        if own:
+        if own and client is not None:
             client.close()
             if cluster is not None:
                 cluster.close()
+        shutil.rmtree(work, ignore_errors=True)
     if not dec.converged:
         warnings.warn(f"dask robust PCA stopped after {dec.n_iter} iterations "
                       "before reaching its tolerance", ConvergenceWarning,
