@@ -1,7 +1,8 @@
 """The ``eidecomp`` command: a parser and ``main``; the work is in pipeline.
 
 Exit status: 0 on success, 2 for bad input or options (one line on stderr, no
-traceback, nothing written), 1 when a solver fails.
+traceback, nothing written), 1 when a solver fails or an output cannot be
+written (a full disk: nothing is left half-written), 130 on an interrupt.
 """
 
 import argparse
@@ -11,7 +12,7 @@ import time
 import warnings
 
 from . import __version__
-from .errors import ConvergenceWarning, InputError, SolverError
+from .errors import ConvergenceWarning, InputError, SolverError, WriteError
 
 __all__ = ["main"]
 
@@ -96,8 +97,9 @@ def _get_parser():
                      help="iteration limit (ALM default 5000)")
     dec.add_argument("--seed", type=_count, default=0)
     dec.add_argument("--engine", choices=("memory", "dask"), default="memory",
-                     help="memory (default) or dask: the matrix read lazily "
-                     "from a .npy file and decomposed on a Dask cluster")
+                     help="memory (default) or dask: the matrix read in blocks "
+                     "from a .npy file or a .zarr array and decomposed on a "
+                     "Dask cluster, S and Y kept on disk beside OUT")
     dec.add_argument("--scheduler", metavar="ADDRESS",
                      help="dask scheduler address (default: start a local "
                      "cluster of two workers)")
@@ -372,7 +374,8 @@ def _circuit_table(result):
     else:
         lines.append("stable up to tau_I/tau_E: "
                      + ("beyond 100" if ratio is None else f"{ratio:.3g}"))
-    if met.get("silent_interneurons"):
+    lines.extend(f"note: {note}" for note in met.get("notes", ()))
+    if met.get("silent_interneurons") and not met.get("notes"):
         lines.append(f"silent interneurons (no input or no target): "
                      f"{met['silent_interneurons']}")
     if not met["converged"]:
@@ -468,6 +471,11 @@ def _show_warning(message, category, filename, lineno, file=None, line=None):
     print(f"eidecomp: warning: {message}", file=sys.stderr)
 
 
+def _one_line(exc):
+    """The message on one line: line breaks (say, in a file name) escaped."""
+    return str(exc).replace("\r", "\\r").replace("\n", "\\n")
+
+
 def main(argv=None):
     """Run the command line; returns the exit status."""
     parser = _get_parser()
@@ -484,10 +492,13 @@ def main(argv=None):
                     "simulate": _simulate, "report": _report,
                     "demo": _demo}[args.command](args)
     except InputError as exc:
-        print(f"eidecomp: error: {exc}", file=sys.stderr)
+        print(f"eidecomp: error: {_one_line(exc)}", file=sys.stderr)
         return 2
     except SolverError as exc:
-        print(f"eidecomp: solver failed: {exc}", file=sys.stderr)
+        print(f"eidecomp: solver failed: {_one_line(exc)}", file=sys.stderr)
+        return 1
+    except WriteError as exc:
+        print(f"eidecomp: error: {_one_line(exc)}", file=sys.stderr)
         return 1
     except KeyboardInterrupt:
         print("eidecomp: interrupted; nothing written", file=sys.stderr)

@@ -40,8 +40,11 @@ def node_name(kind, index):
     return f"{_PREFIX[kind]}{index}"
 
 
-def neuron_graph(circuit, *, features=None, x=None, y=None):
+def neuron_graph(circuit, *, features=None, x=None, y=None, unit_ids=None):
     """The neuron-level directed graph of a Circuit.
+
+    ``features``, ``x``, ``y`` and ``unit_ids`` (the unit table's names,
+    kept as string data) become attributes of the excitatory nodes.
 
     Examples
     --------
@@ -66,6 +69,8 @@ def neuron_graph(circuit, *, features=None, x=None, y=None):
                 for key, values in extras.items():
                     if values is not None:
                         attrs[key] = float(values[i])
+                if unit_ids is not None:
+                    attrs["unit_id"] = str(unit_ids[i])
             G.add_node(node_name(kind, i), **attrs)
     for post_kind, pre_kind, block in _BLOCKS:
         J = getattr(circuit, block)

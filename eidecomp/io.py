@@ -32,14 +32,15 @@ import hashlib
 import io as _io
 import json
 import os
+import re
 import shutil
 import tempfile
-import zipfile
+from contextlib import contextmanager
 from pathlib import Path
 
 import numpy as np
 
-from .errors import InputError
+from .errors import InputError, WriteError
 
 __all__ = [
     "CIRCUIT_FORMAT",
@@ -51,6 +52,7 @@ __all__ = [
     "read_mask",
     "read_matrix",
     "read_units",
+    "staged_folder",
     "write_file",
     "write_folder",
 ]
@@ -63,11 +65,18 @@ MATRIX_SUFFIXES = (".npy", ".npz", ".csv", ".tsv", ".txt", ".mat")
 
 
 def file_checksum(path):
-    """SHA-256 of a file's bytes, as hex."""
+    """SHA-256 of a file's bytes, as hex; of a folder (a zarr array), over
+    its files' relative paths and bytes in sorted order."""
+    path = Path(path)
     h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        for chunk in iter(lambda: fh.read(1 << 20), b""):
-            h.update(chunk)
+    files = sorted(p for p in path.rglob("*") if p.is_file()) if path.is_dir() \
+        else [path]
+    for f in files:
+        if path.is_dir():
+            h.update(f.relative_to(path).as_posix().encode() + b"\0")
+        with open(f, "rb") as fh:
+            for chunk in iter(lambda: fh.read(1 << 20), b""):
+                h.update(chunk)
     return h.hexdigest()
 
 
@@ -78,28 +87,47 @@ def _parse_float(cell):
         return None
 
 
+_DECIMAL_COMMA = re.compile(r"^[+-]?\d*,\d+([eE][+-]?\d+)?$")
+
+
+def _cell_error(path, cell, line_no, col):
+    if cell == "":
+        what = "empty cell"
+    elif _DECIMAL_COMMA.match(cell):
+        what = f"decimal comma in {cell!r} (write {cell.replace(',', '.')!r})"
+    else:
+        what = f"non-numeric cell {cell!r}"
+    return InputError(f"{path}: {what} at row {line_no}, column {col}")
+
+
 def _read_text(path, suffix):
     try:
         text = Path(path).read_text(encoding="utf-8-sig")
     except UnicodeDecodeError as exc:
         raise InputError(f"{path}: not UTF-8 text (byte {exc.start})") from None
-    lines = [ln for ln in text.splitlines() if ln.strip()]
+    lines = [(k + 1, ln) for k, ln in enumerate(text.splitlines()) if ln.strip()]
     if not lines:
         raise InputError(f"{path}: file is empty")
-    if suffix == ".csv":
-        rows = list(csv.reader(lines))
-    elif suffix == ".tsv":
-        rows = list(csv.reader(lines, delimiter="\t"))
-    elif "," in lines[0]:
-        rows = list(csv.reader(lines))
-    elif "\t" in lines[0]:
-        rows = list(csv.reader(lines, delimiter="\t"))
+    for k, ln in lines:
+        if ";" in ln:
+            raise InputError(f"{path}: line {k} separates cells with ';' (a "
+                             "decimal-comma export?); write '.' decimals "
+                             "separated by commas or tabs")
+    first = lines[0][1]
+    if suffix == ".csv" or (suffix == ".txt" and "," in first):
+        rows = list(csv.reader([ln for _, ln in lines]))
+    elif suffix == ".tsv" or (suffix == ".txt" and "\t" in first):
+        rows = list(csv.reader([ln for _, ln in lines], delimiter="\t"))
     else:
-        rows = [ln.split() for ln in lines]
+        rows = [ln.split() for _, ln in lines]
+    numbers = [k for k, _ in lines]  # the file's line of each row
     rows = [[c.strip() for c in row] for row in rows]
     header = None
     if any(_parse_float(c) is None for c in rows[0]):
-        header, rows = rows[0], rows[1:]
+        for j, c in enumerate(rows[0]):
+            if _DECIMAL_COMMA.match(c):
+                raise _cell_error(path, c, numbers[0], j + 1)
+        header, rows, numbers = rows[0], rows[1:], numbers[1:]
     if not rows:
         raise InputError(f"{path}: a header row but no numbers")
     first_col_text = all(_parse_float(r[0]) is None for r in rows if r)
@@ -107,25 +135,56 @@ def _read_text(path, suffix):
                                and len(header) == len(rows[0]))
     width = len(rows[0])
     values = []
-    for i, row in enumerate(rows):
-        line_no = i + 1 + (header is not None)
+    for row, line_no in zip(rows, numbers):
         if len(row) != width:
             raise InputError(f"{path}: row {line_no} has {len(row)} cells, "
                              f"expected {width} as in the first data row")
         cells = row[1:] if index else row
+        if len(rows) > 1 and cells and all(_parse_float(c) is None and c != ""
+                                           and not _DECIMAL_COMMA.match(c)
+                                           for c in cells):
+            raise InputError(f"{path}: row {line_no} holds no numbers (a second "
+                             "header, or two tables in one file?)")
         parsed = []
         for j, cell in enumerate(cells):
             v = _parse_float(cell)
             if v is None:
-                col = j + 1 + index
-                what = "empty cell" if cell == "" else f"non-numeric cell {cell!r}"
-                raise InputError(f"{path}: {what} at row {line_no}, column {col}")
+                raise _cell_error(path, cell, line_no, j + 1 + index)
             parsed.append(v)
         values.append(parsed)
     if header is not None and len(header) != width:
         raise InputError(f"{path}: header has {len(header)} cells but rows have "
                          f"{width}")
     return np.array(values, dtype=np.float64)
+
+
+def _npy_header(path):
+    """(shape, dtype) from a .npy file's header, checked against the file's
+    size before any data is read; a header promising Python objects is
+    refused here, so nothing is ever unpickled."""
+    fmt = np.lib.format
+    with open(path, "rb") as fh:
+        if fh.read(6) != b"\x93NUMPY":  # else np.load would try pickle
+            raise InputError(f"{path}: not a .npy file (no NumPy header)")
+        fh.seek(0)
+        try:
+            major, _ = fmt.read_magic(fh)
+            read = fmt.read_array_header_1_0 if major == 1 else \
+                fmt.read_array_header_2_0
+            shape, _, dtype = read(fh)
+        except (ValueError, SyntaxError, TypeError, EOFError, OSError) as exc:
+            raise InputError(f"{path}: corrupt .npy header "
+                             f"({str(exc).splitlines()[0][:80]})") from None
+        data_start = fh.tell()
+    if dtype.hasobject:
+        raise InputError(f"{path}: holds Python objects; refused (eidecomp "
+                         "never unpickles)")
+    expected = int(np.prod(shape, dtype=np.float64)) * dtype.itemsize
+    found = os.path.getsize(path) - data_start
+    if found < expected:
+        raise InputError(f"{path}: truncated .npy file: its header promises "
+                         f"{expected} bytes for shape {shape}, {found} follow")
+    return shape, dtype
 
 
 def _pick(path, names, key, kind):
@@ -143,9 +202,7 @@ def _pick(path, names, key, kind):
 def _load_array(path, key):
     suffix = path.suffix.lower()
     if suffix == ".npy":
-        with open(path, "rb") as fh:
-            if fh.read(6) != b"\x93NUMPY":  # else np.load would try pickle
-                raise InputError(f"{path}: not a .npy file (no NumPy header)")
+        _npy_header(path)
         try:
             return np.load(path, allow_pickle=False)
         except ValueError as exc:
@@ -160,10 +217,10 @@ def _load_array(path, key):
             with np.load(path, allow_pickle=False) as data:
                 name = _pick(path, data.files, key, "array")
                 return data[name]
-        except (ValueError, OSError, EOFError, zipfile.BadZipFile) as exc:
-            if isinstance(exc, InputError):
-                raise
-            msg = str(exc)
+        except InputError:
+            raise
+        except Exception as exc:  # zipfile, zlib and numpy errors alike
+            msg = (str(exc).splitlines() or [type(exc).__name__])[0][:80]
             if "pickle" in msg.lower() or "object" in msg.lower():
                 raise InputError(f"{path}: holds Python objects; refused "
                                  "(eidecomp never unpickles)") from None
@@ -178,8 +235,9 @@ def _load_array(path, key):
         except NotImplementedError:
             raise InputError(f"{path}: MATLAB v7.3 (HDF5) files are not read; "
                              "save with -v7 or as .npy") from None
-        except (ValueError, OSError, TypeError) as exc:
-            raise InputError(f"{path}: not a valid .mat file ({exc})") from None
+        except Exception as exc:  # scipy raises many kinds on corrupt files
+            first = (str(exc).splitlines() or [type(exc).__name__])[0][:80]
+            raise InputError(f"{path}: not a valid .mat file ({first})") from None
         names = [k for k in data if not k.startswith("__")]
         return data[_pick(path, names, key, "variable")]
     raise InputError(f"{path}: unknown file type {suffix or '(none)'!r}; "
@@ -248,14 +306,65 @@ def read_matrix(path, *, key=None, transpose=False, square=True, what="matrix"):
     bad = ~np.isfinite(W)
     if bad.any():
         i, j = np.argwhere(bad)[0]
-        raise InputError(f"{path}: {int(bad.sum())} non-finite value(s) (NaN or "
-                         f"Inf), first at row {i + 1}, column {j + 1}")
+        raise InputError(f"{path}: {int(bad.sum())} non-finite value(s) (NaN, "
+                         f"Inf or beyond float64's range), first at row {i + 1}, "
+                         f"column {j + 1}")
+    check_range(W, path, what)
     if transpose:
         W = np.ascontiguousarray(W.T)
     if square and W.shape[0] != W.shape[1]:
         raise InputError(f"{path}: {what} must be square (W[post, pre] among one "
                          f"set of neurons), got shape {W.shape}")
     return W
+
+
+MAX_MAGNITUDE = {np.float64: 1e100, np.float32: 1e15}
+"""The largest |w| accepted in each working dtype, and the reciprocal of the
+smallest largest |w|: the solvers square entries (float64 overflows near
+1e308 and underflows near 1e-308, float32 near 3e38 and 1e-38), and results
+scale with W, so a matrix outside is rescaled by its user rather than
+silently overflowed."""
+
+
+def check_range(W, name, what="matrix", base=1, dtype=np.float64):
+    """Refuse magnitudes the solvers cannot square, and subnormal values.
+
+    Works over blocks of rows (no full temporary). ``name`` starts the
+    message (a file, or "W"); ``base`` numbers rows and columns from 1 (as
+    a spreadsheet) or 0 (as numpy).
+    """
+    limit = MAX_MAGNITUDE[np.dtype(dtype).type]
+    tiny = np.finfo(dtype).tiny
+    rows = max(1, (1 << 22) // max(W.shape[1], 1))
+    top, where_top, first_sub, n_sub = 0.0, None, None, 0
+    for start in range(0, W.shape[0], rows):
+        block = np.abs(W[start:start + rows])
+        k = int(block.argmax())
+        if block.flat[k] > top:
+            top = float(block.flat[k])
+            where_top = (start + k // W.shape[1], k % W.shape[1])
+        sub = (block != 0) & (block < tiny)
+        if sub.any():
+            n_sub += int(sub.sum())
+            if first_sub is None:
+                i, j = np.argwhere(sub)[0]
+                first_sub = (start + i, j)
+    if top > limit:
+        i, j = where_top
+        raise InputError(f"{name}: value {W[i, j]:.3g} at row {i + base}, column "
+                         f"{j + base} is too large (limit {limit:.0e}: the "
+                         f"solvers square entries); rescale the {what}, results "
+                         "scale with it")
+    if 0 < top < 1 / limit:
+        raise InputError(f"{name}: the largest |value| is {top:.3g}, too small "
+                         f"(limit {1 / limit:.0e}: squares underflow); "
+                         f"rescale the {what}, results scale with it")
+    if n_sub:
+        i, j = first_sub
+        raise InputError(f"{name}: {n_sub} subnormal value(s) (nonzero but below "
+                         f"{tiny:.2g}, without full precision), first at row "
+                         f"{i + base}, column {j + base}; set them to 0 or "
+                         f"rescale the {what}")
 
 
 def read_mask(path, shape, *, key=None, transpose=False):
@@ -281,77 +390,112 @@ def _npy_bytes(arr):
     return buf.getvalue()
 
 
-def write_file(out, data, *, force=False):
-    """Write bytes to ``out`` through a temporary file renamed into place."""
-    out = Path(out)
+def _check_target(out, force, folder):
     if out.exists() and not force:
         raise InputError(f"{out}: already exists; use --force to replace it")
-    if out.is_dir():
-        raise InputError(f"{out}: is a folder")
+    if out.exists() and out.is_dir() != folder:
+        raise InputError(f"{out}: exists and is not a {'folder' if folder else 'file'}")
     parent = out.resolve().parent
     if not parent.is_dir():
         raise InputError(f"{out}: parent folder {parent} does not exist")
+    return parent
+
+
+def _write_error(out, exc, existed):
+    reason = exc.strerror or str(exc) or type(exc).__name__
+    return WriteError(f"{out}: cannot write ({reason}); nothing written"
+                      + (", the existing one is unchanged" if existed else ""))
+
+
+def _write_bytes(path, data):
+    """One file, flushed to disk before it counts as written."""
+    with open(path, "wb") as fh:
+        fh.write(data)
+        fh.flush()
+        os.fsync(fh.fileno())
+
+
+@contextmanager
+def staged_folder(out, *, force=False):
+    """A temporary folder beside ``out``, renamed to ``out`` when the block
+    ends without error.
+
+    On any error or interrupt the temporary folder is removed and an
+    existing ``out`` is left as it was; an OSError (a full disk, a file
+    size limit) becomes a :class:`~eidecomp.errors.WriteError` saying so.
+
+    >>> import tempfile, pathlib
+    >>> out = pathlib.Path(tempfile.mkdtemp()) / "result"
+    >>> with staged_folder(out) as tmp:
+    ...     _ = (tmp / "a.txt").write_text("done")
+    >>> sorted(p.name for p in out.iterdir())
+    ['a.txt']
+    """
+    out = Path(out)
+    parent = _check_target(out, force, folder=True)
+    existed = out.exists()
+    tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.", suffix=".partial",
+                                dir=parent))
+    old = None
+    try:
+        yield tmp
+        if existed:
+            old = out.with_name(f".{out.name}.old-{os.getpid()}")
+            os.rename(out, old)
+        os.rename(tmp, out)
+    except BaseException as exc:
+        shutil.rmtree(tmp, ignore_errors=True)
+        if old is not None and not out.exists():
+            os.rename(old, out)
+        if isinstance(exc, OSError):
+            raise _write_error(out, exc, existed) from None
+        raise
+    if old is not None:
+        shutil.rmtree(old, ignore_errors=True)
+
+
+def write_file(out, data, *, force=False):
+    """Write bytes to ``out`` through a temporary file renamed into place."""
+    out = Path(out)
+    parent = _check_target(out, force, folder=False)
+    existed = out.exists()
     fd, tmp = tempfile.mkstemp(prefix=f".{out.name}.", suffix=".partial",
                                dir=parent)
+    os.close(fd)
     try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-            fh.flush()
-            os.fsync(fh.fileno())
+        _write_bytes(tmp, data)
         os.replace(tmp, out)
-    except BaseException:
+    except BaseException as exc:
         if os.path.exists(tmp):
             os.unlink(tmp)
+        if isinstance(exc, OSError):
+            raise _write_error(out, exc, existed) from None
         raise
     return out
+
+
+def _file_bytes(value):
+    if isinstance(value, np.ndarray):
+        return _npy_bytes(value)
+    if isinstance(value, dict):
+        return (json.dumps(value, indent=2, sort_keys=True, allow_nan=True)
+                + "\n").encode()
+    if isinstance(value, str):
+        return value.encode()
+    return bytes(value)
 
 
 def write_folder(out, files, *, force=False):
     """Write ``files`` (name -> ndarray | dict | str | bytes) into folder ``out``.
 
-    Arrays become ``.npy``, dicts JSON, str text. Everything is written into a
-    temporary folder beside ``out`` and renamed into place at the end; on any
-    error (or interrupt) the temporary folder is removed and ``out`` is left
-    as it was. An existing ``out`` is an error unless ``force``.
+    Arrays become ``.npy``, dicts JSON (sorted keys), str UTF-8 text. Written
+    through :func:`staged_folder`: all or nothing, and an existing ``out``
+    is replaced only with ``force``.
     """
-    out = Path(out)
-    if out.exists() and not force:
-        raise InputError(f"{out}: already exists; use --force to replace it")
-    if out.exists() and not out.is_dir():
-        raise InputError(f"{out}: exists and is not a folder")
-    parent = out.resolve().parent
-    if not parent.is_dir():
-        raise InputError(f"{out}: parent folder {parent} does not exist")
-    tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.", suffix=".partial",
-                                dir=parent))
-    old = None
-    try:
+    with staged_folder(out, force=force) as tmp:
         for name, value in files.items():
-            if isinstance(value, np.ndarray):
-                data = _npy_bytes(value)
-            elif isinstance(value, dict):
-                data = (json.dumps(value, indent=2, sort_keys=True,
-                                   allow_nan=True) + "\n").encode()
-            elif isinstance(value, str):
-                data = value.encode()
-            else:
-                data = bytes(value)
-            with open(tmp / name, "wb") as fh:
-                fh.write(data)
-                fh.flush()
-                os.fsync(fh.fileno())
-        if out.exists():
-            old = out.with_name(f".{out.name}.old-{os.getpid()}")
-            os.rename(out, old)
-        os.rename(tmp, out)
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        if old is not None and not out.exists():
-            os.rename(old, out)
-        raise
-    if old is not None:
-        shutil.rmtree(old, ignore_errors=True)
-    return out
+            _write_bytes(tmp / name, _file_bytes(value))
+    return Path(out)
 
 
 # --- kernels -------------------------------------------------------------------
@@ -484,10 +628,18 @@ def read_circuit(folder):
     if not isinstance(doc, dict) or doc.get("format") != CIRCUIT_FORMAT:
         raise InputError(f"{doc_path}: not an eidecomp circuit bundle")
     version = doc.get("format_version")
-    if not isinstance(version, int) or version > CIRCUIT_VERSION:
+    if not isinstance(version, int) or isinstance(version, bool) or version < 1:
+        raise InputError(f"{doc_path}: format version {version!r} is not a "
+                         "version eidecomp writes")
+    if version > CIRCUIT_VERSION:
         raise InputError(f"{doc_path}: format version {version!r} is newer than "
                          f"this eidecomp reads ({CIRCUIT_VERSION}); upgrade")
-    sums = doc.get("sha256") or {}
+    sums = doc.get("sha256")
+    if not isinstance(sums, dict):
+        raise InputError(f"{doc_path}: no 'sha256' table of the block files")
+    params = doc.get("parameters", {})
+    if not isinstance(params, dict):
+        raise InputError(f"{doc_path}: 'parameters' must be an object")
     blocks = {}
     for b in CIRCUIT_BLOCKS:
         p = folder / f"{b}.npy"
@@ -501,7 +653,14 @@ def read_circuit(folder):
         except ValueError as exc:
             raise InputError(f"{p}: unreadable block ({exc})") from None
     try:
-        circuit = Circuit(**blocks, params=doc.get("parameters", {}))
+        circuit = Circuit(**blocks, params=params)
     except ValueError as exc:
         raise InputError(f"{folder}: {exc}") from None
+    ids = doc.get("unit_ids")
+    if ids is not None and not (isinstance(ids, list) and len(ids) ==
+                                circuit.n_excitatory
+                                and all(isinstance(u, str) for u in ids)):
+        raise InputError(f"{doc_path}: 'unit_ids' must be a list of "
+                         f"{circuit.n_excitatory} names (one per excitatory "
+                         "unit) or null")
     return circuit, doc

@@ -15,7 +15,7 @@ import numpy as np
 from . import __version__, datasets
 from .decompose import default_lam, robust_pca
 from .errors import ConvergenceWarning, InputError
-from .io import file_checksum, read_mask, read_matrix, write_folder
+from .io import file_checksum, read_mask, read_matrix, staged_folder, write_folder
 
 __all__ = [
     "AssembleConfig",
@@ -86,32 +86,25 @@ DASK_FORMAT = "eidecomp-dask-decomposition"
 
 
 def _run_decompose_dask(config, out, progress):
-    """The dask engine: W memory-mapped from a .npy file, L written as its
-    factors and S streamed to sparse.npy, all inside a temporary folder
-    renamed into place at the end."""
+    """The dask engine: W read in blocks from a .npy file or a zarr array,
+    L written as its factors and S moved to sparse.npy, all inside a staged
+    folder renamed into place at the end (S and Y live there meanwhile)."""
     import importlib.util
-    import os
-    import shutil
-    import tempfile
 
     if importlib.util.find_spec("distributed") is None:
         raise InputError("the dask engine needs the dist extra: "
                          "pip install 'eidecomp[dist]'")
     from .decompose import robust_pca_dask
 
-    if config.input is None or Path(config.input).suffix != ".npy":
-        raise InputError(f"{config.input}: the dask engine reads a .npy file")
+    if config.input is None or Path(config.input).suffix not in (".npy", ".zarr"):
+        raise InputError(f"{config.input}: the dask engine reads a .npy file "
+                         "or a .zarr array")
     if config.mask or config.ignore_diagonal or config.transpose or \
             config.target_rank or config.method != "ialm":
         raise InputError("the dask engine runs plain PCP with the ALM: no "
                          "--mask, --ignore-diagonal, --transpose, --target-rank "
                          "or --method convex")
-    parent = out.resolve().parent
-    if not parent.is_dir():
-        raise InputError(f"{out}: parent folder {parent} does not exist")
-    tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.", suffix=".partial",
-                                dir=parent))
-    try:
+    with staged_folder(out, force=config.force) as tmp:
         dec = robust_pca_dask(config.input, lam=config.lam, tol=config.tol,
                               max_iter=config.max_iter or 5000,
                               dtype=config.dtype, scheduler=config.scheduler,
@@ -138,16 +131,6 @@ def _run_decompose_dask(config, out, progress):
         }
         (tmp / "summary.json").write_text(json.dumps(summary, indent=2) + "\n")
         del dec  # release the memory map of sparse.npy before the rename
-        if out.exists():
-            old = out.with_name(f".{out.name}.old-{os.getpid()}")
-            os.rename(out, old)
-            os.rename(tmp, out)
-            shutil.rmtree(old, ignore_errors=True)
-        else:
-            os.rename(tmp, out)
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        raise
     return DecomposeResult(decomposition=None, summary=summary, output=out)
 
 
@@ -445,14 +428,15 @@ def _stability(circuit, W):
                     "stable over the whole range"}
 
 
-def run_assemble(config, *, progress=None, stage_progress=None):
+def run_assemble(config, *, progress=None, stage_progress=None, extra_files=None):
     """Decompose W (unless given a decomposition), assemble, write the bundle.
 
     The bundle holds J_EE.npy, J_EU.npy, J_UE.npy, J_ET.npy, J_TE.npy (the
     nonnegative blocks), low_rank.npy and sparse.npy (the split it was
     built from) and circuit.json (populations, parameters, metrics, the
     baselines, stability, per-interneuron pools, provenance, checksums).
-    ``progress`` goes to robust_pca, ``stage_progress`` to assemble.
+    ``progress`` goes to robust_pca, ``stage_progress`` to assemble;
+    ``extra_files`` (name -> bytes) are written into the bundle with the rest.
     """
     from .analysis import interneuron_pools
     from .assemble import assemble, inhibitory_count, parse_ratio
@@ -532,6 +516,8 @@ def run_assemble(config, *, progress=None, stage_progress=None):
         "baselines": report.as_dict()["baselines"],
         "stability": _stability(circuit, W_target),
         "interneurons": pools,
+        "unit_ids": (None if units is None or "id" not in units
+                     else [str(u) for u in units["id"]]),
         "hypothesis": "a model circuit consistent with W, not a measurement",
     }
     files = circuit_files(circuit, meta)
@@ -545,6 +531,7 @@ def run_assemble(config, *, progress=None, stage_progress=None):
         files["report.html"] = _render(
             circuit, files["circuit.json"], W_target, np.asarray(dec.low_rank),
             None if units is None else units["feature"], positions)
+    files.update(extra_files or {})
     write_folder(out, files, force=config.force)
     return AssembleResult(circuit=circuit, meta=files["circuit.json"], output=out)
 
@@ -579,16 +566,18 @@ def run_export(bundle, fmt, output, *, force=False, tau_e=10.0, tau_i=5.0):
     out = Path(output)
     if out.exists() and not force:
         raise InputError(f"{out}: already exists; use --force to replace it")
-    circuit, _ = read_circuit(bundle)
+    circuit, doc = read_circuit(bundle)
+    ids = doc.get("unit_ids")  # names from the unit table: data, never code
     if fmt in FOLDER_FORMATS:
         if fmt == "pynn":
             from .export.pynn_script import pynn_files
 
-            files = pynn_files(circuit, tau_e=tau_e, tau_i=tau_i)
+            files = pynn_files(circuit, tau_e=tau_e, tau_i=tau_i, unit_ids=ids)
         else:
             from .export.rate_scripts import rate_script_files
 
-            files = rate_script_files(circuit, fmt, tau_e=tau_e, tau_i=tau_i)
+            files = rate_script_files(circuit, fmt, tau_e=tau_e, tau_i=tau_i,
+                                      unit_ids=ids)
         return write_folder(out, files, force=force)
     if fmt == "neuroml":
         _require_simulator("neuroml")
@@ -596,7 +585,7 @@ def run_export(bundle, fmt, output, *, force=False, tau_e=10.0, tau_i=5.0):
 
         with tempfile.TemporaryDirectory() as tmp:
             path = Path(tmp) / "circuit.net.nml"
-            write_neuroml(circuit, path, tau_e=tau_e, tau_i=tau_i)
+            write_neuroml(circuit, path, tau_e=tau_e, tau_i=tau_i, unit_ids=ids)
             data = path.read_bytes()
         return write_file(out, data, force=force)
     from .export.edges_csv import edge_csv_text
@@ -605,7 +594,7 @@ def run_export(bundle, fmt, output, *, force=False, tau_e=10.0, tau_i=5.0):
 
     feat_path = Path(bundle) / "features.npy"
     features = np.load(feat_path, allow_pickle=False) if feat_path.is_file() else None
-    G = neuron_graph(circuit, features=features)
+    G = neuron_graph(circuit, features=features, unit_ids=ids)
     data = {"graphml": to_graphml_bytes, "json": to_json_bytes,
             "csv": lambda g: edge_csv_text(g).encode()}[fmt](G)
     return write_file(out, data, force=force)
@@ -770,8 +759,8 @@ def run_demo(output, *, force=False, progress=None):
                                 output=str(out), units=str(Path(tmp) /
                                                            "demo_units.csv"),
                                 ignore_diagonal=True, report=True, force=force)
-        result = run_assemble(config, stage_progress=progress)
-        # keep the inputs beside the bundle's files, for the reader
-        for name in ("demo_weights.npy", "demo_units.csv"):
-            (out / name).write_bytes((Path(tmp) / name).read_bytes())
-    return result
+        # the inputs go beside the bundle's files, for the reader, in the
+        # same all-or-nothing write
+        inputs = {name: (Path(tmp) / name).read_bytes()
+                  for name in ("demo_weights.npy", "demo_units.csv")}
+        return run_assemble(config, stage_progress=progress, extra_files=inputs)

@@ -277,6 +277,8 @@ class AssemblyReport:
         Whether the refinement met its tolerance.
     history : tuple of float
         Objective after each sweep.
+    notes : tuple of str
+        Facts about this W worth saying (all zeros; no inhibition needed).
     """
 
     relative_error: float
@@ -286,11 +288,13 @@ class AssemblyReport:
     n_iter: int = 0
     converged: bool = True
     history: tuple = field(default=(), repr=False)
+    notes: tuple = ()
 
     def as_dict(self):
         out = {k: getattr(self, k) for k in self.__dataclass_fields__}
         out["baselines"] = [b.__dict__.copy() for b in self.baselines]
         out["history"] = list(self.history)
+        out["notes"] = list(self.notes)
         return out
 
 

@@ -1,5 +1,16 @@
+import os
+
 import numpy as np
 import pytest
+from hypothesis import settings
+
+# The bounded hypothesis profile: the example counts are set per test
+# (tests/test_properties.py, 2,420 in all); derandomized, so CI runs the
+# same cases every time, and no example database is written.
+settings.register_profile("ci", derandomize=True, database=None, deadline=None,
+                          print_blob=True)
+settings.register_profile("explore", deadline=None)  # random, with a database
+settings.load_profile(os.environ.get("EIDECOMP_HYPOTHESIS_PROFILE", "ci"))
 
 
 @pytest.fixture

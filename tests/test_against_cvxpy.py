@@ -119,3 +119,66 @@ def test_sign_constrained_low_rank_only_inhibits(rng):
                                   * cp.sum(cp.abs(S))), [L + S == W, L <= 0])
     prob.solve(solver=cp.CLARABEL)
     assert neg.objective == pytest.approx(prob.value, rel=1e-6)
+
+
+def _without(monkeypatch, missing):
+    real = cp.installed_solvers
+    monkeypatch.setattr(cp, "installed_solvers",
+                        lambda: [s for s in real() if s not in missing])
+
+
+def test_missing_solver_falls_back_to_the_other(monkeypatch):
+    """Clarabel 'not installed': SCS solves it, with a warning; the objective
+    is Clarabel's own (from the direct program above) to SCS's accuracy."""
+    from eidecomp.errors import SolverFallbackWarning
+
+    W = np.random.default_rng(3).standard_normal((12, 12))
+    lam = default_lam(W.shape)
+    ref, _, _ = _clarabel_pcp(W, lam)
+    _without(monkeypatch, {"CLARABEL"})
+    with pytest.warns(SolverFallbackWarning, match="CLARABEL is not installed; "
+                      "solved with SCS instead"):
+        dec = robust_pca(W, method="convex", solver="CLARABEL")
+    assert dec.report.solver == "SCS"
+    assert abs(dec.objective - ref) < 1e-3 * ref
+
+
+def test_failing_solver_falls_back_to_the_other(monkeypatch):
+    from eidecomp.errors import SolverFallbackWarning
+
+    W = np.random.default_rng(4).standard_normal((10, 10))
+    lam = default_lam(W.shape)
+    ref, _, _ = _clarabel_pcp(W, lam)
+    real_solve = cp.Problem.solve
+
+    def broken_scs(self, *args, **kwargs):
+        if kwargs.get("solver") == "SCS":
+            raise cp.error.SolverError("Solver 'SCS' failed. Try another solver")
+        return real_solve(self, *args, **kwargs)
+
+    monkeypatch.setattr(cp.Problem, "solve", broken_scs)
+    with pytest.warns(SolverFallbackWarning, match="SCS failed"):
+        dec = robust_pca(W, method="convex", solver="SCS")
+    assert dec.report.solver == "CLARABEL"
+    assert abs(dec.objective - ref) < 1e-6 * ref
+
+
+def test_no_solver_at_all_is_one_clear_line(monkeypatch, tmp_path, capsys):
+    from eidecomp.cli import main
+
+    np.save(tmp_path / "w.npy", np.random.default_rng(5).standard_normal((6, 6)))
+    _without(monkeypatch, {"CLARABEL", "SCS"})
+    code = main(["decompose", str(tmp_path / "w.npy"), "-o", str(tmp_path / "o"),
+                 "--method", "convex", "-q"])
+    assert code == 1
+    assert capsys.readouterr().err == (
+        "eidecomp: solver failed: cvxpy solver CLARABEL is not installed; "
+        "cvxpy solver SCS is not installed\n")
+    assert not (tmp_path / "o").exists()
+
+
+def test_scs_takes_an_iteration_limit():
+    """cvxpy names SCS's limit max_iters (Clarabel's max_iter)."""
+    W = np.random.default_rng(6).standard_normal((8, 8))
+    dec = robust_pca(W, method="convex", solver="SCS", max_iter=20000)
+    assert dec.report.solver == "SCS"

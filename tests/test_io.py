@@ -47,7 +47,7 @@ def test_transpose(tmp_path):
     ("", "file is empty"),
     ("1,2\n3,x\n", r"non-numeric cell 'x' at row 2, column 2"),
     ("1,2\n3\n", "row 2 has 1 cells, expected 2"),
-    ("1,2\n3,nan\n", r"non-finite value\(s\) \(NaN or Inf\), first at row 2, "
+    ("1,2\n3,nan\n", r"non-finite value\(s\) \(NaN, Inf or beyond float64.s range\), first at row 2, "
                      "column 2"),
     ("1,2,3\n4,5,6\n", r"must be square .* shape \(2, 3\)"),
     ("1,2\n,4\n", "empty cell at row 2, column 1"),

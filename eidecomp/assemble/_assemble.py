@@ -33,26 +33,30 @@ from ._nmf import hals, nndsvd, sweep
 __all__ = ["assemble"]
 
 ALPHA_DEFAULT = 0.02   # l1 weight on J_EE, times max |W|
-TUNED_L1 = 0.01        # l1 weight on the tuned factors, times max(-S)
+TUNED_L1 = 0.005       # l1 weight on the tuned factors, times max(-S) / max|W|
 SUPPORT_RTOL = 1e-6    # factor entries below this x their column max are zero
 
 
 def _split(W_or_dec, seed, decompose_kwargs):
+    """(W, L, S, dec): W is the array given, or L + S of a decomposition."""
     if isinstance(W_or_dec, Decomposition):
         dec = W_or_dec
+        W = None
     else:
         from ..decompose import robust_pca
 
-        dec = robust_pca(W_or_dec, seed=seed, **(decompose_kwargs or {}))
+        W = np.asarray(W_or_dec, dtype=float)
+        dec = robust_pca(W, seed=seed, **(decompose_kwargs or {}))
     L = np.asarray(dec.low_rank, dtype=float)
     S = np.asarray(dec.sparse, dtype=float)
-    return L + S, L, S, dec
+    return (L + S if W is None else W), L, S, dec
 
 
 def _fill_dead(A, B, scale, rng):
-    """Give components that a factorisation left empty a small random start."""
+    """Give components that a factorisation left empty a small random start
+    (none when W is all zeros: there is nothing to start from)."""
     dead = (A.sum(axis=0) == 0) | (B.sum(axis=1) == 0)
-    if dead.any():
+    if dead.any() and scale > 0:
         A[:, dead] = scale * rng.random((A.shape[0], int(dead.sum())))
         B[dead] = scale * rng.random((int(dead.sum()), B.shape[1]))
     return A, B
@@ -61,6 +65,17 @@ def _fill_dead(A, B, scale, rng):
 def _support(F, axis):
     peak = F.max(axis=axis, keepdims=True)
     return F > SUPPORT_RTOL * np.where(peak > 0, peak, np.inf)
+
+
+def _notes(W, n_i, ratio):
+    """What the user should know about W's kind of problem, in words."""
+    if not W.any():
+        return ("W is all zeros: the circuit has no connection",)
+    if W.min() >= 0:
+        return (f"W has no negative entry, so no inhibition is needed: J_EE = W, "
+                f"and the {n_i} interneuron{'s' * (n_i != 1)} of E:I "
+                f"{ratio:g}:1 {'are' if n_i != 1 else 'is'} kept but silent",)
+    return ()
 
 
 def _objective(W, J_EE, A, B, alpha):
@@ -145,14 +160,21 @@ def assemble(W_or_dec, *, ei_ratio=4.0, untuned_share="auto", alpha=None,
         raise InputError(f"W must be square to build a circuit, got {W.shape}")
     n = W.shape[0]
     n_i = inhibitory_count(n, ratio)
+    # Work in units of max|W| and scale back at the end: every step is then
+    # homogeneous, so c W gives c J_EE and sqrt(c) J_EI, sqrt(c) J_IE (the
+    # inhibitory paths J_EI J_IE scale by c), whatever c.
+    scale = float(np.abs(W).max()) if W.size else 0.0
+    unit = scale if scale > 0 else 1.0
+    W_given, no_inhibition = W, bool(W.min() >= 0)
+    W, L, S = W / unit, L / unit, S / unit
     M_u = np.maximum(-L, 0.0)
     M_t = np.maximum(-S, 0.0)
     n_u, n_t, rule = split_counts(n_i, untuned_share, dec.rank, bool(M_t.any()))
     rng = np.random.default_rng(seed)
-    scale = float(np.abs(W).max()) if W.size else 0.0
     alpha = ALPHA_DEFAULT * scale if alpha is None else float(alpha)
     if not np.isfinite(alpha) or alpha < 0:
         raise InputError(f"alpha must be a nonnegative number, got {alpha!r}")
+    start = 1e-3 if scale > 0 else 0.0  # of empty factor columns
 
     def tell(stage):
         if progress is not None:
@@ -161,12 +183,12 @@ def assemble(W_or_dec, *, ei_ratio=4.0, untuned_share="auto", alpha=None,
     # 2. untuned: dense pools from the inhibitory side of L
     tell("untuned factorisation")
     A_u, B_u = nndsvd(M_u, n_u)
-    A_u, B_u = _fill_dead(A_u, B_u, 1e-3 * np.sqrt(max(scale, 1e-300)), rng)
+    A_u, B_u = _fill_dead(A_u, B_u, start, rng)
     A_u, B_u, _ = hals(M_u, A_u, B_u, max_iter=max_iter, tol=1e-6)
     # 3. tuned: sparse pools from the inhibitory side of S
     tell("tuned factorisation")
     A_t, B_t = nndsvd(M_t, n_t)
-    A_t, B_t = _fill_dead(A_t, B_t, 1e-3 * np.sqrt(max(scale, 1e-300)), rng)
+    A_t, B_t = _fill_dead(A_t, B_t, start, rng)
     l1 = TUNED_L1 * float(M_t.max()) if M_t.size and M_t.any() else 0.0
     A_t, B_t, _ = hals(M_t, A_t, B_t, l1_a=l1, l1_b=l1, max_iter=max_iter,
                        tol=1e-6)
@@ -180,11 +202,15 @@ def assemble(W_or_dec, *, ei_ratio=4.0, untuned_share="auto", alpha=None,
     mask_a = np.hstack([np.ones_like(A_u, bool), mask_t_a])
     mask_b = np.vstack([np.ones_like(B_u, bool), mask_t_b])
     history = []
-    J_EE, it1, ok1 = _descend(W, A, B, mask_a, mask_b, alpha, None, max_iter,
-                              tol, history, progress, "refinement")
-    J_EE, it2, ok2 = _descend(W, A, B, mask_a, mask_b, 0.0, J_EE > 0,
-                              max_iter, tol, history, progress, "debiasing")
-    converged = ok1 and ok2
+    if no_inhibition:  # J_EE = W (exactly, below), the pools silent
+        A[:], B[:] = 0.0, 0.0
+        J_EE, it1, it2, converged = W.copy(), 0, 0, True
+    else:
+        J_EE, it1, ok1 = _descend(W, A, B, mask_a, mask_b, alpha / unit, None,
+                                  max_iter, tol, history, progress, "refinement")
+        J_EE, it2, ok2 = _descend(W, A, B, mask_a, mask_b, 0.0, J_EE > 0,
+                                  max_iter, tol, history, progress, "debiasing")
+        converged = ok1 and ok2
     if not converged:
         warnings.warn(f"circuit refinement stopped after {max_iter} sweeps "
                       "before its tolerance; raise max_iter", ConvergenceWarning,
@@ -205,15 +231,19 @@ def assemble(W_or_dec, *, ei_ratio=4.0, untuned_share="auto", alpha=None,
             pruned = J - circuit.J_EI @ circuit.J_IE
             base += (BaselineResult(
                 "circuit@density", "this circuit, J_EE pruned to nmf's density",
-                n_i, float(np.linalg.norm(W - pruned) / np.linalg.norm(W)),
+                n_i, float(np.linalg.norm(W - pruned)
+                           / max(np.linalg.norm(W), 1e-300)),
                 float(np.count_nonzero(J) / J.size)),)
     report = AssemblyReport(relative_error=err, ee_density=dens,
                             share_rule=rule, baselines=base, n_iter=it1 + it2,
-                            converged=converged, history=tuple(history))
+                            converged=converged, history=tuple(history),
+                            notes=_notes(W, n_i, ratio))
     params = {"ei_ratio": ratio, "untuned_share": untuned_share,
               "alpha": alpha, "max_iter": max_iter, "tol": tol, "seed": seed,
               "n_inhibitory": n_i, "lam": dec.lam, "rank": dec.rank,
               "decomposition_converged": dec.converged}
-    return Circuit(J_EE=circuit.J_EE, J_EU=circuit.J_EU, J_UE=circuit.J_UE,
-                   J_ET=circuit.J_ET, J_TE=circuit.J_TE, params=params,
-                   report=report)
+    root = np.sqrt(unit)
+    return Circuit(J_EE=W_given.copy() if no_inhibition else J_EE * unit,
+                   J_EU=circuit.J_EU * root,
+                   J_UE=circuit.J_UE * root, J_ET=circuit.J_ET * root,
+                   J_TE=circuit.J_TE * root, params=params, report=report)

@@ -20,7 +20,8 @@ import numpy as np
 
 __all__ = ["hals", "nndsvd", "sweep"]
 
-_EPS = 1e-12
+_DEAD_RTOL = 1e-12  # a component whose Gram diagonal is below this x the
+                   # largest is dead this sweep (relative: W's scale is free)
 
 
 def nndsvd(M, k):
@@ -104,9 +105,10 @@ def sweep(M, A, B, *, l1_a=0.0, l1_b=0.0, mask_a=None, mask_b=None):
         return
     BBt = B @ B.T
     MBt = M @ B.T
+    dead = _DEAD_RTOL * BBt.diagonal().max()
     for j in range(k):
         d = BBt[j, j]
-        if d <= _EPS:
+        if d <= dead or d == 0:
             continue
         col = (MBt[:, j] - A @ BBt[:, j] + A[:, j] * d - l1_a) / d
         np.maximum(col, 0.0, out=col)
@@ -115,9 +117,10 @@ def sweep(M, A, B, *, l1_a=0.0, l1_b=0.0, mask_a=None, mask_b=None):
         A[:, j] = col
     AtA = A.T @ A
     AtM = A.T @ M
+    dead = _DEAD_RTOL * AtA.diagonal().max()
     for j in range(k):
         d = AtA[j, j]
-        if d <= _EPS:
+        if d <= dead or d == 0:
             continue
         row = (AtM[j] - AtA[j] @ B + B[j] * d - l1_b) / d
         np.maximum(row, 0.0, out=row)

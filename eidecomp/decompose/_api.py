@@ -13,6 +13,7 @@ import warnings
 import numpy as np
 
 from ..errors import ConvergenceWarning, InputError
+from ..io import check_range
 from ..types import Decomposition, OptimalityReport, PathPoint, handing_over
 from ._convex import ConvexPCP
 from ._ialm import ialm
@@ -60,6 +61,7 @@ def _check_matrix(W, name="W", dtype=np.float64):
             i, j = np.argwhere(bad)[0]
             raise InputError(f"{name} has {n_bad} non-finite value(s) "
                              f"(NaN or Inf), first at row {start + i}, column {j}")
+    check_range(W, name, base=0, dtype=dtype)
     return W
 
 

@@ -14,13 +14,16 @@ programs need it. The solver is always named; Clarabel (interior point) is the
 default, SCS (first order, looser) for larger problems.
 """
 
+import warnings
+
 import numpy as np
 
-from ..errors import InputError, SolverError
+from ..errors import InputError, SolverError, SolverFallbackWarning
 
 __all__ = ["ConvexPCP", "solve_convex"]
 
 SOLVERS = ("CLARABEL", "SCS")
+_MAX_ITER_KEYWORD = {"CLARABEL": "max_iter", "SCS": "max_iters"}  # cvxpy's names
 
 
 class ConvexPCP:
@@ -64,23 +67,48 @@ class ConvexPCP:
                                   constraints)
         self.equality = delta is None
 
-    def solve(self, lam, *, solver="CLARABEL", max_iter=None, verbose=False):
-        """Solve at ``lam``; returns (L, S, Y or None, info)."""
-        cp = self._cp
+    def solve(self, lam, *, solver="CLARABEL", max_iter=None, verbose=False,
+              fallback=True):
+        """Solve at ``lam``; returns (L, S, Y or None, info).
+
+        When ``solver`` is not installed, raises, or ends without an
+        optimal status, the other solver of SOLVERS is tried (with
+        ``fallback``), and a SolverFallbackWarning says why; info["solver"]
+        names the one that solved it. Both failing is a SolverError naming
+        both reasons.
+        """
         solver = solver.upper()
         if solver not in SOLVERS:
             raise InputError(f"unknown convex solver {solver!r}; choose one of "
                              f"{', '.join(SOLVERS)}")
+        order = [solver] + ([s for s in SOLVERS if s != solver] if fallback else [])
+        reasons = []
+        for name in order:
+            try:
+                out = self._solve_with(name, lam, max_iter, verbose)
+            except SolverError as exc:
+                reasons.append(str(exc))
+                continue
+            if reasons:
+                warnings.warn(f"{reasons[0]}; solved with {name} instead",
+                              SolverFallbackWarning, stacklevel=3)
+                out[3]["fallback_from"] = reasons[0]
+            return out
+        raise SolverError("; ".join(reasons))
+
+    def _solve_with(self, solver, lam, max_iter, verbose):
+        cp = self._cp
         if solver not in cp.installed_solvers():
             raise SolverError(f"cvxpy solver {solver} is not installed")
         self.lam.value = float(lam)
         kwargs = {}
         if max_iter is not None:
-            kwargs["max_iter"] = int(max_iter)
+            kwargs[_MAX_ITER_KEYWORD[solver]] = int(max_iter)
         try:
             self.problem.solve(solver=solver, verbose=verbose, **kwargs)
         except cp.error.SolverError as exc:
-            raise SolverError(f"cvxpy solver {solver} failed: {exc}") from exc
+            first = (str(exc).splitlines() or ["no message"])[0]
+            raise SolverError(f"cvxpy solver {solver} failed: {first}") from exc
         status = self.problem.status
         if status not in (cp.OPTIMAL, cp.OPTIMAL_INACCURATE):
             raise SolverError(f"cvxpy solver {solver} ended with status {status}")

@@ -15,6 +15,8 @@ Python's shortest round-trip form (repr) instead, so reading the file back
 gives the weights bit for bit.
 """
 
+import json
+
 import numpy as np
 
 __all__ = ["read_blocks", "to_document", "write_neuroml"]
@@ -37,8 +39,14 @@ def _exact_connection_class():
     return ExactConnection
 
 
-def to_document(circuit, *, tau_e=10.0, tau_i=10.0, name="eidecomp_circuit"):
-    """A neuroml.NeuroMLDocument of the circuit."""
+def to_document(circuit, *, tau_e=10.0, tau_i=10.0, name="eidecomp_circuit",
+                unit_ids=None):
+    """A neuroml.NeuroMLDocument of the circuit.
+
+    ``unit_ids`` (the unit table's names) go into the notes of population E
+    as a JSON object ``{"unit_ids": [...]}``: text content, escaped by the
+    XML writer, so newlines and quotes survive and nothing is markup.
+    """
     import neuroml
 
     Conn = _exact_connection_class()
@@ -60,8 +68,11 @@ def to_document(circuit, *, tau_e=10.0, tau_i=10.0, name="eidecomp_circuit"):
              "I_tuned": circuit.n_tuned}
     for pop, size in sizes.items():
         if size:
-            net.populations.append(neuroml.Population(
-                id=pop, component=_CELL[pop], size=size))
+            population = neuroml.Population(id=pop, component=_CELL[pop],
+                                            size=size)
+            if pop == "E" and unit_ids is not None:
+                population.notes = json.dumps({"unit_ids": list(unit_ids)})
+            net.populations.append(population)
     for post, pre, block in _PROJECTIONS:
         J = getattr(circuit, block)
         rows, cols = np.nonzero(J)

@@ -90,8 +90,12 @@ if __name__ == "__main__":
 
 
 def pynn_files(circuit, h=None, *, tau_e=10.0, tau_i=10.0, nA_per_weight=0.1,
-               nA_per_drive=1.0, bias_nA=1.6, delay_ms=1.0, timestep_ms=0.1):
-    """{file name: bytes} of the script and its data."""
+               nA_per_drive=1.0, bias_nA=1.6, delay_ms=1.0, timestep_ms=0.1,
+               unit_ids=None):
+    """{file name: bytes} of the script and its data.
+
+    ``unit_ids`` (the unit table's names) are stored in the data file as a
+    string array, ``unit_ids``; the script's text never contains them."""
     h = np.zeros(circuit.n_excitatory) if h is None else h
     H = drive_vector(circuit, h)
     n_e, n_u = circuit.n_excitatory, circuit.n_untuned
@@ -115,6 +119,8 @@ def pynn_files(circuit, h=None, *, tau_e=10.0, tau_i=10.0, nA_per_weight=0.1,
     data["n_projections"] = np.array(len(pres))
     data["proj_pre"] = np.array(pres, dtype="U16")
     data["proj_post"] = np.array(posts, dtype="U16")
+    if unit_ids is not None:
+        data["unit_ids"] = np.array([str(u) for u in unit_ids], dtype=str)
     return {"circuit_pynn.py": SCRIPT.encode(),
             "circuit_pynn_data.npz": npz_bytes(data)}
 

@@ -107,8 +107,11 @@ def script_text(engine):
 
 
 def rate_script_files(circuit, engine, h=None, *, tau_e=10.0, tau_i=10.0,
-                      dt_ms=0.1):
-    """{file name: bytes} of the script for ``engine`` and its data."""
+                      dt_ms=0.1, unit_ids=None):
+    """{file name: bytes} of the script for ``engine`` and its data.
+
+    ``unit_ids`` (the unit table's names) are stored in the data file as a
+    string array, ``unit_ids``; the script's text never contains them."""
     if engine not in ENGINES:
         raise ValueError(f"unknown engine {engine!r}")
     h = np.zeros(circuit.n_excitatory) if h is None else h
@@ -118,6 +121,8 @@ def rate_script_files(circuit, engine, h=None, *, tau_e=10.0, tau_i=10.0,
     pre, post, w = connection_list(circuit)
     data = {"n": np.array(H.size), "pre": pre, "post": post, "weight": w,
             "tau_ms": tau, "h": H, "dt_ms": np.array(dt_ms)}
+    if unit_ids is not None:
+        data["unit_ids"] = np.array([str(u) for u in unit_ids], dtype=str)
     return {f"circuit_{engine}.py": script_text(engine).encode(),
             "circuit_rate_data.npz": npz_bytes(data)}
 
