@@ -23,9 +23,10 @@ import sys
 import time
 
 import numpy as np
+from _peak import PEAK
 
-CHILD = r"""
-import json, resource, sys, time
+CHILD = PEAK + r"""
+import json, sys, time
 import numpy as np
 from eidecomp import robust_pca_kernel
 F, n = int(sys.argv[1]), int(sys.argv[2])
@@ -42,7 +43,7 @@ G += (rng.random(G.shape) < 0.2) * near * rng.choice([-1.0, 1.0], G.shape)
 t = time.perf_counter()
 dec = robust_pca_kernel(G, (n, n), offsets=True)
 t = time.perf_counter() - t
-peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+peak = peak_rss()
 print(json.dumps({"time": t, "peak": peak, "n_iter": dec.n_iter,
                   "converged": dec.converged, "rank": dec.rank}))
 """

@@ -3,7 +3,7 @@
 Planted problems in the setting of Candes et al. (2011): rank N / 200,
 5 % of entries corrupted by random signs. Each size runs in a fresh process
 that loads W from a .npy file and reports its own time and peak resident
-memory (ru_maxrss, read before the planted L0 is loaded to score the
+memory (VmHWM, read before the planted L0 is loaded to score the
 result). Beside each, one full numpy SVD of a matrix of that size: measured
 up to --svd-max, above it extrapolated as n^3 from the largest measured
 (marked "est").
@@ -32,9 +32,10 @@ import time
 from pathlib import Path
 
 import numpy as np
+from _peak import PEAK
 
-CHILD = r"""
-import json, resource, sys, time
+CHILD = PEAK + r"""
+import json, sys, time
 import numpy as np
 from eidecomp import robust_pca
 path, dtype = sys.argv[1], sys.argv[2]
@@ -42,7 +43,7 @@ W = np.load(path + "_W.npy")
 t = time.perf_counter()
 dec = robust_pca(W, dtype=dtype)
 t = time.perf_counter() - t
-peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+peak = peak_rss()
 del W
 L0 = np.load(path + "_L0.npy", mmap_mode="r")
 num = den = 0.0
@@ -55,8 +56,8 @@ print(json.dumps({"time": t, "peak": peak, "n_iter": dec.n_iter, "rank": dec.ran
 """
 
 
-DASK_CHILD = r"""
-import json, resource, sys, tempfile, time
+DASK_CHILD = PEAK + r"""
+import json, sys, tempfile, time
 import numpy as np
 from eidecomp.decompose import robust_pca_dask
 base = sys.argv[1]
@@ -67,7 +68,7 @@ if __name__ == "__main__":
                               memory_limit="1.5GB", chunks=(2500, 2500),
                               sparse_out=tmp + "/s.npy")
         t = time.perf_counter() - t
-        peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+        peak = peak_rss()
         U, s, Vt = dec.low_rank_factors
         L0 = np.load(base + "_L0.npy", mmap_mode="r")
         num = den = 0.0
