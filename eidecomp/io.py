@@ -326,6 +326,56 @@ scale with W, so a matrix outside is rescaled by its user rather than
 silently overflowed."""
 
 
+def range_stats(W, row0=0):
+    """(largest |w|, its (row, column), its value, number of subnormals, the
+    first subnormal's (row, column)) of a block whose first row is ``row0``."""
+    A = np.abs(W)
+    k = int(A.argmax()) if A.size else 0
+    top = float(A.flat[k]) if A.size else 0.0
+    where = (row0 + k // max(W.shape[1], 1), k % max(W.shape[1], 1))
+    sub = (A != 0) & (A < np.finfo(W.dtype if W.dtype.kind == "f"
+                                   else np.float64).tiny)
+    n_sub = int(sub.sum())
+    first = None
+    if n_sub:
+        i, j = np.argwhere(sub)[0]
+        first = (row0 + int(i), int(j))
+    return top, where, float(W.flat[k]) if A.size else 0.0, n_sub, first
+
+
+def merge_range_stats(parts):
+    """range_stats of a matrix from those of its blocks (in row order)."""
+    top, where, value, n_sub, first = 0.0, (0, 0), 0.0, 0, None
+    for t, w, v, n, f in parts:
+        if t > top or t != t:  # a NaN, once seen, stays the answer
+            top, where, value = t, w, v
+        n_sub += n
+        first = first if first is not None else f
+    return top, where, value, n_sub, first
+
+
+def range_error(name, stats, what="matrix", base=1, dtype=np.float64):
+    """The InputError for magnitudes the solvers cannot square, or None."""
+    top, (i, j), value, n_sub, first = stats
+    limit = MAX_MAGNITUDE[np.dtype(dtype).type]
+    if top > limit:
+        return InputError(f"{name}: value {value:.3g} at row {i + base}, column "
+                          f"{j + base} is too large (limit {limit:.0e}: the "
+                          f"solvers square entries); rescale the {what}, "
+                          "results scale with it")
+    if 0 < top < 1 / limit:
+        return InputError(f"{name}: the largest |value| is {top:.3g}, too small "
+                          f"(limit {1 / limit:.0e}: squares underflow); "
+                          f"rescale the {what}, results scale with it")
+    if n_sub:
+        tiny = np.finfo(dtype).tiny
+        return InputError(f"{name}: {n_sub} subnormal value(s) (nonzero but "
+                          f"below {tiny:.2g}, without full precision), first at "
+                          f"row {first[0] + base}, column {first[1] + base}; set "
+                          f"them to 0 or rescale the {what}")
+    return None
+
+
 def check_range(W, name, what="matrix", base=1, dtype=np.float64):
     """Refuse magnitudes the solvers cannot square, and subnormal values.
 
@@ -333,38 +383,12 @@ def check_range(W, name, what="matrix", base=1, dtype=np.float64):
     message (a file, or "W"); ``base`` numbers rows and columns from 1 (as
     a spreadsheet) or 0 (as numpy).
     """
-    limit = MAX_MAGNITUDE[np.dtype(dtype).type]
-    tiny = np.finfo(dtype).tiny
     rows = max(1, (1 << 22) // max(W.shape[1], 1))
-    top, where_top, first_sub, n_sub = 0.0, None, None, 0
-    for start in range(0, W.shape[0], rows):
-        block = np.abs(W[start:start + rows])
-        k = int(block.argmax())
-        if block.flat[k] > top:
-            top = float(block.flat[k])
-            where_top = (start + k // W.shape[1], k % W.shape[1])
-        sub = (block != 0) & (block < tiny)
-        if sub.any():
-            n_sub += int(sub.sum())
-            if first_sub is None:
-                i, j = np.argwhere(sub)[0]
-                first_sub = (start + i, j)
-    if top > limit:
-        i, j = where_top
-        raise InputError(f"{name}: value {W[i, j]:.3g} at row {i + base}, column "
-                         f"{j + base} is too large (limit {limit:.0e}: the "
-                         f"solvers square entries); rescale the {what}, results "
-                         "scale with it")
-    if 0 < top < 1 / limit:
-        raise InputError(f"{name}: the largest |value| is {top:.3g}, too small "
-                         f"(limit {1 / limit:.0e}: squares underflow); "
-                         f"rescale the {what}, results scale with it")
-    if n_sub:
-        i, j = first_sub
-        raise InputError(f"{name}: {n_sub} subnormal value(s) (nonzero but below "
-                         f"{tiny:.2g}, without full precision), first at row "
-                         f"{i + base}, column {j + base}; set them to 0 or "
-                         f"rescale the {what}")
+    stats = merge_range_stats(range_stats(W[s:s + rows], s)
+                              for s in range(0, W.shape[0], rows))
+    exc = range_error(name, stats, what, base, dtype)
+    if exc is not None:
+        raise exc
 
 
 def read_mask(path, shape, *, key=None, transpose=False):

@@ -100,3 +100,21 @@ def test_wide_cold_starts_orthonormalise_here(monkeypatch):
     ref = robust_pca(W)
     assert dec.converged and dec.rank == ref.rank
     np.testing.assert_allclose(dec.low_rank(), ref.low_rank, atol=1e-6)
+
+
+def test_dask_engine_refuses_magnitudes_it_cannot_square(tmp_path):
+    """The same limits as the readers (docs/reliability.md)."""
+    require("distributed")
+    from eidecomp.errors import InputError
+    from eidecomp.decompose import robust_pca_dask
+
+    W = np.ones((40, 40))
+    W[30, 7] = 1e200
+    np.save(tmp_path / "big.npy", W)
+    with pytest.raises(InputError, match=r"value 1e\+200 at row 30, column 7 is "
+                       "too large"):
+        robust_pca_dask(tmp_path / "big.npy", chunks=(20, 20))
+    W[30, 7] = 5e-320
+    np.save(tmp_path / "sub.npy", W)
+    with pytest.raises(InputError, match="1 subnormal value"):
+        robust_pca_dask(tmp_path / "sub.npy", chunks=(20, 20))

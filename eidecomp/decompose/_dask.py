@@ -37,6 +37,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import InputError
+from ..io import range_error
 from ._ialm import _MU_MAX_FACTOR, next_penalty
 
 __all__ = ["BlockStore", "dask_ialm", "read_block"]
@@ -98,9 +99,14 @@ def _update_block(source, paths, rows, cols, Us, Vt, inv_mu, mu, thr, dtype):
     return sums
 
 
-def _square_sum(source, rows, cols, dtype):
+def _block_scan(source, rows, cols, dtype):
+    """A block's squared norm (float64) and its io.range_stats."""
+    from ..io import range_stats
+
     B = read_block(source, rows, cols, dtype)
-    return float(np.vdot(B, B))
+    top, (i, j), value, n_sub, first = range_stats(B)
+    return (float(np.vdot(B, B)), top, (rows[0] + i, cols[0] + j), value, n_sub,
+            None if first is None else (rows[0] + first[0], cols[0] + first[1]))
 
 
 # ---- the layout, here -----------------------------------------------------
@@ -155,13 +161,17 @@ class BlockStore:
                  for i, r in enumerate(self.rows) for j, c in enumerate(self.cols)]
         return np.sum(dask.compute(*parts), axis=0)
 
-    def frobenius(self):
+    def scan(self):
+        """||W||_F and W's io.range_stats, in one pass over the blocks."""
         import dask
 
-        task = dask.delayed(_square_sum, pure=True)
-        return float(np.sqrt(sum(dask.compute(*[
-            task(self.source, r, c, self.dtype)
-            for r in self.rows for c in self.cols]))))
+        from ..io import merge_range_stats
+
+        task = dask.delayed(_block_scan, pure=True)
+        parts = dask.compute(*[task(self.source, r, c, self.dtype)
+                               for r in self.rows for c in self.cols])
+        norm = float(np.sqrt(sum(p[0] for p in parts)))
+        return norm, merge_range_stats(p[1:] for p in parts)
 
     def source_array(self):
         """W as a chunked dask array of block reads."""
@@ -226,10 +236,14 @@ def dask_ialm(store, lam, *, tol=1e-8, max_iter=5000, rho=1.5, n_power_iter=2,
 
     dtype = store.dtype
     m, n = store.shape
-    norm_W = store.frobenius()
-    if not np.isfinite(norm_W):
-        raise InputError(f"{store.source}: W holds NaN or Inf values, or values "
-                         f"too large for {np.dtype(dtype).name}")
+    norm_W, stats = store.scan()
+    problem = None if np.isfinite(stats[0]) else InputError(
+        f"{store.source}: W holds NaN or Inf values, or values too large for "
+        f"{np.dtype(dtype).name}")
+    problem = problem or range_error(store.source, stats, "weight matrix",
+                                     base=0, dtype=dtype)
+    if problem is not None:
+        raise problem
     if norm_W == 0.0:
         return (np.zeros((m, 0), dtype), np.zeros(0, dtype), np.zeros((0, n), dtype),
                 store.S[0], {"n_iter": 0, "converged": True, "history": []})
