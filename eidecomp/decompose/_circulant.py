@@ -24,7 +24,7 @@ residuals), on arrays of F * F * H * W numbers instead of (F H W)^2.
 
 import numpy as np
 
-from ._ialm import _MU_MAX_FACTOR, next_penalty
+from ._ialm import _MU_MAX_FACTOR, end_step
 
 __all__ = ["kernel_ialm"]
 
@@ -101,18 +101,13 @@ def kernel_ialm(G, lam, *, tol=1e-8, max_iter=5000, rho=1.5, callback=None):
         C = np.clip(T, -thr, thr)                  # Y_new / mu
         S_new = T - C
         Y_new = mu * C
-        primal = float(np.linalg.norm(Y_new - Y)) / mu / norm_W
-        dual = mu * float(np.linalg.norm(S_new - S)) / max(
-            float(np.linalg.norm(Y_new)), np.finfo(float).tiny)
+        dY, dS = np.linalg.norm(Y_new - Y), np.linalg.norm(S_new - S)
         S, Y = S_new, Y_new
-        history.append((primal, dual, int(ranks_half.max()), mu))
-        if callback is not None:
-            callback(it, primal, dual, int(ranks_half.max()), mu)
-        if primal < tol and dual < tol:
-            converged = True
+        converged, mu, polishing = end_step(
+            history, callback, it, int(ranks_half.max()), mu, polishing, dY, dS,
+            np.linalg.norm(Y), norm_W, tol=tol, rho=rho, mu_max=mu_max)
+        if converged:
             break
-        mu, polishing = next_penalty(mu, primal, dual, polishing, tol=tol,
-                                     rho=rho, mu_max=mu_max)
     # ranks at every frequency of the full grid: f and -f share a rank
     ranks = np.zeros(grid, int)
     half = w // 2 + 1

@@ -38,7 +38,7 @@ import numpy as np
 
 from ..errors import InputError
 from ..io import range_error
-from ._ialm import _MU_MAX_FACTOR, next_penalty
+from ._ialm import _MU_MAX_FACTOR, end_step, next_rank
 
 __all__ = ["BlockStore", "dask_ialm", "read_block"]
 
@@ -290,19 +290,13 @@ def dask_ialm(store, lam, *, tol=1e-8, max_iter=5000, rho=1.5, n_power_iter=2,
         U = u[:, keep].astype(dtype)
         s = (sv[keep] - inv_mu).astype(dtype)
         Vt = vt[keep].astype(dtype)
-        k = r + 5 + max(5, r // 10) if r >= r_prev else r + 1 + max(2, r // 20)
+        k = next_rank(r_prev, r, min(m, n))
         dS2, dY2, nY2 = store.update(buf, U * s, Vt, inv_mu, mu, lam * inv_mu)
         buf = 1 - buf
-        primal = float(np.sqrt(dY2)) / mu / norm_W
-        dual = mu * float(np.sqrt(dS2)) / max(float(np.sqrt(nY2)),
-                                               np.finfo(dtype).tiny)
-        history.append((primal, dual, r, mu))
-        if callback is not None:
-            callback(it, primal, dual, r, mu)
-        if primal < tol and dual < tol:
-            converged = True
+        converged, mu, polishing = end_step(
+            history, callback, it, r, mu, polishing, np.sqrt(dY2), np.sqrt(dS2),
+            np.sqrt(nY2), norm_W, tol=tol, rho=rho, mu_max=mu_max)
+        if converged:
             break
-        mu, polishing = next_penalty(mu, primal, dual, polishing, tol=tol,
-                                     rho=rho, mu_max=mu_max)
     return U, s, Vt, store.S[buf], {"n_iter": it, "converged": converged,
                                     "history": history}

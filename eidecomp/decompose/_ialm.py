@@ -35,7 +35,7 @@ import numpy as np
 
 from ._svt import sketch_plan, spectral_norm, svt
 
-__all__ = ["ialm", "next_penalty"]
+__all__ = ["end_step", "ialm", "next_penalty", "next_rank"]
 
 _GROW = 0.5     # phase 2: mu grows while dual < primal / _GROW ...
 _SHRINK = 10.0  # ... and shrinks once dual > _SHRINK * primal
@@ -58,7 +58,27 @@ def next_penalty(mu, primal, dual, polishing, *, tol, rho, mu_max):
     return mu, polishing
 
 
-def _next_rank(sv_prev, r, n_small):
+def end_step(history, callback, it, rank, mu, polishing, dY, dS, nY, norm_W,
+             *, tol, rho, mu_max):
+    """The end of one ALM step, shared by every engine: the residuals from
+    ||Y+ - Y||, ||S+ - S|| and ||Y+||, the history row, the callback, the
+    stopping rule (both residuals below tol) and the penalty schedule.
+
+    Returns (converged, mu, polishing).
+    """
+    primal = float(dY) / mu / norm_W
+    dual = mu * float(dS) / max(float(nY), np.finfo(float).tiny)
+    history.append((primal, dual, rank, mu))
+    if callback is not None:
+        callback(it, primal, dual, rank, mu)
+    if primal < tol and dual < tol:
+        return True, mu, polishing
+    mu, polishing = next_penalty(mu, primal, dual, polishing, tol=tol, rho=rho,
+                                 mu_max=mu_max)
+    return False, mu, polishing
+
+
+def next_rank(sv_prev, r, n_small):
     """Rank to compute next: a little above the predicted rank r."""
     if r < sv_prev:
         return min(r + 1 + max(2, r // 20), n_small)
@@ -156,7 +176,7 @@ def ialm(W, lam, *, observed=None, tol=1e-8, max_iter=5000, rho=1.5,
         sketch = None if plan is None else (*plan, P)
         U, s, Vt, V, _ = svt(T, inv_mu, k=k, V0=V, rng=rng, sketch=sketch)
         r_prev, r = r, len(s)
-        k = _next_rank(r_prev if it > 1 else r + 1, r, n_small)
+        k = next_rank(r_prev if it > 1 else r + 1, r, n_small)
         Us = U * s
         thr = lam * inv_mu
         dS2 = dY2 = Y2 = 0.0
@@ -184,16 +204,11 @@ def ialm(W, lam, *, observed=None, tol=1e-8, max_iter=5000, rho=1.5,
             dY2 += float(np.vdot(db, db))
             Yb[...] = cb
             Y2 += float(np.vdot(cb, cb))
-        primal = np.sqrt(dY2) / mu / norm_W
-        dual = mu * np.sqrt(dS2) / max(np.sqrt(Y2), np.finfo(dtype).tiny)
-        history.append((primal, dual, r, mu))
-        if callback is not None:
-            callback(it, primal, dual, r, mu)
-        if primal < tol and dual < tol:
-            converged = True
+        converged, mu, polishing = end_step(
+            history, callback, it, r, mu, polishing, np.sqrt(dY2), np.sqrt(dS2),
+            np.sqrt(Y2), norm_W, tol=tol, rho=rho, mu_max=mu_max)
+        if converged:
             break
-        mu, polishing = next_penalty(mu, primal, dual, polishing, tol=tol,
-                                     rho=rho, mu_max=mu_max)
     del T, t, c, d  # the work arrays go before L arrives
     L = (Us @ Vt).astype(dtype, copy=False) if r else np.zeros_like(W)
     return L, S, Y, {"n_iter": it, "converged": converged, "history": history,
