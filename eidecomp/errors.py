@@ -15,7 +15,7 @@ other one solved the program.
 """
 
 __all__ = ["ConvergenceWarning", "EidecompError", "InputError", "SolverError",
-           "SolverFallbackWarning", "WriteError"]
+           "SolverFallbackWarning", "WriteError", "warn_stopped"]
 
 
 class EidecompError(Exception):
@@ -40,3 +40,25 @@ class ConvergenceWarning(UserWarning):
 
 class SolverFallbackWarning(UserWarning):
     """The solver asked for failed or is missing; another one solved it."""
+
+
+def warn_stopped(what, n_iter, *, unit="iterations",
+                 advice="raise max_iter or loosen tol", stacklevel=3):
+    """Issue the one ConvergenceWarning wording of every eidecomp solver.
+
+    ``what`` names the solver ("robust PCA", "kernel robust PCA", "circuit
+    refinement"); the warning says where it stopped and what to do.
+
+    >>> import warnings
+    >>> with warnings.catch_warnings(record=True) as w:
+    ...     warnings.simplefilter("always")
+    ...     warn_stopped("robust PCA", 5000)
+    >>> print(str(w[0].message).replace("; ", ";\\n"))
+    robust PCA stopped after 5000 iterations before reaching its tolerance;
+    raise max_iter or loosen tol
+    """
+    import warnings
+
+    warnings.warn(f"{what} stopped after {n_iter} {unit} before reaching its "
+                  f"tolerance; {advice}", ConvergenceWarning,
+                  stacklevel=stacklevel)

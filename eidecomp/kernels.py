@@ -19,14 +19,14 @@ F x F blocks G_hat[:, :, f], so ||M||_* = sum_f ||G_hat_f||_*,
 ||M||_1 = H W ||K||_1 and ||M||_F^2 = H W ||K||_F^2.
 """
 
-import os
 
 import numpy as np
 
 from .errors import InputError
+from .limits import check_fits
 
-__all__ = ["check_fits", "check_kernel", "dense_bytes", "expand", "expand_full",
-           "full_grid", "kernel_norms", "memory_limit", "parse_grid", "to_local"]
+__all__ = ["check_kernel", "dense_bytes", "expand", "expand_full",
+           "full_grid", "kernel_norms", "parse_grid", "to_local"]
 
 
 def parse_grid(text):
@@ -102,28 +102,12 @@ def dense_bytes(n_units, arrays=6):
     return int(arrays) * int(n_units) ** 2 * 8
 
 
-def memory_limit():
-    """Physical memory of this machine in bytes (0 if unknown)."""
-    try:
-        return os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
-    except (ValueError, OSError, AttributeError):
-        return 0
-
-
-def check_fits(need, what, *, max_bytes=None, advice=""):
-    """Refuse (InputError, with the figure) a dense array of ``need`` bytes
-    above ``max_bytes`` (default: half the machine's memory)."""
-    limit = memory_limit() // 2 if max_bytes is None else max_bytes
-    if limit and need > limit:
-        raise InputError(f"{what} needs about {need / 2**30:.1f} GiB, more than "
-                         f"the {limit / 2**30:.1f} GiB allowed{advice}")
-
-
 def expand(K, grid, boundary="periodic", *, max_bytes=None):
     """The dense matrix M[post, pre] of the kernel tiled over the grid.
 
     Refuses (InputError) when the matrix and a dense solve on it would need
-    more than ``max_bytes`` (default: half the machine's memory).
+    more than ``max_bytes`` (default: the memory this process may use,
+    :func:`eidecomp.limits.available_memory`).
     """
     K = check_kernel(K, grid, boundary)
     F = K.shape[0]

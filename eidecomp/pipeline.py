@@ -337,7 +337,8 @@ def _run_assemble_tiled(config, out, progress):
     from .assemble import assemble_tiled, parse_ratio
     from .decompose import robust_pca_kernel
     from .io import circuit_files, read_kernel
-    from .kernels import check_kernel, dense_bytes, full_grid, memory_limit, parse_grid
+    from .kernels import check_kernel, dense_bytes, full_grid, parse_grid
+    from .limits import available_memory
 
     if config.grid is None:
         raise InputError("--kernel needs --grid HxW")
@@ -349,7 +350,7 @@ def _run_assemble_tiled(config, out, progress):
     m = int(round(F / ratio))
     n_total = (F + m) * grid[0] * grid[1]
     need = dense_bytes(n_total, arrays=3)
-    if config.expand and memory_limit() and need > memory_limit() // 2:
+    if config.expand and available_memory() and need > available_memory():
         raise InputError(f"the expanded circuit would have {n_total} units and "
                          f"need about {need / 2**30:.1f} GiB; drop --expand to "
                          "keep it as kernels")

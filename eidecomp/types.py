@@ -11,7 +11,14 @@ from dataclasses import dataclass, field
 import numpy as np
 
 __all__ = [
+    "BLOCKS",
+    "BLOCK_NAMES",
+    "EXCITATORY",
+    "POPULATION_NAMES",
+    "TUNED",
+    "UNTUNED",
     "AssemblyReport",
+    "Block",
     "BaselineResult",
     "Circuit",
     "Decomposition",
@@ -220,7 +227,41 @@ class PathPoint:
 # --- circuits ----------------------------------------------------------------
 
 EXCITATORY, UNTUNED, TUNED = "excitatory", "untuned", "tuned"
-_KINDS = (EXCITATORY, UNTUNED, TUNED)
+POPULATION_NAMES = {EXCITATORY: "E", UNTUNED: "I_untuned", TUNED: "I_tuned"}
+"""The one table of populations: kind -> name, in the order of every full
+matrix (E, then untuned, then tuned). Graph, exports, bundles and the report
+read it."""
+_KINDS = tuple(POPULATION_NAMES)
+
+
+@dataclass(frozen=True)
+class Block:
+    """One nonnegative block of a circuit: J[post, pre] from the ``pre``
+    population onto the ``post`` one (kinds); the sign is the presynaptic
+    population's (Dale's law)."""
+
+    name: str
+    post: str
+    pre: str
+
+    @property
+    def post_name(self):
+        return POPULATION_NAMES[self.post]
+
+    @property
+    def pre_name(self):
+        return POPULATION_NAMES[self.pre]
+
+    @property
+    def sign(self):
+        return 1 if self.pre == EXCITATORY else -1
+
+
+BLOCKS = (Block("J_EE", EXCITATORY, EXCITATORY), Block("J_EU", EXCITATORY, UNTUNED),
+          Block("J_UE", UNTUNED, EXCITATORY), Block("J_ET", EXCITATORY, TUNED),
+          Block("J_TE", TUNED, EXCITATORY))
+"""The one table of blocks (name, post, pre), in the order bundles store them."""
+BLOCK_NAMES = tuple(b.name for b in BLOCKS)
 
 
 @dataclass(frozen=True)
@@ -298,9 +339,6 @@ class AssemblyReport:
         return out
 
 
-_BLOCKS = ("J_EE", "J_EU", "J_UE", "J_ET", "J_TE")
-
-
 @dataclass(frozen=True)
 class Circuit:
     """An excitatory/inhibitory circuit obeying Dale's law.
@@ -342,7 +380,7 @@ class Circuit:
     report: AssemblyReport | None = field(default=None, repr=False)
 
     def __post_init__(self):
-        for name in _BLOCKS:
+        for name in BLOCK_NAMES:
             a = np.asarray(getattr(self, name), dtype=float)
             if a.ndim != 2:
                 raise ValueError(f"{name} must be 2-D")
@@ -352,15 +390,13 @@ class Circuit:
                 raise ValueError(f"{name} has negative entries; blocks hold "
                                  "magnitudes and Dale's law gives the signs")
             object.__setattr__(self, name, a)
-        _freeze(self, *_BLOCKS)
-        n = self.J_EE.shape[0]
-        nu, nt = self.J_EU.shape[1], self.J_ET.shape[1]
-        expected = {"J_EE": (n, n), "J_EU": (n, nu), "J_UE": (nu, n),
-                    "J_ET": (n, nt), "J_TE": (nt, n)}
-        for name, shape in expected.items():
-            if getattr(self, name).shape != shape:
-                raise ValueError(f"{name} has shape {getattr(self, name).shape},"
-                                 f" expected {shape}")
+        _freeze(self, *BLOCK_NAMES)
+        size = self.sizes
+        for b in BLOCKS:
+            shape = (size[b.post], size[b.pre])
+            if getattr(self, b.name).shape != shape:
+                raise ValueError(f"{b.name} has shape "
+                                 f"{getattr(self, b.name).shape}, expected {shape}")
 
     @property
     def n_excitatory(self):
@@ -379,10 +415,24 @@ class Circuit:
         return self.n_untuned + self.n_tuned
 
     @property
+    def sizes(self):
+        """Population kind -> number of units."""
+        return {EXCITATORY: self.J_EE.shape[0], UNTUNED: self.J_EU.shape[1],
+                TUNED: self.J_ET.shape[1]}
+
+    @property
     def populations(self):
-        return (Population("E", EXCITATORY, self.n_excitatory),
-                Population("I_untuned", UNTUNED, self.n_untuned),
-                Population("I_tuned", TUNED, self.n_tuned))
+        """The populations, in the order of every full matrix."""
+        return tuple(Population(name, kind, self.sizes[kind])
+                     for kind, name in POPULATION_NAMES.items())
+
+    def slices(self):
+        """Population name -> its slice of the units of a full matrix."""
+        out, start = {}, 0
+        for p in self.populations:
+            out[p.name] = slice(start, start + p.size)
+            start += p.size
+        return out
 
     @property
     def J_EI(self):

@@ -70,7 +70,7 @@ def test_sigint_leaves_no_output(tmp_path, big, existing):
 def test_interrupt_while_writing_leaves_the_old_output(tmp_path, monkeypatch,
                                                         capsys):
     """An interrupt between two files of the bundle (the rename not yet done)."""
-    from eidecomp import io as eio
+    from eidecomp.io import staging as eio
 
     W, _, _ = make_planted_circuit(40, n_untuned=2, n_tuned=6, pool=3, seed=1)
     np.save(tmp_path / "w.npy", W)
@@ -95,7 +95,7 @@ def test_interrupt_while_writing_leaves_the_old_output(tmp_path, monkeypatch,
 
 
 def test_disk_full_leaves_nothing(tmp_path, monkeypatch, capsys):
-    from eidecomp import io as eio
+    from eidecomp.io import staging as eio
 
     W, _, _ = make_planted_circuit(40, n_untuned=2, n_tuned=6, pool=3, seed=1)
     np.save(tmp_path / "w.npy", W)

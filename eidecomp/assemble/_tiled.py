@@ -34,7 +34,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..errors import InputError
-from ..kernels import check_fits, dense_bytes, expand_full
+from ..kernels import dense_bytes, expand_full
+from ..limits import check_fits
 from ..types import Circuit
 from ._counts import inhibitory_count, parse_ratio
 

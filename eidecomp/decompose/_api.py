@@ -13,7 +13,7 @@ import warnings
 import numpy as np
 
 from ..errors import ConvergenceWarning, InputError
-from ..io import check_range
+from ..limits import available_memory, check_range
 from ..types import Decomposition, OptimalityReport, PathPoint, handing_over
 from ._convex import ConvexPCP
 from ._ialm import ialm
@@ -205,24 +205,11 @@ def memory_estimate(shape, dtype=np.float64, method="ialm"):
     return arrays * m * n * np.dtype(dtype).itemsize
 
 
-def _available_memory():
-    try:
-        with open("/proc/meminfo") as fh:
-            for line in fh:
-                if line.startswith("MemAvailable:"):
-                    return int(line.split()[1]) * 1024
-    except OSError:
-        pass
-    from ..kernels import memory_limit
-
-    return memory_limit()
-
-
 def _check_memory(shape, dtype, method):
     if len(shape) != 2:
         return  # _check_matrix gives the message
     need = memory_estimate(shape, dtype, method)
-    have = _available_memory()
+    have = available_memory()
     if have and need > have:
         alt = ("float32 mode (dtype='float32', --float32) halves it; "
                if np.dtype(dtype) == np.float64 else "")

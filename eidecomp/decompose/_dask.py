@@ -37,7 +37,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import InputError
-from ..io import range_error
+from ..limits import range_error
 from ._ialm import _MU_MAX_FACTOR, end_step, next_rank
 
 __all__ = ["BlockStore", "dask_ialm", "read_block"]
@@ -101,7 +101,7 @@ def _update_block(source, paths, rows, cols, Us, Vt, inv_mu, mu, thr, dtype):
 
 def _block_scan(source, rows, cols, dtype):
     """A block's squared norm (float64) and its io.range_stats."""
-    from ..io import range_stats
+    from ..limits import range_stats
 
     B = read_block(source, rows, cols, dtype)
     top, (i, j), value, n_sub, first = range_stats(B)
@@ -165,7 +165,7 @@ class BlockStore:
         """||W||_F and W's io.range_stats, in one pass over the blocks."""
         import dask
 
-        from ..io import merge_range_stats
+        from ..limits import merge_range_stats
 
         task = dask.delayed(_block_scan, pure=True)
         parts = dask.compute(*[task(self.source, r, c, self.dtype)

@@ -1,0 +1,44 @@
+"""Everything eidecomp reads from and writes to disk.
+
+``matrices``  weight matrices, masks and kernels (W[post, pre], checked)
+``text``      numbers in .csv / .tsv / .txt tables
+``binary``    .npy / .npz / .mat arrays (never unpickled)
+``units``     the unit table
+``limits``    magnitudes the solvers can square
+``staging``   all-or-nothing writes (temporary name, then rename)
+``bundles``   the folders eidecomp writes: format, version, checksums
+"""
+
+from ..limits import (
+    MAX_MAGNITUDE,
+    check_range,
+    merge_range_stats,
+    range_error,
+    range_stats,
+)
+from .binary import MATRIX_SUFFIXES
+from .bundles import CIRCUIT_FORMAT, CIRCUIT_VERSION, circuit_files, read_circuit
+from .matrices import file_checksum, read_kernel, read_mask, read_matrix
+from .staging import staged_folder, write_file, write_folder
+from .units import read_units
+
+__all__ = [
+    "CIRCUIT_FORMAT",
+    "CIRCUIT_VERSION",
+    "MATRIX_SUFFIXES",
+    "MAX_MAGNITUDE",
+    "check_range",
+    "circuit_files",
+    "file_checksum",
+    "merge_range_stats",
+    "range_error",
+    "range_stats",
+    "read_circuit",
+    "read_kernel",
+    "read_mask",
+    "read_matrix",
+    "read_units",
+    "staged_folder",
+    "write_file",
+    "write_folder",
+]

@@ -1,0 +1,141 @@
+"""Read weight matrices, masks and kernels, checked at the boundary.
+
+Every matrix is W[post, pre]: row = target, column = source. ``transpose=True``
+reads a file stored as [pre, post]. Errors are :class:`~eidecomp.errors.InputError`
+with one line that names the file. Formats: :mod:`.binary` and :mod:`.text`.
+"""
+
+import hashlib
+from pathlib import Path
+
+import numpy as np
+
+from ..errors import InputError
+from ..limits import check_range
+from .binary import load_array
+
+__all__ = ["file_checksum", "read_kernel", "read_mask", "read_matrix"]
+
+
+def file_checksum(path):
+    """SHA-256 of a file's bytes, as hex; of a folder (a zarr array), over
+    its files' relative paths and bytes in sorted order."""
+    path = Path(path)
+    h = hashlib.sha256()
+    files = sorted(p for p in path.rglob("*") if p.is_file()) if path.is_dir() \
+        else [path]
+    for f in files:
+        if path.is_dir():
+            h.update(f.relative_to(path).as_posix().encode() + b"\0")
+        with open(f, "rb") as fh:
+            for chunk in iter(lambda: fh.read(1 << 20), b""):
+                h.update(chunk)
+    return h.hexdigest()
+
+
+def read_matrix(path, *, key=None, transpose=False, square=True, what="matrix"):
+    """Read a real 2-D float64 matrix W[post, pre] from ``path``.
+
+    Parameters
+    ----------
+    path : str or Path
+    key : str or None
+        Array name in an ``.npz`` or variable in a ``.mat`` file.
+    transpose : bool
+        The file is stored [pre, post]; return its transpose.
+    square : bool
+        Require a square matrix (a weight matrix among one set of neurons).
+    what : str
+        Word used in error messages.
+
+    Returns
+    -------
+    ndarray of float64, shape (n_post, n_pre)
+
+    Raises
+    ------
+    InputError
+        Missing file, unreadable format, non-numeric or non-finite values,
+        wrong dimensionality or shape; the message names the file.
+
+    Examples
+    --------
+    >>> import numpy as np, tempfile, os
+    >>> from eidecomp.io import read_matrix
+    >>> path = os.path.join(tempfile.mkdtemp(), "w.csv")
+    >>> with open(path, "w") as fh:
+    ...     _ = fh.write("post,a,b\\na,0,1.5\\nb,-2,0\\n")
+    >>> read_matrix(path)
+    array([[ 0. ,  1.5],
+           [-2. ,  0. ]])
+    """
+    path = Path(path)
+    if not path.exists():
+        raise InputError(f"{path}: no such file")
+    if path.is_dir():
+        raise InputError(f"{path}: is a folder, expected a {what} file")
+    if path.stat().st_size == 0:
+        raise InputError(f"{path}: file is empty")
+    arr = np.asarray(load_array(path, key))
+    if arr.dtype.kind not in "biuf":
+        kind = {"c": "complex", "U": "text", "S": "text", "O": "object",
+                "V": "structured"}.get(arr.dtype.kind, str(arr.dtype))
+        raise InputError(f"{path}: holds {kind} values; a real numeric {what} "
+                         "is needed")
+    if arr.ndim != 2:
+        raise InputError(f"{path}: {what} must be 2-D, got {arr.ndim}-D shape "
+                         f"{arr.shape}")
+    if arr.size == 0:
+        raise InputError(f"{path}: {what} is empty (shape {arr.shape})")
+    if arr.dtype.kind in "iu" and np.abs(arr).max() > 2**53:
+        raise InputError(f"{path}: integer values beyond 2**53 lose precision "
+                         "as float64")
+    with np.errstate(over="ignore"):
+        W = arr.astype(np.float64)
+    bad = ~np.isfinite(W)
+    if bad.any():
+        i, j = np.argwhere(bad)[0]
+        raise InputError(f"{path}: {int(bad.sum())} non-finite value(s) (NaN, "
+                         f"Inf or beyond float64's range), first at row {i + 1}, "
+                         f"column {j + 1}")
+    check_range(W, path, what)
+    if transpose:
+        W = np.ascontiguousarray(W.T)
+    if square and W.shape[0] != W.shape[1]:
+        raise InputError(f"{path}: {what} must be square (W[post, pre] among one "
+                         f"set of neurons), got shape {W.shape}")
+    return W
+
+
+def read_mask(path, shape, *, key=None, transpose=False):
+    """Read a mask of *unobserved* entries; return the *observed* boolean array.
+
+    The file holds 1 (or True) where an entry is unobserved and 0 where it is
+    observed, with W's shape and orientation.
+    """
+    M = read_matrix(path, key=key, transpose=transpose, square=False,
+                    what="mask")
+    if M.shape != tuple(shape):
+        raise InputError(f"{path}: mask has shape {M.shape} but the matrix has "
+                         f"shape {tuple(shape)}")
+    if not np.isin(M, (0.0, 1.0)).all():
+        raise InputError(f"{path}: mask must hold only 0 (observed) and 1 "
+                         "(unobserved)")
+    return M == 0.0
+
+
+def read_kernel(path, *, key=None):
+    """A 4-D kernel K[post_feature, pre_feature, dy, dx] from .npy or .npz."""
+    path = Path(path)
+    if not path.is_file():
+        raise InputError(f"{path}: kernel file not found")
+    if path.suffix.lower() not in (".npy", ".npz"):
+        raise InputError(f"{path}: a kernel must be a .npy or .npz file")
+    arr = load_array(path, key)
+    if arr.ndim != 4:
+        raise InputError(f"{path}: expected a 4-D kernel K[post_feature, "
+                         f"pre_feature, dy, dx], got a {arr.ndim}-D array "
+                         f"of shape {arr.shape}")
+    return arr
+
+

@@ -1,0 +1,158 @@
+"""Limits on what the solvers and this process can take: magnitudes."""
+
+import numpy as np
+
+from .errors import InputError
+
+__all__ = ["MAX_MAGNITUDE", "check_range", "merge_range_stats", "range_error",
+           "range_stats"]
+
+
+MAX_MAGNITUDE = {np.float64: 1e100, np.float32: 1e15}
+"""The largest |w| accepted in each working dtype, and the reciprocal of the
+smallest largest |w|: the solvers square entries (float64 overflows near
+1e308 and underflows near 1e-308, float32 near 3e38 and 1e-38), and results
+scale with W, so a matrix outside is rescaled by its user rather than
+silently overflowed."""
+
+
+def range_stats(W, row0=0):
+    """(largest |w|, its (row, column), its value, number of subnormals, the
+    first subnormal's (row, column)) of a block whose first row is ``row0``."""
+    A = np.abs(W)
+    k = int(A.argmax()) if A.size else 0
+    top = float(A.flat[k]) if A.size else 0.0
+    where = (row0 + k // max(W.shape[1], 1), k % max(W.shape[1], 1))
+    sub = (A != 0) & (A < np.finfo(W.dtype if W.dtype.kind == "f"
+                                   else np.float64).tiny)
+    n_sub = int(sub.sum())
+    first = None
+    if n_sub:
+        i, j = np.argwhere(sub)[0]
+        first = (row0 + int(i), int(j))
+    return top, where, float(W.flat[k]) if A.size else 0.0, n_sub, first
+
+
+def merge_range_stats(parts):
+    """range_stats of a matrix from those of its blocks (in row order)."""
+    top, where, value, n_sub, first = 0.0, (0, 0), 0.0, 0, None
+    for t, w, v, n, f in parts:
+        if t > top or t != t:  # a NaN, once seen, stays the answer
+            top, where, value = t, w, v
+        n_sub += n
+        first = first if first is not None else f
+    return top, where, value, n_sub, first
+
+
+def range_error(name, stats, what="matrix", base=1, dtype=np.float64):
+    """The InputError for magnitudes the solvers cannot square, or None."""
+    top, (i, j), value, n_sub, first = stats
+    limit = MAX_MAGNITUDE[np.dtype(dtype).type]
+    if top > limit:
+        return InputError(f"{name}: value {value:.3g} at row {i + base}, column "
+                          f"{j + base} is too large (limit {limit:.0e}: the "
+                          f"solvers square entries); rescale the {what}, "
+                          "results scale with it")
+    if 0 < top < 1 / limit:
+        return InputError(f"{name}: the largest |value| is {top:.3g}, too small "
+                          f"(limit {1 / limit:.0e}: squares underflow); "
+                          f"rescale the {what}, results scale with it")
+    if n_sub:
+        tiny = np.finfo(dtype).tiny
+        return InputError(f"{name}: {n_sub} subnormal value(s) (nonzero but "
+                          f"below {tiny:.2g}, without full precision), first at "
+                          f"row {first[0] + base}, column {first[1] + base}; set "
+                          f"them to 0 or rescale the {what}")
+    return None
+
+
+def check_range(W, name, what="matrix", base=1, dtype=np.float64):
+    """Refuse magnitudes the solvers cannot square, and subnormal values.
+
+    Works over blocks of rows (no full temporary). ``name`` starts the
+    message (a file, or "W"); ``base`` numbers rows and columns from 1 (as
+    a spreadsheet) or 0 (as numpy).
+    """
+    rows = max(1, (1 << 22) // max(W.shape[1], 1))
+    stats = merge_range_stats(range_stats(W[s:s + rows], s)
+                              for s in range(0, W.shape[0], rows))
+    exc = range_error(name, stats, what, base, dtype)
+    if exc is not None:
+        raise exc
+
+
+
+
+# --- memory -------------------------------------------------------------------
+
+def _meminfo_available():
+    try:
+        with open("/proc/meminfo") as fh:
+            for line in fh:
+                if line.startswith("MemAvailable:"):
+                    return int(line.split()[1]) * 1024
+    except (OSError, ValueError, IndexError):
+        pass
+    return 0
+
+
+def _vm_size():
+    """This process's virtual size in bytes (what RLIMIT_AS counts)."""
+    try:
+        with open("/proc/self/status") as fh:
+            for line in fh:
+                if line.startswith("VmSize:"):
+                    return int(line.split()[1]) * 1024
+    except (OSError, ValueError, IndexError):
+        pass
+    return 0
+
+
+def _physical_memory():
+    try:
+        import os
+
+        return os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
+    except (ValueError, OSError, AttributeError):
+        return 0
+
+
+def available_memory():
+    """Bytes this process may still allocate: the smaller of the machine's
+    available memory (MemAvailable) and what its own limits leave
+    (RLIMIT_AS less the current virtual size, RLIMIT_DATA); 0 if unknown.
+    """
+    have = [_meminfo_available() or _physical_memory()]
+    try:
+        import resource
+
+        for lim, used in ((resource.RLIMIT_AS, _vm_size()),
+                          (resource.RLIMIT_DATA, 0)):
+            soft, _ = resource.getrlimit(lim)
+            if soft != resource.RLIM_INFINITY:
+                have.append(max(int(soft) - used, 0))
+    except (ImportError, ValueError, OSError):
+        pass
+    known = [h for h in have if h]
+    return min(known) if known else 0
+
+
+def check_fits(need, what, *, max_bytes=None, advice=""):
+    """Refuse, before anything is allocated, ``need`` bytes for ``what``.
+
+    The limit is ``max_bytes`` when given, else :func:`available_memory`.
+    The message gives both figures and ``advice`` (a leading "; ...").
+
+    >>> check_fits(10, "a tiny array")   # fits: returns None
+    >>> try:
+    ...     check_fits(2**40, "a huge array", max_bytes=2**30)
+    ... except InputError as exc:
+    ...     print(str(exc).replace(", ", ",\\n"))
+    a huge array needs about 1024.0 GiB,
+    more than the 1.0 GiB this process may use
+    """
+    limit = available_memory() if max_bytes is None else max_bytes
+    if limit and need > limit:
+        raise InputError(f"{what} needs about {need / 2**30:.1f} GiB, more than "
+                         f"the {limit / 2**30:.1f} GiB this process may use"
+                         f"{advice}")

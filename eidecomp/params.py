@@ -1,0 +1,187 @@
+"""The defaults and value objects every layer shares: one owner for each.
+
+The library, the pipeline, the command line, the bundles and the report all
+read their defaults here, and a value given by the user is resolved once
+into one of these objects, which is then passed down:
+
+- :func:`default_lam`, :func:`resolve_tol`, :data:`MAX_ITER`,
+  :func:`resolve_dtype` and :class:`SolverSettings`: the robust PCA
+  settings of every engine (dense, kernel, dask);
+- :class:`EIRatio`: the E:I ratio, parsed once, stored and shown in one form;
+- :data:`TAU_E_MS`, :data:`TAU_I_MS`: the time constants of exports and
+  simulations.
+
+Imports nothing of eidecomp but its errors, so every layer may import it.
+"""
+
+import math
+import re
+from dataclasses import dataclass
+
+import numpy as np
+
+from .errors import InputError
+
+__all__ = [
+    "DEFAULT_EI_RATIO",
+    "DTYPES",
+    "MAX_ITER",
+    "TAU_E_MS",
+    "TAU_I_MS",
+    "TOL",
+    "EIRatio",
+    "SolverSettings",
+    "check_lam",
+    "default_lam",
+    "resolve_dtype",
+    "resolve_tol",
+]
+
+# --- robust PCA ------------------------------------------------------------------
+
+DTYPES = {"float64": np.float64, "float32": np.float32}
+TOL = {"float64": 1e-8, "float32": 1e-6}
+"""Default tolerance on the ALM's relative primal and dual residuals, by
+working dtype: float32 residuals bottom out near 1e-7."""
+MAX_ITER = 5000
+"""ALM iteration limit: planted problems stop in ~30, degenerate ones need
+more."""
+
+
+def default_lam(shape):
+    """lam = 1 / sqrt(max(m, n)) (Candes, Li, Ma, Wright 2011, Theorem 1.1).
+
+    >>> default_lam((100, 400))
+    0.05
+    """
+    return 1.0 / math.sqrt(max(shape))
+
+
+def check_lam(lam):
+    """``lam`` as a positive finite float, or InputError."""
+    try:
+        lam = float(lam)
+    except (TypeError, ValueError):
+        raise InputError(f"lam must be a positive number, got {lam!r}") from None
+    if not (math.isfinite(lam) and lam > 0):
+        raise InputError(f"lam must be a positive finite number, got {lam!r}")
+    return lam
+
+
+def resolve_dtype(dtype):
+    """The numpy scalar type of a working dtype name (float64 or float32)."""
+    try:
+        name = dtype if isinstance(dtype, str) else np.dtype(dtype).name
+    except TypeError:
+        name = repr(dtype)
+    if name not in DTYPES:
+        raise InputError(f"dtype must be float64 or float32, got {dtype!r}")
+    return DTYPES[name]
+
+
+def resolve_tol(tol, dtype="float64"):
+    """``tol``, or the default of the working dtype when it is None."""
+    if tol is None:
+        return TOL[np.dtype(resolve_dtype(dtype)).name]
+    try:
+        tol = float(tol)
+    except (TypeError, ValueError):
+        raise InputError(f"tol must be a positive number, got {tol!r}") from None
+    if not (math.isfinite(tol) and tol > 0):
+        raise InputError(f"tol must be positive, got {tol!r}")
+    return tol
+
+
+@dataclass(frozen=True)
+class SolverSettings:
+    """lam, tol, max_iter and dtype resolved once, for one matrix shape.
+
+    >>> s = SolverSettings.resolve((400, 400))
+    >>> s.lam, s.tol, s.max_iter, s.dtype
+    (0.05, 1e-08, 5000, 'float64')
+    >>> SolverSettings.resolve((400, 400), dtype="float32").tol
+    1e-06
+    """
+
+    lam: float
+    tol: float
+    max_iter: int
+    dtype: str
+    lam_is_default: bool = True
+
+    @classmethod
+    def resolve(cls, shape, *, lam=None, tol=None, max_iter=None,
+                dtype="float64"):
+        name = np.dtype(resolve_dtype(dtype)).name
+        if max_iter is not None and not (
+                isinstance(max_iter, (int, np.integer))
+                and not isinstance(max_iter, bool) and max_iter >= 1):
+            raise InputError(f"max_iter must be a positive integer, got "
+                             f"{max_iter!r}")
+        return cls(lam=default_lam(shape) if lam is None else check_lam(lam),
+                   tol=resolve_tol(tol, name),
+                   max_iter=MAX_ITER if max_iter is None else int(max_iter),
+                   dtype=name, lam_is_default=lam is None)
+
+
+# --- the E:I ratio ------------------------------------------------------------
+
+_RATIO = re.compile(r"^\s*([0-9.eE+-]+)\s*(?::\s*([0-9.eE+-]+)\s*)?$")
+DEFAULT_EI_RATIO = "4:1"  # about four to one in cortex (common practice)
+
+
+@dataclass(frozen=True)
+class EIRatio:
+    """An E:I ratio: excitatory units per interneuron, with the text it came
+    from.
+
+    ``text`` is the one stored form (circuit.json keeps it); ``value`` is
+    E / I; ``str()`` is the one shown form.
+
+    >>> r = EIRatio.parse("9:2")
+    >>> r.text, r.value, str(r)
+    ('9:2', 4.5, '9:2 (4.5 E per interneuron)')
+    >>> EIRatio.parse(4).text
+    '4:1'
+    """
+
+    text: str
+    value: float
+
+    @classmethod
+    def parse(cls, spec):
+        """From ``"4:1"``, ``"4"``, a number or an EIRatio."""
+        if isinstance(spec, EIRatio):
+            return spec
+        if isinstance(spec, (int, float, np.integer, np.floating)) \
+                and not isinstance(spec, bool):
+            value = float(spec)
+            text = f"{value:g}:1"
+        else:
+            m = _RATIO.match(str(spec))
+            try:
+                e = float(m.group(1))
+                i = float(m.group(2)) if m.group(2) is not None else 1.0
+            except (AttributeError, ValueError):
+                raise InputError(f"E:I ratio {spec!r} is not a ratio like 4:1 "
+                                 "or a number") from None
+            if not i > 0:
+                raise InputError(f"E:I ratio {spec!r}: the inhibitory side "
+                                 "must be positive")
+            value = e / i
+            text = f"{e:g}:{i:g}"
+        if not math.isfinite(value) or value <= 0:
+            raise InputError(f"E:I ratio {spec!r} must be positive and finite")
+        return cls(text=text, value=value)
+
+    def __str__(self):
+        return f"{self.text} ({self.value:g} E per interneuron)"
+
+
+# --- time constants -------------------------------------------------------------
+
+TAU_E_MS = 10.0
+"""Time constant of the excitatory units, ms (common practice)."""
+TAU_I_MS = 5.0
+"""Time constant of the interneurons, ms: faster than E cells (common
+practice)."""
