@@ -4,40 +4,40 @@ pre -> post edges.
 Two levels:
 
 * :func:`neuron_graph`: a node per unit (attributes ``population``, ``kind``,
-  ``sign``, ``index`` within its population, and ``feature``, ``x``, ``y``
-  where a unit table gave them), an edge pre -> post per nonzero weight with
-  its nonnegative ``weight`` and its ``synapse`` kind (``"excitatory"`` or
-  ``"inhibitory"``, the presynaptic population's sign);
+  ``sign``, ``index`` within its population, and ``feature``, ``x``, ``y``,
+  ``unit_id`` where a unit table gave them), an edge pre -> post per nonzero
+  weight with its nonnegative ``weight`` and its ``synapse`` kind
+  (``"excitatory"`` or ``"inhibitory"``, the presynaptic population's sign);
 * :func:`population_graph`: a node per population (``kind``, ``size``), an
   edge per connected pair with ``count``, connection ``probability``
   (count / (n_pre n_post)) and ``mean_weight`` over the existing synapses.
 
-:func:`circuit_from_graph` inverts :func:`neuron_graph`.
+Populations and blocks are those of :data:`eidecomp.types.POPULATION_NAMES`
+and :data:`eidecomp.types.BLOCKS`. :func:`circuit_from_graph` inverts
+:func:`neuron_graph`.
 """
 
 import networkx as nx
 import numpy as np
 
-from .types import EXCITATORY, TUNED, UNTUNED, Circuit
+from .types import BLOCKS, EXCITATORY, POPULATION_NAMES, TUNED, UNTUNED, Circuit
 
-__all__ = ["circuit_from_graph", "neuron_graph", "population_graph"]
+__all__ = ["circuit_from_graph", "neuron_graph", "node_name", "population_graph",
+           "synapse_kind"]
 
 _PREFIX = {EXCITATORY: "E", UNTUNED: "U", TUNED: "T"}
-_POP = {EXCITATORY: "E", UNTUNED: "I_untuned", TUNED: "I_tuned"}
-# (post kind, pre kind, block name)
-_BLOCKS = ((EXCITATORY, EXCITATORY, "J_EE"), (EXCITATORY, UNTUNED, "J_EU"),
-           (UNTUNED, EXCITATORY, "J_UE"), (EXCITATORY, TUNED, "J_ET"),
-           (TUNED, EXCITATORY, "J_TE"))
-
-
-def _sizes(circuit):
-    return {EXCITATORY: circuit.n_excitatory, UNTUNED: circuit.n_untuned,
-            TUNED: circuit.n_tuned}
+"""Node names: this prefix and the unit's index within its population."""
 
 
 def node_name(kind, index):
     """``E0``, ``U3``, ``T12``: the node name of a unit."""
     return f"{_PREFIX[kind]}{index}"
+
+
+def synapse_kind(block):
+    """``"excitatory"`` or ``"inhibitory"``: the sign of the block's
+    presynaptic population (Dale's law)."""
+    return "excitatory" if block.sign > 0 else "inhibitory"
 
 
 def neuron_graph(circuit, *, features=None, x=None, y=None, unit_ids=None):
@@ -61,23 +61,23 @@ def neuron_graph(circuit, *, features=None, x=None, y=None, unit_ids=None):
     G = nx.DiGraph(convention="edges run pre -> post; weights are "
                    "nonnegative, the sign is the synapse kind")
     extras = {"feature": features, "x": x, "y": y}
-    for kind, n in _sizes(circuit).items():
-        for i in range(n):
-            attrs = {"population": _POP[kind], "kind": kind,
-                     "sign": 1 if kind == EXCITATORY else -1, "index": i}
-            if kind == EXCITATORY:
+    for pop in circuit.populations:
+        for i in range(pop.size):
+            attrs = {"population": pop.name, "kind": pop.kind,
+                     "sign": pop.sign, "index": i}
+            if pop.kind == EXCITATORY:
                 for key, values in extras.items():
                     if values is not None:
                         attrs[key] = float(values[i])
                 if unit_ids is not None:
                     attrs["unit_id"] = str(unit_ids[i])
-            G.add_node(node_name(kind, i), **attrs)
-    for post_kind, pre_kind, block in _BLOCKS:
-        J = getattr(circuit, block)
-        synapse = "excitatory" if pre_kind == EXCITATORY else "inhibitory"
+            G.add_node(node_name(pop.kind, i), **attrs)
+    for b in BLOCKS:
+        J = getattr(circuit, b.name)
+        synapse = synapse_kind(b)
         posts, pres = np.nonzero(J)
         G.add_edges_from(
-            (node_name(pre_kind, int(j)), node_name(post_kind, int(i)),
+            (node_name(b.pre, int(j)), node_name(b.post, int(i)),
              {"weight": float(J[i, j]), "synapse": synapse})
             for i, j in zip(posts, pres, strict=True))
     return G
@@ -86,30 +86,26 @@ def neuron_graph(circuit, *, features=None, x=None, y=None, unit_ids=None):
 def population_graph(circuit):
     """The population-level graph: counts, connection probability, mean weight."""
     G = nx.DiGraph()
-    sizes = _sizes(circuit)
-    for kind, n in sizes.items():
-        G.add_node(_POP[kind], kind=kind, size=n)
-    for post_kind, pre_kind, block in _BLOCKS:
-        J = getattr(circuit, block)
+    for pop in circuit.populations:
+        G.add_node(pop.name, kind=pop.kind, size=pop.size)
+    for b in BLOCKS:
+        J = getattr(circuit, b.name)
         count = int(np.count_nonzero(J))
         if count == 0:
             continue
-        G.add_edge(_POP[pre_kind], _POP[post_kind], count=count,
+        G.add_edge(b.pre_name, b.post_name, count=count,
                    probability=count / J.size,
-                   mean_weight=float(J[J != 0].mean()),
-                   synapse="excitatory" if pre_kind == EXCITATORY
-                   else "inhibitory")
+                   mean_weight=float(J[J != 0].mean()), synapse=synapse_kind(b))
     return G
 
 
 def circuit_from_graph(G):
     """Rebuild the Circuit's blocks from a :func:`neuron_graph`."""
-    sizes = {k: 0 for k in _PREFIX}
+    sizes = dict.fromkeys(POPULATION_NAMES, 0)
     for _, attrs in G.nodes(data=True):
         sizes[attrs["kind"]] = max(sizes[attrs["kind"]], int(attrs["index"]) + 1)
-    blocks = {block: np.zeros((sizes[post], sizes[pre]))
-              for post, pre, block in _BLOCKS}
-    which = {(pre, post): block for post, pre, block in _BLOCKS}
+    blocks = {b.name: np.zeros((sizes[b.post], sizes[b.pre])) for b in BLOCKS}
+    which = {(b.pre, b.post): b.name for b in BLOCKS}
     for u, v, attrs in G.edges(data=True):
         pu, pv = G.nodes[u], G.nodes[v]
         block = which[(pu["kind"], pv["kind"])]

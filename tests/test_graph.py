@@ -9,6 +9,7 @@ import csv
 import networkx as nx
 import numpy as np
 import pytest
+from conftest import require
 
 from eidecomp import assemble
 from eidecomp.datasets import make_planted_circuit
@@ -104,3 +105,229 @@ def test_export_command(tmp_path, capsys):
     assert main(["export", str(tmp_path / "nope"), "--format", "csv", "-o",
                  str(tmp_path / "e.csv")]) == 2
     assert not (tmp_path / "e.csv").exists()
+
+
+# --- the export registry -------------------------------------------------------
+
+@pytest.fixture(scope="module")
+def small():
+    """A 20-unit circuit (1 untuned, 4 tuned interneurons)."""
+    W, _, features = make_planted_circuit(20, n_untuned=1, n_tuned=4, pool=3,
+                                          seed=0)
+    return assemble(W, baselines=False), features
+
+
+def test_graph_reads_the_population_and_block_tables(small):
+    """Population names and blocks come from eidecomp.types (one table);
+    checked against networkx's own view of the graph."""
+    from eidecomp.types import BLOCKS, POPULATION_NAMES
+
+    c, _ = small
+    P = population_graph(c)
+    assert tuple(P.nodes) == tuple(POPULATION_NAMES.values())
+    for b in BLOCKS:
+        J = getattr(c, b.name)
+        if np.count_nonzero(J):
+            assert P.edges[b.pre_name, b.post_name]["count"] == np.count_nonzero(J)
+    G = neuron_graph(c)
+    by_pop = {}
+    for _, a in G.nodes(data=True):
+        by_pop[a["population"]] = by_pop.get(a["population"], 0) + 1
+    assert by_pop == {p.name: p.size for p in c.populations if p.size}
+
+
+def test_registry_lists_every_format_once():
+    from eidecomp.export import FILE_FORMATS, FOLDER_FORMATS, FORMATS, REGISTRY
+
+    assert FORMATS == tuple(f.name for f in REGISTRY)
+    assert len(set(FORMATS)) == len(FORMATS)
+    assert set(FILE_FORMATS) | set(FOLDER_FORMATS) == set(FORMATS)
+    assert not set(FILE_FORMATS) & set(FOLDER_FORMATS)
+    for f in REGISTRY:
+        assert f.help and "\n" not in f.help
+
+
+def _read_back(fmt, data):
+    """Each format's own reader: networkx (GraphML, node-link JSON), Python's
+    csv module, libNeuroML, numpy's npz reader; returns the blocks."""
+    import io
+    import json
+
+    from eidecomp.graph import circuit_from_graph
+
+    if fmt == "graphml":
+        return circuit_from_graph(nx.read_graphml(io.BytesIO(data)))
+    if fmt == "json":
+        return circuit_from_graph(nx.node_link_graph(json.loads(data),
+                                                     edges="edges"))
+    return None
+
+
+@pytest.mark.parametrize("fmt", ["graphml", "json", "csv", "neuroml", "pynn",
+                                 "nest", "brian2"])
+def test_every_registry_entry_renders(small, fmt, tmp_path):
+    """Every format renders a small circuit without writing anything, and its
+    output is read by the format's own reader (networkx, csv, libNeuroML,
+    numpy's npz reader, Python's compile for scripts)."""
+    import io
+
+    from eidecomp.export import get_format, render
+
+    c, features = small
+    spec = get_format(fmt)
+    if spec.requires:
+        require(spec.requires)
+    before = sorted(tmp_path.iterdir())
+    data = render(fmt, c, features=features, unit_ids=[f"u{i}" for i in range(20)])
+    assert sorted(tmp_path.iterdir()) == before
+    if spec.folder:
+        assert isinstance(data, dict)
+        scripts = [n for n in data if n.endswith(".py")]
+        assert len(scripts) == 1
+        compile(data[scripts[0]], scripts[0], "exec")
+        (npz,) = [n for n in data if n.endswith(".npz")]
+        with np.load(io.BytesIO(data[npz]), allow_pickle=False) as z:
+            assert z["unit_ids"].tolist() == [f"u{i}" for i in range(20)]
+        return
+    assert isinstance(data, bytes)
+    back = _read_back(fmt, data)
+    if back is not None:
+        _blocks_equal(back, c)
+    elif fmt == "csv":
+        rows = list(csv.DictReader(io.StringIO(data.decode("utf-8"), newline="")))
+        assert len(rows) == sum(np.count_nonzero(getattr(c, b)) for b in
+                                ("J_EE", "J_EU", "J_UE", "J_ET", "J_TE"))
+    else:
+        from eidecomp.export.neuroml2 import read_blocks
+
+        (tmp_path / "c.net.nml").write_bytes(data)
+        for name, J in read_blocks(tmp_path / "c.net.nml").items():
+            np.testing.assert_array_equal(J, getattr(c, name))
+
+
+@pytest.mark.parametrize("name", ["x", "GraphML", "", " json", "neuroml2", None])
+def test_unknown_format_is_refused(small, name):
+    from eidecomp.errors import InputError
+    from eidecomp.export import FORMATS, get_format, render
+
+    msg = (f"unknown export format {name!r} (choose from "
+           f"{', '.join(FORMATS)})")
+    with pytest.raises(InputError) as exc:
+        get_format(name)
+    assert str(exc.value) == msg
+    with pytest.raises(InputError):
+        render(name, small[0])
+
+
+def test_missing_optional_module_is_one_line(small, monkeypatch):
+    """The import check is importlib.util.find_spec (Python's own)."""
+    import importlib.util
+
+    from eidecomp.errors import InputError
+    from eidecomp.export import render
+
+    real = importlib.util.find_spec
+    monkeypatch.setattr(importlib.util, "find_spec",
+                        lambda name, *a: None if name == "neuroml"
+                        else real(name, *a))
+    with pytest.raises(InputError) as exc:
+        render("neuroml", small[0])
+    assert str(exc.value) == ("neuroml is not installed; it comes with the "
+                              "simulator extra: pip install 'eidecomp[sim]'")
+    assert isinstance(render("graphml", small[0]), bytes)  # needs nothing
+
+
+def test_positions_become_node_attributes(small):
+    """x, y from the bundle's positions, read back by networkx's GraphML
+    reader; a wrong shape is refused."""
+    import io
+
+    from eidecomp.errors import InputError
+    from eidecomp.export import render
+
+    c, features = small
+    pos = np.column_stack([np.arange(20) * 0.1, np.arange(20) / 3.0])
+    G = nx.read_graphml(io.BytesIO(render("graphml", c, features=features,
+                                          positions=pos)))
+    assert [G.nodes[f"E{i}"]["y"] for i in range(20)] == pos[:, 1].tolist()
+    assert [G.nodes[f"E{i}"]["feature"] for i in range(20)] == features.tolist()
+    with pytest.raises(InputError, match="positions have shape"):
+        render("graphml", c, positions=pos[:5])
+    with pytest.raises(InputError, match="unit ids for a circuit of 20"):
+        render("json", c, unit_ids=["a", "b"])
+
+
+# --- CSV injection (OWASP "CSV Injection") -------------------------------------
+
+_TRIGGERS = ["=", "+", "-", "@", "\t", "\r"]
+
+
+def _csv_rows(data):
+    import io
+
+    return list(csv.DictReader(io.StringIO(data.decode("utf-8"), newline="")))
+
+
+@pytest.mark.parametrize("first", _TRIGGERS)
+def test_csv_cells_that_start_a_formula_are_quoted(small, first):
+    """OWASP CSV Injection guidance: a text cell beginning with = + - @ tab or
+    CR is written with a leading single quote, inside double quotes; read
+    back with Python's csv module."""
+    from eidecomp.export import render
+    from eidecomp.export.edges_csv import restore_cell
+
+    c, _ = small
+    name = first + 'cmd|"/c calc"!A1'
+    ids = [name] + [f"u{i}" for i in range(1, 20)]
+    data = render("csv", c, unit_ids=ids)
+    rows = [r for r in _csv_rows(data) if r["pre"] == "E0"]
+    assert rows
+    for r in rows:
+        assert r["pre_unit_id"] == "'" + name
+        assert restore_cell(r["pre_unit_id"]) == name
+    # in the file itself the cell opens with a double quote, then the quote
+    assert ('"\'' + first) in data.decode("utf-8")
+    raw = [r for r in _csv_rows(render("csv", c, unit_ids=ids, raw_csv=True))
+           if r["pre"] == "E0"]
+    assert {r["pre_unit_id"] for r in raw} == {name}
+
+
+@pytest.mark.parametrize("name", ["a=b", " =1", "u1", "'quoted", "''", "x-y"])
+def test_csv_safe_cells_and_the_quote_rule(small, name):
+    """Only a leading trigger (or a leading single quote, so the rule can be
+    undone) is prefixed; the csv module reads the cell back."""
+    from eidecomp.export import render
+    from eidecomp.export.edges_csv import restore_cell
+
+    c, _ = small
+    ids = [name] + [f"u{i}" for i in range(1, 20)]
+    cells = {r["pre_unit_id"] for r in _csv_rows(render("csv", c, unit_ids=ids))
+             if r["pre"] == "E0"}
+    assert cells == {"'" + name if name.startswith("'") else name}
+    assert {restore_cell(x) for x in cells} == {name}
+
+
+def test_csv_weights_are_bare_exact_numbers(small):
+    """The weight column is never quoted or prefixed: Python's csv module
+    reads every other cell of a row as quoted text, the weight as a number
+    (QUOTE_NONNUMERIC), and float() gives the weight bit for bit."""
+    import io
+
+    from eidecomp.export import render
+    from eidecomp.graph import neuron_graph
+
+    c, _ = small
+    data = render("csv", c, unit_ids=["-" + str(i) for i in range(20)])
+    reader = csv.reader(io.StringIO(data.decode("utf-8"), newline=""),
+                        quoting=csv.QUOTE_NONNUMERIC)
+    header = next(reader)
+    G = neuron_graph(c)
+    n = 0
+    for row in reader:
+        w = row[header.index("weight")]
+        assert isinstance(w, float)
+        assert w == G.edges[row[0], row[1]]["weight"]
+        assert all(isinstance(x, str) for k, x in enumerate(row)
+                   if header[k] != "weight")
+        n += 1
+    assert n == G.number_of_edges()

@@ -181,16 +181,129 @@ def test_export_command_simulator_formats(bundle, tmp_path, fmt):
 
 def test_unstable_choice_is_refused(tmp_path, capsys):
     # the inhibition-stabilised pair of test_dynamics: stable iff tau_I < tau_E
+    from eidecomp.analysis import interneuron_pools
     from eidecomp.cli import main
-    from eidecomp.io import circuit_files, write_folder
-    from eidecomp.types import Circuit
+    from eidecomp.dynamics import stability_summary
+    from eidecomp.io import bundles
+    from eidecomp.types import AssemblyReport, Circuit
 
     c = Circuit(J_EE=np.array([[2.0]]), J_EU=np.array([[1.0]]),
                 J_UE=np.array([[2.0]]), J_ET=np.zeros((1, 0)),
-                J_TE=np.zeros((0, 1)))
-    write_folder(tmp_path / "isn", circuit_files(c, {}))
+                J_TE=np.zeros((0, 1)),
+                report=AssemblyReport(relative_error=0.0, ee_density=1.0,
+                                      share_rule="written by hand"))
+    W = c.effective_weights()
+    doc = bundles.circuit_doc(c, source={"path": "by hand"}, decomposition={},
+                              stability=stability_summary(c, W),
+                              pools=interneuron_pools(c), parameters={})
+    bundles.write_circuit(tmp_path / "isn", c, doc)
     assert main(["simulate", str(tmp_path / "isn"), "--tau-i", "8"]) == 0
     capsys.readouterr()
     assert main(["simulate", str(tmp_path / "isn"), "--tau-i", "12"]) == 2
     err = capsys.readouterr().err
     assert "unstable at tau_I/tau_E = 1.2" in err and "stable up to 1" in err
+
+
+# --- one time-constant rule ------------------------------------------------------
+
+def _builders():
+    from eidecomp import pipeline
+    from eidecomp.export import (
+        REGISTRY,
+        _lists,
+        brian2_builder,
+        nest_builder,
+        neuroml2,
+        pynn_script,
+        rate_scripts,
+    )
+
+    named = {"nest_builder.build_rate": nest_builder.build_rate,
+             "brian2_builder.build_rate": brian2_builder.build_rate,
+             "rate_scripts.rate_script_files": rate_scripts.rate_script_files,
+             "pynn_script.pynn_files": pynn_script.pynn_files,
+             "neuroml2.to_document": neuroml2.to_document,
+             "_lists.tau_vector": _lists.tau_vector,
+             "_lists.population_taus": _lists.population_taus,
+             "pipeline.run_export": pipeline.run_export}
+    named.update({f"registry[{f.name}]": f.render for f in REGISTRY})
+    return named
+
+
+@pytest.mark.parametrize("name", list(_builders()))
+def test_default_time_constants_are_the_params_ones(name):
+    """Every builder's default tau_e, tau_i is eidecomp.params.TAU_E_MS /
+    TAU_I_MS (read from the signature by Python's inspect module)."""
+    import inspect
+
+    from eidecomp.params import TAU_E_MS, TAU_I_MS
+
+    sig = inspect.signature(_builders()[name])
+    assert sig.parameters["tau_e"].default == TAU_E_MS
+    assert sig.parameters["tau_i"].default == TAU_I_MS
+
+
+def test_default_time_constants_reach_the_files():
+    """The rendered data hold the defaults: numpy's npz reader for the
+    scripts' data, Python's xml.etree for the NeuroML2 cells' tau."""
+    import io
+    import xml.etree.ElementTree as ET
+
+    from eidecomp.export import render
+    from eidecomp.params import TAU_E_MS, TAU_I_MS
+    from eidecomp.types import Circuit
+
+    c = Circuit(J_EE=np.eye(2), J_EU=np.ones((2, 1)), J_UE=np.ones((1, 2)),
+                J_ET=np.ones((2, 1)), J_TE=np.ones((1, 2)))
+    with np.load(io.BytesIO(render("nest", c)["circuit_rate_data.npz"]),
+                 allow_pickle=False) as z:
+        assert z["tau_ms"].tolist() == [TAU_E_MS] * 2 + [TAU_I_MS] * 2
+    with np.load(io.BytesIO(render("pynn", c)["circuit_pynn_data.npz"]),
+                 allow_pickle=False) as z:
+        assert z["tau_ms"].tolist() == [TAU_E_MS, TAU_I_MS, TAU_I_MS]
+    require("neuroml")
+    root = ET.fromstring(render("neuroml", c))
+    taus = {el.get("id"): el.get("tau") for el in root.iter()
+            if el.tag.endswith("iafTauCell")}
+    assert taus == {"eidecomp_exc_unit": f"{TAU_E_MS!r}ms",
+                    "eidecomp_inh_unit": f"{TAU_I_MS!r}ms"}
+
+
+def test_neuroml_validates_against_the_xsd(circuit):
+    """The rendered document against the NeuroML2 XSD that libNeuroML ships,
+    by lxml's XMLSchema (the schema itself, not libNeuroML's object check)."""
+    require("neuroml")
+    import os
+
+    import lxml.etree as LET
+    import neuroml
+
+    from eidecomp.export import render
+
+    xsd = os.path.join(os.path.dirname(neuroml.__file__), "nml",
+                       f"NeuroML_{neuroml.current_neuroml_version}.xsd")
+    schema = LET.XMLSchema(LET.parse(xsd))
+    doc = LET.fromstring(render("neuroml", circuit[0],
+                                unit_ids=[f"<u{i}> & ]]>" for i in range(100)]))
+    assert schema.validate(doc), schema.error_log
+
+
+def test_pynn_data_name_the_populations(circuit):
+    """Population names and receptors are data of the npz (numpy's reader),
+    from eidecomp.types; the script is the same text for every circuit."""
+    import io
+
+    from eidecomp.export import pynn_script, render
+    from eidecomp.types import POPULATION_NAMES
+
+    files = render("pynn", circuit[0])
+    assert files["circuit_pynn.py"] == pynn_script.SCRIPT.encode()
+    for name in POPULATION_NAMES.values():  # no string literal of a name
+        assert f'"{name}"' not in pynn_script.SCRIPT
+    with np.load(io.BytesIO(files["circuit_pynn_data.npz"]),
+                 allow_pickle=False) as z:
+        assert z["populations"].tolist() == list(POPULATION_NAMES.values())
+        assert z["sizes"].tolist() == [100, 3, 22]
+        for k in range(int(z["n_projections"])):
+            assert z["proj_receptor"][k] == (
+                "excitatory" if z["proj_pre"][k] == "E" else "inhibitory")

@@ -73,7 +73,11 @@ def plot_population_graph(ax, P):
     """The population graph: node area ~ size, edge width ~ probability."""
     import networkx as nx
 
-    pos = {"E": (0.0, 0.0), "I_untuned": (-1.0, -1.0), "I_tuned": (1.0, -1.0)}
+    from ..types import EXCITATORY, POPULATION_NAMES, TUNED, UNTUNED
+
+    pos = {POPULATION_NAMES[EXCITATORY]: (0.0, 0.0),
+           POPULATION_NAMES[UNTUNED]: (-1.0, -1.0),
+           POPULATION_NAMES[TUNED]: (1.0, -1.0)}
     pos = {n: pos.get(n, (0.0, 1.0)) for n in P.nodes}
     sizes = [300 + 1500 * np.sqrt(P.nodes[n]["size"] / max(
         max(P.nodes[m]["size"] for m in P.nodes), 1)) for n in P.nodes]

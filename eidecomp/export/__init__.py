@@ -1,13 +1,20 @@
-"""Exports of a circuit, one module a format; simulators are imported only
-inside their own functions."""
+"""Exports of a circuit, one module a format, listed in
+:mod:`eidecomp.export.registry`; simulators are imported only inside their
+own functions."""
 
 from .edges_csv import write_edge_csv
 from .graph_files import read_graphml, read_json, write_graphml, write_json
+from .registry import (
+    FILE_FORMATS,
+    FOLDER_FORMATS,
+    FORMATS,
+    REGISTRY,
+    ExportFormat,
+    get_format,
+    render,
+    require_module,
+)
 
-# file formats, then folder formats (a script and its data)
-FILE_FORMATS = ("graphml", "json", "csv", "neuroml")
-FOLDER_FORMATS = ("pynn", "nest", "brian2")
-FORMATS = FILE_FORMATS + FOLDER_FORMATS
-
-__all__ = ["FILE_FORMATS", "FOLDER_FORMATS", "FORMATS", "read_graphml",
-           "read_json", "write_edge_csv", "write_graphml", "write_json"]
+__all__ = ["FILE_FORMATS", "FOLDER_FORMATS", "FORMATS", "REGISTRY",
+           "ExportFormat", "get_format", "read_graphml", "read_json", "render",
+           "require_module", "write_edge_csv", "write_graphml", "write_json"]

@@ -1,19 +1,18 @@
 """Sparse connection lists of a circuit, shared by every simulator export.
 
 All exports take their synapses from here, so that zeros never become
-connections and every simulator sees the same list.
+connections and every simulator sees the same list; the time constants of
+the units come from here too (:func:`tau_vector`), with the defaults of
+:mod:`eidecomp.params`.
 """
 
 import numpy as np
 
-__all__ = ["connection_list", "drive_vector", "npz_bytes", "population_slices"]
+from ..params import TAU_E_MS, TAU_I_MS
+from ..types import EXCITATORY
 
-
-def population_slices(circuit):
-    """{population name: slice into the E, untuned, tuned ordering}."""
-    n_e, n_u, n_t = circuit.n_excitatory, circuit.n_untuned, circuit.n_tuned
-    return {"E": slice(0, n_e), "I_untuned": slice(n_e, n_e + n_u),
-            "I_tuned": slice(n_e + n_u, n_e + n_u + n_t)}
+__all__ = ["connection_list", "drive_vector", "npz_bytes", "population_taus",
+           "tau_vector", "write_into"]
 
 
 def connection_list(circuit):
@@ -36,6 +35,27 @@ def drive_vector(circuit, h):
     return np.r_[h, np.zeros(circuit.n_inhibitory)]
 
 
+def population_taus(circuit, tau_e=TAU_E_MS, tau_i=TAU_I_MS):
+    """The time constant of each population (ms), in the order of
+    ``circuit.populations``: tau_e for the excitatory one, tau_i for the
+    interneurons."""
+    return np.array([float(tau_e) if p.kind == EXCITATORY else float(tau_i)
+                     for p in circuit.populations])
+
+
+def tau_vector(circuit, tau_e=TAU_E_MS, tau_i=TAU_I_MS):
+    """The time constant of every unit (ms), E then untuned then tuned.
+
+    >>> from eidecomp.types import Circuit
+    >>> c = Circuit(J_EE=np.eye(2), J_EU=np.ones((2, 1)), J_UE=np.ones((1, 2)),
+    ...             J_ET=np.zeros((2, 0)), J_TE=np.zeros((0, 2)))
+    >>> tau_vector(c)
+    array([10., 10.,  5.])
+    """
+    sizes = [p.size for p in circuit.populations]
+    return np.repeat(population_taus(circuit, tau_e, tau_i), sizes)
+
+
 def npz_bytes(arrays):
     """An uncompressed .npz of ``arrays`` (no object arrays), as bytes."""
     import io
@@ -43,3 +63,17 @@ def npz_bytes(arrays):
     buf = io.BytesIO()
     np.savez(buf, **arrays)
     return buf.getvalue()
+
+
+def write_into(folder, files):
+    """Write {name: bytes} into ``folder`` (created if missing), each file
+    through a temporary name renamed into place; other files are kept."""
+    from pathlib import Path
+
+    from ..io import write_file
+
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    for name, data in files.items():
+        write_file(folder / name, data, force=True)
+    return folder

@@ -9,7 +9,8 @@ whose fixed point is exactly r = W_full r + h.
 
 import numpy as np
 
-from ._lists import drive_vector
+from ..params import TAU_E_MS, TAU_I_MS
+from ._lists import drive_vector, tau_vector
 
 __all__ = ["build_rate", "build_rate_matrix", "read_weights", "run_rate",
            "run_rate_matrix"]
@@ -41,16 +42,14 @@ def build_rate_matrix(W_full, drive, tau, *, dt_ms=0.1):
     return b2.Network(G, S), G, S
 
 
-def build_rate(circuit, h, *, tau_e=10.0, tau_i=10.0, dt_ms=0.1):
+def build_rate(circuit, h, *, tau_e=TAU_E_MS, tau_i=TAU_I_MS, dt_ms=0.1):
     """The circuit's rate network; returns (network, group, synapses)."""
-    H = drive_vector(circuit, h)
-    tau = np.full(H.size, float(tau_i))
-    tau[: circuit.n_excitatory] = tau_e
-    return build_rate_matrix(circuit.signed_weights(), H, tau, dt_ms=dt_ms)
+    return build_rate_matrix(circuit.signed_weights(), drive_vector(circuit, h),
+                             tau_vector(circuit, tau_e, tau_i), dt_ms=dt_ms)
 
 
-def run_rate_matrix(W_full, drive, tau, *, t_ms=2000.0, dt_ms=0.1):
-    """Simulate any signed matrix; returns the final rates."""
+def run_rate_matrix(W_full, drive, tau, t_ms=2000.0, *, dt_ms=0.1):
+    """Simulate any signed matrix for ``t_ms``; returns the final rates."""
     import brian2 as b2
 
     net, G, _ = build_rate_matrix(W_full, drive, tau, dt_ms=dt_ms)

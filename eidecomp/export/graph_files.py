@@ -2,19 +2,67 @@
 
 Both round-trip exactly: floats are written with Python's shortest
 round-trip representation (repr), which networkx's GraphML writer uses and
-JSON keeps.
+JSON keeps. Unit names are node attributes (``unit_id``), escaped by each
+format's writer; in GraphML a carriage return is written as the character
+reference ``&#13;``, since an XML parser turns a literal CR (and CRLF) into
+LF (W3C XML 1.0, 2.11 "End-of-Line Handling"). A name XML 1.0 cannot hold is
+refused (:func:`eidecomp.export._names.unit_id_list`).
 """
 
 import json
 
 import networkx as nx
+import numpy as np
 
-__all__ = ["read_graphml", "read_json", "to_graphml_bytes", "to_json_bytes",
-           "write_graphml", "write_json"]
+from ..errors import InputError
+from ..graph import neuron_graph
+from ..params import TAU_E_MS, TAU_I_MS
+from ._names import NOT_XML_CHAR, per_unit, unit_id_list
+
+__all__ = ["graph_of", "read_graphml", "read_json", "render_graphml",
+           "render_json", "to_graphml_bytes", "to_json_bytes", "write_graphml",
+           "write_json"]
+
+
+def graph_of(circuit, *, features=None, positions=None, unit_ids=None):
+    """The :func:`eidecomp.graph.neuron_graph` of ``circuit`` with the unit
+    table's values checked: ``features`` (n_E,), ``positions`` (n_E, 2) as
+    ``x`` and ``y``, ``unit_ids`` (n_E names)."""
+    n = circuit.n_excitatory
+    x = y = None
+    if positions is not None:
+        pos = np.asarray(positions, dtype=float)
+        if pos.shape != (n, 2):
+            raise InputError(f"positions have shape {pos.shape}, expected "
+                             f"({n}, 2) (x, y of each excitatory unit)")
+        x, y = pos[:, 0], pos[:, 1]
+    return neuron_graph(circuit, features=per_unit(features, n, "features"),
+                        x=x, y=y, unit_ids=unit_id_list(unit_ids, n))
+
+
+def _check_xml_text(G):
+    for node, attrs in G.nodes(data=True):
+        for key, value in attrs.items():
+            if isinstance(value, str) and NOT_XML_CHAR.search(value):
+                bad = NOT_XML_CHAR.search(value).group()
+                raise InputError(f"node {node} {key} ({value!r}): "
+                                 f"U+{ord(bad):04X} cannot be written "
+                                 "(XML 1.0 cannot hold it)")
 
 
 def to_graphml_bytes(G):
-    return "\n".join(nx.generate_graphml(G)).encode() + b"\n"
+    """GraphML of any graph whose text attributes XML 1.0 can hold."""
+    from networkx.readwrite.graphml import GraphMLWriter
+
+    _check_xml_text(G)
+    writer = GraphMLWriter(encoding="utf-8", prettyprint=True)
+    writer.add_graph_element(G)
+    # not nx.generate_graphml: it splits the text into lines, turning a CR
+    # (and U+0085, U+2028...) of a value into a line break. The writer emits
+    # no CR of its own: every CR is from a value, written as a reference so
+    # that a parser does not read it as LF.
+    text = str(writer).replace("\r", "&#13;")
+    return (text if text.endswith("\n") else text + "\n").encode("utf-8")
 
 
 def to_json_bytes(G):
@@ -22,14 +70,32 @@ def to_json_bytes(G):
     return (json.dumps(data, indent=1, sort_keys=True) + "\n").encode()
 
 
+def render_graphml(circuit, *, features=None, positions=None, unit_ids=None,
+                   tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False):
+    """The GraphML file of the circuit's neuron graph, as bytes (the time
+    constants and ``raw_csv`` do not apply)."""
+    return to_graphml_bytes(graph_of(circuit, features=features,
+                                     positions=positions, unit_ids=unit_ids))
+
+
+def render_json(circuit, *, features=None, positions=None, unit_ids=None,
+                tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False):
+    """The node-link JSON file of the circuit's neuron graph, as bytes (the
+    time constants and ``raw_csv`` do not apply)."""
+    return to_json_bytes(graph_of(circuit, features=features,
+                                  positions=positions, unit_ids=unit_ids))
+
+
 def write_graphml(G, path):
-    with open(path, "wb") as fh:
-        fh.write(to_graphml_bytes(G))
+    from ..io import write_file
+
+    return write_file(path, to_graphml_bytes(G), force=True)
 
 
 def write_json(G, path):
-    with open(path, "wb") as fh:
-        fh.write(to_json_bytes(G))
+    from ..io import write_file
+
+    return write_file(path, to_json_bytes(G), force=True)
 
 
 def read_graphml(path):
@@ -39,3 +105,4 @@ def read_graphml(path):
 def read_json(path):
     with open(path, encoding="utf-8") as fh:
         return nx.node_link_graph(json.load(fh), edges="edges")
+

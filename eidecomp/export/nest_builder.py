@@ -18,7 +18,8 @@ import os
 
 import numpy as np
 
-from ._lists import connection_list, drive_vector, population_slices
+from ..params import TAU_E_MS, TAU_I_MS
+from ._lists import connection_list, drive_vector, tau_vector
 
 __all__ = ["build_rate", "build_rate_matrix", "build_spiking", "read_weights",
            "run_rate", "run_rate_matrix"]
@@ -52,17 +53,15 @@ def build_rate_matrix(W_full, drive, tau, *, resolution=0.1):
     return nodes
 
 
-def build_rate(circuit, h, *, tau_e=10.0, tau_i=10.0, resolution=0.1):
+def build_rate(circuit, h, *, tau_e=TAU_E_MS, tau_i=TAU_I_MS, resolution=0.1):
     """Create the circuit's rate network in a fresh NEST kernel."""
-    H = drive_vector(circuit, h)
-    tau = np.full(H.size, float(tau_i))
-    tau[: circuit.n_excitatory] = tau_e
-    return build_rate_matrix(circuit.signed_weights(), H, tau,
+    return build_rate_matrix(circuit.signed_weights(), drive_vector(circuit, h),
+                             tau_vector(circuit, tau_e, tau_i),
                              resolution=resolution)
 
 
-def run_rate_matrix(W_full, drive, tau, *, t_ms=2000.0, resolution=0.1):
-    """Simulate any signed matrix; returns the final rates."""
+def run_rate_matrix(W_full, drive, tau, t_ms=2000.0, *, resolution=0.1):
+    """Simulate any signed matrix for ``t_ms``; returns the final rates."""
     import nest
 
     nodes = build_rate_matrix(W_full, drive, tau, resolution=resolution)
@@ -115,5 +114,5 @@ def build_spiking(circuit, h, *, pA_per_weight=20.0, pA_per_drive=200.0,
                      syn_spec={"synapse_model": "static_synapse",
                                "weight": pA_per_weight * w,
                                "delay": np.full(len(w), float(delay_ms))})
-    return {name: nodes[s] for name, s in population_slices(circuit).items()
+    return {name: nodes[s] for name, s in circuit.slices().items()
             if s.stop > s.start}

@@ -1,32 +1,60 @@
 """NeuroML2 through libNeuroML (imported only inside these functions).
 
-The document holds one cell type per population kind (``iafTauCell``
+The document holds one cell type per synapse sign (``iafTauCell``
 placeholders whose tau is the population's time constant: NeuroML2 has no
-core rate unit, and the network structure is what this file carries), the
-populations E, I_untuned and I_tuned, and one ``continuousProjection`` per
-nonzero block, with a ``continuousConnectionInstanceW`` per synapse: the
-pre component is a ``silentSynapse``, the post component ``exc_syn`` or
-``inh_syn`` (the synapse kind, Dale's law), and the weight the block's
-nonnegative magnitude.
+core rate unit, and the network structure is what this file carries), one
+population per entry of :data:`eidecomp.types.POPULATION_NAMES` (E,
+I_untuned, I_tuned; empty ones left out), and one ``continuousProjection``
+per nonzero block of :data:`eidecomp.types.BLOCKS`, with a
+``continuousConnectionInstanceW`` per synapse: the pre component is a
+``silentSynapse``, the post component ``exc_syn`` or ``inh_syn`` (the
+synapse kind, Dale's law), and the weight the block's nonnegative magnitude.
 
 libNeuroML writes floats as fixed point with 15 decimals ("%.15f"), which
 loses digits of small weights; the connections here are written with
 Python's shortest round-trip form (repr) instead, so reading the file back
 gives the weights bit for bit.
+
+Unit names go into the notes of the excitatory population as a JSON object
+``{"unit_ids": [...]}`` whose text holds no markup character and no raw
+control character: JSON escapes quotes, backslashes and every control
+character (CR, LF and tab included: an XML parser would turn a raw CR into
+LF), and ``<``, ``>`` and ``&`` are written as the JSON escapes ``\\u003c``,
+``\\u003e``, ``\\u0026``. libNeuroML's writer keeps ``<![CDATA[...]]>``
+sections of a text unescaped, so a name holding one would otherwise come
+back changed; here ``json.loads`` of the notes gives every name exactly.
 """
 
 import json
 
 import numpy as np
 
-__all__ = ["read_blocks", "to_document", "write_neuroml"]
+from ..params import TAU_E_MS, TAU_I_MS
+from ..types import BLOCKS, EXCITATORY, POPULATION_NAMES
+from ._names import unit_id_list
 
-# projection id: (post population, pre population, block)
-_PROJECTIONS = (("E", "E", "J_EE"), ("E", "I_untuned", "J_EU"),
-                ("I_untuned", "E", "J_UE"), ("E", "I_tuned", "J_ET"),
-                ("I_tuned", "E", "J_TE"))
-_CELL = {"E": "eidecomp_exc_unit", "I_untuned": "eidecomp_inh_unit",
-         "I_tuned": "eidecomp_inh_unit"}
+__all__ = ["notes_unit_ids", "read_blocks", "render_neuroml", "to_document",
+           "unit_ids_notes", "write_neuroml"]
+
+_EXC_CELL, _INH_CELL = "eidecomp_exc_unit", "eidecomp_inh_unit"
+_MARKUP = str.maketrans({"<": "\\u003c", ">": "\\u003e", "&": "\\u0026"})
+
+
+def unit_ids_notes(unit_ids):
+    """The notes text of the excitatory population: ASCII JSON, no markup.
+
+    >>> unit_ids_notes(["<![CDATA[x]]>", "a\\r\\nb"])
+    '{"unit_ids": ["\\\\u003c![CDATA[x]]\\\\u003e", "a\\\\r\\\\nb"]}'
+    >>> notes_unit_ids(unit_ids_notes(["<![CDATA[x]]>"]))
+    ['<![CDATA[x]]>']
+    """
+    return json.dumps({"unit_ids": list(unit_ids)}, ensure_ascii=True) \
+        .translate(_MARKUP)
+
+
+def notes_unit_ids(notes):
+    """The unit ids held by :func:`unit_ids_notes` text."""
+    return json.loads(notes)["unit_ids"]
 
 
 def _exact_connection_class():
@@ -39,24 +67,23 @@ def _exact_connection_class():
     return ExactConnection
 
 
-def to_document(circuit, *, tau_e=10.0, tau_i=10.0, name="eidecomp_circuit",
-                unit_ids=None):
-    """A neuroml.NeuroMLDocument of the circuit.
+def _cell(kind):
+    return _EXC_CELL if kind == EXCITATORY else _INH_CELL
 
-    ``unit_ids`` (the unit table's names) go into the notes of population E
-    as a JSON object ``{"unit_ids": [...]}``: text content, escaped by the
-    XML writer, so newlines and quotes survive and nothing is markup.
-    """
+
+def to_document(circuit, *, tau_e=TAU_E_MS, tau_i=TAU_I_MS,
+                name="eidecomp_circuit", unit_ids=None):
+    """A neuroml.NeuroMLDocument of the circuit (``unit_ids``: see the
+    module's docstring)."""
     import neuroml
 
+    ids = unit_id_list(unit_ids, circuit.n_excitatory)
     Conn = _exact_connection_class()
     doc = neuroml.NeuroMLDocument(id=name)
-    doc.iaf_tau_cells.append(neuroml.IafTauCell(
-        id="eidecomp_exc_unit", leak_reversal="-65mV", thresh="-50mV",
-        reset="-65mV", tau=f"{float(tau_e)!r}ms"))
-    doc.iaf_tau_cells.append(neuroml.IafTauCell(
-        id="eidecomp_inh_unit", leak_reversal="-65mV", thresh="-50mV",
-        reset="-65mV", tau=f"{float(tau_i)!r}ms"))
+    for cell, tau in ((_EXC_CELL, tau_e), (_INH_CELL, tau_i)):
+        doc.iaf_tau_cells.append(neuroml.IafTauCell(
+            id=cell, leak_reversal="-65mV", thresh="-50mV", reset="-65mV",
+            tau=f"{float(tau)!r}ms"))
     doc.silent_synapses.append(neuroml.SilentSynapse(id="silent"))
     doc.linear_graded_synapses.append(
         neuroml.LinearGradedSynapse(id="exc_syn", conductance="1nS"))
@@ -64,24 +91,23 @@ def to_document(circuit, *, tau_e=10.0, tau_i=10.0, name="eidecomp_circuit",
         neuroml.LinearGradedSynapse(id="inh_syn", conductance="1nS"))
     net = neuroml.Network(id="network")
     doc.networks.append(net)
-    sizes = {"E": circuit.n_excitatory, "I_untuned": circuit.n_untuned,
-             "I_tuned": circuit.n_tuned}
-    for pop, size in sizes.items():
-        if size:
-            population = neuroml.Population(id=pop, component=_CELL[pop],
-                                            size=size)
-            if pop == "E" and unit_ids is not None:
-                population.notes = json.dumps({"unit_ids": list(unit_ids)})
+    for pop in circuit.populations:
+        if pop.size:
+            population = neuroml.Population(id=pop.name, component=_cell(pop.kind),
+                                            size=pop.size)
+            if pop.kind == EXCITATORY and ids is not None:
+                population.notes = unit_ids_notes(ids)
             net.populations.append(population)
-    for post, pre, block in _PROJECTIONS:
-        J = getattr(circuit, block)
+    for b in BLOCKS:
+        J = getattr(circuit, b.name)
         rows, cols = np.nonzero(J)
         if not len(rows):
             continue
+        pre, post = b.pre_name, b.post_name
         proj = neuroml.ContinuousProjection(
             id=f"{pre}_to_{post}", presynaptic_population=pre,
             postsynaptic_population=post)
-        syn = "exc_syn" if pre == "E" else "inh_syn"
+        syn = "exc_syn" if b.sign > 0 else "inh_syn"
         for k, (i, j) in enumerate(zip(rows, cols, strict=True)):
             proj.continuous_connection_instance_ws.append(Conn(
                 id=k, pre_cell=f"../{pre}[{int(j)}]",
@@ -91,14 +117,31 @@ def to_document(circuit, *, tau_e=10.0, tau_i=10.0, name="eidecomp_circuit",
     return doc
 
 
-def write_neuroml(circuit, path, **kwargs):
-    """Write ``path`` (.net.nml) and validate it against the NeuroML2 schema."""
-    from neuroml.utils import validate_neuroml2
+def render_neuroml(circuit, *, features=None, positions=None, unit_ids=None,
+                   tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False):
+    """The ``.net.nml`` file as UTF-8 bytes, read back by libNeuroML and
+    validated by its schema check (features, positions and ``raw_csv`` do
+    not apply)."""
+    import io
+
+    from neuroml.nml.nml import parseString
     from neuroml.writers import NeuroMLWriter
 
-    NeuroMLWriter.write(to_document(circuit, **kwargs), str(path))
-    validate_neuroml2(str(path))  # raises on a schema violation
-    return path
+    doc = to_document(circuit, tau_e=tau_e, tau_i=tau_i, unit_ids=unit_ids)
+    buf = io.StringIO()
+    NeuroMLWriter.write(doc, buf, close=False)
+    text = buf.getvalue()
+    # read back and checked by libNeuroML (ValueError on a schema violation);
+    # its string loader would print the document, so the parser is called
+    parseString(text, silence=True).validate(recursive=True)
+    return text.encode("utf-8")
+
+
+def write_neuroml(circuit, path, **kwargs):
+    """Write ``path`` (.net.nml), validated against the NeuroML2 schema."""
+    from ..io import write_file
+
+    return write_file(path, render_neuroml(circuit, **kwargs), force=True)
 
 
 def _index(ref):
@@ -111,12 +154,12 @@ def read_blocks(path):
 
     doc = read_neuroml2_file(str(path))
     net = doc.networks[0]
-    sizes = {"E": 0, "I_untuned": 0, "I_tuned": 0}
+    kind_of = {name: kind for kind, name in POPULATION_NAMES.items()}
+    sizes = dict.fromkeys(POPULATION_NAMES, 0)
     for pop in net.populations:
-        sizes[pop.id] = int(pop.size)
-    blocks = {block: np.zeros((sizes[post], sizes[pre]))
-              for post, pre, block in _PROJECTIONS}
-    which = {(pre, post): block for post, pre, block in _PROJECTIONS}
+        sizes[kind_of[pop.id]] = int(pop.size)
+    blocks = {b.name: np.zeros((sizes[b.post], sizes[b.pre])) for b in BLOCKS}
+    which = {(b.pre_name, b.post_name): b.name for b in BLOCKS}
     for proj in net.continuous_projections:
         J = blocks[which[(proj.presynaptic_population,
                           proj.postsynaptic_population)]]

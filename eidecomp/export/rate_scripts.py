@@ -10,9 +10,12 @@ and brian2_builder do) and prints the final rates as JSON.
 
 import numpy as np
 
-from ._lists import connection_list, drive_vector, npz_bytes
+from ..params import TAU_E_MS, TAU_I_MS
+from ._lists import connection_list, drive_vector, npz_bytes, tau_vector, write_into
+from ._names import unit_id_list
 
-__all__ = ["ENGINES", "rate_script_files", "write_rate_script"]
+__all__ = ["ENGINES", "rate_script_files", "render_brian2", "render_nest",
+           "write_rate_script"]
 
 ENGINES = ("nest", "brian2")
 
@@ -106,33 +109,43 @@ def script_text(engine):
     return (_HEAD + body).format(name=name)
 
 
-def rate_script_files(circuit, engine, h=None, *, tau_e=10.0, tau_i=10.0,
-                      dt_ms=0.1, unit_ids=None):
+def rate_script_files(circuit, engine, h=None, *, tau_e=TAU_E_MS,
+                      tau_i=TAU_I_MS, dt_ms=0.1, unit_ids=None):
     """{file name: bytes} of the script for ``engine`` and its data.
 
     ``unit_ids`` (the unit table's names) are stored in the data file as a
     string array, ``unit_ids``; the script's text never contains them."""
     if engine not in ENGINES:
         raise ValueError(f"unknown engine {engine!r}")
+    ids = unit_id_list(unit_ids, circuit.n_excitatory)
     h = np.zeros(circuit.n_excitatory) if h is None else h
     H = drive_vector(circuit, h)
-    tau = np.full(H.size, float(tau_i))
-    tau[: circuit.n_excitatory] = tau_e
     pre, post, w = connection_list(circuit)
     data = {"n": np.array(H.size), "pre": pre, "post": post, "weight": w,
-            "tau_ms": tau, "h": H, "dt_ms": np.array(dt_ms)}
-    if unit_ids is not None:
-        data["unit_ids"] = np.array([str(u) for u in unit_ids], dtype=str)
+            "tau_ms": tau_vector(circuit, tau_e, tau_i), "h": H,
+            "dt_ms": np.array(dt_ms)}
+    if ids is not None:
+        data["unit_ids"] = np.array(ids, dtype=str)
     return {f"circuit_{engine}.py": script_text(engine).encode(),
             "circuit_rate_data.npz": npz_bytes(data)}
 
 
+def render_nest(circuit, *, features=None, positions=None, unit_ids=None,
+                tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False):
+    """The NEST folder (script and data; the E drive is zero) as
+    {file name: bytes} (features, positions and ``raw_csv`` do not apply)."""
+    return rate_script_files(circuit, "nest", tau_e=tau_e, tau_i=tau_i,
+                             unit_ids=unit_ids)
+
+
+def render_brian2(circuit, *, features=None, positions=None, unit_ids=None,
+                  tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False):
+    """The Brian2 folder (script and data; the E drive is zero) as
+    {file name: bytes} (features, positions and ``raw_csv`` do not apply)."""
+    return rate_script_files(circuit, "brian2", tau_e=tau_e, tau_i=tau_i,
+                             unit_ids=unit_ids)
+
+
 def write_rate_script(circuit, folder, engine, h=None, **kwargs):
     """Write the script for ``engine`` ("nest" or "brian2") and its data."""
-    from pathlib import Path
-
-    folder = Path(folder)
-    folder.mkdir(parents=True, exist_ok=True)
-    for name, data in rate_script_files(circuit, engine, h, **kwargs).items():
-        (folder / name).write_bytes(data)
-    return folder
+    return write_into(folder, rate_script_files(circuit, engine, h, **kwargs))

@@ -1,0 +1,124 @@
+"""The export formats: one entry each, the one table the command line, the
+pipeline and the tests read.
+
+An entry names its format, says whether it writes one file or a folder,
+names the optional module it needs (checked with importlib.util.find_spec
+before rendering), gives a one-line help text, and holds a pure renderer::
+
+    render(circuit, *, features=None, positions=None, unit_ids=None,
+           tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False)
+        -> bytes                              (one file)
+        -> {file name: bytes | str | ndarray} (a folder)
+
+which writes nothing: :func:`eidecomp.io.write_file` and
+:func:`eidecomp.io.write_folder` do, atomically. Options a format has no use
+for are accepted and ignored. A new format is one module with its renderer
+and one line in :data:`REGISTRY`.
+
+Examples
+--------
+>>> import numpy as np
+>>> from eidecomp.types import Circuit
+>>> c = Circuit(J_EE=np.eye(2), J_EU=np.ones((2, 1)), J_UE=np.ones((1, 2)),
+...             J_ET=np.zeros((2, 0)), J_TE=np.zeros((0, 2)))
+>>> FORMATS
+('graphml', 'json', 'csv', 'neuroml', 'pynn', 'nest', 'brian2')
+>>> get_format("pynn").folder, sorted(render("nest", c))
+(True, ['circuit_nest.py', 'circuit_rate_data.npz'])
+>>> render("csv", c, unit_ids=["=1+1", "b"]).decode().splitlines()[1]
+'"E0","E0","E","E","excitatory",1.0,"\\'=1+1","\\'=1+1"'
+"""
+
+import importlib.util
+from collections.abc import Callable
+from dataclasses import dataclass
+
+from ..errors import InputError
+from . import edges_csv, graph_files, neuroml2, pynn_script, rate_scripts
+
+__all__ = ["FILE_FORMATS", "FOLDER_FORMATS", "FORMATS", "REGISTRY",
+           "ExportFormat", "get_format", "render", "require_module"]
+
+SIM_EXTRA = "pip install 'eidecomp[sim]'"
+
+
+def require_module(module):
+    """InputError, one line, when the optional ``module`` is not installed."""
+    if importlib.util.find_spec(module) is None:
+        raise InputError(f"{module} is not installed; it comes with the "
+                         f"simulator extra: {SIM_EXTRA}")
+
+
+@dataclass(frozen=True)
+class ExportFormat:
+    """One export format.
+
+    Attributes
+    ----------
+    name : str
+        As given to ``--format``.
+    folder : bool
+        True when the renderer gives a folder's files, False for one file.
+    render : callable
+        The pure renderer (see the module's docstring).
+    help : str
+        One line for the command line's help.
+    requires : str or None
+        The optional module the renderer imports, or None.
+    suffix : str
+        The usual file name ending of a one-file format ("" for a folder).
+    """
+
+    name: str
+    folder: bool
+    render: Callable
+    help: str
+    requires: str | None = None
+    suffix: str = ""
+
+    def check_available(self):
+        """InputError when the module this format needs is not installed."""
+        if self.requires is not None:
+            require_module(self.requires)
+
+
+REGISTRY = (
+    ExportFormat("graphml", False, graph_files.render_graphml,
+                 "neuron-level graph, GraphML (networkx)", suffix=".graphml"),
+    ExportFormat("json", False, graph_files.render_json,
+                 "neuron-level graph, node-link JSON (networkx)", suffix=".json"),
+    ExportFormat("csv", False, edges_csv.render_csv,
+                 "edge list, one row per synapse", suffix=".csv"),
+    ExportFormat("neuroml", False, neuroml2.render_neuroml,
+                 "NeuroML2 network (libNeuroML), schema-validated",
+                 requires="neuroml", suffix=".net.nml"),
+    ExportFormat("pynn", True, pynn_script.render_pynn,
+                 "folder: PyNN script (spiking) and its data"),
+    ExportFormat("nest", True, rate_scripts.render_nest,
+                 "folder: NEST script (rate model) and its data"),
+    ExportFormat("brian2", True, rate_scripts.render_brian2,
+                 "folder: Brian2 script (rate model) and its data"),
+)
+"""Every export format, in the order they are listed."""
+
+_BY_NAME = {f.name: f for f in REGISTRY}
+FORMATS = tuple(_BY_NAME)
+FILE_FORMATS = tuple(f.name for f in REGISTRY if not f.folder)
+FOLDER_FORMATS = tuple(f.name for f in REGISTRY if f.folder)
+
+
+def get_format(name):
+    """The :class:`ExportFormat` called ``name``, or InputError."""
+    try:
+        return _BY_NAME[name]
+    except (KeyError, TypeError):
+        raise InputError(f"unknown export format {name!r} (choose from "
+                         f"{', '.join(FORMATS)})") from None
+
+
+def render(name, circuit, **options):
+    """Render ``circuit`` in format ``name``: bytes, or {file name: data}
+    for a folder format. Refuses a format whose optional module is missing."""
+    fmt = get_format(name)
+    fmt.check_available()
+    return fmt.render(circuit, **options)
