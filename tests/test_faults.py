@@ -17,10 +17,15 @@ import csv
 import errno
 import json
 import os
+import re
+import shutil
 import signal
+import stat
 import subprocess
 import sys
+import threading
 import time
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -28,6 +33,8 @@ from conftest import require
 
 from eidecomp.cli import main
 from eidecomp.datasets import make_planted_circuit
+from eidecomp.errors import InputError, WriteError
+from eidecomp.io import write_file, write_folder
 
 
 def _listing(folder):
@@ -51,11 +58,10 @@ def big(tmp_path_factory):
 
 
 @pytest.mark.parametrize("existing", [False, True])
-def test_sigint_leaves_no_output(tmp_path, big, existing):
+def test_sigint_leaves_no_output(tmp_path, big, small_bundle, existing):
     out = tmp_path / "circuit"
-    if existing:
-        out.mkdir()
-        (out / "circuit.json").write_text('{"kept": true}\n')
+    if existing:  # a real bundle: --force replaces only eidecomp's own output
+        shutil.copytree(small_bundle, out)
     before = _listing(tmp_path)
     proc = _start(["run", str(big), "-o", str(out), "--force", "--report"])
     time.sleep(3.0)  # python started, numpy imported, the solve under way
@@ -125,9 +131,9 @@ def test_file_size_limit_from_the_os(tmp_path):
 
     W, _, _ = make_planted_circuit(100, n_untuned=2, n_tuned=18, pool=4, seed=2)
     np.save(tmp_path / "w.npy", W)  # 80 kB, written before the limit
-    out = tmp_path / "c"
-    out.mkdir()
-    (out / "circuit.json").write_text('{"kept": true}\n')
+    out = tmp_path / "c"  # a real bundle: --force replaces only eidecomp's own
+    assert main(["run", str(tmp_path / "w.npy"), "-o", str(out), "-q",
+                 "--seed", "1"]) == 0
     before = _listing(tmp_path)
 
     def limit():
@@ -246,3 +252,860 @@ def test_same_seed_gives_byte_identical_bundles(tmp_path):
         outs.append(_listing(tmp_path / name))
     assert outs[0] == outs[1]
     assert len(outs[0]) >= 10  # every block, the json, the report
+
+
+# --- writes and signals ---
+# References: POSIX signals delivered by the operating system to a real
+# ``python -m eidecomp.cli run`` process (SIGTERM 15, SIGHUP 1, SIGKILL 9; an
+# exit status of 128 + the signal number is the shell's convention, POSIX
+# sh "Exit Status"); kill(pid, 0) failing with ESRCH once a process is gone
+# (POSIX kill(2)); the operating system's own refusals (ENOENT under /proc,
+# EPERM under /sys, /dev/null a character device); EROFS, EACCES and ENOSPC
+# raised where the OS raises them (monkeypatched: the tests run as root, where
+# chmod does not stop a write and no read-only mount can be made); the umask
+# semantics of POSIX open(2) and mkdir(2): the mode is 0666 / 0777 & ~umask.
+
+_LEFTOVER = r"\.{name}\.eidecomp-{pid}-[a-z0-9_]{{8}}\.{kind}"
+
+
+def _small_matrix(folder, name="w.npy", seed=1):
+    W, _, _ = make_planted_circuit(40, n_untuned=2, n_tuned=6, pool=3, seed=seed)
+    np.save(folder / name, W)
+    return folder / name
+
+
+@pytest.fixture(scope="module")
+def small_bundle(tmp_path_factory):
+    """A real circuit bundle (40 units), copied by the tests that need one."""
+    d = tmp_path_factory.mktemp("small")
+    assert main(["run", str(_small_matrix(d)), "-o", str(d / "c"), "-q"]) == 0
+    return d / "c"
+
+
+def _dead_pid():
+    """The id of a process that has ended (and been reaped)."""
+    proc = subprocess.Popen([sys.executable, "-c", "pass"])
+    proc.wait(timeout=60)
+    return proc.pid
+
+
+def _killed(code, *args):
+    """Run ``code`` in a child that kills itself with SIGKILL; its pid."""
+    proc = subprocess.Popen([sys.executable, "-c", code, *map(str, args)],
+                            stderr=subprocess.PIPE, text=True)
+    _, err = proc.communicate(timeout=120)
+    assert proc.returncode == -signal.SIGKILL, err
+    return proc.pid
+
+
+def _err_lines(capsys):
+    return capsys.readouterr().err.splitlines()
+
+
+# signals ----------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("sig", [signal.SIGTERM, signal.SIGHUP],
+                         ids=["SIGTERM", "SIGHUP"])
+@pytest.mark.parametrize("existing", [False, True], ids=["new", "existing"])
+def test_termination_signal_leaves_no_output(tmp_path, big, small_bundle, sig,
+                                             existing):
+    """A real SIGTERM / SIGHUP from the OS during the solve: exit 128 + n,
+    one line, no temporary left, an existing bundle unchanged."""
+    out = tmp_path / "circuit"
+    if existing:
+        shutil.copytree(small_bundle, out)
+    before = _listing(tmp_path)
+    proc = _start(["run", str(big), "-o", str(out), "--force", "--report"])
+    time.sleep(3.0)  # python started, numpy imported, the solve under way
+    assert proc.poll() is None, "the run ended before the signal"
+    proc.send_signal(sig)
+    _, err = proc.communicate(timeout=120)
+    assert proc.returncode == 128 + sig
+    assert err.strip().splitlines() == [
+        f"eidecomp: terminated ({signal.Signals(sig).name}); nothing written"]
+    assert _listing(tmp_path) == before
+
+
+def test_sighup_ignored_under_nohup_is_still_ignored(tmp_path, big):
+    """nohup(1) starts a command with SIGHUP ignored (POSIX: SIG_IGN is
+    inherited across exec); eidecomp must keep ignoring it and finish."""
+    out = tmp_path / "circuit"
+
+    def nohup():
+        signal.signal(signal.SIGHUP, signal.SIG_IGN)
+
+    proc = _start(["run", str(big), "-o", str(out), "-q"], preexec_fn=nohup)
+    time.sleep(3.0)
+    assert proc.poll() is None, "the run ended before the signal"
+    proc.send_signal(signal.SIGHUP)
+    _, err = proc.communicate(timeout=300)
+    assert proc.returncode == 0, err
+    assert (out / "circuit.json").is_file()
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["circuit"]
+
+
+def test_sigterm_while_writing_leaves_nothing(tmp_path, monkeypatch, capsys):
+    """A real SIGTERM (os.kill to this process) between two files of the
+    bundle: exit 143 and no temporary folder."""
+    from eidecomp.io import staging as eio
+
+    w = _small_matrix(tmp_path)
+    before = _listing(tmp_path)
+    real = eio._write_bytes
+    calls = []
+
+    def killed(path, data):
+        calls.append(path)
+        if len(calls) == 3:
+            os.kill(os.getpid(), signal.SIGTERM)
+        real(path, data)
+
+    monkeypatch.setattr(eio, "_write_bytes", killed)
+    capsys.readouterr()
+    assert main(["run", str(w), "-o", str(tmp_path / "c"), "-q"]) == 143
+    assert _err_lines(capsys) == ["eidecomp: terminated (SIGTERM); nothing written"]
+    assert len(calls) == 3
+    assert _listing(tmp_path) == before
+
+
+def test_handle_termination_restores_the_handlers():
+    """Python's signal module: getsignal gives back what was installed."""
+    from eidecomp.io.staging import Terminated, handle_termination
+
+    before = {s: signal.getsignal(s) for s in (signal.SIGTERM, signal.SIGHUP)}
+    with handle_termination():
+        assert signal.getsignal(signal.SIGTERM) is not before[signal.SIGTERM]
+        with pytest.raises(Terminated) as info:
+            os.kill(os.getpid(), signal.SIGHUP)
+            time.sleep(1.0)  # the handler runs in the main thread
+    assert info.value.signum == signal.SIGHUP and info.value.name == "SIGHUP"
+    assert isinstance(info.value, KeyboardInterrupt)  # Ctrl-C's clean-up runs
+    assert {s: signal.getsignal(s) for s in before} == before
+
+
+def test_handle_termination_keeps_an_ignored_signal_ignored():
+    """SIG_IGN on entry (nohup) is left alone (Python signal module)."""
+    from eidecomp.io.staging import handle_termination
+
+    old = signal.signal(signal.SIGHUP, signal.SIG_IGN)
+    try:
+        with handle_termination():
+            assert signal.getsignal(signal.SIGHUP) is signal.SIG_IGN
+            os.kill(os.getpid(), signal.SIGHUP)  # ignored: nothing happens
+            time.sleep(0.2)
+    finally:
+        signal.signal(signal.SIGHUP, old)
+
+
+def test_handle_termination_outside_the_main_thread_changes_nothing():
+    """Python's signal.signal works only in the main thread (ValueError
+    elsewhere): in a worker the block runs and no handler is touched."""
+    from eidecomp.io.staging import handle_termination
+
+    before = signal.getsignal(signal.SIGTERM)
+    seen = []
+
+    def work():
+        with handle_termination():
+            seen.append(signal.getsignal(signal.SIGTERM))
+
+    t = threading.Thread(target=work)
+    t.start()
+    t.join(timeout=60)
+    assert seen == [before]
+
+
+def test_out_of_memory_is_one_line(tmp_path, monkeypatch, capsys):
+    """numpy's MemoryError ("Unable to allocate ...") while writing: one
+    line, exit 1, nothing left."""
+    from eidecomp.io import staging as eio
+
+    w = _small_matrix(tmp_path)
+    before = _listing(tmp_path)
+
+    def no_memory(path, data):
+        raise MemoryError("Unable to allocate 8.00 EiB for an array")
+
+    monkeypatch.setattr(eio, "_write_bytes", no_memory)
+    capsys.readouterr()
+    assert main(["run", str(w), "-o", str(tmp_path / "c"), "-q"]) == 1
+    assert _err_lines(capsys) == [
+        "eidecomp: error: out of memory (Unable to allocate 8.00 EiB for an "
+        "array); nothing written"]
+    assert _listing(tmp_path) == before
+
+
+# leftovers of a killed run ----------------------------------------------------
+
+_KILL_IN_FOLDER = """
+import os, signal, sys
+from eidecomp.io import staged_folder
+with staged_folder(sys.argv[1]) as tmp:
+    (tmp / "half.npy").write_bytes(b"half")
+    os.kill(os.getpid(), signal.SIGKILL)
+"""
+
+_KILL_IN_FILE = """
+import os, signal, sys
+from eidecomp.io import staging
+def killed(path, data):
+    open(path, "wb").write(data[:10])
+    os.kill(os.getpid(), signal.SIGKILL)
+staging._write_bytes = killed
+staging.write_file(sys.argv[1], b"0123456789" * 100)
+"""
+
+_KILL_BETWEEN_RENAMES = """
+import os, signal, sys
+from eidecomp.io import staged_folder
+real, n = os.rename, []
+def rename(a, b):
+    n.append(a)
+    if len(n) == 2:  # the old output moved aside, the new one not yet in place
+        os.kill(os.getpid(), signal.SIGKILL)
+    real(a, b)
+os.rename = rename
+with staged_folder(sys.argv[1], force=True, replaceable=lambda p: None) as tmp:
+    (tmp / "circuit.json").write_text("new")
+"""
+
+
+def test_sigkill_leaves_a_partial_the_next_run_removes(tmp_path, capsys):
+    """SIGKILL cannot be caught (POSIX): the temporary folder stays, named
+    with the dead pid; the next run on the same output removes it."""
+    w = _small_matrix(tmp_path)
+    out = tmp_path / "c"
+    pid = _killed(_KILL_IN_FOLDER, out)
+    left = [p.name for p in tmp_path.iterdir() if p.name.startswith(".")]
+    assert len(left) == 1
+    assert re.fullmatch(_LEFTOVER.format(name="c", pid=pid, kind="partial"), left[0])
+    assert main(["run", str(w), "-o", str(out), "-q"]) == 0
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["c", "w.npy"]
+
+
+def test_sigkill_leaves_a_partial_file_the_next_export_removes(tmp_path,
+                                                                small_bundle):
+    """The same for a single file (write_file): the next export removes it."""
+    out = tmp_path / "g.json"
+    pid = _killed(_KILL_IN_FILE, out)
+    left = [p.name for p in tmp_path.iterdir()]
+    assert len(left) == 1
+    assert re.fullmatch(_LEFTOVER.format(name=r"g\.json", pid=pid, kind="partial"),
+                        left[0])
+    assert main(["export", str(small_bundle), "--format", "json", "-o",
+                 str(out)]) == 0
+    assert [p.name for p in tmp_path.iterdir()] == ["g.json"]
+    json.loads(out.read_text(encoding="utf-8"))
+
+
+def test_sigkill_between_the_renames_gives_the_old_output_back(tmp_path,
+                                                               small_bundle,
+                                                               capsys):
+    """Killed after the old bundle was moved aside and before the new one
+    was renamed into place: the next write to that output puts the old one
+    back (and then refuses to replace it without --force)."""
+    w = _small_matrix(tmp_path)
+    out = tmp_path / "c"
+    shutil.copytree(small_bundle, out)
+    before = _listing(tmp_path)
+    pid = _killed(_KILL_BETWEEN_RENAMES, out)
+    assert not out.exists()
+    left = sorted(p.name for p in tmp_path.iterdir() if p.name.startswith("."))
+    assert [re.fullmatch(_LEFTOVER.format(name="c", pid=pid, kind=k), n) is not None
+            for n, k in zip(left, ["old", "partial"], strict=True)] == [True, True]
+    capsys.readouterr()
+    assert main(["run", str(w), "-o", str(out), "-q"]) == 2
+    assert _err_lines(capsys) == [
+        f"eidecomp: error: {out}: already exists; use --force to replace it"]
+    assert _listing(tmp_path) == before
+
+
+@pytest.mark.parametrize("name", [
+    ".c.eidecomp-{dead}-abcdefg.partial",     # 7 random characters
+    ".c.eidecomp-{dead}-abcdefghi.partial",   # 9
+    ".c.eidecomp-{dead}-ABCDEFGH.partial",    # not tempfile's alphabet
+    ".c.eidecomp-{dead}-abcdefgh.partial.d",  # something after the suffix
+    ".c.eidecomp-{dead}-abcdefgh.tmp",
+    ".cc.eidecomp-{dead}-abcdefgh.partial",   # another output's
+    "c.eidecomp-{dead}-abcdefgh.partial",     # not a dot-file
+    ".c.eidecomp-0{dead}-abcdefgh.partial",   # not a pid as written
+    ".c.old-{dead}",                          # an old-style name
+    ".c.eidecomp-{live}-abcdefgh.partial",    # a live process's
+    ".c.eidecomp-{me}-abcdefgh.partial",      # this process's own
+    ".c.eidecomp-1-abcdefgh.old",             # init's: always alive
+])
+def test_folders_that_are_not_dead_leftovers_are_kept(tmp_path, name):
+    """Only an exact match of a process that is gone (kill(pid, 0) ->
+    ESRCH) is removed; the control, a real dead leftover, is."""
+    sleeper = subprocess.Popen([sys.executable, "-c", "import time; "
+                                "time.sleep(60)"])
+    try:
+        dead = _dead_pid()
+        kept = tmp_path / name.format(dead=dead, live=sleeper.pid, me=os.getpid())
+        kept.mkdir()
+        (kept / "notes.txt").write_text("mine")
+        control = tmp_path / f".c.eidecomp-{dead}-abcdefgh.partial"
+        control.mkdir()
+        (control / "J_EE.npy").write_bytes(b"half")
+        write_folder(tmp_path / "c", {"a.txt": "x"})
+    finally:
+        sleeper.kill()
+        sleeper.wait(timeout=60)
+    assert (kept / "notes.txt").read_text() == "mine"
+    assert not control.exists()
+    assert sorted(p.name for p in tmp_path.iterdir()) == sorted(["c", kept.name])
+
+
+def test_a_symlink_named_like_a_leftover_is_kept(tmp_path):
+    """A symbolic link is never followed or removed by the sweep."""
+    dead = _dead_pid()
+    (tmp_path / "data").mkdir()
+    (tmp_path / "data" / "keep.txt").write_text("mine")
+    link = tmp_path / f".c.eidecomp-{dead}-abcdefgh.partial"
+    link.symlink_to(tmp_path / "data")
+    write_folder(tmp_path / "c", {"a.txt": "x"})
+    assert link.is_symlink() and (tmp_path / "data" / "keep.txt").exists()
+
+
+def test_temporary_names_carry_the_pid(tmp_path, monkeypatch):
+    """The names staged_folder renames through (os.rename recorded)."""
+    out = tmp_path / "c"
+    write_folder(out, {"a.txt": "1"})
+    real, seen = os.rename, []
+
+    def rename(a, b):
+        seen.append((Path(a).name, Path(b).name))
+        real(a, b)
+
+    monkeypatch.setattr(os, "rename", rename)
+    write_folder(out, {"a.txt": "2"}, force=True, replaceable=lambda p: None)
+    (old_from, old), (partial, to) = seen
+    assert old_from == "c" and to == "c"
+    assert re.fullmatch(_LEFTOVER.format(name="c", pid=os.getpid(), kind="old"), old)
+    assert re.fullmatch(_LEFTOVER.format(name="c", pid=os.getpid(),
+                                         kind="partial"), partial)
+    assert (out / "a.txt").read_text() == "2"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["c"]
+
+
+def test_a_name_at_the_length_limit_can_be_written(tmp_path):
+    """NAME_MAX is 255 bytes (Linux, POSIX pathconf): the temporary name
+    keeps only part of a long output name, and the write still succeeds."""
+    name = "a" + "é" * 127  # 255 bytes in UTF-8: the cut splits a character
+    write_folder(tmp_path / name, {"a.txt": "x"})
+    assert write_file(tmp_path / (name[:-1] + "a"), b"y").read_bytes() == b"y"
+    assert sorted(p.name for p in tmp_path.iterdir()) == sorted(
+        [name, name[:-1] + "a"])
+
+
+# what --force may replace -----------------------------------------------------
+
+
+def _notes(folder):
+    folder.mkdir()
+    (folder / "notes.txt").write_text("my notes\n")
+    return folder
+
+
+def test_force_never_replaces_an_unknown_folder(tmp_path):
+    """Common practice (rm -i, cp -i): a folder we cannot tell is ours is
+    not deleted, even with force."""
+    from eidecomp.io.staging import staged_folder
+
+    out = _notes(tmp_path / "c")
+    before = _listing(tmp_path)
+    with pytest.raises(InputError) as info:
+        with staged_folder(out, force=True) as tmp:
+            (tmp / "x").write_text("x")
+    assert str(info.value) == (f"{out}: a folder that is not empty and not known "
+                               "to be an eidecomp output; not replaced")
+    assert _listing(tmp_path) == before
+
+
+def test_force_asks_replaceable(tmp_path):
+    from eidecomp.io.staging import staged_folder
+
+    out = _notes(tmp_path / "c")
+    before = _listing(tmp_path)
+    asked = []
+
+    def replaceable(p):
+        asked.append(p)
+        return "not an eidecomp circuit bundle"
+
+    with pytest.raises(InputError) as info:
+        with staged_folder(out, force=True, replaceable=replaceable) as tmp:
+            (tmp / "x").write_text("x")
+    assert str(info.value) == f"{out}: not an eidecomp circuit bundle; not replaced"
+    assert asked == [out]
+    assert _listing(tmp_path) == before
+
+
+def test_force_replaces_what_replaceable_accepts(tmp_path):
+    out = _notes(tmp_path / "c")
+    write_folder(out, {"a.txt": "x"}, force=True, replaceable=lambda p: None)
+    assert _listing(tmp_path) == [("c", b""), ("c/a.txt", b"x")]
+
+
+def test_force_replaces_an_empty_folder(tmp_path):
+    (tmp_path / "c").mkdir()
+    write_folder(tmp_path / "c", {"a.txt": "x"}, force=True)
+    assert _listing(tmp_path) == [("c", b""), ("c/a.txt", b"x")]
+
+
+def test_cli_force_refuses_a_folder_of_notes(tmp_path, capsys):
+    w = _small_matrix(tmp_path)
+    out = _notes(tmp_path / "c")
+    before = _listing(tmp_path)
+    capsys.readouterr()
+    assert main(["run", str(w), "-o", str(out), "--force", "-q"]) == 2
+    (line,) = _err_lines(capsys)
+    assert line.startswith(f"eidecomp: error: {out}: ")
+    assert line.endswith("; not replaced")
+    assert _listing(tmp_path) == before
+
+
+def test_cli_force_replaces_its_own_bundle(tmp_path):
+    w = _small_matrix(tmp_path)
+    out = tmp_path / "c"
+    assert main(["run", str(w), "-o", str(out), "-q"]) == 0
+    first = _listing(out)
+    assert main(["run", str(w), "-o", str(out), "-q", "--force", "--seed", "3"]) == 0
+    assert _listing(out) != first
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["c", "w.npy"]
+
+
+@pytest.mark.parametrize("kind", ["folder", "symlink to a folder", "fifo",
+                                  "dangling symlink"])
+def test_a_file_output_replaces_only_a_regular_file(tmp_path, kind):
+    """POSIX file types (S_ISREG): only a regular file is replaced."""
+    out = tmp_path / "g.json"
+    if kind == "folder":
+        out.mkdir()
+    elif kind == "symlink to a folder":
+        (tmp_path / "d").mkdir()
+        out.symlink_to(tmp_path / "d")
+    elif kind == "fifo":
+        os.mkfifo(out)
+    else:
+        out.symlink_to(tmp_path / "missing")
+    before = _listing(tmp_path) if kind != "fifo" else None
+    with pytest.raises(InputError, match="; not replaced$"):
+        write_file(out, b"x", force=True)
+    assert os.path.lexists(out)
+    if before is not None:
+        assert _listing(tmp_path) == before
+
+
+def test_export_refuses_to_replace_a_device(small_bundle, capsys):
+    """/dev/null is a character device (POSIX): never replaced."""
+    assert stat.S_ISCHR(os.stat("/dev/null").st_mode)
+    capsys.readouterr()
+    assert main(["export", str(small_bundle), "--format", "json", "-o",
+                 "/dev/null", "--force"]) == 2
+    assert _err_lines(capsys) == [
+        "eidecomp: error: /dev/null: not a regular file; not replaced"]
+    assert stat.S_ISCHR(os.stat("/dev/null").st_mode)
+
+
+# outputs that would destroy an input --------------------------------------------
+
+
+def test_run_refuses_an_output_holding_its_input(tmp_path, capsys):
+    """``run out/w.npy -o out --force``: replacing out would delete w.npy."""
+    out = tmp_path / "out"
+    out.mkdir()
+    w = _small_matrix(out)
+    before = _listing(tmp_path)
+    capsys.readouterr()
+    assert main(["run", str(w), "-o", str(out), "--force", "-q"]) == 2
+    assert _err_lines(capsys) == [
+        f"eidecomp: error: {out}: contains the input {w}; replacing it would "
+        "delete the input"]
+    assert _listing(tmp_path) == before
+
+
+def test_export_refuses_to_write_into_the_bundle_it_reads(tmp_path, small_bundle,
+                                                          capsys):
+    c = tmp_path / "c"
+    shutil.copytree(small_bundle, c)
+    before = _listing(tmp_path)
+    for out in (c / "circuit.json", c / "graph.json"):
+        args = ["export", str(c), "--format", "json", "-o", str(out), "--force"]
+        capsys.readouterr()
+        assert main(args) == 2
+        assert _err_lines(capsys) == [
+            f"eidecomp: error: {out}: inside the input folder {c}; write the "
+            "output elsewhere"]
+    assert _listing(tmp_path) == before
+
+
+def test_check_output_refuses_the_input_itself(tmp_path):
+    from eidecomp.io.staging import check_output
+
+    w = _small_matrix(tmp_path)
+    with pytest.raises(InputError) as info:
+        check_output(w, force=True, folder=False, inputs=[w])
+    assert str(info.value) == f"{w}: is the input {w}; write the output elsewhere"
+
+
+def test_check_output_sees_an_input_through_a_symlink(tmp_path):
+    """POSIX realpath: the input named through a link is the same file."""
+    from eidecomp.io.staging import check_output
+
+    out = tmp_path / "out"
+    out.mkdir()
+    w = _small_matrix(out)
+    link = tmp_path / "w-link.npy"
+    link.symlink_to(w)
+    with pytest.raises(InputError, match="contains the input"):
+        check_output(out, force=True, replaceable=lambda p: None, inputs=[link])
+    assert w.is_file()
+
+
+def test_check_output_accepts_a_clean_output(tmp_path):
+    from eidecomp.io.staging import check_output
+
+    w = _small_matrix(tmp_path)
+    out = tmp_path / "c"
+    assert check_output(out, inputs=[w, None, "example"]) == out
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["w.npy"]
+
+
+@pytest.mark.parametrize("out, cwd", [(".", "work"), ("..", "work/sub")])
+def test_output_holding_the_current_folder_is_refused(tmp_path, monkeypatch,
+                                                      capsys, out, cwd):
+    """Replacing the folder a process runs in (or one above it) would pull
+    the floor from under it: refused even with --force."""
+    w = _small_matrix(tmp_path)
+    (tmp_path / cwd).mkdir(parents=True)
+    (tmp_path / "work" / "notes.txt").write_text("mine")
+    monkeypatch.chdir(tmp_path / cwd)
+    before = _listing(tmp_path)
+    capsys.readouterr()
+    assert main(["run", str(w), "-o", out, "--force", "-q"]) == 2
+    assert _err_lines(capsys) == [
+        f"eidecomp: error: {out}: holds the current folder "
+        f"{os.path.realpath(tmp_path / cwd)}; not replaced"]
+    assert _listing(tmp_path) == before
+
+
+def test_missing_parent_folder(tmp_path, capsys):
+    w = _small_matrix(tmp_path)
+    out = tmp_path / "no" / "such" / "c"
+    assert main(["run", str(w), "-o", str(out), "-q"]) == 2
+    assert _err_lines(capsys) == [
+        f"eidecomp: error: {out}: parent folder {os.path.realpath(out.parent)} "
+        "does not exist"]
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["w.npy"]
+
+
+@pytest.mark.parametrize("below", ["c", "x/c"])
+def test_parent_that_is_a_file(tmp_path, capsys, below):
+    """POSIX ENOTDIR: a path component that is a file, named as such."""
+    w = _small_matrix(tmp_path)
+    out = w / below
+    assert main(["run", str(w), "-o", str(out), "-q"]) == 2
+    assert _err_lines(capsys) == [
+        f"eidecomp: error: {out}: {w} is a file, not a folder"]
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["w.npy"]
+
+
+# write errors ------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("out, reason", [
+    ("/proc/eidecomp-test-x", "No such file or directory"),  # procfs: ENOENT
+    ("/sys/eidecomp-test-x", "Operation not permitted"),     # sysfs: EPERM
+])
+def test_os_refuses_the_folder(tmp_path, out, reason):
+    """The kernel's own refusal to create anything in /proc or /sys, even
+    for root: exit 1, one line, nothing created."""
+    w = _small_matrix(tmp_path)
+    proc = _start(["run", str(w), "-o", out, "-q"])
+    _, err = proc.communicate(timeout=300)
+    assert proc.returncode == 1, err
+    assert err == (f"eidecomp: error: {out}: cannot write ({reason}); "
+                   "nothing written\n")
+    assert not os.path.lexists(out)
+
+
+def _raising(code):
+    def fail(*args, **kwargs):
+        raise OSError(code, os.strerror(code))
+    return fail
+
+
+@pytest.mark.parametrize("code", [errno.EROFS, errno.EACCES, errno.ENOSPC])
+def test_temporary_folder_refused(tmp_path, monkeypatch, small_bundle, code):
+    """mkdtemp failing as on a read-only mount (EROFS), a folder without
+    write permission (EACCES) or a full disk (ENOSPC): a WriteError, and the
+    existing bundle unchanged."""
+    import tempfile
+
+    out = tmp_path / "c"
+    shutil.copytree(small_bundle, out)
+    before = _listing(tmp_path)
+    monkeypatch.setattr(tempfile, "mkdtemp", _raising(code))
+    with pytest.raises(WriteError) as info:
+        write_folder(out, {"a.txt": "x"}, force=True, replaceable=lambda p: None)
+    assert str(info.value) == (f"{out}: cannot write ({os.strerror(code)}); "
+                               "nothing written, the existing one is unchanged")
+    assert _listing(tmp_path) == before
+
+
+@pytest.mark.parametrize("code", [errno.EROFS, errno.EACCES])
+def test_temporary_file_refused(tmp_path, monkeypatch, code):
+    """mkstemp failing (EROFS, EACCES): a WriteError naming the output."""
+    import tempfile
+
+    monkeypatch.setattr(tempfile, "mkstemp", _raising(code))
+    with pytest.raises(WriteError) as info:
+        write_file(tmp_path / "g.json", b"x")
+    assert str(info.value) == (f"{tmp_path / 'g.json'}: cannot write "
+                               f"({os.strerror(code)}); nothing written")
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_export_disk_full_keeps_the_existing_file(tmp_path, monkeypatch,
+                                                  small_bundle, capsys):
+    from eidecomp.io import staging as eio
+
+    out = tmp_path / "g.json"
+    out.write_text("old\n")
+    monkeypatch.setattr(eio, "_write_bytes", _raising(errno.ENOSPC))
+    capsys.readouterr()
+    assert main(["export", str(small_bundle), "--format", "json", "-o", str(out),
+                 "--force"]) == 1
+    assert _err_lines(capsys) == [
+        f"eidecomp: error: {out}: cannot write (No space left on device); "
+        "nothing written, the existing one is unchanged"]
+    assert _listing(tmp_path) == [("g.json", b"old\n")]
+
+
+def test_a_write_error_from_the_block_is_not_wrapped_twice(tmp_path):
+    from eidecomp.io.staging import staged_folder
+
+    with pytest.raises(WriteError) as info:
+        with staged_folder(tmp_path / "c"):
+            raise WriteError("inner: cannot write (x); nothing written")
+    assert str(info.value) == "inner: cannot write (x); nothing written"
+    assert list(tmp_path.iterdir()) == []
+
+
+# modes ------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("mask", [0o022, 0o077, 0o027], ids=["022", "077", "027"])
+def test_modes_follow_the_umask(tmp_path, small_bundle, mask):
+    """POSIX open(2)/mkdir(2): a new file gets 0666 & ~umask and a folder
+    0777 & ~umask; eidecomp's bundles and exports get the same (mkdtemp's
+    0700 and mkstemp's 0600 are not kept)."""
+    w = _small_matrix(tmp_path)
+    out = tmp_path / "c"
+    graph = tmp_path / "g.json"
+    for args in (["run", str(w), "-o", str(out), "-q", "--report"],
+                 ["export", str(small_bundle), "--format", "json", "-o",
+                  str(graph)]):
+        proc = _start(args, preexec_fn=lambda: os.umask(mask))
+        _, err = proc.communicate(timeout=300)
+        assert proc.returncode == 0, err
+    assert stat.S_IMODE(out.stat().st_mode) == 0o777 & ~mask
+    files = [p for p in out.rglob("*") if p.is_file()]
+    assert len(files) >= 6
+    for p in files:
+        assert stat.S_IMODE(p.stat().st_mode) == 0o666 & ~mask, p.name
+    assert stat.S_IMODE(graph.stat().st_mode) == 0o666 & ~mask
+
+
+def test_umask_is_read_without_changing_it():
+    """The umask read (Linux /proc/self/status 'Umask:') is the one the
+    process has (os.umask round trip)."""
+    from eidecomp.io import staging as eio
+
+    old = os.umask(0o027)
+    try:
+        assert eio._umask() == 0o027
+        assert os.umask(0o027) == 0o027  # still in force
+    finally:
+        os.umask(old)
+
+
+# --- names are data ---
+# Unit ids from a unit table, as strings, through every export format and back
+# by that format's own reader: networkx's GraphML reader (and Python's
+# xml.dom.minidom for well-formedness), Python's json module with networkx's
+# node-link reader, Python's csv module (with the OWASP "CSV Injection"
+# quote undone, or written raw), libNeuroML's loader and Python's
+# xml.etree.ElementTree / xml.dom.minidom for NeuroML2, numpy's npz reader
+# for the simulator scripts' data.
+
+NAMES = [
+    'q"uo\'te',
+    "<x>&amp;</x>",
+    "a & b",
+    "]]>",
+    "<![CDATA[x]]>",
+    "tab\there",
+    "\tleading tab",
+    "cr\rinside",
+    "lf\ninside",
+    "crlf\r\ninside",
+    "trailing cr\r",
+    "ünïcødé ☃ 中文 😀",
+    "  leading and trailing  ",
+    " ",
+    '=HYPERLINK("http://x","y")',
+    "+1",
+    "-2",
+    "@SUM(A1)",
+    "'already quoted",
+    "$(touch PWNED); `touch PWNED`",
+    "nel\x85 ls\u2028 ps\u2029",
+]
+EXPORTS = ["graphml", "json", "csv", "csv-raw", "neuroml", "pynn", "nest",
+           "brian2"]
+
+
+@pytest.fixture(scope="module")
+def small_circuit():
+    from eidecomp import assemble
+
+    W, _, _ = make_planted_circuit(20, n_untuned=1, n_tuned=4, pool=3, seed=0)
+    return assemble(W, baselines=False)
+
+
+def _ids_with(name, n=20):
+    return [name if i % 2 == 0 else f"u{i}" for i in range(n)]
+
+
+def _e_ids_back(fmt, data, n):
+    """The E units' names read back from ``data`` by the format's reader."""
+    import io
+    import xml.dom.minidom
+
+    import networkx as nx
+
+    if fmt == "graphml":
+        xml.dom.minidom.parseString(data)  # well-formed XML 1.0
+        G = nx.read_graphml(io.BytesIO(data))
+        return [G.nodes[f"E{i}"]["unit_id"] for i in range(n)]
+    if fmt == "json":
+        G = nx.node_link_graph(json.loads(data.decode("utf-8")), edges="edges")
+        return [G.nodes[f"E{i}"]["unit_id"] for i in range(n)]
+    if fmt in ("csv", "csv-raw"):
+        from eidecomp.export.edges_csv import restore_cell
+
+        undo = str if fmt == "csv-raw" else restore_cell
+        rows = csv.DictReader(io.StringIO(data.decode("utf-8"), newline=""))
+        seen = {}
+        for r in rows:
+            for side in ("pre", "post"):
+                if r[f"{side}_population"] == "E":
+                    seen[int(r[side][1:])] = undo(r[f"{side}_unit_id"])
+        assert sorted(seen) == list(range(n))  # every E unit has a synapse
+        return [seen[i] for i in range(n)]
+    if fmt == "neuroml":
+        import xml.etree.ElementTree as ET
+
+        from neuroml.nml.nml import parseString
+
+        xml.dom.minidom.parseString(data)
+        root = ET.fromstring(data)
+        ns = {"n": root.tag.split("}")[0].strip("{")}
+        by_etree = json.loads(root.find(".//n:population[@id='E']/n:notes",
+                                        ns).text)["unit_ids"]
+        doc = parseString(data.decode("utf-8"), silence=True)
+        (pop,) = [p for p in doc.networks[0].populations if p.id == "E"]
+        assert json.loads(pop.notes)["unit_ids"] == by_etree
+        return by_etree
+    (npz,) = [k for k in data if k.endswith(".npz")]
+    with np.load(io.BytesIO(data[npz]), allow_pickle=False) as z:
+        return z["unit_ids"].tolist()
+
+
+@pytest.mark.parametrize("fmt", EXPORTS)
+@pytest.mark.parametrize("name", NAMES, ids=[repr(n) for n in NAMES])
+def test_names_round_trip_exactly(small_circuit, name, fmt):
+    from eidecomp.export import render
+
+    if fmt == "neuroml":
+        require("neuroml")
+    ids = _ids_with(name)
+    data = render(fmt.split("-")[0], small_circuit, unit_ids=ids,
+                  raw_csv=fmt == "csv-raw")
+    assert _e_ids_back(fmt, data, 20) == ids
+    if isinstance(data, dict):  # names never enter the script's source
+        plain = render(fmt, small_circuit)
+        for k in data:
+            if k.endswith(".py"):
+                assert data[k] == plain[k]
+                compile(data[k], k, "exec")
+
+
+BAD_NAMES = ["a\x01b", "nul\x00", "esc\x1b[31m", "\ud800", "\ufffe", "\x7f ok\x0b"]
+
+
+@pytest.mark.parametrize("fmt", ["graphml", "json", "csv", "neuroml", "pynn",
+                                 "nest", "brian2"])
+@pytest.mark.parametrize("bad", BAD_NAMES, ids=[repr(n) for n in BAD_NAMES])
+def test_names_xml_cannot_hold_are_refused(small_circuit, bad, fmt):
+    """A character outside XML 1.0's Char production (W3C XML 1.0, 2.2)
+    reaching a writer through the library API is refused, naming the unit
+    (U+007F is a legal XML char: the vertical tab after it is not)."""
+    from eidecomp.errors import InputError
+    from eidecomp.export import render
+
+    if fmt == "neuroml":
+        require("neuroml")
+    ids = [f"u{i}" for i in range(20)]
+    ids[3] = bad
+    with pytest.raises(InputError) as exc:
+        render(fmt, small_circuit, unit_ids=ids)
+    msg = str(exc.value)
+    assert msg.startswith(f"unit 3 ({bad!r}): U+") and "\n" not in msg
+
+
+def test_graphml_refuses_any_text_xml_cannot_hold():
+    """A graph built by hand with a control character in an attribute: the
+    GraphML writer refuses it rather than write a file Python's XML parser
+    rejects."""
+    import xml.dom.minidom
+
+    import networkx as nx
+
+    from eidecomp.errors import InputError
+    from eidecomp.export.graph_files import to_graphml_bytes
+
+    G = nx.DiGraph()
+    G.add_node("a", label="ok\r\n")
+    xml.dom.minidom.parseString(to_graphml_bytes(G))
+    G.add_node("b", label="bell\x07")
+    with pytest.raises(InputError, match=r"^node b label \('bell\\x07'\): U\+0007"):
+        to_graphml_bytes(G)
+
+
+def test_export_command_csv_injection_and_raw(tmp_path):
+    """Through the bundle and run_export: the neutralised and the raw CSV
+    (OWASP "CSV Injection"), read by Python's csv module."""
+    from eidecomp.pipeline import run_export
+
+    W, _, features = make_planted_circuit(20, n_untuned=1, n_tuned=4, pool=3,
+                                          seed=0)
+    np.save(tmp_path / "w.npy", W)
+    names = [f"=cmd{i}" if i % 2 else f"@u{i}" for i in range(20)]
+    with open(tmp_path / "u.csv", "w", newline="", encoding="utf-8") as fh:
+        w = csv.writer(fh)
+        w.writerow(["id", "feature"])
+        w.writerows(zip(names, features, strict=True))
+    assert main(["run", str(tmp_path / "w.npy"), "--units",
+                 str(tmp_path / "u.csv"), "-o", str(tmp_path / "c"), "-q"]) == 0
+    for raw in (False, True):
+        out = tmp_path / f"e{raw}.csv"
+        run_export(tmp_path / "c", "csv", out, raw_csv=raw)
+        with open(out, newline="", encoding="utf-8") as fh:
+            got = {int(r["pre"][1:]): r["pre_unit_id"] for r in csv.DictReader(fh)
+                   if r["pre_population"] == "E"}
+        assert got and all(v == ("" if raw else "'") + names[k]
+                           for k, v in got.items())
