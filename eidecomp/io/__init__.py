@@ -16,11 +16,12 @@ from ..limits import (
     range_error,
     range_stats,
 )
-from .binary import MATRIX_SUFFIXES
+from .binary import MATRIX_SUFFIXES, read_npy
 from .bundles import CIRCUIT_FORMAT, CIRCUIT_VERSION, circuit_files, read_circuit
+from .jsondoc import load_json
 from .matrices import file_checksum, read_kernel, read_mask, read_matrix
 from .staging import staged_folder, write_file, write_folder
-from .units import read_units
+from .units import read_unit_table, read_units
 
 __all__ = [
     "CIRCUIT_FORMAT",
@@ -30,6 +31,7 @@ __all__ = [
     "check_range",
     "circuit_files",
     "file_checksum",
+    "load_json",
     "merge_range_stats",
     "range_error",
     "range_stats",
@@ -37,6 +39,8 @@ __all__ = [
     "read_kernel",
     "read_mask",
     "read_matrix",
+    "read_npy",
+    "read_unit_table",
     "read_units",
     "staged_folder",
     "write_file",

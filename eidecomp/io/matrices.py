@@ -12,7 +12,8 @@ import numpy as np
 
 from ..errors import InputError
 from ..limits import check_range
-from .binary import load_array
+from .binary import kind_name, load_array
+from .text import cannot_read, input_file
 
 __all__ = ["file_checksum", "read_kernel", "read_mask", "read_matrix"]
 
@@ -27,9 +28,12 @@ def file_checksum(path):
     for f in files:
         if path.is_dir():
             h.update(f.relative_to(path).as_posix().encode() + b"\0")
-        with open(f, "rb") as fh:
-            for chunk in iter(lambda: fh.read(1 << 20), b""):
-                h.update(chunk)
+        try:
+            with open(f, "rb") as fh:
+                for chunk in iter(lambda fh=fh: fh.read(1 << 20), b""):
+                    h.update(chunk)
+        except OSError as exc:
+            raise cannot_read(f, exc) from None
     return h.hexdigest()
 
 
@@ -70,28 +74,23 @@ def read_matrix(path, *, key=None, transpose=False, square=True, what="matrix"):
            [-2. ,  0. ]])
     """
     path = Path(path)
-    if not path.exists():
-        raise InputError(f"{path}: no such file")
-    if path.is_dir():
-        raise InputError(f"{path}: is a folder, expected a {what} file")
-    if path.stat().st_size == 0:
+    if input_file(path, what).st_size == 0:
         raise InputError(f"{path}: file is empty")
-    arr = np.asarray(load_array(path, key))
+    arr = np.asarray(load_array(path, key, what=what))
     if arr.dtype.kind not in "biuf":
-        kind = {"c": "complex", "U": "text", "S": "text", "O": "object",
-                "V": "structured"}.get(arr.dtype.kind, str(arr.dtype))
-        raise InputError(f"{path}: holds {kind} values; a real numeric {what} "
-                         "is needed")
+        raise InputError(f"{path}: holds {kind_name(arr.dtype)} values; a real "
+                         f"numeric {what} is needed")
     if arr.ndim != 2:
         raise InputError(f"{path}: {what} must be 2-D, got {arr.ndim}-D shape "
                          f"{arr.shape}")
     if arr.size == 0:
         raise InputError(f"{path}: {what} is empty (shape {arr.shape})")
-    if arr.dtype.kind in "iu" and np.abs(arr).max() > 2**53:
+    # max and min, not abs: abs of the smallest int64 overflows to itself
+    if arr.dtype.kind in "iu" and max(int(arr.max()), -int(arr.min())) > 2**53:
         raise InputError(f"{path}: integer values beyond 2**53 lose precision "
                          "as float64")
     with np.errstate(over="ignore"):
-        W = arr.astype(np.float64)
+        W = arr.astype(np.float64, copy=False)
     bad = ~np.isfinite(W)
     if bad.any():
         i, j = np.argwhere(bad)[0]
@@ -121,17 +120,20 @@ def read_mask(path, shape, *, key=None, transpose=False):
     if not np.isin(M, (0.0, 1.0)).all():
         raise InputError(f"{path}: mask must hold only 0 (observed) and 1 "
                          "(unobserved)")
-    return M == 0.0
+    observed = M == 0.0
+    if not observed.any():
+        raise InputError(f"{path}: the mask leaves no observed entry (every "
+                         "entry is 1)")
+    return observed
 
 
 def read_kernel(path, *, key=None):
     """A 4-D kernel K[post_feature, pre_feature, dy, dx] from .npy or .npz."""
     path = Path(path)
-    if not path.is_file():
-        raise InputError(f"{path}: kernel file not found")
+    input_file(path, "kernel", missing="kernel file not found")
     if path.suffix.lower() not in (".npy", ".npz"):
         raise InputError(f"{path}: a kernel must be a .npy or .npz file")
-    arr = load_array(path, key)
+    arr = np.asarray(load_array(path, key, what="kernel"))
     if arr.ndim != 4:
         raise InputError(f"{path}: expected a 4-D kernel K[post_feature, "
                          f"pre_feature, dy, dx], got a {arr.ndim}-D array "

@@ -1,14 +1,132 @@
-"""The unit table: one row per excitatory unit of W, in W's order."""
+"""The unit table: one row per excitatory unit of W, in W's order.
+
+Read as Python's csv module expects (``newline=""``: a carriage return or
+line break inside a quoted name is kept exactly). A cell longer than
+:data:`MAX_FIELD` characters, a csv.Error, and a character that XML 1.0
+cannot hold (W3C XML 1.0, section 2.2, production [2] ``Char``: NUL and the
+other C0 controls but tab, LF and CR, U+FFFE, U+FFFF) are refused when the
+table is read, naming the row and column: the exports write GraphML and
+NeuroML2, which cannot carry them.
+"""
 
 import csv
 import io as _io
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 
 from ..errors import InputError
+from ..names import NOT_XML_CHAR
+from .text import input_file, read_input_bytes, show_cell
 
-__all__ = ["read_units"]
+__all__ = ["MAX_FIELD", "POSITION_UNITS", "UnitTable", "read_unit_table", "read_units"]
+
+MAX_FIELD = 4096
+"""The longest cell of a unit table, in characters (a unit id, a number):
+common practice for a name; Python's csv module itself stops at 131072."""
+
+
+def _rows(path, text):
+    """The non-blank records of a unit table; a csv.Error names its row."""
+    rows = []
+    reader = csv.reader(_io.StringIO(text, newline=""))
+    try:
+        for r in reader:
+            if any(c.strip() for c in r):
+                rows.append(r)
+    except csv.Error as exc:
+        raise InputError(f"{path}: row {len(rows) + 1}: {exc}") from None
+    return rows
+
+
+def _check_cells(path, rows):
+    """Refuse cells no export can write, and overlong cells, by row/column."""
+    header = rows[0]
+    for i, row in enumerate(rows):
+        for j, cell in enumerate(row):
+            name = header[j].strip().lower() if i and j < len(header) else ""
+            col = f"column {name!r}" if name and not NOT_XML_CHAR.search(name) \
+                else f"column {j + 1}"
+            if len(cell) > MAX_FIELD:
+                raise InputError(f"{path}: row {i + 1}, {col}: a cell of "
+                                 f"{len(cell)} characters (limit {MAX_FIELD})")
+            bad = NOT_XML_CHAR.search(cell)
+            if bad:
+                raise InputError(f"{path}: row {i + 1}, {col}: character "
+                                 f"U+{ord(bad.group()):04X} cannot be stored in "
+                                 "XML (GraphML, NeuroML2)")
+
+
+def _read_rows(path):
+    """The records of the unit table at ``path``; owns the file checks, the
+    decoding, the empty-table check and the check of every cell."""
+    input_file(path, "unit table", missing="unit table not found")
+    try:
+        text = read_input_bytes(path).decode("utf-8-sig")
+    except UnicodeDecodeError:
+        raise InputError(f"{path}: unit table is not UTF-8 text") from None
+    rows = _rows(path, text)
+    if not rows:
+        raise InputError(f"{path}: unit table is empty")
+    _check_cells(path, rows)
+    return rows
+
+
+def _check_header(path, header, n_rows, n_units):
+    """Refuse a header without 'feature' or with a repeated name, and a
+    table whose number of data rows is not W's number of units."""
+    if "feature" not in header:
+        raise InputError(f"{path}: unit table has no 'feature' column "
+                         f"(columns: {', '.join(header)})")
+    if len(set(header)) != len(header):
+        raise InputError(f"{path}: unit table has a repeated column name")
+    if n_rows != n_units:
+        raise InputError(f"{path}: unit table has {n_rows} rows, W has "
+                         f"{n_units} units")
+
+
+def _number_column(path, body, j, name):
+    """Column ``j`` (called ``name``) of the data rows as finite float64; a
+    missing cell counts as empty, and is not a number."""
+    vals = np.empty(len(body))
+    for i, row in enumerate(body):
+        cell = row[j].strip() if j < len(row) else ""
+        try:
+            vals[i] = float(cell)
+        except ValueError:
+            raise InputError(f"{path}: row {i + 2}, column '{name}': "
+                             f"not a number: {show_cell(cell)}") from None
+        if not np.isfinite(vals[i]):
+            raise InputError(f"{path}: row {i + 2}, column '{name}': "
+                             f"{cell if len(cell) <= 40 else show_cell(cell)} "
+                             "is not finite")
+    return vals
+
+
+def _check_feature_range(path, feature, period):
+    """Refuse the first preferred feature outside [0, period)."""
+    bad = np.flatnonzero((feature < 0) | (feature >= period))
+    if bad.size:
+        i = int(bad[0])
+        raise InputError(f"{path}: row {i + 2}, column 'feature': "
+                         f"{feature[i]:g} is outside [0, {period:g})")
+
+
+def _unit_ids(path, body, j):
+    """Column ``j`` of the data rows as unit ids; owns the refusal of a
+    missing id and of a repeated one (naming the row it first appears on)."""
+    ids = [row[j].strip() if j < len(row) else "" for row in body]
+    seen = {}
+    for i, name in enumerate(ids):
+        if not name:
+            raise InputError(f"{path}: row {i + 2}: missing unit id")
+        if name in seen:
+            raise InputError(f"{path}: row {i + 2}: duplicate unit id "
+                             f"{show_cell(name)} (first on row "
+                             f"{seen[name] + 2})")
+        seen[name] = i
+    return np.array(ids, dtype=str)
 
 
 def read_units(path, n_units, *, period=180.0):
@@ -22,59 +140,51 @@ def read_units(path, n_units, *, period=180.0):
     present.
     """
     path = Path(path)
-    if not path.is_file():
-        raise InputError(f"{path}: unit table not found")
-    try:
-        text = path.read_text(encoding="utf-8-sig")
-    except UnicodeDecodeError:
-        raise InputError(f"{path}: unit table is not UTF-8 text") from None
-    rows = [r for r in csv.reader(_io.StringIO(text)) if any(c.strip() for c in r)]
-    if not rows:
-        raise InputError(f"{path}: unit table is empty")
+    rows = _read_rows(path)
     header = [c.strip().lower() for c in rows[0]]
-    if "feature" not in header:
-        raise InputError(f"{path}: unit table has no 'feature' column "
-                         f"(columns: {', '.join(header)})")
-    if len(set(header)) != len(header):
-        raise InputError(f"{path}: unit table has a repeated column name")
     body = rows[1:]
-    if len(body) != n_units:
-        raise InputError(f"{path}: unit table has {len(body)} rows, W has "
-                         f"{n_units} units")
-    out = {}
-    for name in ("feature", "x", "y"):
-        if name not in header:
-            continue
-        j = header.index(name)
-        vals = np.empty(len(body))
-        for i, row in enumerate(body):
-            cell = row[j].strip() if j < len(row) else ""
-            try:
-                vals[i] = float(cell)
-            except ValueError:
-                raise InputError(f"{path}: row {i + 2}, column '{name}': "
-                                 f"not a number: {cell!r}") from None
-            if not np.isfinite(vals[i]):
-                raise InputError(f"{path}: row {i + 2}, column '{name}': "
-                                 f"{cell} is not finite")
-        out[name] = vals
-    bad = np.flatnonzero((out["feature"] < 0) | (out["feature"] >= period))
-    if bad.size:
-        i = int(bad[0])
-        raise InputError(f"{path}: row {i + 2}, column 'feature': "
-                         f"{out['feature'][i]:g} is outside [0, {period:g})")
+    _check_header(path, header, len(body), n_units)
+    out = {name: _number_column(path, body, header.index(name), name)
+           for name in ("feature", "x", "y") if name in header}
+    _check_feature_range(path, out["feature"], period)
     if "id" in header:
-        j = header.index("id")
-        ids = [row[j].strip() if j < len(row) else "" for row in body]
-        seen = {}
-        for i, name in enumerate(ids):
-            if not name:
-                raise InputError(f"{path}: row {i + 2}: missing unit id")
-            if name in seen:
-                raise InputError(f"{path}: row {i + 2}: duplicate unit id "
-                                 f"{name!r} (first on row {seen[name] + 2})")
-            seen[name] = i
-        out["id"] = np.array(ids, dtype=str)
+        out["id"] = _unit_ids(path, body, header.index("id"))
     return out
 
 
+@dataclass(frozen=True)
+class UnitTable:
+    """The unit table as a job uses it: features (degrees), positions
+    (micrometres of cortex, N x 2) and ids; None where the table has none."""
+
+    path: str | None = None
+    features: np.ndarray | None = field(default=None, repr=False)
+    positions: np.ndarray | None = field(default=None, repr=False)
+    ids: list | None = field(default=None, repr=False)
+
+
+POSITION_UNITS = ("um", "deg")
+
+
+def read_unit_table(path, n_units, *, period=180.0, position_unit="um",
+                    magnification=None):
+    """:func:`read_units` with the position rule applied: x and y both or
+    neither; positions in degrees of visual field become micrometres through
+    the cortical magnification. ``path`` None gives an empty UnitTable (the
+    options are still checked)."""
+    if position_unit not in POSITION_UNITS:
+        raise InputError(f"position unit {position_unit!r}: use um or deg")
+    if position_unit == "deg" and not (magnification or 0) > 0:
+        raise InputError("positions in degrees need --magnification "
+                         "(micrometres of cortex per degree of visual field)")
+    if path is None:
+        return UnitTable()
+    table = read_units(path, n_units, period=period)
+    positions = None
+    if "x" in table and "y" in table:
+        scale = magnification if position_unit == "deg" else 1.0
+        positions = np.column_stack([table["x"], table["y"]]) * scale
+    elif "x" in table or "y" in table:
+        raise InputError(f"{path}: positions need both an x and a y column")
+    ids = [str(u) for u in table["id"]] if "id" in table else None
+    return UnitTable(str(path), table.get("feature"), positions, ids)
