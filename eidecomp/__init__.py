@@ -7,6 +7,7 @@ Public names are imported here; nothing heavy is (cvxpy is imported only by
 the convex solvers, matplotlib only by plotting).
 """
 
+from ._version import __version__
 from .assemble import assemble  # the function; the subpackage stays importable
 from .decompose import (
     RobustPCA,
@@ -26,8 +27,6 @@ from .types import (
     PathPoint,
     Population,
 )
-
-__version__ = "0.1.0"
 
 __all__ = [
     "AssemblyReport",

@@ -11,8 +11,9 @@ import sys
 import time
 import warnings
 
-from . import __version__
+from ._version import __version__
 from .errors import ConvergenceWarning, InputError, SolverError, WriteError
+from .params import DEFAULT_EI_RATIO, TAU_E_MS, TAU_I_MS, TOL, resolve_tol
 
 __all__ = ["main"]
 
@@ -55,10 +56,50 @@ def _add_matrix_options(p):
     p.add_argument("--ignore-diagonal", action="store_true",
                    help="treat self-connections as unobserved")
     p.add_argument("--lam", type=_positive_float,
-                   help="weight of ||S||_1 (default 1/sqrt(n))")
+                   help="weight of ||S||_1 (default 1/sqrt(max(m, n)))")
+    p.add_argument("--tol", type=_positive_float,
+                   help="ALM tolerance on primal and dual residuals (default "
+                   f"{TOL['float64']:g}, or {TOL['float32']:g} with --float32)")
+
+
+def _add_job_options(p, target):
+    """--seed, --force and -q: the same for every job that writes a folder."""
+    p.add_argument("--seed", type=_count, default=0,
+                   help="seed of every random choice (default 0): the same "
+                   "inputs and seed give the same outputs")
+    p.add_argument("--force", action="store_true",
+                   help=f"replace {target} if it holds an eidecomp output of "
+                   "the same kind")
+    p.add_argument("-q", "--quiet", action="store_true",
+                   help="no progress lines")
+
+
+def _add_bundle_job(p, target, what):
+    """A job that reads a circuit bundle and writes one output."""
+    p.add_argument("bundle", metavar="CIRCUIT", help="a circuit bundle folder")
+    p.add_argument("-o", "--output", required=True, metavar=target,
+                   help=f"{what} (must not exist, unless --force)")
+    p.add_argument("--force", action="store_true",
+                   help=f"replace {target} if it exists (never an input)")
+    p.add_argument("-q", "--quiet", action="store_true",
+                   help="no progress lines")
+
+
+def _add_input(p, matrix_help, kernel_help):
+    """The input of a job: a matrix, or a kernel tiled over a grid."""
+    p.add_argument("matrix", nargs="?", help=matrix_help + " (omit with --kernel)")
+    p.add_argument("--kernel", metavar="K.npy",
+                   help="a lateral kernel K[post_feature, pre_feature, dy, dx] "
+                   f"(odd, centred) tiled over --grid, instead of a matrix: "
+                   f"{kernel_help}")
+    p.add_argument("--grid", metavar="HxW", help="grid of the kernel, e.g. 64x64")
 
 
 def _get_parser():
+    from .decompose import METHODS, SOLVERS
+    from .export import FORMATS
+    from .pipeline import DECOMPOSE_ENGINES, SIMULATORS
+
     parser = _Parser(prog="eidecomp", description=(
         "Turn a signed lateral weight matrix W[post, pre] into low-rank and "
         "sparse parts (robust PCA) and into a Dale's-law circuit of excitatory, "
@@ -71,13 +112,9 @@ def _get_parser():
                          description="Split W into low-rank L and sparse S "
                          "(Principal Component Pursuit) and write OUT/low_rank.npy, "
                          "OUT/sparse.npy and OUT/summary.json.")
-    dec.add_argument("matrix", nargs="?", help="W[post, pre] as .npy, .npz, .csv, "
-                     ".tsv, .txt or .mat; 'example' for the built-in invented "
-                     "example (omit with --kernel)")
-    dec.add_argument("--kernel", metavar="K.npy",
-                     help="a lateral kernel K[post_feature, pre_feature, dy, dx] "
-                     "(odd, centred) tiled over --grid, instead of a matrix")
-    dec.add_argument("--grid", metavar="HxW", help="grid of the kernel, e.g. 64x64")
+    _add_input(dec, "W[post, pre] as .npy, .npz, .csv, .tsv, .txt or .mat; "
+               "'example' for the built-in invented example",
+               "decompose it in the Fourier domain, never forming the matrix")
     dec.add_argument("--boundary", choices=("periodic", "zero"), default="periodic",
                      help="periodic: structured solver on the kernel; zero: "
                      "expanded to the dense matrix (memory permitting)")
@@ -86,17 +123,14 @@ def _get_parser():
     _add_matrix_options(dec)
     dec.add_argument("--target-rank", type=_count, metavar="K",
                      help="search lam for a low-rank part of rank K")
-    dec.add_argument("--method", choices=("ialm", "convex"), default="ialm",
+    dec.add_argument("--method", choices=METHODS, default=METHODS[0],
                      help="fast ALM solver or exact convex program (cvxpy)")
-    dec.add_argument("--solver", choices=("CLARABEL", "SCS"), default="CLARABEL",
+    dec.add_argument("--solver", choices=SOLVERS, default=SOLVERS[0],
                      type=str.upper, help="cvxpy solver for --method convex")
-    dec.add_argument("--tol", type=_positive_float,
-                     help="ALM tolerance on primal and dual residuals "
-                     "(default 1e-8, or 1e-6 with --float32)")
     dec.add_argument("--max-iter", type=_count, metavar="N",
                      help="iteration limit (ALM default 5000)")
-    dec.add_argument("--seed", type=_count, default=0)
-    dec.add_argument("--engine", choices=("memory", "dask"), default="memory",
+    dec.add_argument("--engine", choices=DECOMPOSE_ENGINES,
+                     default=DECOMPOSE_ENGINES[0],
                      help="memory (default) or dask: the matrix read in blocks "
                      "from a .npy file or a .zarr array and decomposed on a "
                      "Dask cluster, S and Y kept on disk beside OUT")
@@ -105,22 +139,15 @@ def _get_parser():
                      "cluster of two workers)")
     dec.add_argument("--float32", action="store_true",
                      help="work in float32: half the memory, residuals to "
-                     "about 1e-6 (default tol 1e-6)")
-    dec.add_argument("--force", action="store_true",
-                     help="replace OUT if it exists")
-    dec.add_argument("-q", "--quiet", action="store_true",
-                     help="no progress lines")
+                     f"about {TOL['float32']:g} (the default tol then)")
+    _add_job_options(dec, "OUT")
     asm = sub.add_parser("assemble", help="Dale's-law circuit from a matrix",
                          description="Build an excitatory / untuned-inhibitory "
                          "/ tuned-inhibitory circuit that reproduces W at the "
                          "chosen E:I ratio, and write it as a bundle folder.")
-    asm.add_argument("matrix", nargs="?", help="W[post, pre] (as for decompose), "
-                     "'example', or a folder written by 'eidecomp decompose' "
-                     "(omit with --kernel)")
-    asm.add_argument("--kernel", metavar="K.npy",
-                     help="a lateral kernel tiled over --grid (periodic): "
-                     "assemble a tiled circuit of translation-invariant kernels")
-    asm.add_argument("--grid", metavar="HxW", help="grid of the kernel")
+    _add_input(asm, "W[post, pre] (as for decompose), 'example', or a folder "
+               "written by 'eidecomp decompose'", "periodic: assemble a tiled "
+               "circuit of translation-invariant kernels")
     asm.add_argument("--expand", action="store_true",
                      help="with --kernel: write the explicit circuit (a regular "
                      "bundle) instead of kernels, after a memory estimate")
@@ -133,9 +160,9 @@ def _get_parser():
         p.add_argument("-o", "--output", required=True, metavar="CIRCUIT",
                        help="bundle folder to write (must not exist, unless "
                        "--force)")
-        p.add_argument("--ei-ratio", default="4:1", metavar="E:I",
-                       help="excitatory units per interneuron, e.g. 4:1 "
-                       "(default) or 9:2")
+        p.add_argument("--ei-ratio", default=DEFAULT_EI_RATIO, metavar="E:I",
+                       help="excitatory units per interneuron, e.g. "
+                       f"{DEFAULT_EI_RATIO} (default) or 9:2")
         p.add_argument("--untuned-share", default="auto", metavar="auto|F",
                        help="fraction of interneurons that are untuned; 'auto' "
                        "(default) takes the rank of the low-rank part")
@@ -155,37 +182,26 @@ def _get_parser():
         p.add_argument("--report", action="store_true",
                        help="also write CIRCUIT/report.html in the same pass")
         _add_matrix_options(p)
-        p.add_argument("--seed", type=_count, default=0)
-        p.add_argument("--force", action="store_true",
-                       help="replace CIRCUIT if it exists")
-        p.add_argument("-q", "--quiet", action="store_true",
-                       help="no progress lines")
+        _add_job_options(p, "CIRCUIT")
     exp = sub.add_parser("export", help="write a circuit as a graph file",
                          description="Write the neuron-level graph of a "
                          "circuit bundle (edges pre -> post, nonnegative weights, "
                          "synapse kind) as GraphML, node-link JSON or a CSV edge "
                          "list.")
-    exp.add_argument("bundle", metavar="CIRCUIT", help="a circuit bundle folder")
-    exp.add_argument("--format", required=True, choices=(
-        "graphml", "json", "csv", "neuroml", "pynn", "nest", "brian2"),
-        help="graphml, json, csv, neuroml: one file; pynn, nest, brian2: a "
-        "folder with a runnable script and its data")
-    exp.add_argument("-o", "--output", required=True, metavar="FILE_OR_DIR")
-    exp.add_argument("--tau-e", type=_positive_float, default=10.0,
-                     help="E time constant in ms (simulator formats)")
-    exp.add_argument("--tau-i", type=_positive_float, default=5.0,
-                     help="interneuron time constant in ms (simulator formats)")
-    exp.add_argument("--force", action="store_true",
-                     help="replace FILE if it exists")
+    _add_bundle_job(exp, "FILE_OR_DIR", "the file (graph and model formats) or "
+                    "folder (simulator scripts) to write")
+    exp.add_argument("--format", required=True, choices=FORMATS,
+                     help=_format_help())
+    _add_time_constants(exp, " (simulator formats)")
+    exp.add_argument("--raw-csv", action="store_true",
+                     help="csv: write text cells as they are, without "
+                     "neutralising those a spreadsheet would run as formulas")
     rep = sub.add_parser("report", help="an HTML report of a circuit",
                          description="Write one self-contained HTML file with "
                          "the inputs, parameters, the assembly against the "
                          "baselines, connection rules, tuning, stability and "
                          "figures.")
-    rep.add_argument("bundle", metavar="CIRCUIT", help="a circuit bundle folder")
-    rep.add_argument("-o", "--output", required=True, metavar="FILE")
-    rep.add_argument("--force", action="store_true",
-                     help="replace FILE if it exists")
+    _add_bundle_job(rep, "FILE", "the HTML file to write")
     demo = sub.add_parser("demo", help="the whole job on invented demo data",
                           description="Write an invented demo matrix and unit "
                           "table, and run decompose, assemble and report on "
@@ -202,19 +218,30 @@ def _get_parser():
                          "and print how closely the circuit's E rates match the "
                          "fixed points of W and of W_eff.")
     sim.add_argument("bundle", metavar="CIRCUIT", help="a circuit bundle folder")
-    sim.add_argument("--engine", choices=("internal", "nest", "brian2"),
-                     default="internal",
+    sim.add_argument("--engine", choices=tuple(SIMULATORS), default="internal",
                      help="internal (scipy's solve_ivp), nest or brian2")
     sim.add_argument("--input", default="random", metavar="random|FILE",
                      help="drive of the E units: random (seeded) or a file of "
                      "N values")
-    sim.add_argument("--tau-e", type=_positive_float, default=10.0,
-                     help="E time constant in ms")
-    sim.add_argument("--tau-i", type=_positive_float, default=5.0,
-                     help="interneuron time constant in ms (default 5: "
-                     "interneurons faster than E cells, common practice)")
-    sim.add_argument("--seed", type=_count, default=0)
+    _add_time_constants(sim, "")
+    sim.add_argument("--seed", type=_count, default=0,
+                     help="seed of the random drive (default 0)")
     return parser
+
+
+def _add_time_constants(p, where):
+    p.add_argument("--tau-e", type=_positive_float, default=TAU_E_MS,
+                   help=f"E time constant in ms (default {TAU_E_MS:g}){where}")
+    p.add_argument("--tau-i", type=_positive_float, default=TAU_I_MS,
+                   help=f"interneuron time constant in ms (default {TAU_I_MS:g}: "
+                   f"faster than E cells, common practice){where}")
+
+
+def _format_help():
+    from .export import FORMATS
+
+    return ", ".join(FORMATS) + ": graph and model files (one file) or " \
+        "simulator scripts with their data (a folder)"
 
 
 def _nonnegative_float(text):
@@ -232,7 +259,7 @@ class _Progress:
     with an estimate of the time left; silent when stderr is not a terminal
     (a log file or a pipe) unless ``always``."""
 
-    def __init__(self, stream, tol=1e-8, always=False):
+    def __init__(self, stream, tol=TOL["float64"], always=False):
         self.stream = stream
         self.tol = tol
         self.start = self.last = time.monotonic()
@@ -277,63 +304,71 @@ class _StageProgress(_Progress):
                   file=self.stream, flush=True)
 
 
-def _kernel_table(result):
-    s = result.summary
-    ranks = result.decomposition.ranks
-    rows = [
-        ("kernel", "x".join(map(str, s["input"]["kernel_shape"]))),
-        ("grid", "x".join(map(str, s["input"]["grid"])) + "  (periodic)"),
-        ("units", str(s["n_units"])),
-        ("lam", f"{s['lam']:.6g}"),
-        ("rank of L", f"{s['rank']}  (at most {int(ranks.max())} per frequency)"),
-        ("objective", f"{s['objective']:.10g}"),
-        ("iterations", str(s["n_iter"])),
-        ("converged", "yes" if s["converged"] else "NO"),
-        ("written to", str(result.output)),
-    ]
+def _num(value, spec):
+    """A number of a summary table: '-' when there is none, 0 as 0."""
+    if value is None or value != value:
+        return "-"
+    return "0" if value == 0 else format(value, spec)
+
+
+def _table(rows):
     width = max(len(k) for k, _ in rows)
     return "\n".join(f"{k:<{width}}  {v}" for k, v in rows)
+
+
+def _shape(s):
+    return "x".join(map(str, s["input"]["shape"]))
+
+
+def _kernel_rows(result):
+    s = result.summary
+    ranks = result.decomposition.ranks
+    return [("kernel", "x".join(map(str, s["input"]["kernel_shape"]))),
+            ("grid", "x".join(map(str, s["input"]["grid"])) + "  (periodic)"),
+            ("units", str(s["n_units"])),
+            ("lam", _num(s["lam"], ".6g")),
+            ("rank of L", f"{s['rank']}  (at most {int(ranks.max())} per "
+                          "frequency)"),
+            ("objective", _num(s["objective"], ".10g"))]
+
+
+def _factored_rows(result):
+    s = result.summary
+    return [("engine", f"dask ({s['engine']['scheduler']})"),
+            ("shape", _shape(s)), ("lam", _num(s["lam"], ".6g")),
+            ("rank of L", str(s["rank"]))]
+
+
+def _dense_rows(result):
+    s = result.summary
+    o = s["optimality"]
+    default = s["parameters"].get("lam") is None and \
+        s["parameters"].get("target_rank") is None
+    return [("shape", _shape(s)),
+            ("lam", _num(s["lam"], ".6g") + ("  (default)" if default else "")),
+            ("rank of L", str(s["rank"])),
+            ("nonzeros in S", f"{100 * s['sparsity']:.2f} %"),
+            ("objective", _num(s["objective"], ".10g")),
+            ("primal residual", _num(o["primal_residual"], ".2e")),
+            ("||Y||_2", _num(o["multiplier_spectral_norm"], ".6f")),
+            ("||Y||_max / lam", _num(o["multiplier_max_norm_over_lam"], ".6f"))]
 
 
 def _summary_table(result):
+    from .io.bundles import FACTORED, KERNEL_DECOMPOSITION
+
+    rows = {KERNEL_DECOMPOSITION: _kernel_rows,
+            FACTORED: _factored_rows}.get(result.kind, _dense_rows)(result)
     s = result.summary
-    if s["format"] == "eidecomp-kernel-decomposition":
-        return _kernel_table(result)
-    if s["format"] == "eidecomp-dask-decomposition":
-        return "\n".join([f"engine      dask ({s['engine']['scheduler']})",
-                          f"shape       {'x'.join(map(str, s['input']['shape']))}",
-                          f"lam         {s['lam']:.6g}", f"rank of L   {s['rank']}",
-                          f"iterations  {s['n_iter']}",
-                          f"converged   {'yes' if s['converged'] else 'NO'}",
-                          f"written to  {result.output}"])
-    o = s["optimality"]
-    rows = [
-        ("shape", "x".join(map(str, s["input"]["shape"]))),
-        ("lam", f"{s['lam']:.6g}" + ("  (default)" if s["parameters"]["lam"]
-                                     is None and s["parameters"]["target_rank"]
-                                     is None else "")),
-        ("rank of L", str(s["rank"])),
-        ("nonzeros in S", f"{100 * s['sparsity']:.2f} %"),
-        ("objective", f"{s['objective']:.10g}"),
-        ("primal residual", f"{o['primal_residual']:.2e}"),
-        ("||Y||_2", "-" if o["multiplier_spectral_norm"] is None
-         else f"{o['multiplier_spectral_norm']:.6f}"),
-        ("||Y||_max / lam", "-" if o["multiplier_max_norm_over_lam"] is None
-         else f"{o['multiplier_max_norm_over_lam']:.6f}"),
-        ("iterations", str(s["n_iter"])),
-        ("converged", "yes" if s["converged"] else "NO"),
-        ("written to", str(result.output)),
-    ]
-    width = max(len(k) for k, _ in rows)
-    return "\n".join(f"{k:<{width}}  {v}" for k, v in rows)
+    return _table(rows + [("iterations", str(s["n_iter"])),
+                          ("converged", "yes" if s["converged"] else "NO"),
+                          ("written to", str(result.output))])
 
 
 def _decompose(args):
     from .pipeline import DecomposeConfig, run_decompose
 
-    if (args.matrix is None) == (args.kernel is None):
-        raise InputError("give either a matrix or --kernel (see 'eidecomp "
-                         "decompose --help')")
+    dtype = "float32" if args.float32 else "float64"
     config = DecomposeConfig(
         input=args.matrix, output=args.output, key=args.key,
         kernel=args.kernel, grid=args.grid, boundary=args.boundary,
@@ -341,10 +376,9 @@ def _decompose(args):
         ignore_diagonal=args.ignore_diagonal, lam=args.lam,
         target_rank=args.target_rank, method=args.method, solver=args.solver,
         tol=args.tol, max_iter=args.max_iter, seed=args.seed, force=args.force,
-        dtype="float32" if args.float32 else "float64", engine=args.engine,
-        scheduler=args.scheduler)
+        dtype=dtype, engine=args.engine, scheduler=args.scheduler)
     progress = None if args.quiet else _Progress(
-        sys.stderr, tol=args.tol or (1e-6 if args.float32 else 1e-8))
+        sys.stderr, tol=resolve_tol(args.tol, dtype))
     result = run_decompose(config, progress=progress)
     print(_summary_table(result))
     return 0
@@ -384,37 +418,37 @@ def _circuit_table(result):
     return "\n".join(lines)
 
 
+def _tiled_line(result):
+    m = result.meta
+    site = m["per_site"]
+    return (f"tiled circuit on a {'x'.join(map(str, m['input']['grid']))} grid: "
+            f"per site {site['excitatory']} E, {site['untuned']} untuned I, "
+            f"{site['tuned']} tuned I; relative error "
+            f"{m['metrics']['relative_error']:.4f}; expanded it is "
+            f"{sum(m['counts'].values())} units "
+            f"(~{m['memory_estimate_expanded_bytes'] / 2**20:.0f} MiB dense)\n"
+            f"written to {result.output}")
+
+
 def _assemble(args):
+    from .io.bundles import TILED
     from .pipeline import AssembleConfig, run_assemble
 
-    kernel = getattr(args, "kernel", None)
-    if (args.matrix is None) == (kernel is None):
-        raise InputError("give either a matrix or --kernel (see 'eidecomp "
-                         f"{args.command} --help')")
-    tiled = {"kernel": kernel, "grid": getattr(args, "grid", None),
-             "expand": getattr(args, "expand", False)}
     config = AssembleConfig(
         input=args.matrix, output=args.output, ei_ratio=args.ei_ratio,
         untuned_share=args.untuned_share, alpha=args.alpha, units=args.units,
         period=args.period, position_unit=args.position_unit,
-        magnification=args.magnification, report=args.report, **tiled,
-        key=args.key, transpose=args.transpose,
-        mask=args.mask, ignore_diagonal=args.ignore_diagonal, lam=args.lam,
+        magnification=args.magnification, report=args.report,
+        kernel=getattr(args, "kernel", None), grid=getattr(args, "grid", None),
+        expand=getattr(args, "expand", False), key=args.key,
+        transpose=args.transpose, mask=args.mask,
+        ignore_diagonal=args.ignore_diagonal, lam=args.lam, tol=args.tol,
         seed=args.seed, force=args.force)
-    progress = None if args.quiet else _Progress(sys.stderr)
+    progress = None if args.quiet else _Progress(sys.stderr,
+                                                 tol=resolve_tol(args.tol))
     stages = None if args.quiet else _StageProgress(sys.stderr)
     result = run_assemble(config, progress=progress, stage_progress=stages)
-    if "per_site" in result.meta:
-        m = result.meta
-        print(f"tiled circuit on a {'x'.join(map(str, m['input']['grid']))} grid: "
-              f"per site {m['per_site']['excitatory']} E, "
-              f"{m['per_site']['untuned']} untuned I, {m['per_site']['tuned']} "
-              f"tuned I; relative error {m['metrics']['relative_error']:.4f}; "
-              f"expanded it is {sum(m['counts'].values())} units "
-              f"(~{m['memory_estimate_expanded_bytes'] / 2**20:.0f} MiB dense)")
-        print(f"written to {result.output}")
-        return 0
-    print(_circuit_table(result))
+    print(_tiled_line(result) if result.kind is TILED else _circuit_table(result))
     return 0
 
 
@@ -422,7 +456,7 @@ def _export(args):
     from .pipeline import run_export
 
     path = run_export(args.bundle, args.format, args.output, force=args.force,
-                      tau_e=args.tau_e, tau_i=args.tau_i)
+                      tau_e=args.tau_e, tau_i=args.tau_i, raw_csv=args.raw_csv)
     print(f"written to {path}")
     return 0
 
@@ -462,8 +496,7 @@ def _simulate(args):
         ("circuit vs original network", f"{r['circuit_vs_original']:.2e}"),
         ("||W - W_eff|| / ||W||", f"{r['reconstruction_error']:.2e}"),
     ]
-    width = max(len(k) for k, _ in rows)
-    print("\n".join(f"{k:<{width}}  {v}" for k, v in rows))
+    print(_table(rows))
     return 0
 
 
@@ -477,32 +510,52 @@ def _one_line(exc):
 
 
 def main(argv=None):
-    """Run the command line; returns the exit status."""
+    """Run the command line; returns the exit status.
+
+    SIGTERM and SIGHUP stop a run as SIGINT does (nothing written), with
+    exit status 128 + the signal's number; SIGINT gives 130.
+    """
+    from .io.staging import Terminated, handle_termination
+
+    def say(line):
+        try:
+            print(line, file=sys.stderr)
+        except OSError:  # the terminal went away (SIGHUP): the status says it
+            pass
+
     parser = _get_parser()
     try:
-        args = parser.parse_args(argv)
-        if args.command is None:
-            parser.print_help(sys.stderr)
-            return 2
-        with warnings.catch_warnings():
-            warnings.simplefilter("always", ConvergenceWarning)
-            warnings.showwarning = _show_warning
-            return {"decompose": _decompose, "assemble": _assemble,
-                    "run": _assemble, "export": _export,
-                    "simulate": _simulate, "report": _report,
-                    "demo": _demo}[args.command](args)
+        with handle_termination():
+            args = parser.parse_args(argv)
+            if args.command is None:
+                parser.print_help(sys.stderr)
+                return 2
+            with warnings.catch_warnings():
+                warnings.simplefilter("always", ConvergenceWarning)
+                warnings.showwarning = _show_warning
+                return {"decompose": _decompose, "assemble": _assemble,
+                        "run": _assemble, "export": _export,
+                        "simulate": _simulate, "report": _report,
+                        "demo": _demo}[args.command](args)
     except InputError as exc:
-        print(f"eidecomp: error: {_one_line(exc)}", file=sys.stderr)
+        say(f"eidecomp: error: {_one_line(exc)}")
         return 2
     except SolverError as exc:
-        print(f"eidecomp: solver failed: {_one_line(exc)}", file=sys.stderr)
+        say(f"eidecomp: solver failed: {_one_line(exc)}")
         return 1
     except WriteError as exc:
-        print(f"eidecomp: error: {_one_line(exc)}", file=sys.stderr)
+        say(f"eidecomp: error: {_one_line(exc)}")
         return 1
+    except Terminated as exc:
+        say(f"eidecomp: terminated ({exc.name}); nothing written")
+        return 128 + exc.signum
     except KeyboardInterrupt:
-        print("eidecomp: interrupted; nothing written", file=sys.stderr)
+        say("eidecomp: interrupted; nothing written")
         return 130
+    except MemoryError as exc:
+        detail = _one_line(exc) or "an allocation failed"
+        say(f"eidecomp: error: out of memory ({detail}); nothing written")
+        return 1
 
 
 if __name__ == "__main__":

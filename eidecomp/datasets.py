@@ -21,7 +21,7 @@ spreads dense noise over many tiny singular values; stable PCP, with
 
 import numpy as np
 
-__all__ = ["example_lateral", "make_planted", "make_planted_circuit"]
+__all__ = ["demo_inputs", "example_lateral", "make_planted", "make_planted_circuit"]
 
 
 def make_planted(n, *, rank=None, corruption=0.05, magnitude=1.0, seed=0,
@@ -147,3 +147,24 @@ def make_planted_circuit(n_e=400, *, n_untuned=5, n_tuned=95, ee_density=0.08,
     truth = Circuit(J_EE=J_EE, J_EU=J_EU, J_UE=J_UE, J_ET=J_ET, J_TE=J_TE,
                     params={"planted": True, "seed": seed})
     return truth.effective_weights(), truth, features
+
+
+def demo_inputs(seed=7):
+    """The invented demo: the example matrix and a unit table for it (CSV text).
+
+    Units are laid out along a line of cortex by preferred orientation (4 um
+    per degree, with 20 um of jitter across), a scenario of our own, so
+    like-to-like connections are also local ones.
+
+    >>> W, table = demo_inputs()
+    >>> W.shape, table.splitlines()[0]
+    ((120, 120), 'id,feature,x,y')
+    """
+    W, theta = example_lateral(seed=seed)
+    rng = np.random.default_rng(seed)
+    x = 4.0 * theta
+    y = rng.normal(0.0, 20.0, len(theta))
+    rows = zip(theta.tolist(), x.tolist(), y.tolist(), strict=True)
+    lines = ["id,feature,x,y"] + [f"unit{i:03d},{t!r},{a!r},{b!r}"
+                                  for i, (t, a, b) in enumerate(rows)]
+    return W, "\n".join(lines) + "\n"

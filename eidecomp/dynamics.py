@@ -23,13 +23,16 @@ Every function takes arrays or a Circuit; simulation integrates with
 ``scipy.integrate.solve_ivp``.
 """
 
+import math
+
 import numpy as np
 from scipy.integrate import solve_ivp
 
 from .errors import InputError
 
-__all__ = ["effective_from_full", "fixed_point", "full_matrix", "jacobian",
-           "max_stable_tau_ratio", "simulate", "spectral_abscissa"]
+__all__ = ["compare_with_original", "effective_from_full", "fixed_point",
+           "full_matrix", "jacobian", "max_stable_tau_ratio", "random_drive",
+           "simulate", "spectral_abscissa", "stability_summary"]
 
 
 def full_matrix(circuit):
@@ -167,3 +170,98 @@ def simulate(W_full, h, *, n_e=None, tau_e=1.0, tau_i=1.0, t_max=None,
     if not sol.success:
         raise RuntimeError(f"solve_ivp failed: {sol.message}")
     return sol.t, sol.y
+
+
+# --- summaries the jobs record ---------------------------------------------------
+
+STABILITY_MAX_UNITS = 800  # the tau scan solves dozens of dense eigenproblems
+STABILITY_SCAN = (1e-2, 1e2, 17)  # tau_I / tau_E from, to, grid points
+
+
+def stability_summary(circuit, W):
+    """What circuit.json records of stability: the spectral abscissa of the
+    original network (-I + W) and of the circuit at equal time constants,
+    and the largest stable tau_I / tau_E over :data:`STABILITY_SCAN`
+    (None: stable over the whole range). Above
+    :data:`STABILITY_MAX_UNITS` units the scan is skipped and says so.
+
+    >>> import numpy as np
+    >>> from eidecomp.types import Circuit
+    >>> c = Circuit(J_EE=np.array([[0.5]]), J_EU=np.array([[1.0]]),
+    ...             J_UE=np.array([[1.0]]), J_ET=np.zeros((1, 0)),
+    ...             J_TE=np.zeros((0, 1)))
+    >>> s = stability_summary(c, c.effective_weights())
+    >>> s["original_spectral_abscissa"], s["max_stable_tau_ratio"]
+    (-1.5, None)
+    """
+    lo, hi, n_grid = STABILITY_SCAN
+    n_total = circuit.n_excitatory + circuit.n_inhibitory
+    a_orig = spectral_abscissa(np.asarray(W) - np.eye(np.shape(W)[0]))
+    if n_total > STABILITY_MAX_UNITS:
+        return {"original_spectral_abscissa": a_orig,
+                "circuit_spectral_abscissa_equal_taus": None,
+                "max_stable_tau_ratio": None,
+                "note": f"{n_total} units: the tau scan was skipped (above "
+                        f"{STABILITY_MAX_UNITS}); call "
+                        "eidecomp.dynamics.max_stable_tau_ratio"}
+    W_full, n_e = full_matrix(circuit)
+    a_circ = spectral_abscissa(jacobian(W_full, n_e, 1.0, 1.0))
+    ratio = max_stable_tau_ratio(circuit, lo=lo, hi=hi, n_grid=n_grid, rtol=1e-3)
+    return {"original_spectral_abscissa": a_orig,
+            "circuit_spectral_abscissa_equal_taus": a_circ,
+            "max_stable_tau_ratio": None if math.isinf(ratio) else ratio,
+            "note": f"tau_I / tau_E scanned over [{lo:g}, {hi:g}]; null means "
+                    "stable over the whole range"}
+
+
+def random_drive(n, seed=0):
+    """A seeded drive of the E units, uniform on [0.5, 1.5], and its name."""
+    return np.random.default_rng(seed).uniform(0.5, 1.5, n), "random U(0.5, 1.5)"
+
+
+def _relative(a, b):
+    return float(np.linalg.norm(a - b) / max(np.linalg.norm(b), 1e-300))
+
+
+def compare_with_original(circuit, W, h, *, tau_e, tau_i, run=None):
+    """Run the circuit and the original network dr/dt = -r + W r + h on the
+    same drive ``h`` for 40 time constants of their slowest mode, and
+    compare the circuit's E rates with the fixed points of W_eff and W.
+
+    ``run(W_full, H, tau, t_ms)`` -> final rates is the simulator (None:
+    :func:`simulate`, scipy's solve_ivp). Unstable linear dynamics have no
+    fixed point to reach: InputError, with what to change.
+
+    Returns a dict of the settings and relative errors.
+    """
+    n_e = circuit.n_excitatory
+    W_full = circuit.signed_weights()
+    tau = _taus(W_full.shape[0], n_e, tau_e, tau_i)
+    a_orig = spectral_abscissa((np.asarray(W) - np.eye(n_e)) / tau_e)
+    a_circ = spectral_abscissa((W_full - np.eye(len(tau))) / tau[:, None])
+    if not a_orig < 0:
+        raise InputError(f"the original network is unstable (growth rate "
+                         f"{a_orig:.3g} per ms); its fixed point is never "
+                         "reached")
+    if not a_circ < 0:
+        limit = max_stable_tau_ratio(circuit, lo=1e-2, hi=1e2, n_grid=17)
+        raise InputError(f"the circuit is unstable at tau_I/tau_E = "
+                         f"{tau_i / tau_e:g} (stable up to {limit:.3g}); "
+                         "choose a smaller --tau-i")
+    # whole ms: a multiple of every simulator's resolution
+    t_ms = float(math.ceil(40.0 / -max(a_orig, a_circ)))
+    if run is None:
+        _, r = simulate(W_full, h, n_e=n_e, tau_e=tau_e, tau_i=tau_i, t_max=t_ms)
+        _, r0 = simulate(W, h, tau_e=tau_e, t_max=t_ms)
+        rates, orig = r[:, -1], r0[:, -1]
+    else:
+        rates = run(W_full, np.r_[h, np.zeros(circuit.n_inhibitory)], tau, t_ms)
+        orig = run(np.asarray(W), h, np.full(n_e, float(tau_e)), t_ms)
+    W_eff = circuit.effective_weights()
+    fp_eff, fp_W = fixed_point(W_eff, h), fixed_point(W, h)
+    return {"tau_e_ms": tau_e, "tau_i_ms": tau_i, "t_ms": t_ms,
+            "circuit_vs_fixed_point_W_eff": _relative(rates[:n_e], fp_eff),
+            "circuit_vs_fixed_point_W": _relative(rates[:n_e], fp_W),
+            "original_vs_fixed_point_W": _relative(orig, fp_W),
+            "circuit_vs_original": _relative(rates[:n_e], orig),
+            "reconstruction_error": _relative(W_eff, W)}

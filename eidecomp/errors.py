@@ -42,12 +42,13 @@ class SolverFallbackWarning(UserWarning):
     """The solver asked for failed or is missing; another one solved it."""
 
 
-def warn_stopped(what, n_iter, *, unit="iterations",
+def warn_stopped(what, n_iter, *, unit="iterations", detail="",
                  advice="raise max_iter or loosen tol", stacklevel=3):
     """Issue the one ConvergenceWarning wording of every eidecomp solver.
 
     ``what`` names the solver ("robust PCA", "kernel robust PCA", "circuit
-    refinement"); the warning says where it stopped and what to do.
+    refinement"); the warning says where it stopped (``detail``, e.g. the
+    residuals, in parentheses) and what to do.
 
     >>> import warnings
     >>> with warnings.catch_warnings(record=True) as w:
@@ -59,6 +60,7 @@ def warn_stopped(what, n_iter, *, unit="iterations",
     """
     import warnings
 
+    detail = f" ({detail})" if detail else ""
     warnings.warn(f"{what} stopped after {n_iter} {unit} before reaching its "
-                  f"tolerance; {advice}", ConvergenceWarning,
+                  f"tolerance{detail}; {advice}", ConvergenceWarning,
                   stacklevel=stacklevel)

@@ -67,7 +67,16 @@ def check_kernel(K, grid, boundary="periodic", name="kernel"):
     if K.shape[2] > h or K.shape[3] > w:
         raise InputError(f"{name}: spatial size {K.shape[2]}x{K.shape[3]} is "
                          f"larger than the {h}x{w} grid")
+    F = K.shape[0]
+    check_fits(KERNEL_ARRAYS * F * F * h * w * 8,
+               f"{name}: {F} features on a {h}x{w} grid (the solver's "
+               f"{KERNEL_ARRAYS} full-grid kernels)")
     return K
+
+
+KERNEL_ARRAYS = 8
+"""Full-grid (F, F, H, W) arrays the kernel solver holds at once (L, S, Y,
+the kernel, its transform and the work arrays), checked before any is made."""
 
 
 def full_grid(K, grid):

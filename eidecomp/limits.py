@@ -85,27 +85,25 @@ def check_range(W, name, what="matrix", base=1, dtype=np.float64):
 
 # --- memory -------------------------------------------------------------------
 
-def _meminfo_available():
+def _proc_field(path, field):
+    """A "Field: N kB" line of a /proc file, in bytes (0 if unknown)."""
     try:
-        with open("/proc/meminfo") as fh:
+        with open(path) as fh:
             for line in fh:
-                if line.startswith("MemAvailable:"):
+                if line.startswith(field + ":"):
                     return int(line.split()[1]) * 1024
     except (OSError, ValueError, IndexError):
         pass
     return 0
+
+
+def _meminfo_available():
+    return _proc_field("/proc/meminfo", "MemAvailable")
 
 
 def _vm_size():
     """This process's virtual size in bytes (what RLIMIT_AS counts)."""
-    try:
-        with open("/proc/self/status") as fh:
-            for line in fh:
-                if line.startswith("VmSize:"):
-                    return int(line.split()[1]) * 1024
-    except (OSError, ValueError, IndexError):
-        pass
-    return 0
+    return _proc_field("/proc/self/status", "VmSize")
 
 
 def _physical_memory():

@@ -32,6 +32,7 @@ __all__ = [
     "EIRatio",
     "SolverSettings",
     "check_lam",
+    "positive_number",
     "default_lam",
     "resolve_dtype",
     "resolve_tol",
@@ -57,15 +58,25 @@ def default_lam(shape):
     return 1.0 / math.sqrt(max(shape))
 
 
+def positive_number(value, name):
+    """``value`` as a positive finite float, or one InputError line.
+
+    >>> positive_number("0.5", "lam")
+    0.5
+    """
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        number = float("nan")
+    if not (math.isfinite(number) and number > 0):
+        raise InputError(f"{name} must be a positive finite number, got "
+                         f"{value!r}")
+    return number
+
+
 def check_lam(lam):
     """``lam`` as a positive finite float, or InputError."""
-    try:
-        lam = float(lam)
-    except (TypeError, ValueError):
-        raise InputError(f"lam must be a positive number, got {lam!r}") from None
-    if not (math.isfinite(lam) and lam > 0):
-        raise InputError(f"lam must be a positive finite number, got {lam!r}")
-    return lam
+    return positive_number(lam, "lam")
 
 
 def resolve_dtype(dtype):
@@ -83,13 +94,7 @@ def resolve_tol(tol, dtype="float64"):
     """``tol``, or the default of the working dtype when it is None."""
     if tol is None:
         return TOL[np.dtype(resolve_dtype(dtype)).name]
-    try:
-        tol = float(tol)
-    except (TypeError, ValueError):
-        raise InputError(f"tol must be a positive number, got {tol!r}") from None
-    if not (math.isfinite(tol) and tol > 0):
-        raise InputError(f"tol must be positive, got {tol!r}")
-    return tol
+    return positive_number(tol, "tol")
 
 
 @dataclass(frozen=True)

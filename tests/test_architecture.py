@@ -1,8 +1,11 @@
-"""The dependency direction of docs/architecture.md, read from the imports.
+"""The layering of docs/architecture.md, read from the imports (an allow-list).
 
-cli -> pipeline -> {io, decompose, datasets} -> {types, errors}; numerics never
-import the command line or the pipeline, and cvxpy is imported only inside the
-convex solver's functions (importing eidecomp stays light).
+Each top-level module or package of eidecomp may import only the siblings
+listed for it; the numerics never import the command line, the jobs or the
+files on disk (decompose may not import io); no private module or private
+name is imported across packages; cvxpy and matplotlib are imported only
+inside the functions that need them (importing eidecomp stays light). The
+reference is Python's own parser (the ast module) over the source files.
 """
 
 import ast
@@ -10,34 +13,87 @@ import subprocess
 import sys
 from pathlib import Path
 
+import pytest
+
 import eidecomp
 
 ROOT = Path(eidecomp.__file__).parent
-LOWER = {"types", "errors"}
-FORBIDDEN_FROM_NUMERICS = {"cli", "pipeline"}
+BASE = {"errors", "_version"}
+ALLOWED = {
+    "_version": set(),
+    "errors": set(),
+    "types": set(),
+    "params": {"errors"},
+    "limits": {"errors"},
+    "names": {"errors"},
+    "kernels": {"errors", "limits"},
+    "io": BASE | {"limits", "names", "params", "types"},
+    "decompose": BASE | {"kernels", "limits", "params", "types"},
+    "assemble": BASE | {"decompose", "kernels", "limits", "params", "types"},
+    "dynamics": BASE | {"types"},
+    "graph": BASE | {"names", "types"},
+    "export": BASE | {"graph", "io", "names", "params", "types"},
+    "analysis": BASE | {"decompose", "graph", "params", "types"},
+    "datasets": BASE | {"types"},
+    "pipeline": BASE | {"analysis", "assemble", "datasets", "decompose",
+                        "dynamics", "export", "io", "kernels", "limits",
+                        "params", "types"},
+    "cli": BASE | {"decompose", "export", "io", "params", "pipeline"},
+    "__init__": BASE | {"assemble", "decompose", "types"},
+}
 
 
-def _internal_imports(path):
-    tree = ast.parse(path.read_text())
-    names = set()
-    for node in ast.walk(tree):
+def _unit(rel):
+    return rel.with_suffix("").parts[0]
+
+
+def _imports(path):
+    """(target parts, imported names) of every relative import in a file."""
+    rel = path.relative_to(ROOT)
+    package = list(rel.parent.parts)
+    for node in ast.walk(ast.parse(path.read_text())):
         if isinstance(node, ast.ImportFrom) and node.level > 0:
-            mod = (node.module or "").split(".")[0]
-            names.add(mod if mod else node.names[0].name)
-    return names
+            base = package[:len(package) - (node.level - 1)]
+            names = [a.name for a in node.names]
+            if node.module:
+                yield base + node.module.split("."), names
+            elif base:  # from . import x, inside a package: its modules
+                for name in names:
+                    yield base + [name], []
+            else:  # from . import x at the top: x is a module or a name
+                for name in names:
+                    yield [name if (ROOT / name).exists()
+                           or (ROOT / f"{name}.py").exists() else "__init__"], []
 
 
-def test_numerics_do_not_import_cli_or_pipeline():
-    for path in ROOT.rglob("*.py"):
-        rel = path.relative_to(ROOT)
-        if rel.parts[0] in ("cli.py", "pipeline.py", "__init__.py"):
+SOURCES = sorted(ROOT.rglob("*.py"))
+
+
+def test_every_unit_is_listed():
+    assert {_unit(p.relative_to(ROOT)) for p in SOURCES} <= set(ALLOWED)
+
+
+@pytest.mark.parametrize("path", SOURCES, ids=lambda p: str(p.relative_to(ROOT)))
+def test_imports_follow_the_allow_list(path):
+    rel = path.relative_to(ROOT)
+    unit = _unit(rel)
+    for target, _ in _imports(path):
+        other = target[0]
+        if other == unit:
             continue
-        assert not (_internal_imports(path) & FORBIDDEN_FROM_NUMERICS), rel
+        assert other in ALLOWED[unit], f"{rel} imports {'.'.join(target)}"
 
 
-def test_types_and_errors_import_no_sibling():
-    for name in LOWER:
-        assert not (_internal_imports(ROOT / f"{name}.py") - {""}), name
+@pytest.mark.parametrize("path", SOURCES, ids=lambda p: str(p.relative_to(ROOT)))
+def test_no_private_import_across_packages(path):
+    rel = path.relative_to(ROOT)
+    unit = _unit(rel)
+    for target, names in _imports(path):
+        if target[0] == unit:
+            continue
+        private = [t for t in target[1:] if t.startswith("_")]
+        private += [n for n in names if n.startswith("_") and n != "__version__"]
+        assert not private, f"{rel} imports private {private} of {target[0]}"
 
 
 def test_import_is_light():

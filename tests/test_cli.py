@@ -81,7 +81,7 @@ def _write(tmp_path, name, content):
     ("w.csv", "1,2\n3,nan\n", [], "non-finite value"),
     ("w.csv", "1,inf\n3,4\n", [], "non-finite value"),
     ("w.csv", "", [], "file is empty"),
-    ("w.npy", np.ones((2, 3)), [], "must be square"),
+    ("w.npy", np.ones(3), [], "must be 2-D"),
     ("w.npz", None, ["--key", "nope"], "no array named 'nope'"),
     ("w.npy", np.eye(3), ["--lam", "abc"], "argument --lam: not a number"),
     ("w.npy", np.eye(3), ["--lam", "-1"], "must be a positive number"),
@@ -107,6 +107,32 @@ def test_bad_input_one_line_exit_2_nothing_written(tmp_path, capsys, name,
     assert message in err
     assert len(err.strip().splitlines()) == 1 and "Traceback" not in err
     assert sorted(p.name for p in tmp_path.iterdir()) == before
+
+
+def test_decompose_takes_a_rectangular_matrix_run_does_not(tmp_path, capsys):
+    """PCP is defined for any m x n matrix (Candes, Li, Ma, Wright 2011,
+    eq. 1.1, default lam 1/sqrt(max(m, n))); a circuit needs one set of
+    neurons, so ``run`` refuses the same file in one line."""
+    from eidecomp import robust_pca
+
+    rng = np.random.default_rng(3)
+    W = rng.standard_normal((30, 2)) @ rng.standard_normal((2, 45))
+    np.save(tmp_path / "w.npy", W)
+    assert main(["decompose", str(tmp_path / "w.npy"), "-o",
+                 str(tmp_path / "d"), "-q"]) == 0
+    ref = robust_pca(W)
+    got = np.load(tmp_path / "d" / "low_rank.npy")
+    assert got.shape == (30, 45)
+    assert np.array_equal(got, ref.low_rank)
+    summary = json.loads((tmp_path / "d" / "summary.json").read_text())
+    assert summary["lam"] == 1 / np.sqrt(45)
+    capsys.readouterr()
+    assert main(["run", str(tmp_path / "w.npy"), "-o", str(tmp_path / "c"),
+                 "-q"]) == 2
+    err = capsys.readouterr().err
+    assert err == (f"eidecomp: error: {tmp_path / 'w.npy'}: weight matrix must "
+                   "be square (W[post, pre] among one set of neurons), got shape "
+                   "(30, 45)\n")
 
 
 def test_iteration_limit_warns_and_records(planted, tmp_path, capsys):

@@ -75,8 +75,8 @@ def test_dask_engine_reads_zarr_and_keeps_nothing_in_the_work_folder(tmp_path):
 
 def test_dask_engine_refuses_nan_and_object_arrays(tmp_path):
     require("distributed")
-    from eidecomp.errors import InputError
     from eidecomp.decompose import robust_pca_dask
+    from eidecomp.errors import InputError
 
     W = np.ones((50, 50))
     W[3, 4] = np.nan
@@ -105,8 +105,8 @@ def test_wide_cold_starts_orthonormalise_here(monkeypatch):
 def test_dask_engine_refuses_magnitudes_it_cannot_square(tmp_path):
     """The same limits as the readers (docs/reliability.md)."""
     require("distributed")
-    from eidecomp.errors import InputError
     from eidecomp.decompose import robust_pca_dask
+    from eidecomp.errors import InputError
 
     W = np.ones((40, 40))
     W[30, 7] = 1e200

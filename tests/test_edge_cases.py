@@ -79,7 +79,8 @@ def test_rank_one_inhibition_is_one_untuned_interneuron():
     assert c.report.relative_error < 1e-8
     # the one interneuron's weights are a and b up to a scale
     u, v = c.J_EU[:, 0], c.J_UE[0]
-    assert np.allclose(u / u.sum(), a / a.sum()) and np.allclose(v / v.sum(), b / b.sum())
+    assert np.allclose(u / u.sum(), a / a.sum())
+    assert np.allclose(v / v.sum(), b / b.sum())
 
 
 @pytest.mark.parametrize("scale", [1e-12, 1e12])

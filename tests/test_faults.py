@@ -511,7 +511,9 @@ def test_sigkill_between_the_renames_gives_the_old_output_back(tmp_path,
     before = _listing(tmp_path)
     pid = _killed(_KILL_BETWEEN_RENAMES, out)
     assert not out.exists()
-    left = sorted(p.name for p in tmp_path.iterdir() if p.name.startswith("."))
+    # by kind (.old before .partial), not by the random part of the names
+    left = sorted((p.name for p in tmp_path.iterdir() if p.name.startswith(".")),
+                  key=lambda n: n.rsplit(".", 1)[-1])
     assert [re.fullmatch(_LEFTOVER.format(name="c", pid=pid, kind=k), n) is not None
             for n, k in zip(left, ["old", "partial"], strict=True)] == [True, True]
     capsys.readouterr()

@@ -8,18 +8,35 @@ listing is unchanged, no partial file left behind).
 References: the broken files are made with the writers whose formats they
 break (numpy's ``np.save``/``np.savez`` and the NPY format specification,
 NEP 1, for headers; Python's ``pickle`` for the object array; Python's
-``codecs`` for the UTF-16 byte-order mark): each file is broken by the
-rules of its format, not by eidecomp's.
+``codecs`` for the UTF-16 byte-order mark; Python's ``zipfile`` for the
+members of an ``.npz``; ``scipy.io.savemat`` and the MAT-file header of the
+MATLAB v7.3 format; ``scipy.sparse.save_npz``; Python's ``csv`` module and
+its field size limit; the W3C XML 1.0 specification, section 2.2, ``Char``,
+for the unit names; POSIX ``stat``/``open`` (ENOTDIR, a named pipe from
+``os.mkfifo``, EACCES, EIO) for unreadable paths): each file is broken by the
+rules of its format, not by eidecomp's. Sizes refused before anything is
+allocated are checked against a fixed budget (``MEMORY``, standing in for
+``eidecomp.limits.available_memory``) on files whose data is a hole of a
+sparse file or zeros compressed by zlib, so no row needs the memory it
+refuses.
 """
 
+import builtins
+import errno
+import hashlib
 import io
 import json
+import os
 import shutil
+import zipfile
 
 import numpy as np
 import pytest
+import scipy.io
+import scipy.sparse
 
 from eidecomp.cli import main
+from eidecomp.errors import InputError
 
 
 def npy(arr, **kw):
@@ -52,6 +69,67 @@ def object_npy(target):
     return npy(arr, allow_pickle=True)
 
 
+def npy_hole(shape, descr="<f8"):
+    """A .npy file whose header promises ``shape`` and whose data is the hole
+    of a sparse file of the full size (written by ``_make``)."""
+    return ("HOLE", shape, descr)
+
+
+def npy_head(shape, descr="<f8", data=b""):
+    """A .npy file (NEP 1 header by numpy's own writer) promising ``shape``,
+    followed by ``data`` only."""
+    head = io.BytesIO()
+    np.lib.format.write_array_header_1_0(head, {"descr": descr,
+                                                "fortran_order": False,
+                                                "shape": shape})
+    return head.getvalue() + data
+
+
+def zip_of(**members):
+    """An .npz made member by member with Python's zipfile (np.savez's
+    layout: one NAME.npy member an array), from raw bytes."""
+    buf = io.BytesIO()
+    with zipfile.ZipFile(buf, "w") as zf:
+        for name, data in members.items():
+            zf.writestr(name, data)
+    return buf.getvalue()
+
+
+def npz_compressed(**arrays):
+    def make():
+        buf = io.BytesIO()
+        np.savez_compressed(buf, **arrays)
+        return buf.getvalue()
+    return make  # made when the row runs, not at import
+
+
+def sparse_npz(matrix):
+    buf = io.BytesIO()
+    scipy.sparse.save_npz(buf, matrix, compressed=False)
+    return buf.getvalue()
+
+
+def sparse_layout(fmt, shape, **arrays):
+    """The members scipy.sparse.save_npz writes (format, shape, data and the
+    index arrays), with values no scipy.sparse matrix would hold."""
+    return npz(format=np.array(fmt.encode()), shape=np.array(shape), **arrays)
+
+
+def mat(compress=False, **variables):
+    def make():
+        buf = io.BytesIO()
+        scipy.io.savemat(buf, variables, do_compression=compress)
+        return buf.getvalue()
+    return make
+
+
+# The 128-byte header of a MATLAB v7.3 file (an HDF5 file behind it): text,
+# subsystem offset, version 0x0200, endian indicator 'IM'.
+MAT73 = b"MATLAB 7.3 MAT-file, Platform: GLNXA64".ljust(116) + bytes(8) + \
+    b"\x00\x02IM"
+
+MEMORY = 2**30 // 10  # "0.1 GiB": the budget of the rows that name it
+
 GOOD = "0,-0.2,0.1\n0.3,0,-0.1\n-0.2,0.1,0\n"
 FEATURES = "feature\n0\n60\n120\n"
 
@@ -60,6 +138,7 @@ FEATURES = "feature\n0\n60\n120\n"
 DEC = ["decompose", "{d}/bad", "-o", "{d}/out"]
 RUN = ["run", "{d}/w.csv", "-o", "{d}/out", "--ei-ratio", "1"]
 UNITS = RUN + ["--units", "{d}/u.csv"]
+ASM_DEC = ["assemble", "{d}/dec", "-o", "{d}/out"]
 ROWS = [
     ("empty-file", {"bad.csv": b""}, DEC, "{d}/bad.csv: file is empty"),
     ("blank-lines", {"bad.csv": b"\n \n\t\n"}, DEC, "{d}/bad.csv: file is empty"),
@@ -98,7 +177,12 @@ ROWS = [
      "the weight matrix"),
     ("integer-overflow", {"bad.npy": npy(np.array([[0, 2**62], [1, 0]]))}, DEC,
      "{d}/bad.npy: integer values beyond 2**53 lose precision as float64"),
-    ("non-square", {"bad.csv": b"0,1,2\n3,4,5\n"}, DEC,
+    # the smallest int64 is its own absolute value in numpy (two's complement)
+    ("integer-int64-min", {"bad.npy": npy(np.array([[np.iinfo(np.int64).min]]))},
+     DEC, "{d}/bad.npy: integer values beyond 2**53 lose precision as float64"),
+    # decompose takes rectangular matrices; assembling a circuit needs square
+    ("non-square", {"bad.csv": b"0,1,2\n3,4,5\n"},
+     ["run", "{d}/bad", "-o", "{d}/out"],
      "{d}/bad.csv: weight matrix must be square (W[post, pre] among one set "
      "of neurons), got shape (2, 3)"),
     ("one-dimensional", {"bad.npy": npy(np.zeros(4))}, DEC,
@@ -148,7 +232,8 @@ ROWS = [
     ("units-no-feature", {"w.csv": GOOD, "u.csv": b"id,x\na,0\nb,1\nc,2\n"},
      UNITS,
      "{d}/u.csv: unit table has no 'feature' column (columns: id, x)"),
-    ("units-text-position", {"w.csv": GOOD, "u.csv": b"feature,x\n0,1\n60,far\n120,3\n"},
+    ("units-text-position",
+     {"w.csv": GOOD, "u.csv": b"feature,x\n0,1\n60,far\n120,3\n"},
      UNITS,
      "{d}/u.csv: row 3, column 'x': not a number: 'far'"),
     ("units-negative-distance-scale", {"w.csv": GOOD, "u.csv": FEATURES},
@@ -172,15 +257,15 @@ ROWS = [
      "(char 0))"),
     ("bundle-truncated-block", {"BUNDLE": "truncate"},
      ["export", "{d}/c", "--format", "graphml", "-o", "{d}/out"],
-     "{d}/c/J_EE.npy: checksum does not match circuit.json (the file was "
-     "changed or truncated)"),
+     "{d}/c/J_EE.npy: truncated .npy file: its header promises 3200 bytes for "
+     "shape (20, 20), 1536 follow"),
     ("bundle-missing-block", {"BUNDLE": "missing"},
      ["export", "{d}/c", "--format", "graphml", "-o", "{d}/out"],
-     "{d}/c/J_TE.npy: missing from the bundle"),
+     "{d}/c/J_TE.npy: missing from the circuit bundle"),
     ("bundle-newer-version", {"BUNDLE": "version"},
      ["export", "{d}/c", "--format", "graphml", "-o", "{d}/out"],
      "{d}/c/circuit.json: format version 99 is newer than this eidecomp "
-     "reads (1); upgrade"),
+     "reads (2); upgrade"),
     ("bundle-not-a-bundle", {"c/readme.txt": b"hello"},
      ["export", "{d}/c", "--format", "graphml", "-o", "{d}/out"],
      "{d}/c: no circuit.json; not a circuit bundle"),
@@ -195,6 +280,339 @@ ROWS = [
      ["decompose", "{d}/w.csv", "-o", "{d}/out", "--seed", "abc"],
      "argument --seed: not a whole number: 'abc' "
      "(see 'eidecomp decompose --help')"),
+    # --- unreadable paths (POSIX stat/open) --------------------------------
+    ("unreadable-parent-is-a-file", {"w.csv": GOOD},
+     ["decompose", "{d}/w.csv/x.csv", "-o", "{d}/out"],
+     "{d}/w.csv/x.csv: cannot read (Not a directory)"),
+    ("unreadable-fifo-matrix", {"bad.csv": "FIFO"}, DEC,
+     "{d}/bad.csv: cannot read (a named pipe, not a regular file)"),
+    ("unreadable-device-matrix", {},
+     ["decompose", "/dev/null", "-o", "{d}/out"],
+     "/dev/null: cannot read (a character device, not a regular file)"),
+    ("unreadable-folder-as-matrix", {"bad.npy/x.npy": npy(np.eye(2))}, DEC,
+     "{d}/bad.npy: is a folder, expected a weight matrix file"),
+    ("unreadable-fifo-mask", {"w.csv": GOOD, "m.csv": "FIFO"},
+     ["decompose", "{d}/w.csv", "--mask", "{d}/m.csv", "-o", "{d}/out"],
+     "{d}/m.csv: cannot read (a named pipe, not a regular file)"),
+    ("unreadable-fifo-units", {"w.csv": GOOD, "u.csv": "FIFO"}, UNITS,
+     "{d}/u.csv: cannot read (a named pipe, not a regular file)"),
+    ("unreadable-folder-as-units", {"w.csv": GOOD, "u.csv/a": b"feature\n"},
+     UNITS, "{d}/u.csv: is a folder, expected a unit table file"),
+    ("unreadable-fifo-kernel", {"k.npy": "FIFO"},
+     ["decompose", "--kernel", "{d}/k.npy", "--grid", "8x8", "-o", "{d}/out"],
+     "{d}/k.npy: cannot read (a named pipe, not a regular file)"),
+    ("unreadable-fifo-drive", {"BUNDLE": "copy", "h.csv": "FIFO"},
+     ["simulate", "{d}/c", "--input", "{d}/h.csv"],
+     "{d}/h.csv: cannot read (a named pipe, not a regular file)"),
+    # --- sizes refused before allocating (NEP 1 headers, zip members) ------
+    ("npy-beyond-memory", {"bad.npy": npy_hole((20000, 20000)),
+                           "MEMORY": MEMORY}, DEC,
+     "{d}/bad.npy: weight matrix of shape (20000, 20000) (float64) needs "
+     "about 3.0 GiB, more than the 0.1 GiB this process may use"),
+    ("npy-beyond-memory-with-float64-copy",
+     {"bad.npy": npy_hole((6000, 6000), "|u1"), "MEMORY": MEMORY}, DEC,
+     "{d}/bad.npy: weight matrix of shape (6000, 6000) (uint8) needs about "
+     "0.3 GiB, more than the 0.1 GiB this process may use"),
+    ("npy-truncation-before-memory",
+     {"bad.npy": npy_head((20000, 20000), data=bytes(128)), "MEMORY": MEMORY},
+     DEC,
+     "{d}/bad.npy: truncated .npy file: its header promises 3200000000 bytes "
+     "for shape (20000, 20000), 128 follow"),
+    ("npz-member-truncation-before-memory",
+     {"bad.npz": zip_of(**{"w.npy": npy_head((20000, 20000), data=bytes(128))}),
+      "MEMORY": MEMORY}, DEC,
+     "{d}/bad.npz: array 'w': truncated .npy file: its header promises "
+     "3200000000 bytes for shape (20000, 20000), 128 follow"),
+    ("kernel-beyond-memory", {"k.npy": npy_hole((64, 64, 99, 99)),
+                              "MEMORY": MEMORY},
+     ["decompose", "--kernel", "{d}/k.npy", "--grid", "128x128", "-o",
+      "{d}/out"],
+     "{d}/k.npy: kernel of shape (64, 64, 99, 99) (float64) needs about "
+     "0.3 GiB, more than the 0.1 GiB this process may use"),
+    ("npz-member-beyond-memory",
+     {"bad.npz": npz_compressed(w=np.zeros((6000, 6000), np.uint8)),
+      "MEMORY": MEMORY}, DEC,
+     "{d}/bad.npz: array 'w': weight matrix of shape (6000, 6000) (uint8) "
+     "needs about 0.3 GiB, more than the 0.1 GiB this process may use"),
+    ("npz-member-truncated", {"bad.npz": zip_of(**{"w.npy": npy(np.eye(4))[:-40]})},
+     DEC,
+     "{d}/bad.npz: array 'w': truncated .npy file: its header promises 128 "
+     "bytes for shape (4, 4), 88 follow"),
+    ("npz-member-pickled", {"bad.npz": "OBJECT-NPZ"}, DEC,
+     "{d}/bad.npz: array 'w': holds Python objects; refused (eidecomp never "
+     "unpickles)"),
+    ("npz-member-not-npy", {"bad.npz": zip_of(**{"w.txt": b"0,1\n1,0\n"})}, DEC,
+     "{d}/bad.npz: array 'w.txt' is not a .npy member (np.savez writes one "
+     ".npy file per array)"),
+    ("npz-member-corrupt-header",
+     {"bad.npz": zip_of(**{"w.npy": npy(np.eye(2)).replace(b"'<f8'", b"'<x8'")})},
+     DEC,
+     "{d}/bad.npz: array 'w': corrupt .npy header (descr is not a valid dtype "
+     "descriptor: '<x8')"),
+    ("npz-not-a-zip", {"bad.npz": b"0,1\n1,0\n"}, DEC,
+     "{d}/bad.npz: not a valid .npz file (not a zip file)"),
+    ("npz-truncated-zip", {"bad.npz": npz(w=np.eye(3))[:150]}, DEC,
+     "{d}/bad.npz: not a valid .npz file (File is not a zip file)"),
+    # --- scipy.sparse.save_npz files ---------------------------------------
+    ("sparse-npz-beyond-memory",
+     {"bad.npz": sparse_npz(scipy.sparse.csr_matrix(
+         ([1.0], ([0], [1])), shape=(100000, 100000))), "MEMORY": MEMORY}, DEC,
+     "{d}/bad.npz: weight matrix of shape (100000, 100000) (float64, "
+     "scipy.sparse, densified) needs about 74.5 GiB, more than the 0.1 GiB "
+     "this process may use"),
+    ("sparse-npz-index-out-of-range",
+     {"bad.npz": sparse_layout("csr", (3, 3), data=np.ones(2),
+                               indices=np.array([0, 7], np.int32),
+                               indptr=np.array([0, 1, 2, 2], np.int32))}, DEC,
+     "{d}/bad.npz: not a valid scipy.sparse matrix (indices must be < 3)"),
+    ("sparse-npz-coo-out-of-range",
+     {"bad.npz": sparse_layout("coo", (3, 3), data=np.ones(2),
+                               row=np.array([0, 7]), col=np.array([0, 1]))}, DEC,
+     "{d}/bad.npz: not a valid scipy.sparse matrix (axis 0 index 7 exceeds "
+     "matrix dimension 3)"),
+    ("sparse-npz-three-dimensional",
+     {"bad.npz": sparse_layout("coo", (2, 2, 2), data=np.ones(1),
+                               coords=np.zeros((3, 1), np.int64))}, DEC,
+     "{d}/bad.npz: weight matrix must be 2-D, got 3-D shape (2, 2, 2) (a "
+     "scipy.sparse array)"),
+    ("sparse-npz-nan",
+     {"bad.npz": sparse_npz(scipy.sparse.csr_matrix(
+         ([1.0, np.nan], ([0, 2], [1, 0])), shape=(3, 3)))}, DEC,
+     "{d}/bad.npz: 1 non-finite value(s) (NaN, Inf or beyond float64's "
+     "range), first at row 3, column 1"),
+    ("sparse-npz-1e308",
+     {"bad.npz": sparse_npz(scipy.sparse.csc_matrix(
+         ([1e308], ([1], [2])), shape=(3, 3)))}, DEC,
+     "{d}/bad.npz: value 1e+308 at row 2, column 3 is too large (limit "
+     "1e+100: the solvers square entries); rescale the weight matrix, "
+     "results scale with it"),
+    ("sparse-npz-complex",
+     {"bad.npz": sparse_npz(scipy.sparse.coo_matrix(
+         ([1j], ([0], [1])), shape=(2, 2)))}, DEC,
+     "{d}/bad.npz: holds complex values; a real numeric weight matrix is "
+     "needed"),
+    # --- .mat (scipy.io.savemat; shapes from scipy.io.whosmat) -------------
+    ("mat-beyond-memory",
+     {"bad.mat": mat(compress=True, w=np.zeros((6000, 6000), np.uint8)),
+      "MEMORY": MEMORY}, DEC,
+     "{d}/bad.mat: variable 'w': weight matrix of shape (6000, 6000) (uint8) "
+     "needs about 0.3 GiB, more than the 0.1 GiB this process may use"),
+    ("mat-sparse-beyond-memory",
+     {"bad.mat": mat(w=scipy.sparse.csc_matrix(([1.0], ([0], [1])),
+                                               shape=(100000, 100000))),
+      "MEMORY": MEMORY}, DEC,
+     "{d}/bad.mat: variable 'w': weight matrix of shape (100000, 100000) "
+     "(float64) needs about 74.5 GiB, more than the 0.1 GiB this process may "
+     "use"),
+    ("mat-sparse-inf",
+     {"bad.mat": mat(w=scipy.sparse.csc_matrix(([np.inf], ([1], [0])),
+                                               shape=(2, 2)))}, DEC,
+     "{d}/bad.mat: 1 non-finite value(s) (NaN, Inf or beyond float64's "
+     "range), first at row 2, column 1"),
+    ("mat-struct", {"bad.mat": mat(w={"a": np.eye(2)})}, DEC,
+     "{d}/bad.mat: variable 'w' is a MATLAB struct; a real numeric weight "
+     "matrix is needed"),
+    ("mat-cell", {"bad.mat": mat(w=np.array([[1.0, "x"]], dtype=object))}, DEC,
+     "{d}/bad.mat: variable 'w' is a MATLAB cell; a real numeric weight "
+     "matrix is needed"),
+    ("mat-text", {"bad.mat": mat(w="abc")}, DEC,
+     "{d}/bad.mat: holds text values; a real numeric weight matrix is needed"),
+    ("mat-two-variables", {"bad.mat": mat(a=np.eye(2), b=np.eye(2))}, DEC,
+     "{d}/bad.mat: holds 2 variables (a, b); name one with --key"),
+    ("mat-v73", {"bad.mat": MAT73}, DEC,
+     "{d}/bad.mat: MATLAB v7.3 (HDF5) files are not read; save with -v7 or "
+     "as .npy"),
+    # --- text tables (Python's csv module) ---------------------------------
+    ("csv-field-beyond-csv-limit",
+     {"bad.csv": b"0,1\n0,\"" + b"1" * 131073 + b"\"\n"}, DEC,
+     "{d}/bad.csv: row 2: field larger than field limit (131072)"),
+    ("csv-cell-beyond-number-length", {"bad.csv": b"0," + b"1" * 5000 + b"\n1,0\n"},
+     DEC,
+     "{d}/bad.csv: cell at row 1, column 2 has 5000 characters (limit 1024 in "
+     "a table of numbers)"),
+    ("txt-cell-beyond-number-length", {"bad.txt": b"0 1\n1 " + b"x" * 2000 + b"\n"},
+     DEC,
+     "{d}/bad.txt: cell at row 2, column 2 has 2000 characters (limit 1024 in "
+     "a table of numbers)"),
+    ("csv-long-text-cell-cut", {"bad.csv": b"0,1\n1," + b"x" * 100 + b"\n"}, DEC,
+     "{d}/bad.csv: non-numeric cell 'xxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxx'"
+     "... (100 characters) at row 2, column 2"),
+    ("csv-quoted-cell-over-line-break", {"bad.csv": b'0,1\n"2\n3",4\n5,6\n'}, DEC,
+     "{d}/bad.csv: row 2: a quoted cell runs over a line break (a table of "
+     "numbers holds none)"),
+    ("csv-nul-cell", {"bad.csv": b"0,1\n1,\x00\n"}, DEC,
+     "{d}/bad.csv: non-numeric cell '\\x00' at row 2, column 2"),
+    # --- unit tables (XML 1.0 Char, section 2.2; csv limits) ---------------
+    ("units-bell-in-id",
+     {"w.csv": GOOD, "u.csv": b"id,feature\na,0\nb\x07,60\nc,120\n"},
+     UNITS,
+     "{d}/u.csv: row 3, column 'id': character U+0007 cannot be stored in XML "
+     "(GraphML, NeuroML2)"),
+    ("units-nul-in-id", {"w.csv": GOOD, "u.csv": b"id,feature\na\x00,0\nb,60\nc,120\n"},
+     UNITS,
+     "{d}/u.csv: row 2, column 'id': character U+0000 cannot be stored in XML "
+     "(GraphML, NeuroML2)"),
+    ("units-nul-in-unused-column",
+     {"w.csv": GOOD, "u.csv": b"feature,note\n0,x\n60,\x00\n120,z\n"}, UNITS,
+     "{d}/u.csv: row 3, column 'note': character U+0000 cannot be stored in "
+     "XML (GraphML, NeuroML2)"),
+    ("units-noncharacter-fffe",
+     {"w.csv": GOOD, "u.csv": "id,feature\na,0\nb,60\nc\ufffe,120\n".encode()},
+     UNITS,
+     "{d}/u.csv: row 4, column 'id': character U+FFFE cannot be stored in XML "
+     "(GraphML, NeuroML2)"),
+    ("units-escape-in-quoted-id",
+     {"w.csv": GOOD, "u.csv": b'id,feature\n"a\x1b[31m",0\nb,60\nc,120\n'}, UNITS,
+     "{d}/u.csv: row 2, column 'id': character U+001B cannot be stored in XML "
+     "(GraphML, NeuroML2)"),
+    ("units-control-in-header",
+     {"w.csv": GOOD, "u.csv": b"feature,no\x01te\n0,a\n60,b\n120,c\n"}, UNITS,
+     "{d}/u.csv: row 1, column 2: character U+0001 cannot be stored in XML "
+     "(GraphML, NeuroML2)"),
+    ("units-id-beyond-field-limit",
+     {"w.csv": GOOD, "u.csv": b"id,feature\n" + b"a" * 5000 + b",0\nb,60\nc,120\n"},
+     UNITS,
+     "{d}/u.csv: row 2, column 'id': a cell of 5000 characters (limit 4096)"),
+    ("units-field-beyond-csv-limit",
+     {"w.csv": GOOD,
+      "u.csv": b'id,feature\na,0\n"' + b"b" * 131073 + b'",60\nc,120\n'}, UNITS,
+     "{d}/u.csv: row 3: field larger than field limit (131072)"),
+    ("units-long-text-position-cut",
+     {"w.csv": GOOD, "u.csv": b"feature,x\n0,1\n60," + b"far" * 30 + b"\n120,3\n"},
+     UNITS,
+     "{d}/u.csv: row 3, column 'x': not a number: "
+     "'farfarfarfarfarfarfarfarfarfarfarfarfarf'... (90 characters)"),
+    # --- masks -----------------------------------------------------------
+    ("mask-no-observed-entry", {"w.csv": GOOD, "m.csv": b"1,1,1\n1,1,1\n1,1,1\n"},
+     ["decompose", "{d}/w.csv", "--mask", "{d}/m.csv", "-o", "{d}/out"],
+     "{d}/m.csv: the mask leaves no observed entry (every entry is 1)"),
+    # --- one owner for every format: bundles, and options that do not apply.
+    # References: the JSON text format (RFC 8259) for the hand-edited
+    # manifests; numpy's NPY format (NEP 1) for the planted headers; SHA-256
+    # (FIPS 180-4, Python's hashlib) for the checksums.
+    ("dec-lam-ignored", {"DEC": "ok"}, ASM_DEC + ["--lam", "0.5"],
+     "--lam does not apply to a decomposition folder (it was decomposed "
+     "already: decompose again, or give the matrix)"),
+    ("dec-mask-ignored", {"DEC": "ok", "m.csv": "0,0,0\n0,0,0\n0,0,1\n"},
+     ASM_DEC + ["--mask", "{d}/m.csv"],
+     "--mask does not apply to a decomposition folder (it was decomposed "
+     "already: decompose again, or give the matrix)"),
+    ("dec-transpose-ignored", {"DEC": "ok"}, ASM_DEC + ["--transpose"],
+     "--transpose does not apply to a decomposition folder (it was decomposed "
+     "already: decompose again, or give the matrix)"),
+    ("dec-key-ignored", {"DEC": "ok"}, ASM_DEC + ["--key", "W"],
+     "--key does not apply to a decomposition folder (it was decomposed "
+     "already: decompose again, or give the matrix)"),
+    ("dec-diagonal-ignored", {"DEC": "ok"}, ASM_DEC + ["--ignore-diagonal"],
+     "--ignore-diagonal does not apply to a decomposition folder (it was "
+     "decomposed already: decompose again, or give the matrix)"),
+    ("dec-tol-ignored", {"DEC": "ok"}, ASM_DEC + ["--tol", "1e-6"],
+     "--tol does not apply to a decomposition folder (it was decomposed "
+     "already: decompose again, or give the matrix)"),
+    ("dec-swapped-part", {"DEC": "swap"}, ASM_DEC,
+     "{d}/dec/low_rank.npy: checksum does not match summary.json (the file "
+     "was changed, swapped or truncated)"),
+    ("dec-unlisted-part", {"DEC": "unlist"}, ASM_DEC,
+     "{d}/dec/summary.json: no checksum for sparse.npy"),
+    ("dec-old-version", {"DEC": "v1"}, ASM_DEC,
+     "{d}/dec/summary.json: format version 1 was written by an older "
+     "eidecomp without a checksum for every file; write it again with this "
+     "one"),
+    ("dec-missing-key", {"DEC": "no-rank"}, ASM_DEC,
+     "{d}/dec/summary.json: missing key 'rank'"),
+    ("dec-read-as-circuit", {"DEC": "ok"},
+     ["report", "{d}/dec", "-o", "{d}/r.html"],
+     "{d}/dec: a decomposition folder, not a circuit bundle"),
+    ("dec-simulated", {"DEC": "ok"}, ["simulate", "{d}/dec"],
+     "{d}/dec: a decomposition folder, not a circuit bundle"),
+    ("circuit-read-as-dec", {"BUNDLE": "ok"},
+     ["assemble", "{d}/c", "-o", "{d}/out"],
+     "{d}/c: a circuit bundle, not a decomposition folder; assemble reads a "
+     "matrix or a folder written by 'eidecomp decompose'"),
+    ("plain-folder-as-dec", {"x/notes.txt": "mine"},
+     ["assemble", "{d}/x", "-o", "{d}/out"],
+     "{d}/x: not an eidecomp decomposition folder; assemble reads a matrix "
+     "or a folder written by 'eidecomp decompose'"),
+    ("bundle-missing-key", {"BUNDLE": "drop:counts"},
+     ["export", "{d}/c", "--format", "graphml", "-o", "{d}/out"],
+     "{d}/c/circuit.json: missing key 'counts'"),
+    ("bundle-missing-nested-key", {"BUNDLE": "drop:metrics.share_rule"},
+     ["report", "{d}/c", "-o", "{d}/r.html"],
+     "{d}/c/circuit.json: metrics: missing key 'share_rule'"),
+    ("bundle-baseline-key", {"BUNDLE": "drop:baselines.0.name"},
+     ["report", "{d}/c", "-o", "{d}/r.html"],
+     "{d}/c/circuit.json: baselines[0]: missing key 'name'"),
+    ("bundle-wrong-type", {"BUNDLE": "set:counts=3"},
+     ["export", "{d}/c", "--format", "json", "-o", "{d}/out"],
+     "{d}/c/circuit.json: key 'counts' must be an object (got an integer)"),
+    ("bundle-no-sums", {"BUNDLE": "drop:sha256"},
+     ["simulate", "{d}/c"], "{d}/c/circuit.json: missing key 'sha256'"),
+    ("bundle-foreign-path", {"BUNDLE": "sum:../w.npy"},
+     ["simulate", "{d}/c"],
+     "{d}/c/circuit.json: 'sha256' lists '../w.npy', not a file of the bundle"),
+    ("bundle-deep-nesting", {"BUNDLE": "deep"},
+     ["export", "{d}/c", "--format", "csv", "-o", "{d}/out"],
+     "{d}/c/circuit.json: JSON nested deeper than 64 levels"),
+    ("bundle-huge-string", {"BUNDLE": "long-id"},
+     ["export", "{d}/c", "--format", "csv", "-o", "{d}/out"],
+     "{d}/c/circuit.json: unit_ids[0] is a string of 2000000 characters "
+     "(limit 1048576)"),
+    ("bundle-huge-header", {"BUNDLE": "plant:J_EE.npy:huge", "MEMORY": MEMORY},
+     ["export", "{d}/c", "--format", "csv", "-o", "{d}/out"],
+     "{d}/c/J_EE.npy: J_EE.npy of shape (100000, 100000) (float64) needs "
+     "about 74.5 GiB, more than the 0.1 GiB this process may use"),
+    ("bundle-corrupt-features", {"BUNDLE": "plant:features.npy:garbage"},
+     ["export", "{d}/c", "--format", "graphml", "-o", "{d}/out"],
+     "{d}/c/features.npy: not a .npy file (no NumPy header)"),
+    ("bundle-features-wrong-shape", {"BUNDLE": "plant:features.npy:short"},
+     ["report", "{d}/c", "-o", "{d}/r.html"],
+     "{d}/c/features.npy: shape (3,), expected (20,) for 20 units"),
+    ("bundle-swapped-split", {"BUNDLE": "swap"}, ["simulate", "{d}/c"],
+     "{d}/c/low_rank.npy: checksum does not match circuit.json (the file "
+     "was changed, swapped or truncated)"),
+    ("bundle-blocks-disagree", {"BUNDLE": "plant:J_EU.npy:wide"},
+     ["simulate", "{d}/c"],
+     "{d}/c: J_UE has shape (2, 20), expected (3, 20)"),
+    ("matrix-grid-option", {"w.csv": GOOD},
+     ["decompose", "{d}/w.csv", "-o", "{d}/out", "--grid", "4x4"],
+     "--grid does not apply to a matrix"),
+    ("matrix-boundary-option", {"w.csv": GOOD},
+     ["decompose", "{d}/w.csv", "-o", "{d}/out", "--boundary", "zero"],
+     "--boundary does not apply to a matrix"),
+    ("matrix-scheduler-option", {"w.csv": GOOD},
+     ["decompose", "{d}/w.csv", "-o", "{d}/out", "--scheduler", "tcp://x:1"],
+     "--scheduler does not apply to a matrix"),
+    ("matrix-expand-option", {"w.csv": GOOD},
+     ["assemble", "{d}/w.csv", "-o", "{d}/out", "--expand"],
+     "--expand does not apply to a matrix"),
+    ("kernel-mask-option", {"k.npy": npy(np.ones((1, 1, 3, 3))),
+                            "m.csv": "0\n"},
+     ["decompose", "--kernel", "{d}/k.npy", "--grid", "4x4", "-o", "{d}/out",
+      "--mask", "{d}/m.csv"], "--mask does not apply to a kernel (--kernel)"),
+    ("kernel-units-option", {"k.npy": npy(np.ones((1, 1, 3, 3))),
+                             "u.csv": FEATURES},
+     ["assemble", "--kernel", "{d}/k.npy", "--grid", "4x4", "-o", "{d}/out",
+      "--units", "{d}/u.csv"], "--units does not apply to a kernel (--kernel)"),
+    ("kernel-method-option", {"k.npy": npy(np.ones((1, 1, 3, 3)))},
+     ["decompose", "--kernel", "{d}/k.npy", "--grid", "4x4", "-o", "{d}/out",
+      "--method", "convex"], "--method does not apply to a kernel (--kernel)"),
+    ("kernel-huge-grid", {"k.npy": npy(np.ones((4, 4, 3, 3))), "MEMORY": MEMORY},
+     ["decompose", "--kernel", "{d}/k.npy", "--grid", "100000x100000", "-o",
+      "{d}/out"],
+     "{d}/k.npy: 4 features on a 100000x100000 grid (the solver's 8 full-grid "
+     "kernels) needs about 9536.7 GiB, more than the 0.1 GiB this process "
+     "may use"),
+    ("kernel-and-matrix", {"w.csv": GOOD, "k.npy": npy(np.ones((1, 1, 3, 3)))},
+     ["decompose", "{d}/w.csv", "--kernel", "{d}/k.npy", "--grid", "4x4", "-o",
+      "{d}/out"], "give either a matrix or --kernel"),
+    ("dask-mask-option", {"w.npy": npy(np.eye(3)), "m.csv": "0,0,0\n0,0,0\n0,0,1\n"},
+     ["decompose", "{d}/w.npy", "--engine", "dask", "-o", "{d}/out", "--mask",
+      "{d}/m.csv"],
+     "--mask does not apply to the dask engine (plain PCP with the ALM)"),
+    ("dask-method-option", {"w.npy": npy(np.eye(3))},
+     ["decompose", "{d}/w.npy", "--engine", "dask", "-o", "{d}/out",
+      "--method", "convex"],
+     "--method does not apply to the dask engine (plain PCP with the ALM)"),
 ]
 
 
@@ -210,11 +628,98 @@ def bundle(tmp_path_factory):
     return d / "c"
 
 
+def _edit_manifest(path, edit):
+    doc = json.loads(path.read_text())
+    edit(doc)
+    path.write_text(json.dumps(doc))
+
+
+def _drop(doc, dotted):
+    *parents, key = dotted.split(".")
+    for k in parents:
+        doc = doc[int(k)] if isinstance(doc, list) else doc[k]
+    del doc[key]
+
+
+PLANTS = {  # bytes planted into a bundle, their checksum put into circuit.json
+    "garbage": lambda: b"not an array at all",
+    "short": lambda: npy(np.zeros(3)),
+    "wide": lambda: npy(np.zeros((20, 3))),
+}
+
+
+def _edit_bundle(c, mode):
+    """The hand edits of a circuit bundle; True when ``mode`` is one."""
+    doc = c / "circuit.json"
+    if mode == "ok":
+        return True
+    kind, _, arg = mode.partition(":")
+    if kind == "drop":
+        _edit_manifest(doc, lambda m: _drop(m, arg))
+    elif kind == "set":
+        key, value = arg.split("=")
+        _edit_manifest(doc, lambda m: m.__setitem__(key, json.loads(value)))
+    elif kind == "sum":
+        _edit_manifest(doc, lambda m: m["sha256"].__setitem__(arg, "0" * 64))
+    elif kind == "plant" and arg.endswith(":huge"):
+        # a block whose header claims 10^5 x 10^5 float64 (80 GB): a sparse
+        # hole after the header (POSIX ftruncate), refused before it is read
+        # or hashed
+        head = npy_head((10**5, 10**5))
+        with open(c / arg.split(":")[0], "wb") as fh:
+            fh.write(head)
+            fh.truncate(len(head) + 8 * 10**10)
+    elif kind == "plant":
+        name, what = arg.split(":")
+        data = PLANTS[what]()
+        (c / name).write_bytes(data)
+        _edit_manifest(doc, lambda m: m["sha256"].__setitem__(
+            name, hashlib.sha256(data).hexdigest()))
+    elif mode == "deep":
+        doc.write_text("[" * 100_000)
+    elif mode == "long-id":
+        _edit_manifest(doc, lambda m: m.__setitem__(
+            "unit_ids", ["x" * 2_000_000] + ["u"] * 19))
+    elif mode == "swap":
+        low, sparse = (c / "low_rank.npy").read_bytes(), (c / "sparse.npy").read_bytes()
+        (c / "low_rank.npy").write_bytes(sparse)
+        (c / "sparse.npy").write_bytes(low)
+    else:
+        return False
+    return True
+
+
+def _make_decomposition(folder, mode):
+    """A decomposition folder of the GOOD matrix, then one hand edit."""
+    folder.parent.mkdir(parents=True, exist_ok=True)
+    (folder.parent / "w_for_dec.csv").write_text(GOOD)
+    assert main(["decompose", str(folder.parent / "w_for_dec.csv"), "-o",
+                 str(folder), "-q"]) == 0
+    doc = folder / "summary.json"
+    if mode == "swap":
+        low = (folder / "low_rank.npy").read_bytes()
+        (folder / "low_rank.npy").write_bytes((folder / "sparse.npy").read_bytes())
+        (folder / "sparse.npy").write_bytes(low)
+    elif mode == "unlist":
+        _edit_manifest(doc, lambda m: m["sha256"].pop("sparse.npy"))
+    elif mode == "v1":
+        _edit_manifest(doc, lambda m: m.__setitem__("format_version", 1))
+    elif mode == "no-rank":
+        _edit_manifest(doc, lambda m: m.pop("rank"))
+
+
 def _make(d, files, bundle):
     for name, content in files.items():
+        if name == "MEMORY":
+            continue
+        if name == "DEC":
+            _make_decomposition(d / "dec", content)
+            continue
         if name == "BUNDLE":
             shutil.copytree(bundle, d / "c")
             doc = d / "c" / "circuit.json"
+            if _edit_bundle(d / "c", content):
+                continue
             if content == "json":
                 doc.write_text("")
             elif content == "truncate":
@@ -229,8 +734,22 @@ def _make(d, files, bundle):
             continue
         path = d / name
         path.parent.mkdir(parents=True, exist_ok=True)
+        if content == "FIFO":  # a named pipe (POSIX mkfifo): opening it blocks
+            os.mkfifo(path)
+            continue
+        if isinstance(content, tuple) and content[0] == "HOLE":
+            head = npy_head(content[1], content[2])
+            size = int(np.prod(content[1])) * np.dtype(content[2]).itemsize
+            with open(path, "wb") as fh:
+                fh.write(head)
+                fh.truncate(len(head) + size)  # a hole: no disk used
+            continue
+        if callable(content):
+            content = content()
         if content == "OBJECT":
             content = object_npy(d / "PWNED")
+        if content == "OBJECT-NPZ":
+            content = zip_of(**{"w.npy": object_npy(d / "PWNED")})
         path.write_bytes(content.encode() if isinstance(content, str) else content)
 
 
@@ -239,14 +758,26 @@ def _listing(d):
                   for p in d.rglob("*"))
 
 
+def test_the_hole_rows_use_no_disk(tmp_path):
+    """The sparse files of the memory rows really are holes (POSIX
+    ftruncate beyond the end), so the table runs on a small disk."""
+    _make(tmp_path, {"w.npy": npy_hole((20000, 20000))}, None)
+    st = os.stat(tmp_path / "w.npy")
+    assert st.st_size > 3 * 10**9 and st.st_blocks * 512 < 10**6
+
+
 def test_the_table_has_at_least_thirty_rows():
     assert len(ROWS) >= 30 and len({r[0] for r in ROWS}) == len(ROWS)
 
 
 @pytest.mark.parametrize(("files", "argv", "expected"),
                          [r[1:] for r in ROWS], ids=[r[0] for r in ROWS])
-def test_malformed_input(tmp_path, capsys, bundle, files, argv, expected):
+def test_malformed_input(tmp_path, capsys, monkeypatch, bundle, files, argv,
+                         expected):
     d = tmp_path
+    if "MEMORY" in files:  # a fixed budget in place of the machine's
+        monkeypatch.setattr("eidecomp.limits.available_memory",
+                            lambda: files["MEMORY"])
     _make(d, files, bundle)
     bad = [p.name for p in d.iterdir() if p.name.startswith("bad.")]
     # "{d}/bad" is the row's one bad file, whatever its ending
@@ -260,3 +791,235 @@ def test_malformed_input(tmp_path, capsys, bundle, files, argv, expected):
     assert "Traceback" not in out + err
     assert _listing(d) == before  # nothing written, nothing left behind
     assert not (d / "PWNED").exists()  # nothing was unpickled
+
+
+# --- unreadable files that a file table cannot make --------------------------
+# Tests run as root, where chmod 000 does not stop a read: EACCES and EIO are
+# made by replacing ``open`` (builtins.open and io.open, which numpy, zipfile
+# and scipy.io call) for the one path, as the kernel would fail it (POSIX
+# open(2) EACCES, read(2) EIO).
+
+class _FailingRead:
+    """A file whose every read fails with EIO."""
+
+    def __init__(self, fh):
+        self._fh = fh
+
+    def __getattr__(self, name):
+        return getattr(self._fh, name)
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        self._fh.close()
+
+    def read(self, *args):
+        raise OSError(errno.EIO, os.strerror(errno.EIO))
+
+    readinto = readline = read
+
+
+def _failing_open(monkeypatch, target, how):
+    real = builtins.open
+
+    def fake(file, mode="r", *args, **kwargs):
+        if isinstance(file, (str, os.PathLike)) and os.fspath(file) == str(target):
+            if how == "EACCES":
+                raise PermissionError(errno.EACCES, os.strerror(errno.EACCES),
+                                      str(file))
+            return _FailingRead(real(file, mode, *args, **kwargs))
+        return real(file, mode, *args, **kwargs)
+
+    monkeypatch.setattr(builtins, "open", fake)
+    monkeypatch.setattr(io, "open", fake)
+
+
+W3 = np.array([[0.0, -0.2, 0.1], [0.3, 0.0, -0.1], [-0.2, 0.1, 0.0]])
+
+
+def _write_inputs(d):
+    np.save(d / "w.npy", W3)
+    np.savez(d / "w.npz", w=W3)
+    scipy.io.savemat(d / "w.mat", {"w": W3})
+    (d / "w.csv").write_text(GOOD)
+    np.save(d / "m.npy", np.zeros((3, 3)))
+    (d / "u.csv").write_text(FEATURES)
+    np.save(d / "k.npy", np.zeros((2, 2, 3, 3)))
+
+
+UNREADABLE = [  # (target file, argv)
+    ("w.npy", ["decompose", "{d}/w.npy", "-o", "{d}/out"]),
+    ("w.npz", ["decompose", "{d}/w.npz", "-o", "{d}/out"]),
+    ("w.mat", ["decompose", "{d}/w.mat", "-o", "{d}/out"]),
+    ("w.csv", ["decompose", "{d}/w.csv", "-o", "{d}/out"]),
+    ("m.npy", ["decompose", "{d}/w.npy", "--mask", "{d}/m.npy", "-o", "{d}/out"]),
+    ("u.csv", ["run", "{d}/w.npy", "--units", "{d}/u.csv", "--ei-ratio", "1",
+               "-o", "{d}/out"]),
+    ("k.npy", ["decompose", "--kernel", "{d}/k.npy", "--grid", "8x8", "-o",
+               "{d}/out"]),
+]
+
+
+@pytest.mark.parametrize("how", ["EACCES", "EIO"])
+@pytest.mark.parametrize(("target", "argv"), UNREADABLE,
+                         ids=[t for t, _ in UNREADABLE])
+def test_unreadable_input_is_one_line(tmp_path, capsys, monkeypatch, target,
+                                      argv, how):
+    d = tmp_path
+    _write_inputs(d)
+    before = _listing(d)
+    _failing_open(monkeypatch, d / target, how)
+    capsys.readouterr()
+    code = main([a.replace("{d}", str(d)) for a in argv])
+    out, err = capsys.readouterr()
+    reason = "Permission denied" if how == "EACCES" else "Input/output error"
+    assert code == 2
+    assert err == f"eidecomp: error: {d / target}: cannot read ({reason})\n"
+    assert "Traceback" not in out + err
+    monkeypatch.undo()
+    assert _listing(d) == before
+
+
+# --- read_npy: the lead's reader of eidecomp's own bundle arrays --------------
+
+def _one_line(exc_info):
+    msg = str(exc_info.value)
+    assert "\n" not in msg and "Traceback" not in msg
+    return msg
+
+
+READ_NPY = [  # (id, file bytes or "FIFO", keywords, expected after "{p}: ")
+    ("corrupt-features", b"\x93NUMPY\x01\x00\x76\x00{'descr': '<f8', garbage",
+     {"what": "features"},
+     "corrupt .npy header (EOF: reading array header, expected 118 bytes got "
+     "24)"),
+    ("not-npy", b"0.5\n1.5\n", {"what": "features"},
+     "not a .npy file (no NumPy header)"),
+    ("empty", b"", {"what": "features"}, "not a .npy file (no NumPy header)"),
+    ("truncated", npy(np.arange(8.0))[:-16], {"what": "positions"},
+     "truncated .npy file: its header promises 64 bytes for shape (8,), 48 "
+     "follow"),
+    ("pickled", "OBJECT", {"what": "block"},
+     "holds Python objects; refused (eidecomp never unpickles)"),
+    ("complex", npy(np.ones(3, complex)), {"what": "features"},
+     "features holds complex values; real numbers are needed"),
+    ("text", npy(np.array(["a", "b"])), {"what": "features"},
+     "features holds text values; real numbers are needed"),
+    ("datetime", npy(np.array(["2020-01-01"], "M8[D]")), {"what": "features"},
+     "features holds date values; real numbers are needed"),
+    ("wrong-ndim", npy(np.zeros((2, 2))), {"what": "positions", "ndim": 1},
+     "positions must be 1-D, got 2-D shape (2, 2)"),
+    ("beyond-max-bytes", npy(np.zeros((64, 64))), {"what": "block",
+                                                   "max_bytes": 1000},
+     "block of shape (64, 64) (float64) needs about 0.0 GiB, more than the "
+     "0.0 GiB this process may use"),
+    ("fifo", "FIFO", {"what": "features"},
+     "cannot read (a named pipe, not a regular file)"),
+]
+
+
+@pytest.mark.parametrize(("content", "kw", "expected"), [r[1:] for r in READ_NPY],
+                         ids=[r[0] for r in READ_NPY])
+def test_read_npy_refuses_in_one_line(tmp_path, content, kw, expected):
+    """Broken by the NPY format (NEP 1, numpy's np.save writes the good ones)."""
+    from eidecomp.io import read_npy
+
+    p = tmp_path / "features.npy"
+    _make(tmp_path, {"features.npy": content}, None)
+    with pytest.raises(InputError) as exc:
+        read_npy(p, **kw)
+    assert _one_line(exc) == f"{p}: {expected}"
+    assert not (tmp_path / "PWNED").exists()
+
+
+def test_read_npy_missing_and_unreadable(tmp_path, monkeypatch):
+    from eidecomp.io import read_npy
+
+    with pytest.raises(InputError) as exc:
+        read_npy(tmp_path / "none.npy")
+    assert _one_line(exc) == f"{tmp_path / 'none.npy'}: no such file"
+    np.save(tmp_path / "f.npy", np.arange(3.0))
+    _failing_open(monkeypatch, tmp_path / "f.npy", "EACCES")  # as root: see above
+    with pytest.raises(InputError) as exc:
+        read_npy(tmp_path / "f.npy")
+    assert _one_line(exc) == f"{tmp_path / 'f.npy'}: cannot read (Permission denied)"
+
+
+# --- load_json and require: circuit.json and summary.json --------------------
+
+JSON_ROWS = [  # (id, file bytes, keywords, expected after "{p}: ")
+    ("corrupt", b'{"rank": 3,\n "lam": }', {},
+     "corrupt JSON (Expecting value: line 2 column 9 (char 20))"),
+    ("empty", b"", {}, "corrupt JSON (Expecting value: line 1 column 1 (char 0))"),
+    ("not-utf8", b'{"id": "\xff"}', {}, "not UTF-8 text (byte 8)"),
+    ("utf16", '{"a": 1}'.encode("utf-16"), {}, "not UTF-8 text (byte 0)"),
+    ("too-large", b"[" + b"0," * 600 + b"0]", {"max_bytes": 1000},
+     "JSON file is 1203 bytes, more than the limit of 1000"),
+    ("deep-100000", b"[" * 100000 + b"]" * 100000, {},
+     "JSON nested deeper than 64 levels"),
+    ("deep-unclosed", b'{"a": ' * 65, {"what": "summary"},
+     "JSON nested deeper than 64 levels"),
+    ("deep-just-over", b"[" * 9 + b"]" * 9, {"max_depth": 8},
+     "JSON nested deeper than 8 levels"),
+    ("long-string", json.dumps({"unit_ids": ["a", "b" * 2000]}).encode(),
+     {"max_str": 1000},
+     "unit_ids[1] is a string of 2000 characters (limit 1000)"),
+    ("long-key", json.dumps({"parameters": {"k" * 2000: 1}}).encode(),
+     {"max_str": 1000},
+     "a key in parameters is a string of 2000 characters (limit 1000)"),
+    ("huge-integer", b'{"rank": ' + b"9" * 5000 + b"}", {},
+     "corrupt JSON (an integer of more than 4300 digits)"),
+    ("fifo", "FIFO", {}, "cannot read (a named pipe, not a regular file)"),
+]
+
+
+@pytest.mark.parametrize(("content", "kw", "expected"), [r[1:] for r in JSON_ROWS],
+                         ids=[r[0] for r in JSON_ROWS])
+def test_load_json_refuses_in_one_line(tmp_path, content, kw, expected):
+    """Broken by RFC 8259 as Python's json module reads it (its messages,
+    with line and column, are quoted); depth found without recursion."""
+    from eidecomp.io.jsondoc import load_json
+
+    p = tmp_path / "circuit.json"
+    _make(tmp_path, {"circuit.json": content}, None)
+    with pytest.raises(InputError) as exc:
+        load_json(p, **kw)
+    assert _one_line(exc) == f"{p}: {expected}"
+
+
+def test_load_json_missing_folder_and_unreadable(tmp_path, monkeypatch):
+    from eidecomp.io.jsondoc import load_json
+
+    with pytest.raises(InputError) as exc:
+        load_json(tmp_path / "none.json")
+    assert _one_line(exc) == f"{tmp_path / 'none.json'}: no such file"
+    with pytest.raises(InputError) as exc:
+        load_json(tmp_path, what="circuit file")
+    assert _one_line(exc) == f"{tmp_path}: is a folder, expected a circuit file file"
+    (tmp_path / "s.json").write_text("{}")
+    _failing_open(monkeypatch, tmp_path / "s.json", "EIO")  # a failing disk
+    with pytest.raises(InputError) as exc:
+        load_json(tmp_path / "s.json")
+    assert _one_line(exc) == f"{tmp_path / 's.json'}: cannot read (Input/output error)"
+
+
+@pytest.mark.parametrize(("doc", "key", "kinds", "expected"), [
+    ({}, "rank", int, "summary.json: missing key 'rank'"),
+    ({"rank": 2.5}, "rank", int, "summary.json: key 'rank' must be an integer "
+     "(got a number)"),
+    ({"rank": True}, "rank", int, "summary.json: key 'rank' must be an integer "
+     "(got true or false)"),
+    ({"lam": "0.1"}, "lam", float, "summary.json: key 'lam' must be a number "
+     "(got a string)"),
+    ({"ids": {}}, "ids", (list, type(None)), "summary.json: key 'ids' must be "
+     "an array or null (got an object)"),
+    ([1, 2], "rank", int, "summary.json: must be a JSON object (got an array)"),
+])
+def test_require_refuses_in_one_line(doc, key, kinds, expected):
+    """JSON's types (RFC 8259, section 3) as Python's json module maps them."""
+    from eidecomp.io.jsondoc import require
+
+    with pytest.raises(InputError) as exc:
+        require(doc, key, kinds, "summary.json")
+    assert _one_line(exc) == expected

@@ -81,7 +81,7 @@ def plot_population_graph(ax, P):
     pos = {n: pos.get(n, (0.0, 1.0)) for n in P.nodes}
     sizes = [300 + 1500 * np.sqrt(P.nodes[n]["size"] / max(
         max(P.nodes[m]["size"] for m in P.nodes), 1)) for n in P.nodes]
-    colors = [_EXC if P.nodes[n]["kind"] == "excitatory" else _INH for n in P.nodes]
+    colors = [_EXC if P.nodes[n]["kind"] == EXCITATORY else _INH for n in P.nodes]
     nx.draw_networkx_nodes(P, pos, ax=ax, node_size=sizes, node_color=colors)
     labels = {n: f"{n}\n{P.nodes[n]['size']}" for n in P.nodes}
     nx.draw_networkx_labels(P, pos, labels, ax=ax, font_size=8,

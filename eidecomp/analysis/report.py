@@ -12,14 +12,37 @@ import base64
 import html
 import io
 import json
+import warnings
 
 import numpy as np
 
+from ..errors import ConvergenceWarning
+from ..types import TUNED, UNTUNED
 from . import plotting
 from .rules import circuit_rules
 from .tuning import interneuron_pools
 
-__all__ = ["render_report"]
+__all__ = ["PATH_MAX_UNITS", "render_report", "report_lam_path"]
+
+PATH_MAX_UNITS = 600  # the lam path re-solves robust PCA 8 times
+
+
+def report_lam_path(W):
+    """The lam path drawn in the report (8 lams), or None above
+    :data:`PATH_MAX_UNITS` units.
+
+    A figure, not a result: a looser tolerance and an iteration cap; rank
+    and sparsity are settled long before either stops, so a solve stopped
+    at the cap is not reported as a warning.
+    """
+    from ..decompose import lambda_path
+
+    if np.shape(W)[0] > PATH_MAX_UNITS:
+        return None
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ConvergenceWarning)
+        points, _ = lambda_path(W, n_lams=8, tol=1e-6, max_iter=1000)
+    return points
 
 CAUTION = ("This circuit is a model hypothesis: one of many Dale's-law circuits "
            "consistent with the matrix it was built from. Its connection rules "
@@ -59,29 +82,20 @@ def _fmt(x, spec=".4g"):
     return "-" if x is None else format(x, spec)
 
 
-def render_report(circuit, meta, W, *, low_rank=None, features=None,
-                  positions=None, path_points=None):
-    """The report page, as an HTML string.
+def _ratio_text(text):
+    """The one shown form of the stored E:I ratio (eidecomp.params.EIRatio)."""
+    from ..params import EIRatio
 
-    Parameters
-    ----------
-    circuit : Circuit
-    meta : dict
-        The bundle's circuit.json (counts, metrics, baselines, stability,
-        parameters, inputs).
-    W : ndarray
-        The matrix the circuit was built from (L + S).
-    low_rank : ndarray or None
-        L, for its heatmap and spectrum.
-    features, positions : ndarray or None
-        From the unit table, for connection rules and tuning.
-    path_points : list of PathPoint or None
-        A lambda_path result, for the lam path figure.
-    """
+    try:
+        return str(EIRatio.parse(text))
+    except ValueError:  # InputError: a hand-edited value, shown as it is
+        return str(text)
+
+
+def _figures(circuit, meta, W, L, path_points, rules, cv):
+    """(title, base64 PNG) of every figure of the report."""
     from ..graph import population_graph
 
-    L = low_rank
-    period = float(meta.get("parameters", {}).get("period", 180.0))
     W_eff = circuit.effective_weights()
     figs = []
 
@@ -100,13 +114,10 @@ def render_report(circuit, meta, W, *, low_rank=None, features=None,
             ax, sv, meta.get("decomposition", {}).get("rank")))
     if path_points:
         fig("lam path", lambda ax: plotting.plot_lambda_path(ax, path_points))
-    met = meta.get("metrics", {})
     fig("error against J_EE density", lambda ax: plotting.plot_error_density(
-        ax, met, meta.get("baselines", [])))
+        ax, meta.get("metrics", {}), meta.get("baselines", [])))
     P = population_graph(circuit)
     fig("population graph", lambda ax: plotting.plot_population_graph(ax, P))
-    rules = circuit_rules(circuit, W, features=features, positions=positions,
-                          period=period)
     for cls, row in rules.items():
         if "feature_profile" in row:
             fig(f"{cls}: feature", lambda ax, r=row, c=cls: plotting.plot_rule(
@@ -115,32 +126,46 @@ def render_report(circuit, meta, W, *, low_rank=None, features=None,
             fig(f"{cls}: distance", lambda ax, r=row, c=cls: plotting.plot_rule(
                 ax, r["distance_profile"], r.get("space_constant"),
                 title=f"{c}: by distance"))
-    pools = interneuron_pools(circuit, features, period)
-    cv_u = [p["circular_variance"] for p in pools if p["kind"] == "untuned"]
-    cv_t = [p["circular_variance"] for p in pools if p["kind"] == "tuned"]
-    if features is not None:
-        fig("interneuron tuning", lambda ax: plotting.plot_tuning(ax, cv_u, cv_t))
+    if cv is not None:
+        fig("interneuron tuning", lambda ax: plotting.plot_tuning(
+            ax, cv[UNTUNED], cv[TUNED]))
+    return figs
 
+
+def _sigma_text(row):
+    sc = row.get("space_constant") or {}
+    top = (row.get("distance_profile") or {}).get("edges", [0])[-1]
+    if sc.get("sigma") is None:
+        return "-"
+    if sc["sigma"] > 10 * top:
+        return "no decay"
+    return (f"{sc['sigma']:.3g} [{_fmt(sc.get('ci_low'), '.3g')}, "
+            f"{_fmt(sc.get('ci_high'), '.3g')}]")
+
+
+def _stability_text(st):
+    if st.get("circuit_spectral_abscissa_equal_taus") is None:
+        limit = "not computed"
+    elif st.get("max_stable_tau_ratio") is None:
+        limit = "beyond 100"
+    else:
+        limit = _fmt(st.get("max_stable_tau_ratio"), ".3g")
+    return (f"spectral abscissa of -I + W: "
+            f"{_fmt(st.get('original_spectral_abscissa'), '.3g')}; largest "
+            f"stable tau_I/tau_E: {limit}")
+
+
+def _sections(meta, rules, med, have_units):
+    """The page up to its figures: inputs, assembly, rules, tuning, stability."""
+    met = meta.get("metrics", {})
     c = meta.get("counts", {})
-    assembly = [["this circuit", c.get("untuned", 0) + c.get("tuned", 0),
+    assembly = [["this circuit", c.get(UNTUNED, 0) + c.get(TUNED, 0),
                  _fmt(met.get("relative_error")), _fmt(met.get("ee_density"))]]
     assembly += [[b["name"], b["n_inhibitory"], _fmt(b["relative_error"]),
                   _fmt(b["ee_density"])] for b in meta.get("baselines", [])]
-    rule_rows = []
-    for cls, row in rules.items():
-        sc = row.get("space_constant") or {}
-        top = (row.get("distance_profile") or {}).get("edges", [0])[-1]
-        if sc.get("sigma") is None:
-            sigma = "-"
-        elif sc["sigma"] > 10 * top:
-            sigma = "no decay"
-        else:
-            sigma = (f"{sc['sigma']:.3g} [{_fmt(sc.get('ci_low'), '.3g')}, "
-                     f"{_fmt(sc.get('ci_high'), '.3g')}]")
-        rule_rows.append([cls, _fmt(row["probability"]),
-                          _fmt(row.get("like_to_like_index"), ".3g"), sigma])
-    med = [np.median([x for x in v if x is not None]) if any(
-        x is not None for x in v) else None for v in (cv_u, cv_t)]
+    rule_rows = [[cls, _fmt(row["probability"]),
+                  _fmt(row.get("like_to_like_index"), ".3g"), _sigma_text(row)]
+                 for cls, row in rules.items()]
     st = meta.get("stability", {})
     inp = meta.get("input", {})
     par = meta.get("parameters", {})
@@ -154,7 +179,7 @@ def render_report(circuit, meta, W, *, low_rank=None, features=None,
             ["matrix", inp.get("path", "-")], ["sha256", inp.get("sha256") or "-"],
             ["shape", "x".join(map(str, inp.get("shape", [])))],
             ["unit table", inp.get("units") or "-"],
-            ["E:I ratio", f"{par.get('ei_ratio', '-')}:1"],
+            ["E:I ratio", _ratio_text(par.get("ei_ratio"))],
             ["untuned share", par.get("untuned_share", "-")],
             ["split rule", met.get("share_rule", "-")],
             ["alpha", _fmt(par.get("alpha"))], ["lam", _fmt(par.get("lam"))],
@@ -176,17 +201,44 @@ def render_report(circuit, meta, W, *, low_rank=None, features=None,
         "<h2>Interneuron tuning</h2>",
         "<p>Median circular variance of the input pool: untuned "
         f"{_fmt(med[0], '.3f')}, tuned {_fmt(med[1], '.3f')}"
-        + ("" if features is not None else " (no unit table given)") + ".</p>",
+        + ("" if have_units else " (no unit table given)") + ".</p>",
         "<h2>Stability</h2>",
-        "<p>" + html.escape(
-            f"spectral abscissa of -I + W: "
-            f"{_fmt(st.get('original_spectral_abscissa'), '.3g')}; largest "
-            "stable tau_I/tau_E: " + (
-                "not computed" if st.get("circuit_spectral_abscissa_equal_taus")
-                is None else "beyond 100" if st.get("max_stable_tau_ratio") is None
-                else _fmt(st.get("max_stable_tau_ratio"), ".3g"))) + "</p>",
-        "<h2>Figures</h2>",
+        "<p>" + html.escape(_stability_text(st)) + "</p>",
     ]
+    return parts
+
+
+def render_report(circuit, meta, W, *, low_rank=None, features=None,
+                  positions=None, path_points=None):
+    """The report page, as an HTML string.
+
+    Parameters
+    ----------
+    circuit : Circuit
+    meta : dict
+        The bundle's circuit.json (counts, metrics, baselines, stability,
+        parameters, inputs).
+    W : ndarray
+        The matrix the circuit was built from (L + S).
+    low_rank : ndarray or None
+        L, for its heatmap and spectrum.
+    features, positions : ndarray or None
+        From the unit table, for connection rules and tuning.
+    path_points : list of PathPoint or None
+        A lambda_path result, for the lam path figure.
+    """
+    period = float(meta.get("parameters", {}).get("period", 180.0))
+    rules = circuit_rules(circuit, W, features=features, positions=positions,
+                          period=period)
+    pools = interneuron_pools(circuit, features, period)
+    cv = {kind: [p["circular_variance"] for p in pools if p["kind"] == kind]
+          for kind in (UNTUNED, TUNED)}
+    figs = _figures(circuit, meta, W, low_rank, path_points, rules,
+                    cv if features is not None else None)
+    med = [np.median([x for x in v if x is not None]) if any(
+        x is not None for x in v) else None for v in cv.values()]
+    parts = _sections(meta, rules, med, features is not None)
+    parts.append("<h2>Figures</h2>")
     for title, data in figs:
         parts.append(f"<figure><img class='figure' alt='{html.escape(title)}' "
                      f"src='data:image/png;base64,{data}'><figcaption>"

@@ -19,6 +19,7 @@ connected ones. Self-pairs of a square block (the same unit) are left out.
   473:87), a check value, not an input.
 """
 
+import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -139,15 +140,21 @@ def fit_space_constant(profile):
 
     above = x[p >= p.max() / np.e ** 0.5]
     guess = (float(p.max()), float(max(above.max(), x[1] - x[0])))
-    try:
-        (p0, sigma), cov = curve_fit(gauss, x, p, p0=guess, sigma=se,
-                                     absolute_sigma=True, maxfev=10000)
-    except (RuntimeError, ValueError) as exc:
-        return SpaceConstant(np.nan, np.nan, np.nan, np.nan, False, str(exc))
+    # the fit's own warnings (a covariance it cannot estimate, an overflow
+    # in exp on the way) are facts of this fit: kept in its message, not
+    # shown to the user as extra lines
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        try:
+            (p0, sigma), cov = curve_fit(gauss, x, p, p0=guess, sigma=se,
+                                         absolute_sigma=True, maxfev=10000)
+        except (RuntimeError, ValueError) as exc:
+            return SpaceConstant(np.nan, np.nan, np.nan, np.nan, False, str(exc))
     sigma = abs(float(sigma))
     err = float(np.sqrt(cov[1, 1])) if np.isfinite(cov[1, 1]) else np.nan
+    note = "; ".join(dict.fromkeys(str(w.message) for w in caught))
     return SpaceConstant(sigma, sigma - 1.96 * err, sigma + 1.96 * err,
-                         float(p0), bool(np.isfinite(err)))
+                         float(p0), bool(np.isfinite(err)), note)
 
 
 def like_to_like_index(profile):

@@ -9,6 +9,7 @@ orientation selectivity index of the pool's binned profile.
 
 import numpy as np
 
+from ..types import TUNED, UNTUNED
 from .circular import circular_mean, circular_variance, orientation_selectivity
 
 __all__ = ["interneuron_pools", "pool_features"]
@@ -24,7 +25,7 @@ def interneuron_pools(circuit, features=None, period=180.0, rtol=1e-6):
     ``circular_variance`` (None without features).
     """
     J_IE, J_EI = circuit.J_IE, circuit.J_EI
-    kinds = ["untuned"] * circuit.n_untuned + ["tuned"] * circuit.n_tuned
+    kinds = [UNTUNED] * circuit.n_untuned + [TUNED] * circuit.n_tuned
     index = list(range(circuit.n_untuned)) + list(range(circuit.n_tuned))
     peak_in = J_IE.max(axis=1, initial=0.0)
     peak_out = J_EI.max(axis=0, initial=0.0)

@@ -19,15 +19,14 @@
    in step 4, which removes the shrinkage of the l1 term.
 """
 
-import warnings
-
 import numpy as np
 
-from ..errors import ConvergenceWarning, InputError
+from ..errors import InputError, warn_stopped
+from ..params import DEFAULT_EI_RATIO, EIRatio
 from ..types import AssemblyReport, BaselineResult, Circuit, Decomposition
 from ._baselines import _prune_to_density
 from ._baselines import baselines as score_baselines
-from ._counts import inhibitory_count, parse_ratio, split_counts
+from ._counts import inhibitory_count, split_counts
 from ._nmf import hals, nndsvd, sweep
 
 __all__ = ["assemble"]
@@ -74,7 +73,7 @@ def _notes(W, n_i, ratio):
     if W.min() >= 0:
         return (f"W has no negative entry, so no inhibition is needed: J_EE = W, "
                 f"and the {n_i} interneuron{'s' * (n_i != 1)} of E:I "
-                f"{ratio:g}:1 {'are' if n_i != 1 else 'is'} kept but silent",)
+                f"{ratio.text} {'are' if n_i != 1 else 'is'} kept but silent",)
     return ()
 
 
@@ -106,7 +105,47 @@ def _descend(W, A, B, mask_a, mask_b, alpha, ee_support, max_iter, tol,
     return J_EE, it, converged
 
 
-def assemble(W_or_dec, *, ei_ratio=4.0, untuned_share="auto", alpha=None,
+def _first_factorisations(M_u, M_t, n_u, n_t, start, rng, max_iter, tell):
+    """Steps 2-3: NNDSVD + HALS of the inhibitory sides of L (dense, untuned
+    pools) and of S (l1, tuned pools, their supports then fixed). Returns
+    the stacked factors A (E x I), B (I x E) and the masks of their
+    supports."""
+    tell("untuned factorisation")
+    A_u, B_u = nndsvd(M_u, n_u)
+    A_u, B_u = _fill_dead(A_u, B_u, start, rng)
+    A_u, B_u, _ = hals(M_u, A_u, B_u, max_iter=max_iter, tol=1e-6)
+    tell("tuned factorisation")
+    A_t, B_t = nndsvd(M_t, n_t)
+    A_t, B_t = _fill_dead(A_t, B_t, start, rng)
+    l1 = TUNED_L1 * float(M_t.max()) if M_t.size and M_t.any() else 0.0
+    A_t, B_t, _ = hals(M_t, A_t, B_t, l1_a=l1, l1_b=l1, max_iter=max_iter,
+                       tol=1e-6)
+    mask_t_a, mask_t_b = _support(A_t, 0), _support(B_t, 1)
+    A_t *= mask_t_a
+    B_t *= mask_t_b
+    return (np.hstack([A_u, A_t]), np.vstack([B_u, B_t]),
+            np.hstack([np.ones_like(A_u, bool), mask_t_a]),
+            np.vstack([np.ones_like(B_u, bool), mask_t_b]))
+
+
+def _scored_baselines(W, n_i, circuit, err, dens, max_iter):
+    """The four baselines, and this circuit pruned to nmf's density when it
+    is denser (a comparison at equal density)."""
+    base = score_baselines(W, n_i, circuit_error=err, circuit_density=dens,
+                           max_iter=max_iter)
+    nmf = next(b for b in base if b.name == "nmf")
+    if dens > nmf.ee_density:
+        J = _prune_to_density(circuit.J_EE, nmf.ee_density)
+        pruned = J - circuit.J_EI @ circuit.J_IE
+        base += (BaselineResult(
+            "circuit@density", "this circuit, J_EE pruned to nmf's density",
+            n_i, float(np.linalg.norm(W - pruned)
+                       / max(np.linalg.norm(W), 1e-300)),
+            float(np.count_nonzero(J) / J.size)),)
+    return base
+
+
+def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha=None,
              max_iter=500, tol=1e-6, seed=0, baselines=True,
              decompose_kwargs=None, progress=None):
     """Assemble a Dale's-law circuit that reproduces W as closely as it can.
@@ -116,8 +155,9 @@ def assemble(W_or_dec, *, ei_ratio=4.0, untuned_share="auto", alpha=None,
     W_or_dec : ndarray (N, N) or Decomposition
         The signed matrix W[post, pre], or its robust PCA (then W = L + S).
         An array is decomposed with ``robust_pca`` at its defaults.
-    ei_ratio : float or str
-        Excitatory units per interneuron: 4, "4:1", "9:2".
+    ei_ratio : EIRatio, str or float
+        Excitatory units per interneuron: 4, "4:1", "9:2"
+        (:class:`eidecomp.params.EIRatio`); stored as its text.
     untuned_share : "auto" or float in [0, 1]
         Fraction of the interneurons that are untuned; "auto" takes the rank
         of the low-rank part.
@@ -154,7 +194,7 @@ def assemble(W_or_dec, *, ei_ratio=4.0, untuned_share="auto", alpha=None,
     >>> bool((c.signed_weights()[:, 60:] <= 0).all())
     True
     """
-    ratio = parse_ratio(ei_ratio)
+    ratio = EIRatio.parse(ei_ratio)
     W, L, S, dec = _split(W_or_dec, seed, decompose_kwargs)
     if W.ndim != 2 or W.shape[0] != W.shape[1]:
         raise InputError(f"W must be square to build a circuit, got {W.shape}")
@@ -180,27 +220,10 @@ def assemble(W_or_dec, *, ei_ratio=4.0, untuned_share="auto", alpha=None,
         if progress is not None:
             progress(stage, 0, float("nan"))
 
-    # 2. untuned: dense pools from the inhibitory side of L
-    tell("untuned factorisation")
-    A_u, B_u = nndsvd(M_u, n_u)
-    A_u, B_u = _fill_dead(A_u, B_u, start, rng)
-    A_u, B_u, _ = hals(M_u, A_u, B_u, max_iter=max_iter, tol=1e-6)
-    # 3. tuned: sparse pools from the inhibitory side of S
-    tell("tuned factorisation")
-    A_t, B_t = nndsvd(M_t, n_t)
-    A_t, B_t = _fill_dead(A_t, B_t, start, rng)
-    l1 = TUNED_L1 * float(M_t.max()) if M_t.size and M_t.any() else 0.0
-    A_t, B_t, _ = hals(M_t, A_t, B_t, l1_a=l1, l1_b=l1, max_iter=max_iter,
-                       tol=1e-6)
-    mask_t_a, mask_t_b = _support(A_t, 0), _support(B_t, 1)
-    A_t *= mask_t_a
-    B_t *= mask_t_b
+    A, B, mask_a, mask_b = _first_factorisations(M_u, M_t, n_u, n_t, start, rng,
+                                                 max_iter, tell)
 
     # 4-5. joint refinement, then debiasing on the support of J_EE
-    A = np.hstack([A_u, A_t])
-    B = np.vstack([B_u, B_t])
-    mask_a = np.hstack([np.ones_like(A_u, bool), mask_t_a])
-    mask_b = np.vstack([np.ones_like(B_u, bool), mask_t_b])
     history = []
     if no_inhibition:  # J_EE = W (exactly, below), the pools silent
         A[:], B[:] = 0.0, 0.0
@@ -212,9 +235,8 @@ def assemble(W_or_dec, *, ei_ratio=4.0, untuned_share="auto", alpha=None,
                                   max_iter, tol, history, progress, "debiasing")
         converged = ok1 and ok2
     if not converged:
-        warnings.warn(f"circuit refinement stopped after {max_iter} sweeps "
-                      "before its tolerance; raise max_iter", ConvergenceWarning,
-                      stacklevel=2)
+        warn_stopped("circuit refinement", max_iter, unit="sweeps",
+                     advice="raise max_iter")
     circuit = Circuit(J_EE=J_EE, J_EU=A[:, :n_u], J_UE=B[:n_u],
                       J_ET=A[:, n_u:], J_TE=B[n_u:])
     err = float(np.linalg.norm(W - circuit.effective_weights())
@@ -223,22 +245,12 @@ def assemble(W_or_dec, *, ei_ratio=4.0, untuned_share="auto", alpha=None,
     base = ()
     if baselines:
         tell("baselines")
-        base = score_baselines(W, n_i, circuit_error=err, circuit_density=dens,
-                               max_iter=max_iter)
-        nmf = next(b for b in base if b.name == "nmf")
-        if dens > nmf.ee_density:  # compare at equal density: prune ours
-            J = _prune_to_density(J_EE, nmf.ee_density)
-            pruned = J - circuit.J_EI @ circuit.J_IE
-            base += (BaselineResult(
-                "circuit@density", "this circuit, J_EE pruned to nmf's density",
-                n_i, float(np.linalg.norm(W - pruned)
-                           / max(np.linalg.norm(W), 1e-300)),
-                float(np.count_nonzero(J) / J.size)),)
+        base = _scored_baselines(W, n_i, circuit, err, dens, max_iter)
     report = AssemblyReport(relative_error=err, ee_density=dens,
                             share_rule=rule, baselines=base, n_iter=it1 + it2,
                             converged=converged, history=tuple(history),
                             notes=_notes(W, n_i, ratio))
-    params = {"ei_ratio": ratio, "untuned_share": untuned_share,
+    params = {"ei_ratio": ratio.text, "untuned_share": untuned_share,
               "alpha": alpha, "max_iter": max_iter, "tol": tol, "seed": seed,
               "n_inhibitory": n_i, "lam": dec.lam, "rank": dec.rank,
               "decomposition_converged": dec.converged}

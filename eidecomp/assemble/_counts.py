@@ -1,42 +1,25 @@
 """E:I ratio and population counts."""
 
 import math
-import re
 
 from ..errors import InputError
+from ..params import EIRatio
 
 __all__ = ["inhibitory_count", "parse_ratio", "split_counts"]
 
-_RATIO = re.compile(r"^\s*([0-9.eE+-]+)\s*(?::\s*([0-9.eE+-]+)\s*)?$")
-
-
-def parse_ratio(text):
-    """E:I ratio from ``"4:1"``, ``"4"`` or a number: excitatory per inhibitory.
+def parse_ratio(spec):
+    """E:I ratio from ``"4:1"``, ``"4"`` or a number, as excitatory units per
+    inhibitory one (the value of :class:`eidecomp.params.EIRatio`).
 
     >>> parse_ratio("4:1"), parse_ratio("9:2"), parse_ratio(3)
     (4.0, 4.5, 3.0)
     """
-    if isinstance(text, (int, float)) and not isinstance(text, bool):
-        value = float(text)
-    else:
-        m = _RATIO.match(str(text))
-        try:
-            e = float(m.group(1))
-            i = float(m.group(2)) if m.group(2) is not None else 1.0
-        except (AttributeError, ValueError):
-            raise InputError(f"E:I ratio {text!r} is not a ratio like 4:1 or a "
-                             "number") from None
-        if i <= 0:
-            raise InputError(f"E:I ratio {text!r}: the inhibitory side must be "
-                             "positive")
-        value = e / i
-    if not math.isfinite(value) or value <= 0:
-        raise InputError(f"E:I ratio {text!r} must be positive and finite")
-    return value
+    return EIRatio.parse(spec).value
 
 
 def inhibitory_count(n_e, ratio, *, where="", units="excitatory units"):
-    """n_I = round(N / ratio), checked to lie in [1, N].
+    """n_I = round(N / ratio), checked to lie in [1, N]; ``ratio`` is an
+    EIRatio or anything EIRatio.parse takes.
 
     ``where`` and ``units`` word the errors (" per site", "features" for
     tiled circuits).
@@ -44,12 +27,13 @@ def inhibitory_count(n_e, ratio, *, where="", units="excitatory units"):
     >>> inhibitory_count(400, 4.0)
     100
     """
-    n_i = int(round(n_e / ratio))
+    r = EIRatio.parse(ratio)
+    n_i = int(round(n_e / r.value))
     if n_i < 1:
-        raise InputError(f"E:I ratio {ratio:g}:1 leaves no interneuron{where} "
-                         f"for {n_e} {units} (round({n_e}/{ratio:g}) = 0)")
+        raise InputError(f"E:I ratio {r.text} leaves no interneuron{where} "
+                         f"for {n_e} {units} (round({n_e}/{r.value:g}) = 0)")
     if n_i > n_e:
-        raise InputError(f"E:I ratio {ratio:g}:1 asks for {n_i} interneurons"
+        raise InputError(f"E:I ratio {r.text} asks for {n_i} interneurons"
                          f"{where}, more than the {n_e} {units}")
     return n_i
 

@@ -33,11 +33,12 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..errors import InputError
 from ..kernels import dense_bytes, expand_full
 from ..limits import check_fits
-from ..types import Circuit
-from ._counts import inhibitory_count, parse_ratio
+from ..params import DEFAULT_EI_RATIO, EIRatio
+from ..types import BLOCK_NAMES, Circuit
+from ._assemble import ALPHA_DEFAULT
+from ._counts import inhibitory_count, split_counts
 
 __all__ = ["TiledCircuit", "assemble_tiled"]
 
@@ -94,7 +95,7 @@ class TiledCircuit:
                    f"expanding the tiled circuit gives {n} units and",
                    max_bytes=max_bytes)
         blocks = {b: expand_full(getattr(self, b), max_bytes=max_bytes)
-                  for b in ("J_EE", "J_EU", "J_UE", "J_ET", "J_TE")}
+                  for b in BLOCK_NAMES}
         return Circuit(**blocks,
                        params={**self.params, "tiled": True})
 
@@ -130,8 +131,8 @@ def _grad_steps(M, A, B, l1, mask_a, mask_b, steps):
     return A, B
 
 
-def assemble_tiled(dec, W, *, ei_ratio=4.0, untuned_share="auto", alpha=None,
-                   max_iter=300, tol=1e-6, seed=0, inner=20):
+def assemble_tiled(dec, W, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto",
+                   alpha=None, max_iter=300, tol=1e-6, seed=0, inner=20):
     """Assemble a tiled circuit from a KernelDecomposition of the kernel W.
 
     Parameters
@@ -146,27 +147,20 @@ def assemble_tiled(dec, W, *, ei_ratio=4.0, untuned_share="auto", alpha=None,
         "auto": m_u = the largest rank of L over frequencies (at most m - 1
         when S inhibits anything).
     alpha : float or None
-        l1 weight on J_EE; None means 0.02 max|W|.
+        l1 weight on J_EE; None means 0.02 max|W| (as in assemble).
     """
-    ratio = parse_ratio(ei_ratio)
+    ratio = EIRatio.parse(ei_ratio)
     G = np.asarray(W, dtype=float)
     F = G.shape[0]
     grid = G.shape[2:]
     m = inhibitory_count(F, ratio, where=" per site", units="features")
     L, S = np.asarray(dec.low_rank), np.asarray(dec.sparse)
     Mu, Mt = np.maximum(-L, 0.0), np.maximum(-S, 0.0)
-    if untuned_share == "auto":
-        keep = 1 if Mt.any() and m > 1 else 0
-        mu = max(0, min(int(np.max(dec.ranks)), m - keep))
-    else:
-        share = float(untuned_share)
-        if not 0.0 <= share <= 1.0:
-            raise InputError(f"untuned share {share:g} is outside [0, 1]")
-        mu = int(round(share * m))
-    mt = m - mu
+    mu, mt, _ = split_counts(m, untuned_share, int(np.max(dec.ranks)),
+                             bool(Mt.any()))
     rng = np.random.default_rng(seed)
     scale = float(np.abs(G).max()) or 1.0
-    alpha = 0.02 * scale if alpha is None else float(alpha)
+    alpha = ALPHA_DEFAULT * scale if alpha is None else float(alpha)
 
     def start(P, Q, target):
         size = np.sqrt(max(float(target.mean()), 1e-12) / max(P, 1))
@@ -197,9 +191,9 @@ def assemble_tiled(dec, W, *, ei_ratio=4.0, untuned_share="auto", alpha=None,
     J = np.maximum(G + compose(A, B), 0.0) * support
     circuit = TiledCircuit(J_EE=J, J_EU=A[:, :mu], J_UE=B[:mu], J_ET=A[:, mu:],
                            J_TE=B[mu:], grid=tuple(grid),
-                           params={"ei_ratio": ratio, "per_site": [F, mu, mt],
+                           params={"ei_ratio": ratio.text, "per_site": [F, mu, mt],
                                    "alpha": alpha, "seed": seed})
     err = float(np.linalg.norm(G - circuit.effective_kernel()) / np.linalg.norm(G))
     return TiledCircuit(**{k: getattr(circuit, k) for k in
-                           ("J_EE", "J_EU", "J_UE", "J_ET", "J_TE", "grid",
+                           (*BLOCK_NAMES, "grid",
                             "params")}, relative_error=err)

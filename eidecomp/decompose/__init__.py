@@ -8,10 +8,12 @@ arrays: ``_ialm`` (inexact ALM), ``_svt`` (singular value thresholding),
 translation-invariant matrix); :func:`robust_pca_kernel` is its public entry.
 """
 
-from ._api import default_lam, lambda_path, pcp_objective, robust_pca
+from ._api import METHODS, default_lam, lambda_path, pcp_objective, robust_pca
+from ._convex import SOLVERS
 from ._dask_api import DaskDecomposition, robust_pca_dask
 from ._kernel_api import robust_pca_kernel
 from .estimator import RobustPCA
 
-__all__ = ["DaskDecomposition", "RobustPCA", "default_lam", "lambda_path",
-           "pcp_objective", "robust_pca", "robust_pca_dask", "robust_pca_kernel"]
+__all__ = ["METHODS", "SOLVERS", "DaskDecomposition", "RobustPCA", "default_lam",
+           "lambda_path", "pcp_objective", "robust_pca", "robust_pca_dask",
+           "robust_pca_kernel"]

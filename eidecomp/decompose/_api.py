@@ -12,8 +12,9 @@ import warnings
 
 import numpy as np
 
-from ..errors import ConvergenceWarning, InputError
+from ..errors import InputError, warn_stopped
 from ..limits import available_memory, check_range
+from ..params import MAX_ITER, SolverSettings, check_lam, default_lam, resolve_dtype
 from ..types import Decomposition, OptimalityReport, PathPoint, handing_over
 from ._convex import ConvexPCP
 from ._ialm import ialm
@@ -23,13 +24,7 @@ __all__ = ["default_lam", "lambda_path", "pcp_objective", "robust_pca"]
 
 METHODS = ("ialm", "convex")
 RANK_RTOL = 1e-6  # convex solutions: singular values below this x the largest
-MAX_ITER = 5000  # ALM default: planted problems stop in ~30, degenerate ones need more
 ZERO_RTOL = 1e-7  # convex solutions: |S_ij| below this x max|W| is solver noise
-
-
-def default_lam(shape):
-    """lam = 1 / sqrt(max(m, n)) (Candes et al. 2011, Theorem 1.1)."""
-    return 1.0 / math.sqrt(max(shape))
 
 
 def pcp_objective(L, S, lam, observed=None):
@@ -185,17 +180,6 @@ def _convex_decomposition(W, lam, observed, *, program, solver, max_iter):
                          report=report, observed=observed)
 
 
-DTYPES = {"float64": np.float64, "float32": np.float32}
-FLOAT32_TOL = 1e-6  # float32 residuals bottom out near 1e-7
-
-
-def _check_dtype(dtype):
-    name = np.dtype(dtype).name if not isinstance(dtype, str) else dtype
-    if name not in DTYPES:
-        raise InputError(f"dtype must be float64 or float32, got {dtype!r}")
-    return DTYPES[name]
-
-
 def memory_estimate(shape, dtype=np.float64, method="ialm"):
     """Bytes robust_pca needs for a matrix of this shape: W and at most four
     more m x n arrays (S, Y, the SVT's argument, then L) for the ALM; the
@@ -221,11 +205,11 @@ def _check_memory(shape, dtype, method):
 
 def _warn_if_stopped(dec):
     if not dec.converged:
-        warnings.warn(
-            f"robust PCA stopped after {dec.n_iter} iterations before reaching "
-            f"its tolerance (primal residual {dec.report.primal_residual:.2e}, "
-            f"dual residual {dec.report.dual_residual or float('nan'):.2e}); "
-            "raise max_iter or loosen tol", ConvergenceWarning, stacklevel=3)
+        dual = dec.report.dual_residual
+        warn_stopped("robust PCA", dec.n_iter, stacklevel=4,
+                     detail=f"primal residual {dec.report.primal_residual:.2e}, "
+                     + ("no dual residual" if dual is None
+                        else f"dual residual {dual:.2e}"))
 
 
 def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
@@ -309,9 +293,7 @@ def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
     >>> bool(np.allclose(dec.low_rank, L0, atol=1e-6))
     True
     """
-    dtype = _check_dtype(dtype)
-    if tol is None:
-        tol = FLOAT32_TOL if dtype is np.float32 else 1e-8
+    dtype = resolve_dtype(dtype)
     if check_memory:
         _check_memory(np.shape(W), dtype, method)
     W = _check_matrix(W, dtype=dtype)
@@ -327,19 +309,16 @@ def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
                          f"{low_rank_sign!r}")
     if delta is not None and not (np.isfinite(delta) and delta >= 0):
         raise InputError(f"delta must be a finite number >= 0, got {delta!r}")
-    lam = default_lam(W.shape) if lam is None else _check_lam(lam)
-    if max_iter is not None and not (isinstance(max_iter, (int, np.integer))
-                                     and max_iter >= 1):
-        raise InputError(f"max_iter must be a positive integer, got {max_iter!r}")
-    if not tol > 0:
-        raise InputError(f"tol must be positive, got {tol!r}")
+    settings = SolverSettings.resolve(W.shape, lam=lam, tol=tol,
+                                      max_iter=max_iter, dtype=dtype)
+    lam, tol = settings.lam, settings.tol
     if not rho > 1:
         raise InputError(f"rho must be greater than 1, got {rho!r}")
 
     if method == "ialm":
         def solve(lam_, init=None):
             return _ialm_decomposition(W, lam_, observed, tol=tol,
-                                       max_iter=max_iter or MAX_ITER, rho=rho,
+                                       max_iter=settings.max_iter, rho=rho,
                                        seed=seed,
                                        progress=progress, init=init)
     else:
@@ -357,16 +336,6 @@ def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
         dec = _search_rank(solve, lam, int(_check_rank(target_rank, W.shape)))
     _warn_if_stopped(dec)
     return dec
-
-
-def _check_lam(lam):
-    try:
-        lam = float(lam)
-    except (TypeError, ValueError):
-        raise InputError(f"lam must be a positive number, got {lam!r}") from None
-    if not (np.isfinite(lam) and lam > 0):
-        raise InputError(f"lam must be a positive finite number, got {lam!r}")
-    return lam
 
 
 def _check_rank(k, shape):
@@ -408,7 +377,7 @@ def _search_rank(solve, lam, k, max_evals=40):
 
 
 def lambda_path(W, lams=None, *, n_lams=12, mask=None, ignore_diagonal=False,
-                tol=1e-8, max_iter=MAX_ITER, seed=0):
+                tol=None, max_iter=MAX_ITER, seed=0):
     """Solve PCP over a range of lam with warm starts (fast ALM solver).
 
     Parameters
@@ -439,10 +408,11 @@ def lambda_path(W, lams=None, *, n_lams=12, mask=None, ignore_diagonal=False,
     """
     W = _check_matrix(W)
     observed = _check_observed(mask, W.shape, ignore_diagonal)
+    tol = SolverSettings.resolve(W.shape, tol=tol, max_iter=max_iter).tol
     if lams is None:
         lam0 = default_lam(W.shape)
         lams = np.geomspace(lam0 / 4, lam0 * 4, int(n_lams))
-    lams = sorted(_check_lam(x) for x in lams)
+    lams = sorted(check_lam(x) for x in lams)
     if not lams:
         raise InputError("lambda_path needs at least one lam")
     points, decs, state = [], [], None

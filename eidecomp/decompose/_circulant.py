@@ -24,6 +24,7 @@ residuals), on arrays of F * F * H * W numbers instead of (F H W)^2.
 
 import numpy as np
 
+from ..params import MAX_ITER, TOL
 from ._ialm import _MU_MAX_FACTOR, end_step
 
 __all__ = ["kernel_ialm"]
@@ -65,7 +66,8 @@ def _svt(B, tau):
     return (U * s[..., None, :]) @ Vh, np.count_nonzero(s > 0, axis=-1)
 
 
-def kernel_ialm(G, lam, *, tol=1e-8, max_iter=5000, rho=1.5, callback=None):
+def kernel_ialm(G, lam, *, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.5,
+                callback=None):
     """PCP on a full-grid kernel G (F, F, H, W); kernels in, kernels out.
 
     Returns

@@ -38,6 +38,7 @@ import numpy as np
 
 from ..errors import InputError
 from ..limits import range_error
+from ..params import MAX_ITER, TOL
 from ._ialm import _MU_MAX_FACTOR, end_step, next_rank
 
 __all__ = ["BlockStore", "dask_ialm", "read_block"]
@@ -224,7 +225,8 @@ def _subspace_svd(T, V):
     return Q @ ub, sv, vt
 
 
-def dask_ialm(store, lam, *, tol=1e-8, max_iter=5000, rho=1.5, n_power_iter=2,
+def dask_ialm(store, lam, *, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.5,
+              n_power_iter=2,
               seed=0, callback=None):
     """PCP of the matrix in ``store`` (a BlockStore).
 

@@ -2,13 +2,13 @@
 
 import shutil
 import tempfile
-import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 
-from ..errors import ConvergenceWarning, InputError
+from ..errors import InputError, warn_stopped
+from ..params import SolverSettings, resolve_dtype
 
 __all__ = ["DaskDecomposition", "robust_pca_dask"]
 
@@ -82,7 +82,7 @@ def _source(W, workdir, chunks):
     return str(target), W.shape
 
 
-def robust_pca_dask(W, *, lam=None, tol=None, max_iter=5000, dtype="float64",
+def robust_pca_dask(W, *, lam=None, tol=None, max_iter=None, dtype="float64",
                     scheduler=None, n_workers=2, memory_limit="auto",
                     chunks=(2000, 2000), seed=0, progress=None, client=None,
                     sparse_out=None, workdir=None):
@@ -128,10 +128,7 @@ def robust_pca_dask(W, *, lam=None, tol=None, max_iter=5000, dtype="float64",
 
     from ._dask import BlockStore, dask_ialm
 
-    dt = {"float64": np.float64, "float32": np.float32}.get(str(dtype))
-    if dt is None:
-        raise InputError(f"dtype must be float64 or float32, got {dtype!r}")
-    tol = (1e-6 if dt is np.float32 else 1e-8) if tol is None else tol
+    dt = resolve_dtype(dtype)
     if workdir is None and sparse_out is not None:
         workdir = Path(sparse_out).resolve().parent
     work = Path(tempfile.mkdtemp(prefix=".eidecomp-dask-", dir=workdir))
@@ -148,9 +145,11 @@ def robust_pca_dask(W, *, lam=None, tol=None, max_iter=5000, dtype="float64",
                                        dashboard_address=None)
                 client = Client(cluster)
         store = BlockStore(source, shape, dt, chunks, work)
-        lam = 1.0 / np.sqrt(max(shape)) if lam is None else float(lam)
-        U, s, Vt, s_path, info = dask_ialm(store, lam, tol=tol,
-                                           max_iter=max_iter, seed=seed,
+        settings = SolverSettings.resolve(shape, lam=lam, tol=tol,
+                                          max_iter=max_iter, dtype=dtype)
+        lam = settings.lam
+        U, s, Vt, s_path, info = dask_ialm(store, lam, tol=settings.tol,
+                                           max_iter=settings.max_iter, seed=seed,
                                            callback=progress)
         if sparse_out is not None:
             shutil.move(s_path, sparse_out)
@@ -168,7 +167,5 @@ def robust_pca_dask(W, *, lam=None, tol=None, max_iter=5000, dtype="float64",
                 cluster.close()
         shutil.rmtree(work, ignore_errors=True)
     if not dec.converged:
-        warnings.warn(f"dask robust PCA stopped after {dec.n_iter} iterations "
-                      "before reaching its tolerance", ConvergenceWarning,
-                      stacklevel=2)
+        warn_stopped("dask robust PCA", dec.n_iter)
     return dec

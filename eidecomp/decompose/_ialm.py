@@ -33,6 +33,7 @@ array has W's dtype (float64, or float32 in float32 mode).
 
 import numpy as np
 
+from ..params import MAX_ITER, TOL
 from ._svt import sketch_plan, spectral_norm, svt
 
 __all__ = ["end_step", "ialm", "next_penalty", "next_rank"]
@@ -85,7 +86,56 @@ def next_rank(sv_prev, r, n_small):
     return min(r + 5 + max(5, r // 10), n_small)
 
 
-def ialm(W, lam, *, observed=None, tol=1e-8, max_iter=5000, rho=1.5,
+def _svt_argument(T, W, S, Y, inv_mu, blocks, plan):
+    """T = W + Y/mu - S block by block; with a sketch plan, T @ Omega in the
+    same pass. Returns the sketch for the partial SVD (or None)."""
+    P = None if plan is None else np.empty((W.shape[0], plan[0].shape[1]),
+                                           W.dtype)
+    for b in blocks:
+        tb = T[b]
+        np.multiply(Y[b], inv_mu, out=tb)
+        tb += W[b]
+        tb -= S[b]
+        if plan is not None:
+            np.matmul(tb, plan[0], out=P[b])
+    return None if plan is None else (*plan, P)
+
+
+def _update_s_y(W, S, Y, Us, Vt, r, mu, thr, mask, blocks, work):
+    """S and Y in place, block by block, from L = Us Vt (never stored):
+    S = shrink_thr(W - L + Y/mu), Y = mu (W - L + Y/mu - S), zero off Omega.
+    Returns (||S+ - S||^2, ||Y+ - Y||^2, ||Y+||^2)."""
+    t, c, d = work
+    inv_mu = 1.0 / mu
+    dS2 = dY2 = Y2 = 0.0
+    for b in blocks:
+        h = b.stop - b.start
+        tb, cb, db = t[:h], c[:h], d[:h]
+        if r:
+            np.matmul(Us[b], Vt, out=tb)         # L
+            np.subtract(W[b], tb, out=tb)        # W - L
+        else:
+            tb[...] = W[b]
+        np.multiply(Y[b], inv_mu, out=cb)
+        tb += cb                                 # W - L + Y/mu
+        np.clip(tb, -thr, thr, out=cb)           # Y_new / mu on Omega
+        if mask is not None:
+            cb *= mask[b]                        # off Omega: Y = 0
+        tb -= cb                                 # S_new
+        Sb = S[b]
+        np.subtract(Sb, tb, out=db)
+        dS2 += float(np.vdot(db, db))
+        Sb[...] = tb
+        cb *= mu                                 # Y_new
+        Yb = Y[b]
+        np.subtract(Yb, cb, out=db)              # -mu (W - L - S_new)
+        dY2 += float(np.vdot(db, db))
+        Yb[...] = cb
+        Y2 += float(np.vdot(cb, cb))
+    return dS2, dY2, Y2
+
+
+def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.5,
          init=None, rng=None, callback=None):
     """Solve PCP by inexact ALM; arrays in, arrays out.
 
@@ -164,46 +214,13 @@ def ialm(W, lam, *, observed=None, tol=1e-8, max_iter=5000, rho=1.5,
     for it in range(1, max_iter + 1):
         inv_mu = 1.0 / mu
         plan = sketch_plan(W.shape, k, V, rng, dtype=dtype)
-        if plan is not None:
-            P = np.empty((m, plan[0].shape[1]), dtype)
-        for b in blocks:
-            tb = T[b]
-            np.multiply(Y[b], inv_mu, out=tb)
-            tb += W[b]
-            tb -= S[b]
-            if plan is not None:
-                np.matmul(tb, plan[0], out=P[b])
-        sketch = None if plan is None else (*plan, P)
+        sketch = _svt_argument(T, W, S, Y, inv_mu, blocks, plan)
         U, s, Vt, V, _ = svt(T, inv_mu, k=k, V0=V, rng=rng, sketch=sketch)
         r_prev, r = r, len(s)
         k = next_rank(r_prev if it > 1 else r + 1, r, n_small)
         Us = U * s
-        thr = lam * inv_mu
-        dS2 = dY2 = Y2 = 0.0
-        for b in blocks:
-            h = b.stop - b.start
-            tb, cb, db = t[:h], c[:h], d[:h]
-            if r:
-                np.matmul(Us[b], Vt, out=tb)         # L
-                np.subtract(W[b], tb, out=tb)        # W - L
-            else:
-                tb[...] = W[b]
-            np.multiply(Y[b], inv_mu, out=cb)
-            tb += cb                                 # W - L + Y/mu
-            np.clip(tb, -thr, thr, out=cb)           # Y_new / mu on Omega
-            if mask is not None:
-                cb *= mask[b]                        # off Omega: Y = 0
-            tb -= cb                                 # S_new
-            Sb = S[b]
-            np.subtract(Sb, tb, out=db)
-            dS2 += float(np.vdot(db, db))
-            Sb[...] = tb
-            cb *= mu                                 # Y_new
-            Yb = Y[b]
-            np.subtract(Yb, cb, out=db)              # -mu (W - L - S_new)
-            dY2 += float(np.vdot(db, db))
-            Yb[...] = cb
-            Y2 += float(np.vdot(cb, cb))
+        dS2, dY2, Y2 = _update_s_y(W, S, Y, Us, Vt, r, mu, lam * inv_mu, mask,
+                                   blocks, (t, c, d))
         converged, mu, polishing = end_step(
             history, callback, it, r, mu, polishing, np.sqrt(dY2), np.sqrt(dS2),
             np.sqrt(Y2), norm_W, tol=tol, rho=rho, mu_max=mu_max)

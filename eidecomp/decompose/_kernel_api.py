@@ -1,13 +1,12 @@
 """robust_pca_kernel: PCP of a lateral kernel tiled over a grid."""
 
-import warnings
-
 import numpy as np
 
-from ..errors import ConvergenceWarning, InputError
+from ..errors import InputError, warn_stopped
 from ..kernels import check_kernel, expand, full_grid
+from ..params import SolverSettings
 from ..types import KernelDecomposition
-from ._api import MAX_ITER, robust_pca
+from ._api import robust_pca
 from ._circulant import kernel_ialm, nuclear_norm
 
 __all__ = ["robust_pca_kernel"]
@@ -40,7 +39,6 @@ def robust_pca_kernel(K, grid, *, lam=None, boundary="periodic", offsets=False,
     >>> dec.low_rank.shape, dec.converged
     ((2, 2, 5, 5), True)
     """
-    tol = 1e-8 if tol is None else tol
     h, w = (int(g) for g in grid)
     if offsets:
         G = np.asarray(K, dtype=float)
@@ -57,14 +55,14 @@ def robust_pca_kernel(K, grid, *, lam=None, boundary="periodic", offsets=False,
         G = full_grid(K, (h, w)) if boundary == "periodic" else None
     F = (G if G is not None else K).shape[0]
     n = F * h * w
-    lam = 1.0 / np.sqrt(n) if lam is None else float(lam)
-    if not lam > 0 or not np.isfinite(lam):
-        raise InputError(f"lam must be a positive number, got {lam!r}")
+    settings = SolverSettings.resolve((n, n), lam=lam, tol=tol,
+                                      max_iter=max_iter)
+    lam, tol = settings.lam, settings.tol
     if boundary == "zero":
         return robust_pca(expand(K, (h, w), "zero"), lam=lam, tol=tol,
                           max_iter=max_iter, rho=rho, progress=progress,
                           seed=seed)
-    L, S, _, info = kernel_ialm(G, lam, tol=tol, max_iter=max_iter or MAX_ITER,
+    L, S, _, info = kernel_ialm(G, lam, tol=tol, max_iter=settings.max_iter,
                                 rho=rho, callback=progress)
     objective = nuclear_norm(L) + lam * h * w * float(np.abs(S).sum())
     dec = KernelDecomposition(low_rank=L, sparse=S, ranks=info["ranks"],
@@ -72,7 +70,5 @@ def robust_pca_kernel(K, grid, *, lam=None, boundary="periodic", offsets=False,
                               n_iter=info["n_iter"], converged=info["converged"],
                               grid=(h, w), history=tuple(info["history"]))
     if not dec.converged:
-        warnings.warn(f"kernel robust PCA stopped after {dec.n_iter} iterations "
-                      "before reaching its tolerance; raise max_iter or loosen "
-                      "tol", ConvergenceWarning, stacklevel=2)
+        warn_stopped("kernel robust PCA", dec.n_iter)
     return dec

@@ -16,7 +16,8 @@ class RobustPCA:
     lam : float or None, default=None
         Weight of the l1 term; None means 1 / sqrt(max(m, n)).
     method : {"ialm", "convex"}, default="ialm"
-    tol : float, default=1e-8
+    tol : float or None, default=None
+        None: the working dtype's default (eidecomp.params.TOL).
     max_iter : int or None, default=None
     target_rank : int or None, default=None
     solver : str, default="CLARABEL"
@@ -44,7 +45,7 @@ class RobustPCA:
     (1, True)
     """
 
-    def __init__(self, lam=None, *, method="ialm", tol=1e-8, max_iter=None,
+    def __init__(self, lam=None, *, method="ialm", tol=None, max_iter=None,
                  target_rank=None, solver="CLARABEL", seed=0):
         self.lam = lam
         self.method = method

@@ -1,95 +1,618 @@
-"""Every folder eidecomp writes: one writer and one reader a kind."""
+"""Every folder eidecomp writes, with one writer and one reader for each kind.
+
+A bundle is a folder with one manifest (a JSON file) that names its format
+and version and holds the SHA-256 of every other file in the folder; the
+readers check the format, the version and every checksum before they use a
+byte, so a changed, swapped or truncated file is refused with one line.
+
+=======================  ==============================  =====================
+kind                     format (manifest)               data files
+=======================  ==============================  =====================
+decomposition            eidecomp-decomposition          low_rank.npy,
+                         (summary.json)                  sparse.npy
+factored decomposition   eidecomp-dask-decomposition     low_rank_U.npy,
+                         (summary.json)                  low_rank_s.npy,
+                                                         low_rank_Vt.npy,
+                                                         sparse.npy
+kernel decomposition     eidecomp-kernel-decomposition   low_rank_kernel.npy,
+                         (summary.json)                  sparse_kernel.npy,
+                                                         ranks.npy
+circuit                  eidecomp-circuit                J_EE.npy ... J_TE.npy;
+                         (circuit.json)                  optional low_rank.npy,
+                                                         sparse.npy,
+                                                         features.npy,
+                                                         positions.npy,
+                                                         report.html, inputs
+tiled circuit            eidecomp-tiled-circuit          J_EE_kernel.npy ...
+                         (tiled.json)                    J_TE_kernel.npy
+=======================  ==============================  =====================
+
+Every array is stored [post, pre] (W[post, pre]: row = target, column =
+source); circuit blocks are nonnegative magnitudes whose sign is that of the
+presynaptic population (Dale's law). :func:`identify` tells what a folder is;
+the command line asks it, and ``--force`` replaces only a folder of the same
+kind (:func:`replaceable_by`).
+"""
 
 import hashlib
-import json
+from contextlib import contextmanager
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 
+from .._version import __version__
 from ..errors import InputError
+from ..types import (
+    BLOCK_NAMES,
+    EXCITATORY,
+    POPULATION_NAMES,
+    TUNED,
+    UNTUNED,
+    Circuit,
+    Decomposition,
+    KernelDecomposition,
+)
+from .binary import npy_header, read_npy
+from .jsondoc import load_json, require
 from .matrices import file_checksum
-from .staging import npy_bytes
+from .staging import _write_bytes, check_output, file_bytes, staged_folder
 
-CIRCUIT_FORMAT = "eidecomp-circuit"
-CIRCUIT_VERSION = 1
-CIRCUIT_BLOCKS = ("J_EE", "J_EU", "J_UE", "J_ET", "J_TE")
+__all__ = [
+    "CIRCUIT",
+    "CIRCUIT_FORMAT",
+    "CIRCUIT_VERSION",
+    "DECOMPOSITION",
+    "FACTORED",
+    "KERNEL_DECOMPOSITION",
+    "KINDS",
+    "TILED",
+    "BundleKind",
+    "CircuitBundle",
+    "check_bundle_output",
+    "circuit_doc",
+    "circuit_files",
+    "expect_kind",
+    "factored_doc",
+    "identify",
+    "json_number",
+    "read_bundle",
+    "read_circuit",
+    "read_circuit_bundle",
+    "read_decomposition",
+    "read_factored",
+    "read_kernel_decomposition",
+    "read_tiled",
+    "replaceable_by",
+    "staged_bundle",
+    "tiled_doc",
+    "write_bundle",
+    "write_circuit",
+    "write_decomposition",
+    "write_kernel_decomposition",
+    "write_tiled",
+]
 
 
-def circuit_files(circuit, meta):
-    """The files of a circuit bundle: the blocks as .npy, and circuit.json.
+@dataclass(frozen=True)
+class BundleKind:
+    """One kind of folder: its format name and version, its manifest, the
+    files it must hold, and the words used for it in messages."""
 
-    ``meta`` (a dict: parameters, metrics, provenance) is stored in
-    circuit.json with the format name and version, the populations and the
-    SHA-256 of every block file, which :func:`read_circuit` verifies.
+    name: str
+    format: str
+    version: int
+    manifest: str
+    required: tuple
+    what: str
+    convention: str
+
+
+_POST_PRE = "W[post, pre]: row = target, column = source"
+DECOMPOSITION = BundleKind(
+    "decomposition", "eidecomp-decomposition", 2, "summary.json",
+    ("low_rank.npy", "sparse.npy"), "decomposition folder", _POST_PRE)
+FACTORED = BundleKind(
+    "factored decomposition", "eidecomp-dask-decomposition", 2, "summary.json",
+    ("low_rank_U.npy", "low_rank_s.npy", "low_rank_Vt.npy", "sparse.npy"),
+    "decomposition folder (dask engine)",
+    _POST_PRE + "; L = (U * s) @ Vt from the three low_rank_*.npy factors")
+KERNEL_DECOMPOSITION = BundleKind(
+    "kernel decomposition", "eidecomp-kernel-decomposition", 2, "summary.json",
+    ("low_rank_kernel.npy", "sparse_kernel.npy", "ranks.npy"),
+    "kernel decomposition folder",
+    "full-grid kernels K[post_feature, pre_feature, offset mod grid] (F, F, H, "
+    "W); the tiled matrix is W[post, pre]; ranks.npy is the rank of L at each "
+    "spatial frequency")
+CIRCUIT = BundleKind(
+    "circuit", "eidecomp-circuit", 2, "circuit.json",
+    tuple(f"{b}.npy" for b in BLOCK_NAMES), "circuit bundle",
+    "blocks are nonnegative magnitudes, [post, pre]; the sign is the "
+    "presynaptic population's")
+TILED = BundleKind(
+    "tiled circuit", "eidecomp-tiled-circuit", 2, "tiled.json",
+    tuple(f"{b}_kernel.npy" for b in BLOCK_NAMES), "tiled circuit bundle",
+    "full-grid kernels (P, Q, H, W), [post, pre, offset mod grid]; "
+    "nonnegative magnitudes, the sign the presynaptic population's")
+KINDS = (DECOMPOSITION, FACTORED, KERNEL_DECOMPOSITION, CIRCUIT, TILED)
+_BY_FORMAT = {k.format: k for k in KINDS}
+CIRCUIT_FORMAT, CIRCUIT_VERSION = CIRCUIT.format, CIRCUIT.version
+
+
+# --- what a folder is -------------------------------------------------------------
+
+def identify(folder):
+    """The BundleKind of an eidecomp folder, or None for any other path.
+
+    Reads only the manifest's ``format`` field (bounded in size and depth);
+    checksums are checked by the readers, not here.
     """
-    files = {f"{b}.npy": np.asarray(getattr(circuit, b)) for b in CIRCUIT_BLOCKS}
-    sums = {name: hashlib.sha256(npy_bytes(a)).hexdigest()
-            for name, a in files.items()}
-    doc = {"format": CIRCUIT_FORMAT, "format_version": CIRCUIT_VERSION,
-           "convention": "blocks are nonnegative magnitudes, [post, pre]; "
-                         "the sign is the presynaptic population's",
-           "populations": [{"name": p.name, "kind": p.kind, "size": p.size,
-                            "sign": p.sign} for p in circuit.populations],
-           "sha256": sums, **meta}
-    files["circuit.json"] = doc
-    return files
-
-
-def read_circuit(folder):
-    """Load a circuit bundle written by ``eidecomp assemble`` or ``run``.
-
-    Checks the format name and version, every block's checksum, and the
-    shapes and signs of the blocks. Returns ``(Circuit, meta)`` where meta is
-    the parsed circuit.json.
-    """
-    from ..types import Circuit
-
     folder = Path(folder)
-    doc_path = folder / "circuit.json"
     if not folder.is_dir():
-        raise InputError(f"{folder}: not a folder (expected a circuit bundle)")
-    if not doc_path.is_file():
-        raise InputError(f"{folder}: no circuit.json; not a circuit bundle")
-    try:
-        doc = json.loads(doc_path.read_text(encoding="utf-8"))
-    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise InputError(f"{doc_path}: corrupt JSON ({exc})") from None
-    if not isinstance(doc, dict) or doc.get("format") != CIRCUIT_FORMAT:
-        raise InputError(f"{doc_path}: not an eidecomp circuit bundle")
+        return None
+    for manifest in dict.fromkeys(k.manifest for k in KINDS):
+        path = folder / manifest
+        if not path.is_file():
+            continue
+        try:
+            doc = load_json(path, what=manifest)
+        except InputError:
+            return None
+        kind = _BY_FORMAT.get(doc.get("format")) if isinstance(doc, dict) else None
+        if kind is not None and kind.manifest == manifest:
+            return kind
+    return None
+
+
+def replaceable_by(*kinds):
+    """The ``replaceable`` rule of :func:`eidecomp.io.staging.check_output`
+    for an output of one of ``kinds``: an empty folder, or an eidecomp folder
+    of the same kind; anything else is a reason string."""
+    def rule(path):
+        path = Path(path)
+        if path.is_dir() and not any(path.iterdir()):
+            return None
+        found = identify(path)
+        if found in kinds:
+            return None
+        wanted = " or ".join(k.what for k in kinds)
+        return (f"holds an eidecomp {found.what}, not a {wanted}" if found
+                else f"is not an eidecomp {wanted}")
+    return rule
+
+
+def check_bundle_output(out, kind, *, force=False, inputs=()):
+    """Refuse, before any work, an output folder that may not be written."""
+    return check_output(out, force=force, folder=True,
+                        replaceable=replaceable_by(kind), inputs=inputs)
+
+
+# --- writing ----------------------------------------------------------------------
+
+class _Pending:
+    """The files of a bundle being written into its temporary folder."""
+
+    def __init__(self, tmp):
+        self.folder = Path(tmp)
+        self.sums = {}
+
+    def add(self, name, value):
+        """Write one file (staging.file_bytes: ndarray as .npy, str as UTF-8)."""
+        data = file_bytes(value)
+        _write_bytes(self.folder / name, data)  # the one flushed write
+        self.sums[name] = hashlib.sha256(data).hexdigest()
+
+    def placed(self, name):
+        """Record a file that a solver wrote into the folder itself."""
+        self.sums[name] = file_checksum(self.folder / name)
+
+    def seal(self, kind, doc):
+        missing = [f for f in kind.required if f not in self.sums]
+        if missing:  # a writer's bug, never the user's
+            raise RuntimeError(f"{kind.what} written without {missing}")
+        manifest = {**doc, "format": kind.format,
+                    "format_version": kind.version,
+                    "eidecomp_version": __version__,
+                    "convention": kind.convention,
+                    "sha256": dict(sorted(self.sums.items()))}
+        _write_bytes(self.folder / kind.manifest, file_bytes(manifest))
+        return manifest
+
+
+@contextmanager
+def staged_bundle(out, kind, *, force=False, inputs=()):
+    """Write a bundle of ``kind`` into a temporary folder renamed to ``out``.
+
+    Yields a writer with ``add(name, value)``, ``placed(name)`` (a file put
+    into ``writer.folder`` by someone else) and ``folder``; set
+    ``writer.doc`` to the manifest's contents. On leaving, the manifest is
+    written with the format, version and the SHA-256 of every file.
+    """
+    with staged_folder(out, force=force, replaceable=replaceable_by(kind),
+                       inputs=inputs) as tmp:
+        pending = _Pending(tmp)
+        pending.doc = {}
+        yield pending
+        pending.manifest = pending.seal(kind, pending.doc)
+
+
+def write_bundle(out, kind, files, doc, *, force=False, inputs=()):
+    """Write ``files`` (name -> ndarray | str | bytes) and the manifest
+    ``doc`` as a bundle of ``kind``; returns the manifest as written."""
+    with staged_bundle(out, kind, force=force, inputs=inputs) as b:
+        for name, value in files.items():
+            b.add(name, value)
+        b.doc = doc
+    return b.manifest
+
+
+def circuit_files(circuit):
+    """The block files of a circuit bundle (name -> array)."""
+    return {f"{b}.npy": np.asarray(getattr(circuit, b)) for b in BLOCK_NAMES}
+
+
+# --- reading ----------------------------------------------------------------------
+
+def _manifest(folder, kind):
+    """The parsed manifest of ``folder``, refused unless it is ``kind``'s."""
+    if not folder.is_dir():
+        raise InputError(f"{folder}: not a folder (expected a {kind.what})")
+    path = folder / kind.manifest
+    if not path.is_file():
+        found = identify(folder)
+        raise InputError(f"{folder}: " + (f"a {found.what}, not a {kind.what}"
+                                          if found else f"no {kind.manifest}; "
+                                          f"not a {kind.what}"))
+    doc = load_json(path, what=kind.manifest)
+    found = _BY_FORMAT.get(doc.get("format")) if isinstance(doc, dict) else None
+    if found is not kind:
+        raise InputError(f"{path}: " + (f"a {found.what}, not a {kind.what}"
+                                        if found else f"not an eidecomp {kind.what}"))
+    return doc
+
+
+def _check_version(doc, path, kind):
     version = doc.get("format_version")
     if not isinstance(version, int) or isinstance(version, bool) or version < 1:
-        raise InputError(f"{doc_path}: format version {version!r} is not a "
-                         "version eidecomp writes")
-    if version > CIRCUIT_VERSION:
-        raise InputError(f"{doc_path}: format version {version!r} is newer than "
-                         f"this eidecomp reads ({CIRCUIT_VERSION}); upgrade")
-    sums = doc.get("sha256")
-    if not isinstance(sums, dict):
-        raise InputError(f"{doc_path}: no 'sha256' table of the block files")
-    params = doc.get("parameters", {})
-    if not isinstance(params, dict):
-        raise InputError(f"{doc_path}: 'parameters' must be an object")
-    blocks = {}
-    for b in CIRCUIT_BLOCKS:
-        p = folder / f"{b}.npy"
+        raise InputError(f"{path}: format version {version!r} is not a version "
+                         "eidecomp writes")
+    if version > kind.version:
+        raise InputError(f"{path}: format version {version} is newer than this "
+                         f"eidecomp reads ({kind.version}); upgrade")
+    if version < kind.version:
+        raise InputError(f"{path}: format version {version} was written by an "
+                         "older eidecomp without a checksum for every file; "
+                         "write it again with this one")
+
+
+def _check_sums(folder, doc, path, kind):
+    sums = require(doc, "sha256", dict, path)
+    for name in kind.required:
+        if name not in sums:
+            raise InputError(f"{path}: no checksum for {name}")
+    for name, digest in sums.items():
+        if Path(name).name != name or name in (kind.manifest, "", ".", ".."):
+            raise InputError(f"{path}: 'sha256' lists {name!r}, not a file of "
+                             "the bundle")
+        p = folder / name
         if not p.is_file():
-            raise InputError(f"{p}: missing from the bundle")
-        if sums.get(p.name) != file_checksum(p):
-            raise InputError(f"{p}: checksum does not match circuit.json "
-                             "(the file was changed or truncated)")
-        try:
-            blocks[b] = np.load(p, allow_pickle=False)
-        except ValueError as exc:
-            raise InputError(f"{p}: unreadable block ({exc})") from None
+            raise InputError(f"{p}: missing from the {kind.what}")
+        if name.endswith(".npy"):  # the input files' header checks, first
+            npy_header(p, what=name)
+        if digest != file_checksum(p):
+            raise InputError(f"{p}: checksum does not match {kind.manifest} "
+                             "(the file was changed, swapped or truncated)")
+
+
+def expect_kind(folder, kind):
+    """Refuse, from its manifest alone, a folder that is not of ``kind``
+    (the full check, checksums included, is :func:`read_bundle`'s)."""
+    _manifest(Path(folder), kind)
+
+
+def read_bundle(folder, kind):
+    """The checked manifest of a bundle of ``kind``: format, version and the
+    SHA-256 of every file it lists (all of ``kind.required`` among them)."""
+    folder = Path(folder)
+    doc = _manifest(folder, kind)
+    path = folder / kind.manifest
+    _check_version(doc, path, kind)
+    _check_sums(folder, doc, path, kind)
+    return doc
+
+
+def _array(folder, doc, name, ndim=None):
+    """A listed (so checked) array of a bundle, or None when not listed."""
+    if name not in doc["sha256"]:
+        return None
+    return read_npy(Path(folder) / name, what=name, ndim=ndim)
+
+
+def _number(doc, key, where, kinds=(int, float)):
+    value = require(doc, key, kinds, where)
+    if isinstance(value, bool):
+        raise InputError(f"{where}: key {key!r} must be a number (got bool)")
+    return value
+
+
+def read_decomposition(folder):
+    """(Decomposition, summary) from a decomposition folder."""
+    doc = read_bundle(folder, DECOMPOSITION)
+    where = Path(folder) / DECOMPOSITION.manifest
+    L = _array(folder, doc, "low_rank.npy", ndim=2)
+    S = _array(folder, doc, "sparse.npy", ndim=2)
+    if L.shape != S.shape:
+        raise InputError(f"{folder}: low_rank.npy is {L.shape} and sparse.npy "
+                         f"{S.shape}; they must agree")
+    dec = Decomposition(low_rank=L, sparse=S,
+                        rank=int(_number(doc, "rank", where, int)),
+                        lam=float(_number(doc, "lam", where)),
+                        objective=float(_number(doc, "objective", where)),
+                        n_iter=int(_number(doc, "n_iter", where, int)),
+                        converged=bool(require(doc, "converged", bool, where)))
+    return dec, doc
+
+
+def read_factored(folder):
+    """((U, s, Vt), S, summary) from a dask-engine decomposition folder;
+    S is memory-mapped (read only)."""
+    doc = read_bundle(folder, FACTORED)
+    U = _array(folder, doc, "low_rank_U.npy", ndim=2)
+    s = _array(folder, doc, "low_rank_s.npy", ndim=1)
+    Vt = _array(folder, doc, "low_rank_Vt.npy", ndim=2)
+    S = np.load(Path(folder) / "sparse.npy", mmap_mode="r", allow_pickle=False)
+    if U.shape[1] != s.size or Vt.shape[0] != s.size or \
+            (U.shape[0], Vt.shape[1]) != S.shape:
+        raise InputError(f"{folder}: the factors' shapes do not fit sparse.npy")
+    return (U, s, Vt), S, doc
+
+
+def read_kernel_decomposition(folder):
+    """(KernelDecomposition, summary) from a kernel decomposition folder."""
+    doc = read_bundle(folder, KERNEL_DECOMPOSITION)
+    where = Path(folder) / KERNEL_DECOMPOSITION.manifest
+    L = _array(folder, doc, "low_rank_kernel.npy", ndim=4)
+    S = _array(folder, doc, "sparse_kernel.npy", ndim=4)
+    ranks = _array(folder, doc, "ranks.npy", ndim=2)
+    inp = require(doc, "input", dict, where)
+    grid = tuple(require(inp, "grid", list, where))
+    if L.shape != S.shape or grid != L.shape[2:] or ranks.shape != grid:
+        raise InputError(f"{folder}: the kernels, ranks and grid do not agree")
+    dec = KernelDecomposition(low_rank=L, sparse=S, ranks=ranks.astype(int),
+                              lam=float(_number(doc, "lam", where)),
+                              objective=float(_number(doc, "objective", where)),
+                              n_iter=int(_number(doc, "n_iter", where, int)),
+                              converged=bool(require(doc, "converged", bool,
+                                                     where)),
+                              grid=grid)
+    return dec, doc
+
+
+def read_tiled(folder):
+    """(blocks, grid, manifest) of a tiled circuit bundle: the five block
+    kernels by name (eidecomp.assemble.TiledCircuit takes them), the grid."""
+    doc = read_bundle(folder, TILED)
+    where = Path(folder) / TILED.manifest
+    grid = require(require(doc, "input", dict, where), "grid", list, where)
+    blocks = {b: _array(folder, doc, f"{b}_kernel.npy", ndim=4)
+              for b in BLOCK_NAMES}
+    if any(a.shape[2:] != tuple(grid) for a in blocks.values()):
+        raise InputError(f"{folder}: the kernels do not match the grid {grid}")
+    return blocks, tuple(grid), doc
+
+
+# what the report and the command line read of circuit.json, by section
+_CIRCUIT_SCHEMA = {"parameters": dict, "counts": dict, "metrics": dict,
+                   "baselines": list, "stability": dict, "interneurons": list,
+                   "input": dict, "decomposition": dict}
+_BASELINE_KEYS = {"name": str, "n_inhibitory": int,
+                  "relative_error": (int, float), "ee_density": (int, float)}
+
+
+def _check_circuit_doc(doc, where, n_e):
+    for key, kinds in _CIRCUIT_SCHEMA.items():
+        require(doc, key, kinds, where)
+    for key in POPULATION_NAMES:
+        require(doc["counts"], key, int, f"{where}: counts")
+    for key, kinds in (("relative_error", (int, float)),
+                       ("ee_density", (int, float)), ("share_rule", str),
+                       ("converged", bool)):
+        require(doc["metrics"], key, kinds, f"{where}: metrics")
+    for k, b in enumerate(doc["baselines"]):
+        if not isinstance(b, dict):
+            raise InputError(f"{where}: baselines[{k}] must be an object")
+        for key, kinds in _BASELINE_KEYS.items():
+            require(b, key, kinds, f"{where}: baselines[{k}]")
+    ids = doc.get("unit_ids")
+    if ids is not None and not (isinstance(ids, list) and len(ids) == n_e
+                                and all(isinstance(u, str) for u in ids)):
+        raise InputError(f"{where}: 'unit_ids' must be a list of {n_e} names "
+                         "(one per excitatory unit) or null")
+
+
+@dataclass(frozen=True)
+class CircuitBundle:
+    """A circuit bundle as read: the circuit, its manifest, and the optional
+    arrays stored beside it (None when absent)."""
+
+    path: Path
+    circuit: Circuit
+    doc: dict = field(repr=False)
+    low_rank: np.ndarray | None = field(default=None, repr=False)
+    sparse: np.ndarray | None = field(default=None, repr=False)
+    features: np.ndarray | None = field(default=None, repr=False)
+    positions: np.ndarray | None = field(default=None, repr=False)
+
+    @property
+    def unit_ids(self):
+        return self.doc.get("unit_ids")
+
+    def original_weights(self):
+        """W = L + S, the matrix the circuit was built from; W_eff when the
+        bundle does not hold its split."""
+        if self.low_rank is not None and self.sparse is not None:
+            return self.low_rank + self.sparse
+        return self.circuit.effective_weights()
+
+
+def read_circuit_bundle(folder):
+    """A :class:`CircuitBundle`, every file checked against circuit.json."""
+    folder = Path(folder)
+    doc = read_bundle(folder, CIRCUIT)
+    where = folder / CIRCUIT.manifest
+    params = require(doc, "parameters", dict, where)
+    blocks = {b: _array(folder, doc, f"{b}.npy", ndim=2) for b in BLOCK_NAMES}
     try:
         circuit = Circuit(**blocks, params=params)
     except ValueError as exc:
         raise InputError(f"{folder}: {exc}") from None
-    ids = doc.get("unit_ids")
-    if ids is not None and not (isinstance(ids, list) and len(ids) ==
-                                circuit.n_excitatory
-                                and all(isinstance(u, str) for u in ids)):
-        raise InputError(f"{doc_path}: 'unit_ids' must be a list of "
-                         f"{circuit.n_excitatory} names (one per excitatory "
-                         "unit) or null")
-    return circuit, doc
+    _check_circuit_doc(doc, where, circuit.n_excitatory)
+    n = circuit.n_excitatory
+    extra = {name: _array(folder, doc, f"{name}.npy")
+             for name in ("low_rank", "sparse", "features", "positions")}
+    expected = {"low_rank": (n, n), "sparse": (n, n), "features": (n,),
+                "positions": (n, 2)}
+    for name, arr in extra.items():
+        if arr is not None and arr.shape != expected[name]:
+            raise InputError(f"{folder / (name + '.npy')}: shape {arr.shape}, "
+                             f"expected {expected[name]} for {n} units")
+    return CircuitBundle(path=folder, circuit=circuit, doc=doc, **extra)
+
+
+def read_circuit(folder):
+    """(Circuit, circuit.json) of a circuit bundle: the short form of
+    :func:`read_circuit_bundle`."""
+    b = read_circuit_bundle(folder)
+    return b.circuit, b.doc
+
+
+# --- the manifests of each kind -----------------------------------------------------
+
+def json_number(value):
+    """JSON-safe: a non-finite float becomes None (null)."""
+    if isinstance(value, float) and not np.isfinite(value):
+        return None
+    return value
+
+
+def write_decomposition(out, dec, *, source, parameters, mask=None,
+                        force=False, inputs=()):
+    """A decomposition folder: low_rank.npy, sparse.npy and summary.json.
+
+    ``source`` describes the input (path, sha256, key, transpose); ``mask``
+    the unobserved entries (path, ignore_diagonal); ``parameters`` the
+    options as given (None: the default).
+    """
+    from ..params import default_lam
+
+    n_unobserved = 0 if dec.observed is None else int((~dec.observed).sum())
+    doc = {"input": {**source, "shape": list(dec.shape)},
+           "mask": {**(mask or {}), "n_unobserved": n_unobserved},
+           "parameters": parameters, "lam": dec.lam,
+           "lam_default": default_lam(dec.shape), "rank": dec.rank,
+           "sparsity": dec.sparsity, "objective": dec.objective,
+           "n_iter": dec.n_iter, "converged": dec.converged,
+           "optimality": {k: json_number(v)
+                          for k, v in dec.report.as_dict().items()}}
+    return write_bundle(out, DECOMPOSITION,
+                        {"low_rank.npy": np.asarray(dec.low_rank),
+                         "sparse.npy": np.asarray(dec.sparse)},
+                        doc, force=force, inputs=inputs)
+
+
+def factored_doc(dec, *, source, engine, parameters):
+    """summary.json of a dask-engine folder (its files are placed by the
+    solver: see :func:`staged_bundle`)."""
+    return {"input": {**source, "shape": list(dec.sparse.shape)},
+            "engine": engine, "parameters": parameters, "lam": dec.lam,
+            "rank": dec.rank, "n_iter": dec.n_iter, "converged": dec.converged}
+
+
+def write_kernel_decomposition(out, dec, *, source, parameters, force=False,
+                               inputs=()):
+    """A kernel decomposition folder (periodic boundary: kernels only)."""
+    from ..params import default_lam
+
+    doc = {"input": source, "n_units": dec.n_units, "parameters": parameters,
+           "lam": dec.lam, "lam_default": default_lam((dec.n_units,)),
+           "rank": dec.rank, "objective": dec.objective, "n_iter": dec.n_iter,
+           "converged": dec.converged}
+    return write_bundle(out, KERNEL_DECOMPOSITION,
+                        {"low_rank_kernel.npy": np.asarray(dec.low_rank),
+                         "sparse_kernel.npy": np.asarray(dec.sparse),
+                         "ranks.npy": np.asarray(dec.ranks)},
+                        doc, force=force, inputs=inputs)
+
+
+def circuit_doc(circuit, *, source, decomposition, stability, pools,
+                parameters, unit_ids=None):
+    """circuit.json of a circuit bundle, less the format fields and
+    checksums that :func:`write_bundle` adds."""
+    report = circuit.report
+    metrics = {k: v for k, v in report.as_dict().items()
+               if k not in ("history", "baselines")}
+    metrics["silent_interneurons"] = sum(
+        1 for p in pools if p["n_inputs"] == 0 or p["n_targets"] == 0)
+    params = {k: json_number(v) if isinstance(v, float) else v
+              for k, v in circuit.params.items()}
+    return {"input": source,
+            "parameters": {**params, **parameters},
+            "decomposition": decomposition,
+            "counts": {p.kind: p.size for p in circuit.populations},
+            "populations": [{"name": p.name, "kind": p.kind, "size": p.size,
+                             "sign": p.sign} for p in circuit.populations],
+            "metrics": metrics,
+            "baselines": report.as_dict()["baselines"],
+            "stability": {k: json_number(v) for k, v in stability.items()},
+            "interneurons": pools,
+            "unit_ids": unit_ids,
+            "hypothesis": "a model circuit consistent with W, not a measurement"}
+
+
+def write_circuit(out, circuit, doc, *, arrays=None, files=None, force=False,
+                  inputs=()):
+    """A circuit bundle: the blocks, optional ``arrays`` (low_rank, sparse,
+    features, positions: name -> ndarray, stored as NAME.npy), other
+    ``files`` (name -> str | bytes: report.html, the demo's inputs) and
+    circuit.json (``doc``)."""
+    data = circuit_files(circuit)
+    data.update({f"{k}.npy": np.asarray(v) for k, v in (arrays or {}).items()
+                 if v is not None})
+    data.update(files or {})
+    return write_bundle(out, CIRCUIT, data, doc, force=force, inputs=inputs)
+
+
+def tiled_doc(tiled, dec, *, source, expanded_bytes):
+    """tiled.json (and circuit.json of an expanded tiled circuit): counts per
+    site and in all, the error, and the memory the expansion takes."""
+    F, mu, mt = tiled.per_site
+    h, w = tiled.grid
+    per_site = dict(zip((EXCITATORY, UNTUNED, TUNED), tiled.per_site, strict=True))
+    return {"input": {**source, "shape": [F * h * w] * 2},
+            "parameters": {**tiled.params, "lam": dec.lam, "rank": dec.rank},
+            "per_site": per_site,
+            "counts": {kind: n * h * w for kind, n in per_site.items()},
+            "metrics": {"relative_error": tiled.relative_error,
+                        "ee_density": float(np.count_nonzero(tiled.J_EE)
+                                            / tiled.J_EE.size),
+                        "share_rule": f"per site: {mu} untuned, {mt} tuned",
+                        "converged": True},
+            "baselines": [], "interneurons": [],
+            "decomposition": {"lam": dec.lam, "rank": dec.rank,
+                              "converged": dec.converged, "n_iter": dec.n_iter},
+            "stability": {"original_spectral_abscissa": None,
+                          "circuit_spectral_abscissa_equal_taus": None,
+                          "max_stable_tau_ratio": None,
+                          "note": "not computed for tiled circuits"},
+            "memory_estimate_expanded_bytes": expanded_bytes,
+            "hypothesis": "a model circuit consistent with W, not a measurement"}
+
+
+def write_tiled(out, tiled, doc, *, force=False, inputs=()):
+    """A tiled circuit bundle: the five block kernels and tiled.json."""
+    return write_bundle(out, TILED,
+                        {f"{b}_kernel.npy": np.asarray(getattr(tiled, b))
+                         for b in BLOCK_NAMES},
+                        {**doc, "layout": "full-grid kernels (P, Q, H, W), "
+                                          "[post, pre, offset mod grid]"},
+                        force=force, inputs=inputs)

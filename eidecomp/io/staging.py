@@ -505,7 +505,9 @@ def write_file(out, data, *, force=False, inputs=()):
     return out
 
 
-def _file_bytes(value):
+def file_bytes(value):
+    """The bytes of a file: an ndarray as .npy, a dict as JSON (sorted keys),
+    str as UTF-8, anything else as bytes(value)."""
     if isinstance(value, np.ndarray):
         return npy_bytes(value)
     if isinstance(value, dict):
@@ -527,5 +529,5 @@ def write_folder(out, files, *, force=False, replaceable=None, inputs=()):
     with staged_folder(out, force=force, replaceable=replaceable,
                        inputs=inputs) as tmp:
         for name, value in files.items():
-            _write_bytes(tmp / name, _file_bytes(value))
+            _write_bytes(tmp / name, file_bytes(value))
     return Path(out)
