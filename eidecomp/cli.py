@@ -13,7 +13,7 @@ import warnings
 
 from ._version import __version__
 from .errors import ConvergenceWarning, InputError, SolverError, WriteError
-from .params import DEFAULT_EI_RATIO, TAU_E_MS, TAU_I_MS, TOL, resolve_tol
+from .params import DEFAULT_EI_RATIO, MAX_ITER, TAU_E_MS, TAU_I_MS, TOL, resolve_tol
 
 __all__ = ["main"]
 
@@ -128,7 +128,7 @@ def _get_parser():
     dec.add_argument("--solver", choices=SOLVERS, default=SOLVERS[0],
                      type=str.upper, help="cvxpy solver for --method convex")
     dec.add_argument("--max-iter", type=_count, metavar="N",
-                     help="iteration limit (ALM default 5000)")
+                     help=f"iteration limit (ALM default {MAX_ITER})")
     dec.add_argument("--engine", choices=DECOMPOSE_ENGINES,
                      default=DECOMPOSE_ENGINES[0],
                      help="memory (default) or dask: the matrix read in blocks "
@@ -523,9 +523,9 @@ def main(argv=None):
         except OSError:  # the terminal went away (SIGHUP): the status says it
             pass
 
-    parser = _get_parser()
     try:
         with handle_termination():
+            parser = _get_parser()  # imports the jobs: inside the handlers
             args = parser.parse_args(argv)
             if args.command is None:
                 parser.print_help(sys.stderr)

@@ -50,6 +50,8 @@ def check_kernel(K, grid, boundary="periodic", name="kernel"):
     if K.ndim != 4:
         raise InputError(f"{name}: expected a 4-D array K[post_feature, "
                          f"pre_feature, dy, dx], got {K.ndim}-D {K.shape}")
+    if K.shape[0] == 0:
+        raise InputError(f"{name}: the kernel has no features (shape {K.shape})")
     if K.shape[0] != K.shape[1]:
         raise InputError(f"{name}: post and pre feature counts differ "
                          f"({K.shape[0]} and {K.shape[1]})")

@@ -25,6 +25,7 @@ from .io.bundles import (
     TILED,
     check_bundle_output,
 )
+from .io.units import DEFAULT_PERIOD
 from .params import DEFAULT_EI_RATIO, TAU_E_MS, TAU_I_MS, EIRatio
 
 __all__ = [
@@ -69,6 +70,8 @@ _MATRIX_OPTIONS = ("key", "transpose", "mask", "ignore_diagonal", "lam", "tol")
 def _load_matrix(config, *, square, what="weight matrix"):
     """(W, source) from a matrix file or the built-in example."""
     if config.input == EXAMPLE and not Path(EXAMPLE).exists():
+        refuse_inapplicable(config, set(f.name for f in dataclasses.fields(config))
+                            - {"key", "transpose"}, "the built-in example")
         W, _ = datasets.example_lateral()
         return W, {"path": "built-in example (invented data)", "sha256": None,
                    "key": None, "transpose": False}
@@ -268,6 +271,12 @@ def run_decompose(config, *, progress=None):
         return _decompose_dask(config, out, progress)
     refuse_inapplicable(config, set(f.name for f in dataclasses.fields(config))
                         - {"grid", "boundary", "scheduler"}, "a matrix")
+    if config.method != "convex":
+        refuse_inapplicable(config, set(f.name for f in dataclasses.fields(config))
+                            - {"solver"}, f"--method {config.method}")
+    if config.target_rank is not None and config.lam is not None:
+        raise InputError("--lam and --target-rank exclude each other (the rank "
+                         "search chooses lam)")
     return _decompose_dense(config, out, progress)
 
 
@@ -285,7 +294,7 @@ class AssembleConfig(MatrixOptions):
     untuned_share: str = "auto"
     alpha: float | None = None
     units: str | None = None
-    period: float = 180.0
+    period: float = DEFAULT_PERIOD
     position_unit: str = "um"
     magnification: float | None = None
     report: bool = False
@@ -453,19 +462,28 @@ def run_export(bundle, fmt, output, *, force=False, tau_e=TAU_E_MS,
     """
     from .export import get_format, render
     from .io import write_file, write_folder
-    from .io.staging import check_output
+    from .io.staging import check_output, holding
 
     spec = get_format(fmt)
+    given = {"tau_e": tau_e != TAU_E_MS, "tau_i": tau_i != TAU_I_MS,
+             "raw_csv": bool(raw_csv)}
+    for option, set_ in given.items():
+        if set_ and option not in spec.options:
+            raise InputError(f"{_flag(option)} does not apply to the {fmt} "
+                             "format")
     spec.check_available()
     bundles.expect_kind(bundle, CIRCUIT)  # a wrong input is named first
+    keep = holding(spec.markers, f"{fmt} export")
     if not spec.folder:
-        check_output(output, force=force, folder=False, inputs=(bundle,))
+        check_output(output, force=force, folder=False, replaceable=keep,
+                     inputs=(bundle,))
     b = bundles.read_circuit_bundle(bundle)
     data = render(fmt, b.circuit, features=b.features, positions=b.positions,
                   unit_ids=b.unit_ids,  # names: data, never code
                   tau_e=tau_e, tau_i=tau_i, raw_csv=raw_csv)
     if not spec.folder:
-        return write_file(output, data, force=force, inputs=(bundle,))
+        return write_file(output, data, force=force, replaceable=keep,
+                          inputs=(bundle,))
 
     def replaceable(folder):  # an earlier export of this format, nothing else
         if all(p.is_file() and p.name in data for p in Path(folder).iterdir()):
@@ -542,18 +560,21 @@ def run_simulate(bundle, *, engine="internal", drive="random", tau_e=TAU_E_MS,
 
 def run_report(bundle, output, *, force=False):
     """Write the HTML report of a circuit bundle to ``output``."""
-    from .analysis.report import render_report, report_lam_path
+    from .analysis.report import REPORT_TITLE, render_report, report_lam_path
     from .io import write_file
-    from .io.staging import check_output
+    from .io.staging import check_output, holding
 
     bundles.expect_kind(bundle, CIRCUIT)  # a wrong input is named first
-    out = check_output(output, force=force, folder=False, inputs=(bundle,))
+    keep = holding((REPORT_TITLE.encode(),), "report")
+    out = check_output(output, force=force, folder=False, replaceable=keep,
+                       inputs=(bundle,))
     b = bundles.read_circuit_bundle(bundle)
     W = b.original_weights()
     page = render_report(b.circuit, b.doc, W, low_rank=b.low_rank,
                          features=b.features, positions=b.positions,
                          path_points=report_lam_path(W))
-    return write_file(out, page.encode("utf-8"), force=force, inputs=(bundle,))
+    return write_file(out, page.encode("utf-8"), force=force, replaceable=keep,
+                      inputs=(bundle,))
 
 
 def run_demo(output, *, force=False, progress=None):

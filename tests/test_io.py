@@ -219,3 +219,19 @@ def test_read_npy_gives_float64(tmp_path):
         np.save(tmp_path / "a.npy", a)
         got = read_npy(tmp_path / "a.npy", ndim=2)
         assert got.dtype == np.float64 and np.array_equal(got, a.astype(float))
+
+
+def test_unit_ids_are_kept_exactly_as_written(tmp_path):
+    """Ids are data: leading and trailing white space, a tab or a CR inside
+    a quoted cell come back as Python's csv writer wrote them (reference:
+    the csv module's round trip), never stripped."""
+    import csv
+
+    from eidecomp.io import read_units
+
+    ids = ["\tx", "t ", " l", "\rcr", "\xa0n", "plain"]
+    with open(tmp_path / "u.csv", "w", newline="", encoding="utf-8") as fh:
+        w = csv.writer(fh)
+        w.writerow(["id", "feature"])
+        w.writerows([name, 10 * k] for k, name in enumerate(ids))
+    assert list(read_units(tmp_path / "u.csv", len(ids))["id"]) == ids

@@ -441,7 +441,7 @@ ROWS = [
      "{d}/bad.csv: row 2: a quoted cell runs over a line break (a table of "
      "numbers holds none)"),
     ("csv-nul-cell", {"bad.csv": b"0,1\n1,\x00\n"}, DEC,
-     "{d}/bad.csv: non-numeric cell '\\x00' at row 2, column 2"),
+     "{d}/bad.csv: line 2 holds a NUL character (a binary file, or not text?)"),
     # --- unit tables (XML 1.0 Char, section 2.2; csv limits) ---------------
     ("units-bell-in-id",
      {"w.csv": GOOD, "u.csv": b"id,feature\na,0\nb\x07,60\nc,120\n"},
@@ -613,6 +613,108 @@ ROWS = [
      ["decompose", "{d}/w.npy", "--engine", "dask", "-o", "{d}/out",
       "--method", "convex"],
      "--method does not apply to the dask engine (plain PCP with the ALM)"),
+    # --- held-out families of the adversarial pass: options that a job does
+    # not use, --force over what eidecomp did not write, typed manifests
+    ("key-on-npy", {"w.npy": npy(np.eye(3))},
+     ["decompose", "{d}/w.npy", "--key", "W", "-o", "{d}/out"],
+     "{d}/w.npy: a .npy file holds one array; a key (--key) names one in a "
+     ".npz or .mat file"),
+    ("key-on-csv", {"w.csv": GOOD},
+     ["decompose", "{d}/w.csv", "--key", "W", "-o", "{d}/out"],
+     "{d}/w.csv: a .csv file holds one array; a key (--key) names one in a "
+     ".npz or .mat file"),
+    ("key-on-example", {}, ["decompose", "example", "--key", "W", "-o",
+                            "{d}/out"],
+     "--key does not apply to the built-in example"),
+    ("solver-without-convex", {"w.csv": GOOD},
+     ["decompose", "{d}/w.csv", "--solver", "SCS", "-o", "{d}/out"],
+     "--solver does not apply to --method ialm"),
+    ("lam-and-target-rank", {"w.csv": GOOD},
+     ["decompose", "{d}/w.csv", "--lam", "0.1", "--target-rank", "1", "-o",
+      "{d}/out"],
+     "--lam and --target-rank exclude each other (the rank search chooses lam)"),
+    ("tau-on-a-graph-format", {"BUNDLE": "ok"},
+     ["export", "{d}/c", "--format", "graphml", "--tau-e", "20", "-o",
+      "{d}/g.graphml"], "--tau-e does not apply to the graphml format"),
+    ("raw-csv-on-json", {"BUNDLE": "ok"},
+     ["export", "{d}/c", "--format", "json", "--raw-csv", "-o", "{d}/g.json"],
+     "--raw-csv does not apply to the json format"),
+    ("period-without-units", {"w.csv": GOOD}, RUN + ["--period", "360"],
+     "--period applies to a unit table (--units)"),
+    ("position-unit-without-units", {"w.csv": GOOD},
+     RUN + ["--position-unit", "deg", "--magnification", "300"],
+     "--position-unit applies to a unit table (--units)"),
+    ("magnification-in-um", {"w.csv": GOOD, "u.csv": "feature,x,y\n0,1,1\n"
+                             "60,2,2\n120,3,3\n"},
+     UNITS + ["--magnification", "300"],
+     "--magnification applies to positions in degrees (--position-unit deg)"),
+    ("degrees-without-positions", {"w.csv": GOOD, "u.csv": FEATURES},
+     UNITS + ["--position-unit", "deg", "--magnification", "300"],
+     "{d}/u.csv: --position-unit deg, but the table has no x and y columns"),
+    ("force-over-a-user-file", {"BUNDLE": "ok", "notes.txt": "mine\n"},
+     ["export", "{d}/c", "--format", "json", "-o", "{d}/notes.txt", "--force"],
+     "{d}/notes.txt: not an eidecomp json export; not replaced"),
+    ("force-over-another-export", {"BUNDLE": "ok",
+                                   "g.graphml": '<graphml><key attr.name="population"'
+                                                '/></graphml>'},
+     ["export", "{d}/c", "--format", "json", "-o", "{d}/g.graphml", "--force"],
+     "{d}/g.graphml: not an eidecomp json export; not replaced"),
+    ("force-over-a-user-page", {"BUNDLE": "ok", "m.html": "<html>mine</html>"},
+     ["report", "{d}/c", "-o", "{d}/m.html", "--force"],
+     "{d}/m.html: not an eidecomp report; not replaced"),
+    ("force-over-a-fake-manifest", {"w.csv": GOOD,
+                                    "out/circuit.json": '{"format": '
+                                                        '"eidecomp-circuit"}',
+                                    "out/thesis.tex": "mine"},
+     RUN + ["--force"],
+     "{d}/out: holds 'thesis.tex', which the circuit bundle does not list (a "
+     "file of yours?); not replaced"),
+    ("force-over-a-bundle-with-notes", {"BUNDLE": "ok", "w.csv": GOOD,
+                                        "c/notes.txt": "mine"},
+     ["run", "{d}/w.csv", "-o", "{d}/c", "--ei-ratio", "1", "--force"],
+     "{d}/c: holds 'notes.txt', which the circuit bundle does not list (a file "
+     "of yours?); not replaced"),
+    ("kernel-no-features", {"k.npy": npy(np.zeros((0, 0, 3, 3)))},
+     ["decompose", "--kernel", "{d}/k.npy", "--grid", "8x8", "-o", "{d}/out"],
+     "{d}/k.npy: the kernel has no features (shape (0, 0, 3, 3))"),
+    ("ratio-overflows", {"w.csv": GOOD}, RUN[:-1] + ["1:1e308"],
+     "E:I ratio 1:1e+308 asks for more interneurons than the 3 excitatory "
+     "units"),
+    ("bundle-text-abscissa", {"BUNDLE": 'set:stability.max_stable_tau_ratio="x"'},
+     ["report", "{d}/c", "-o", "{d}/r.html"],
+     "{d}/c/circuit.json: stability: key 'max_stable_tau_ratio' must be a "
+     "number or null (got a string)"),
+    ("bundle-list-abscissa", {"BUNDLE": "set:stability.original_spectral_abscissa=[1]"},
+     ["report", "{d}/c", "-o", "{d}/r.html"],
+     "{d}/c/circuit.json: stability: key 'original_spectral_abscissa' must be a "
+     "number or null (got an array)"),
+    ("bundle-text-period", {"BUNDLE": 'set:parameters.period="x"'},
+     ["report", "{d}/c", "-o", "{d}/r.html"],
+     "{d}/c/circuit.json: parameters: key 'period' must be a number or null "
+     "(got a string)"),
+    ("bundle-zero-period", {"BUNDLE": "set:parameters.period=0"},
+     ["report", "{d}/c", "-o", "{d}/r.html"],
+     "{d}/c/circuit.json: parameters: 'period' must be a positive number of "
+     "degrees, got 0"),
+    ("bundle-text-rank", {"BUNDLE": 'set:decomposition.rank="x"'},
+     ["report", "{d}/c", "-o", "{d}/r.html"],
+     "{d}/c/circuit.json: decomposition: key 'rank' must be a number or null "
+     "(got a string)"),
+    ("bundle-counts-contradict", {"BUNDLE": "set:counts.excitatory=7"},
+     ["export", "{d}/c", "--format", "csv", "-o", "{d}/out"],
+     "{d}/c/circuit.json: counts: 'excitatory' is 7 but the blocks hold 20"),
+    ("bundle-nan-features", {"BUNDLE": "plant:features.npy:nan"},
+     ["report", "{d}/c", "-o", "{d}/r.html"],
+     "{d}/c/features.npy: holds NaN or Inf"),
+    ("first-row-typo", {"bad.csv": b"0,0.5,O.3\n0.1,0,0.2\n0.3,0.1,0\n"}, DEC,
+     "{d}/bad.csv: non-numeric cell 'O.3' at row 1, column 3"),
+    ("first-row-hex", {"bad.csv": b"0,0x10\n1,0\n"}, DEC,
+     "{d}/bad.csv: non-numeric cell '0x10' at row 1, column 2"),
+    ("nul-in-text", {"bad.csv": b"0\x00,1\n1,0\n"}, DEC,
+     "{d}/bad.csv: line 1 holds a NUL character (a binary file, or not text?)"),
+    ("units-extra-cell", {"w.csv": GOOD, "u.csv": "id,feature\na,0,zz\nb,60\n"
+                                                   "c,120\n"}, UNITS,
+     "{d}/u.csv: row 2 has 3 cells, the header 2"),
 ]
 
 
@@ -644,6 +746,7 @@ def _drop(doc, dotted):
 PLANTS = {  # bytes planted into a bundle, their checksum put into circuit.json
     "garbage": lambda: b"not an array at all",
     "short": lambda: npy(np.zeros(3)),
+    "nan": lambda: npy(np.full(20, np.nan)),
     "wide": lambda: npy(np.zeros((20, 3))),
 }
 
@@ -656,9 +759,15 @@ def _edit_bundle(c, mode):
     kind, _, arg = mode.partition(":")
     if kind == "drop":
         _edit_manifest(doc, lambda m: _drop(m, arg))
-    elif kind == "set":
-        key, value = arg.split("=")
-        _edit_manifest(doc, lambda m: m.__setitem__(key, json.loads(value)))
+    elif kind == "set":  # set:section.key=JSON
+        key, value = arg.split("=", 1)
+        path, value = key.split("."), json.loads(value)
+
+        def put(m):
+            for k in path[:-1]:
+                m = m[k]
+            m[path[-1]] = value
+        _edit_manifest(doc, put)
     elif kind == "sum":
         _edit_manifest(doc, lambda m: m["sha256"].__setitem__(arg, "0" * 64))
     elif kind == "plant" and arg.endswith(":huge"):

@@ -22,8 +22,9 @@ from . import plotting
 from .rules import circuit_rules
 from .tuning import interneuron_pools
 
-__all__ = ["PATH_MAX_UNITS", "render_report", "report_lam_path"]
+__all__ = ["PATH_MAX_UNITS", "REPORT_TITLE", "render_report", "report_lam_path"]
 
+REPORT_TITLE = "eidecomp circuit report"  # also how --force tells a report
 PATH_MAX_UNITS = 600  # the lam path re-solves robust PCA 8 times
 
 
@@ -171,7 +172,7 @@ def _sections(meta, rules, med, have_units):
     par = meta.get("parameters", {})
     parts = [
         "<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>",
-        "<title>eidecomp circuit report</title>", f"<style>{_CSS}</style>",
+        f"<title>{REPORT_TITLE}</title>", f"<style>{_CSS}</style>",
         "</head><body>", "<h1>Circuit report</h1>",
         f"<p class='caution'>{html.escape(CAUTION)}</p>",
         "<h2>Inputs and parameters</h2>",

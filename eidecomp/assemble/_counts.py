@@ -28,7 +28,11 @@ def inhibitory_count(n_e, ratio, *, where="", units="excitatory units"):
     100
     """
     r = EIRatio.parse(ratio)
-    n_i = int(round(n_e / r.value))
+    quotient = n_e / r.value
+    if not math.isfinite(quotient):  # a ratio like 1:1e308
+        raise InputError(f"E:I ratio {r.text} asks for more interneurons"
+                         f"{where} than the {n_e} {units}")
+    n_i = int(round(quotient))
     if n_i < 1:
         raise InputError(f"E:I ratio {r.text} leaves no interneuron{where} "
                          f"for {n_e} {units} (round({n_e}/{r.value:g}) = 0)")

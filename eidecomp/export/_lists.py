@@ -70,10 +70,11 @@ def write_into(folder, files):
     through a temporary name renamed into place; other files are kept."""
     from pathlib import Path
 
-    from ..io import write_file
+    from ..io.staging import any_file, write_file
 
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
     for name, data in files.items():
-        write_file(folder / name, data, force=True)
+        write_file(folder / name, data, force=True,
+                      replaceable=any_file)
     return folder

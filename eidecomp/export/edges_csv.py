@@ -57,6 +57,12 @@ def restore_cell(text):
     return text[1:] if text.startswith("'") else text
 
 
+COLUMNS = ("pre", "post", "pre_population", "post_population", "synapse",
+           "weight")
+HEADER_LINE = ",".join(f'"{c}"' for c in COLUMNS)
+"""How every CSV edge list begins (all text cells are quoted)."""
+
+
 def edge_csv_text(G, *, raw=False):
     """The edge list of a :func:`eidecomp.graph.neuron_graph` as CSV text;
     ``raw`` writes text cells without the CSV-injection quote."""
@@ -64,8 +70,7 @@ def edge_csv_text(G, *, raw=False):
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n", quoting=csv.QUOTE_NONNUMERIC)
     named = any("unit_id" in a for _, a in G.nodes(data=True))
-    w.writerow(["pre", "post", "pre_population", "post_population", "synapse",
-                "weight"] + (["pre_unit_id", "post_unit_id"] if named else []))
+    w.writerow(list(COLUMNS) + (["pre_unit_id", "post_unit_id"] if named else []))
     for u, v, attrs in G.edges(data=True):
         text = [u, v, G.nodes[u]["population"], G.nodes[v]["population"],
                 attrs["synapse"]]
@@ -86,7 +91,8 @@ def render_csv(circuit, *, features=None, positions=None, unit_ids=None,
 
 
 def write_edge_csv(G, path, *, raw=False):
-    from ..io import write_file
+    from ..io.staging import any_file, write_file
 
     return write_file(path, edge_csv_text(G, raw=raw).encode("utf-8"),
-                      force=True)
+                      force=True,
+                      replaceable=any_file)

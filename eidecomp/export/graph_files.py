@@ -87,15 +87,17 @@ def render_json(circuit, *, features=None, positions=None, unit_ids=None,
 
 
 def write_graphml(G, path):
-    from ..io import write_file
+    from ..io.staging import any_file, write_file
 
-    return write_file(path, to_graphml_bytes(G), force=True)
+    return write_file(path, to_graphml_bytes(G), force=True,
+                      replaceable=any_file)
 
 
 def write_json(G, path):
-    from ..io import write_file
+    from ..io.staging import any_file, write_file
 
-    return write_file(path, to_json_bytes(G), force=True)
+    return write_file(path, to_json_bytes(G), force=True,
+                      replaceable=any_file)
 
 
 def read_graphml(path):

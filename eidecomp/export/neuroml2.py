@@ -139,9 +139,10 @@ def render_neuroml(circuit, *, features=None, positions=None, unit_ids=None,
 
 def write_neuroml(circuit, path, **kwargs):
     """Write ``path`` (.net.nml), validated against the NeuroML2 schema."""
-    from ..io import write_file
+    from ..io.staging import any_file, write_file
 
-    return write_file(path, render_neuroml(circuit, **kwargs), force=True)
+    return write_file(path, render_neuroml(circuit, **kwargs), force=True,
+                      replaceable=any_file)
 
 
 def _index(ref):

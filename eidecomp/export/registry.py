@@ -67,6 +67,12 @@ class ExportFormat:
         The optional module the renderer imports, or None.
     suffix : str
         The usual file name ending of a one-file format ("" for a folder).
+    markers : tuple of bytes
+        One of them stands in the first 4 KB of every file this format
+        writes: how ``--force`` tells an earlier export from a user's file.
+    options : tuple of str
+        The render options this format uses beyond the circuit, its unit ids,
+        features and positions; the command refuses the others.
     """
 
     name: str
@@ -75,6 +81,8 @@ class ExportFormat:
     help: str
     requires: str | None = None
     suffix: str = ""
+    markers: tuple = ()
+    options: tuple = ()
 
     def check_available(self):
         """InputError when the module this format needs is not installed."""
@@ -82,22 +90,28 @@ class ExportFormat:
             require_module(self.requires)
 
 
+_TAUS = ("tau_e", "tau_i")
 REGISTRY = (
     ExportFormat("graphml", False, graph_files.render_graphml,
-                 "neuron-level graph, GraphML (networkx)", suffix=".graphml"),
+                 "neuron-level graph, GraphML (networkx)", suffix=".graphml",
+                 markers=(b'attr.name="synapse"', b'attr.name="population"')),
     ExportFormat("json", False, graph_files.render_json,
-                 "neuron-level graph, node-link JSON (networkx)", suffix=".json"),
+                 "neuron-level graph, node-link JSON (networkx)", suffix=".json",
+                 markers=(b'"synapse":', b'"population":')),
     ExportFormat("csv", False, edges_csv.render_csv,
-                 "edge list, one row per synapse", suffix=".csv"),
+                 "edge list, one row per synapse", suffix=".csv",
+                 markers=(edges_csv.HEADER_LINE.encode(),), options=("raw_csv",)),
     ExportFormat("neuroml", False, neuroml2.render_neuroml,
                  "NeuroML2 network (libNeuroML), schema-validated",
-                 requires="neuroml", suffix=".net.nml"),
+                 requires="neuroml", suffix=".net.nml",
+                 markers=(b'id="eidecomp_circuit"',), options=_TAUS),
     ExportFormat("pynn", True, pynn_script.render_pynn,
-                 "folder: PyNN script (spiking) and its data"),
+                 "folder: PyNN script (spiking) and its data", options=_TAUS),
     ExportFormat("nest", True, rate_scripts.render_nest,
-                 "folder: NEST script (rate model) and its data"),
+                 "folder: NEST script (rate model) and its data", options=_TAUS),
     ExportFormat("brian2", True, rate_scripts.render_brian2,
-                 "folder: Brian2 script (rate model) and its data"),
+                 "folder: Brian2 script (rate model) and its data",
+                 options=_TAUS),
 )
 """Every export format, in the order they are listed."""
 

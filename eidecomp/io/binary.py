@@ -355,6 +355,9 @@ def load_array(path, key, *, what="array"):
     """The array stored in ``path`` (any of MATRIX_SUFFIXES), checked at the
     boundary; ``key`` names an array of an .npz or a variable of a .mat."""
     suffix = path.suffix.lower()
+    if key is not None and suffix in (".npy", ".csv", ".tsv", ".txt"):
+        raise InputError(f"{path}: a {suffix} file holds one array; a key "
+                         "(--key) names one in a .npz or .mat file")
     if suffix == ".npy":
         npy_header(path, what=what)
         return _np_load_npy(path, what)

@@ -173,12 +173,31 @@ def replaceable_by(*kinds):
         if path.is_dir() and not any(path.iterdir()):
             return None
         found = identify(path)
-        if found in kinds:
-            return None
         wanted = " or ".join(k.what for k in kinds)
-        return (f"holds an eidecomp {found.what}, not a {wanted}" if found
-                else f"is not an eidecomp {wanted}")
+        if found not in kinds:
+            return (f"holds an eidecomp {found.what}, not a {wanted}" if found
+                    else f"is not an eidecomp {wanted}")
+        foreign = _foreign_entries(path, found)
+        if foreign:
+            return (f"holds {foreign[0]!r}, which the {found.what} does not "
+                    "list (a file of yours?)")
+        return None
     return rule
+
+
+def _foreign_entries(folder, kind):
+    """Entries of ``folder`` that are neither its manifest nor a file its
+    manifest lists: what replacing the folder would destroy of someone
+    else's."""
+    try:
+        sums = load_json(folder / kind.manifest, what=kind.manifest).get("sha256")
+    except InputError:
+        sums = None
+    listed = set(sums) if isinstance(sums, dict) else set()
+    return sorted(e.name for e in folder.iterdir()
+                  if e.name != kind.manifest and not (e.name in listed
+                                                      and e.is_file()
+                                                      and not e.is_symlink()))
 
 
 def check_bundle_output(out, kind, *, force=False, inputs=()):
@@ -325,10 +344,13 @@ def _array(folder, doc, name, ndim=None):
     """A listed (so checked) array of a bundle, or None when not listed."""
     if name not in doc["sha256"]:
         return None
-    return read_npy(Path(folder) / name, what=name, ndim=ndim)
+    arr = read_npy(Path(folder) / name, what=name, ndim=ndim)
+    if not np.isfinite(arr).all():
+        raise InputError(f"{Path(folder) / name}: holds NaN or Inf")
+    return arr
 
 
-def _number(doc, key, where, kinds=(int, float)):
+def _number(doc, key, where, kinds=float):
     value = require(doc, key, kinds, where)
     if isinstance(value, bool):
         raise InputError(f"{where}: key {key!r} must be a number (got bool)")
@@ -406,7 +428,36 @@ _CIRCUIT_SCHEMA = {"parameters": dict, "counts": dict, "metrics": dict,
                    "baselines": list, "stability": dict, "interneurons": list,
                    "input": dict, "decomposition": dict}
 _BASELINE_KEYS = {"name": str, "n_inhibitory": int,
-                  "relative_error": (int, float), "ee_density": (int, float)}
+                  "relative_error": float, "ee_density": float}
+
+
+_NUMBER_OR_NULL = (float, type(None))  # float: any JSON number (jsondoc)
+_OPTIONAL_NUMBERS = {  # section -> keys the report formats as numbers
+    "stability": ("original_spectral_abscissa",
+                  "circuit_spectral_abscissa_equal_taus", "max_stable_tau_ratio"),
+    "parameters": ("period", "alpha", "lam", "rank"),
+    "decomposition": ("lam", "rank", "n_iter"),
+}
+
+
+def _check_optional_numbers(doc, where):
+    """The numbers a report shows: absent, null or a number, nothing else."""
+    for section, keys in _OPTIONAL_NUMBERS.items():
+        for key in keys:
+            if key in doc[section]:
+                require(doc[section], key, _NUMBER_OR_NULL, f"{where}: {section}")
+    period = doc["parameters"].get("period")
+    if period is not None and not (np.isfinite(period) and period > 0):
+        raise InputError(f"{where}: parameters: 'period' must be a positive "
+                         f"number of degrees, got {period!r}")
+
+
+def _check_counts(doc, where, circuit):
+    """counts as the blocks have them: a hand edit may not contradict them."""
+    for kind, size in circuit.sizes.items():
+        if doc["counts"][kind] != size:
+            raise InputError(f"{where}: counts: {kind!r} is "
+                             f"{doc['counts'][kind]} but the blocks hold {size}")
 
 
 def _check_circuit_doc(doc, where, n_e):
@@ -414,8 +465,8 @@ def _check_circuit_doc(doc, where, n_e):
         require(doc, key, kinds, where)
     for key in POPULATION_NAMES:
         require(doc["counts"], key, int, f"{where}: counts")
-    for key, kinds in (("relative_error", (int, float)),
-                       ("ee_density", (int, float)), ("share_rule", str),
+    for key, kinds in (("relative_error", float),
+                       ("ee_density", float), ("share_rule", str),
                        ("converged", bool)):
         require(doc["metrics"], key, kinds, f"{where}: metrics")
     for k, b in enumerate(doc["baselines"]):
@@ -423,6 +474,7 @@ def _check_circuit_doc(doc, where, n_e):
             raise InputError(f"{where}: baselines[{k}] must be an object")
         for key, kinds in _BASELINE_KEYS.items():
             require(b, key, kinds, f"{where}: baselines[{k}]")
+    _check_optional_numbers(doc, where)
     ids = doc.get("unit_ids")
     if ids is not None and not (isinstance(ids, list) and len(ids) == n_e
                                 and all(isinstance(u, str) for u in ids)):
@@ -467,6 +519,7 @@ def read_circuit_bundle(folder):
     except ValueError as exc:
         raise InputError(f"{folder}: {exc}") from None
     _check_circuit_doc(doc, where, circuit.n_excitatory)
+    _check_counts(doc, where, circuit)
     n = circuit.n_excitatory
     extra = {name: _array(folder, doc, f"{name}.npy")
              for name in ("low_rank", "sparse", "features", "positions")}

@@ -33,9 +33,9 @@ import numpy as np
 
 from ..errors import InputError, WriteError
 
-__all__ = ["TERMINATING_SIGNALS", "Terminated", "check_output",
-           "handle_termination", "npy_bytes", "staged_folder", "write_file",
-           "write_folder"]
+__all__ = ["HEAD_BYTES", "TERMINATING_SIGNALS", "Terminated", "any_file",
+           "check_output", "file_bytes", "handle_termination", "holding",
+           "npy_bytes", "staged_folder", "write_file", "write_folder"]
 
 #: Signals that stop a run like SIGINT: ``kill``'s default, and a closed terminal.
 TERMINATING_SIGNALS = (signal.SIGTERM, signal.SIGHUP)
@@ -291,6 +291,10 @@ def _check_existing(out, target, folder, replaceable):
         raise InputError(f"{out}: is a folder, not a file; not replaced")
     if not target.is_file():
         raise InputError(f"{out}: not a regular file; not replaced")
+    reason = ("a file not known to be an eidecomp output" if replaceable is None
+              else replaceable(out))
+    if reason:
+        raise InputError(f"{out}: {reason}; not replaced")
 
 
 def _check(out, force, folder, replaceable, inputs, sweep=True):
@@ -314,6 +318,31 @@ def _check(out, force, folder, replaceable, inputs, sweep=True):
     return target, existed
 
 
+HEAD_BYTES = 4096
+
+
+def holding(markers, what):
+    """The ``replaceable`` rule of a file output: an existing file whose
+    first :data:`HEAD_BYTES` bytes hold one of ``markers`` (how an earlier
+    eidecomp output of that kind begins); any other file is kept."""
+    def rule(path):
+        try:
+            with open(path, "rb") as fh:
+                head = fh.read(HEAD_BYTES)
+        except OSError as exc:
+            return f"cannot be read to tell what it is ({exc.strerror})"
+        if any(m in head for m in markers):
+            return None
+        return f"not an eidecomp {what}"
+    return rule
+
+
+def any_file(path):
+    """The ``replaceable`` rule of the library's own writers, which replace
+    the file their caller names as ``open(path, "w")`` does."""
+    return None
+
+
 def check_output(out, *, force=False, folder=True, replaceable=None, inputs=()):
     """Check that ``out`` may be written, before any work is done.
 
@@ -329,8 +358,8 @@ def check_output(out, *, force=False, folder=True, replaceable=None, inputs=()):
         For a folder: ``replaceable(out)`` returns None when the existing
         folder may be replaced, else the reason it may not (``"not an
         eidecomp circuit bundle"``). Without it an existing folder that is
-        not empty is never replaced. A file output replaces only a regular
-        file.
+        not empty is never replaced. For a file the same: a regular file,
+        and only one that ``replaceable`` accepts (without it, none).
     inputs : iterable of paths
         What the job reads: ``out`` may not be one, hold one, or lie inside
         an input folder.
@@ -465,12 +494,13 @@ def staged_folder(out, *, force=False, replaceable=None, inputs=()):
     _fsync_folder(target.parent)
 
 
-def write_file(out, data, *, force=False, inputs=()):
+def write_file(out, data, *, force=False, replaceable=None, inputs=()):
     """Write bytes to ``out`` through a temporary file renamed into place.
 
     Checked as :func:`check_output` with ``folder=False``: an existing
-    ``out`` is replaced only with ``force`` and only when it is a regular
-    file. The file gets the mode of ``open`` under the umask.
+    ``out`` is replaced only with ``force``, only when it is a regular file
+    and only when ``replaceable(out)`` says it may be (an eidecomp output of
+    the same kind). The file gets the mode of ``open`` under the umask.
 
     >>> import tempfile, pathlib
     >>> out = pathlib.Path(tempfile.mkdtemp()) / "a.txt"
@@ -478,7 +508,7 @@ def write_file(out, data, *, force=False, inputs=()):
     b'done'
     """
     out = Path(out)
-    target, existed = _check(out, force, False, None, inputs)
+    target, existed = _check(out, force, False, replaceable, inputs)
     tmp = None
     try:
         with _signals_held():
@@ -487,7 +517,8 @@ def write_file(out, data, *, force=False, inputs=()):
             os.close(fd)
         os.chmod(tmp, _file_mode())
         _write_bytes(tmp, data)
-        _, existed = _check(out, force, False, None, inputs, sweep=False)
+        _, existed = _check(out, force, False, replaceable, inputs,
+                            sweep=False)
         with _signals_held():
             os.replace(tmp, target)
             tmp = None

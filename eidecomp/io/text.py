@@ -136,7 +136,7 @@ def _split(path, lines, delimiter):
 
 def _nonblank_lines(path):
     """The file's non-blank lines as (line number, text); owns decoding, the
-    empty-file check and the refusal of ';' separators."""
+    empty-file check and the refusal of NUL characters and ';' separators."""
     try:
         text = read_input_bytes(path).decode("utf-8-sig")
     except UnicodeDecodeError as exc:
@@ -145,6 +145,9 @@ def _nonblank_lines(path):
     if not lines:
         raise InputError(f"{path}: file is empty")
     for k, ln in lines:
+        if "\x00" in ln:
+            raise InputError(f"{path}: line {k} holds a NUL character (a binary "
+                             "file, or not text?)")
         if ";" in ln:
             raise InputError(f"{path}: line {k} separates cells with ';' (a "
                              "decimal-comma export?); write '.' decimals "
@@ -179,10 +182,14 @@ def _check_cell_lengths(path, rows, numbers):
 
 
 def _take_header(path, rows, numbers):
-    """(header or None, data rows, their lines); owns header detection: any
-    non-numeric cell in the first row, but a decimal comma there is an error."""
+    """(header or None, data rows, their lines); owns header detection: a
+    first row that starts with a text or empty cell and holds a non-numeric
+    one, but a decimal comma there is an error."""
     header = None
-    if any(_parse_float(c) is None for c in rows[0]):
+    # a header row starts with a text or empty cell; a first row that starts
+    # with a number is data, so a typo in it is named, never taken as a header
+    if any(_parse_float(c) is None for c in rows[0]) and \
+            _parse_float(rows[0][0]) is None:
         for j, c in enumerate(rows[0]):
             if _DECIMAL_COMMA.match(c):
                 raise _cell_error(path, c, numbers[0], j + 1)

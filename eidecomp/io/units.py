@@ -20,7 +20,8 @@ from ..errors import InputError
 from ..names import NOT_XML_CHAR
 from .text import input_file, read_input_bytes, show_cell
 
-__all__ = ["MAX_FIELD", "POSITION_UNITS", "UnitTable", "read_unit_table", "read_units"]
+__all__ = ["DEFAULT_PERIOD", "MAX_FIELD", "POSITION_UNITS", "UnitTable",
+           "read_unit_table", "read_units"]
 
 MAX_FIELD = 4096
 """The longest cell of a unit table, in characters (a unit id, a number):
@@ -86,6 +87,15 @@ def _check_header(path, header, n_rows, n_units):
                          f"{n_units} units")
 
 
+def _check_widths(path, header, body):
+    """Refuse a data row with more cells than the header (a cell that would
+    belong to no column); a short row is refused where its cell is read."""
+    for i, row in enumerate(body):
+        if len(row) > len(header):
+            raise InputError(f"{path}: row {i + 2} has {len(row)} cells, the "
+                             f"header {len(header)}")
+
+
 def _number_column(path, body, j, name):
     """Column ``j`` (called ``name``) of the data rows as finite float64; a
     missing cell counts as empty, and is not a number."""
@@ -116,10 +126,10 @@ def _check_feature_range(path, feature, period):
 def _unit_ids(path, body, j):
     """Column ``j`` of the data rows as unit ids; owns the refusal of a
     missing id and of a repeated one (naming the row it first appears on)."""
-    ids = [row[j].strip() if j < len(row) else "" for row in body]
+    ids = [row[j] if j < len(row) else "" for row in body]  # exactly as given
     seen = {}
     for i, name in enumerate(ids):
-        if not name:
+        if not name.strip():
             raise InputError(f"{path}: row {i + 2}: missing unit id")
         if name in seen:
             raise InputError(f"{path}: row {i + 2}: duplicate unit id "
@@ -144,6 +154,7 @@ def read_units(path, n_units, *, period=180.0):
     header = [c.strip().lower() for c in rows[0]]
     body = rows[1:]
     _check_header(path, header, len(body), n_units)
+    _check_widths(path, header, body)
     out = {name: _number_column(path, body, header.index(name), name)
            for name in ("feature", "x", "y") if name in header}
     _check_feature_range(path, out["feature"], period)
@@ -164,9 +175,10 @@ class UnitTable:
 
 
 POSITION_UNITS = ("um", "deg")
+DEFAULT_PERIOD = 180.0  # degrees: orientation (360 for direction)
 
 
-def read_unit_table(path, n_units, *, period=180.0, position_unit="um",
+def read_unit_table(path, n_units, *, period=DEFAULT_PERIOD, position_unit="um",
                     magnification=None):
     """:func:`read_units` with the position rule applied: x and y both or
     neither; positions in degrees of visual field become micrometres through
@@ -177,10 +189,21 @@ def read_unit_table(path, n_units, *, period=180.0, position_unit="um",
     if position_unit == "deg" and not (magnification or 0) > 0:
         raise InputError("positions in degrees need --magnification "
                          "(micrometres of cortex per degree of visual field)")
+    if magnification is not None and position_unit != "deg":
+        raise InputError("--magnification applies to positions in degrees "
+                         "(--position-unit deg)")
     if path is None:
+        used = [flag for flag, set_ in (("--period", period != DEFAULT_PERIOD),
+                                        ("--position-unit", position_unit != "um"))
+                if set_]
+        if used:
+            raise InputError(f"{used[0]} applies to a unit table (--units)")
         return UnitTable()
     table = read_units(path, n_units, period=period)
     positions = None
+    if position_unit == "deg" and not ("x" in table or "y" in table):
+        raise InputError(f"{path}: --position-unit deg, but the table has no "
+                         "x and y columns")
     if "x" in table and "y" in table:
         scale = magnification if position_unit == "deg" else 1.0
         positions = np.column_stack([table["x"], table["y"]]) * scale
