@@ -53,10 +53,11 @@ from ..types import (
     Decomposition,
     KernelDecomposition,
 )
+from . import staging
 from .binary import npy_header, read_npy
 from .jsondoc import load_json, require
 from .matrices import file_checksum
-from .staging import _write_bytes, check_output, file_bytes, staged_folder
+from .staging import check_output, file_bytes, staged_folder
 
 __all__ = [
     "CIRCUIT",
@@ -218,7 +219,7 @@ class _Pending:
     def add(self, name, value):
         """Write one file (staging.file_bytes: ndarray as .npy, str as UTF-8)."""
         data = file_bytes(value)
-        _write_bytes(self.folder / name, data)  # the one flushed write
+        staging._write_bytes(self.folder / name, data)  # the one flushed write
         self.sums[name] = hashlib.sha256(data).hexdigest()
 
     def placed(self, name):
@@ -234,7 +235,7 @@ class _Pending:
                     "eidecomp_version": __version__,
                     "convention": kind.convention,
                     "sha256": dict(sorted(self.sums.items()))}
-        _write_bytes(self.folder / kind.manifest, file_bytes(manifest))
+        staging._write_bytes(self.folder / kind.manifest, file_bytes(manifest))
         return manifest
 
 
