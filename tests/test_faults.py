@@ -42,7 +42,28 @@ def _listing(folder):
                   for p in folder.rglob("*"))
 
 
+def _default_signals():
+    """In a child before exec: SIGINT, SIGTERM, SIGHUP at their defaults,
+    whatever the test runner inherited (POSIX: an ignored signal stays
+    ignored across exec)."""
+    for sig in (signal.SIGINT, signal.SIGTERM, signal.SIGHUP):
+        signal.signal(sig, signal.SIG_DFL)
+
+
+@pytest.fixture(autouse=True)
+def _terminal_signals():
+    """Each test runs with SIGTERM and SIGHUP at their default action, as in
+    a terminal session, whatever the runner inherited (a CI job started
+    under nohup ignores SIGHUP); the runner's own are put back after."""
+    inherited = {sig: signal.signal(sig, signal.SIG_DFL)
+                 for sig in (signal.SIGTERM, signal.SIGHUP)}
+    yield
+    for sig, handler in inherited.items():
+        signal.signal(sig, handler)
+
+
 def _start(args, **kw):
+    kw.setdefault("preexec_fn", _default_signals)
     return subprocess.Popen([sys.executable, "-m", "eidecomp.cli", *args],
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE,
                             text=True, **kw)
@@ -316,6 +337,8 @@ def test_termination_signal_leaves_no_output(tmp_path, big, small_bundle, sig,
     if existing:
         shutil.copytree(small_bundle, out)
     before = _listing(tmp_path)
+    # the default disposition a terminal session gives (a runner started
+    # under nohup passes SIGHUP on ignored, which the nohup test covers)
     proc = _start(["run", str(big), "-o", str(out), "--force", "--report"])
     time.sleep(3.0)  # python started, numpy imported, the solve under way
     assert proc.poll() is None, "the run ended before the signal"
@@ -373,7 +396,17 @@ def test_handle_termination_restores_the_handlers():
     """Python's signal module: getsignal gives back what was installed."""
     from eidecomp.io.staging import Terminated, handle_termination
 
-    before = {s: signal.getsignal(s) for s in (signal.SIGTERM, signal.SIGHUP)}
+    inherited = {s: signal.signal(s, signal.SIG_DFL)  # as a terminal gives
+                 for s in (signal.SIGTERM, signal.SIGHUP)}
+    before = {s: signal.getsignal(s) for s in inherited}
+    try:
+        _check_restored(before, Terminated, handle_termination)
+    finally:
+        for s, h in inherited.items():
+            signal.signal(s, h)
+
+
+def _check_restored(before, Terminated, handle_termination):
     with handle_termination():
         assert signal.getsignal(signal.SIGTERM) is not before[signal.SIGTERM]
         with pytest.raises(Terminated) as info:
