@@ -178,12 +178,10 @@ POSITION_UNITS = ("um", "deg")
 DEFAULT_PERIOD = 180.0  # degrees: orientation (360 for direction)
 
 
-def read_unit_table(path, n_units, *, period=DEFAULT_PERIOD, position_unit="um",
-                    magnification=None):
-    """:func:`read_units` with the position rule applied: x and y both or
-    neither; positions in degrees of visual field become micrometres through
-    the cortical magnification. ``path`` None gives an empty UnitTable (the
-    options are still checked)."""
+def _check_position_options(period, position_unit, magnification, has_table):
+    """The unit-table options on their own: a known position unit, a
+    magnification exactly when positions are in degrees, and none of them
+    without a table."""
     if position_unit not in POSITION_UNITS:
         raise InputError(f"position unit {position_unit!r}: use um or deg")
     if position_unit == "deg" and not (magnification or 0) > 0:
@@ -192,22 +190,39 @@ def read_unit_table(path, n_units, *, period=DEFAULT_PERIOD, position_unit="um",
     if magnification is not None and position_unit != "deg":
         raise InputError("--magnification applies to positions in degrees "
                          "(--position-unit deg)")
-    if path is None:
-        used = [flag for flag, set_ in (("--period", period != DEFAULT_PERIOD),
-                                        ("--position-unit", position_unit != "um"))
-                if set_]
-        if used:
-            raise InputError(f"{used[0]} applies to a unit table (--units)")
-        return UnitTable()
-    table = read_units(path, n_units, period=period)
-    positions = None
-    if position_unit == "deg" and not ("x" in table or "y" in table):
+    if not has_table:
+        for flag, set_ in (("--period", period != DEFAULT_PERIOD),
+                           ("--position-unit", position_unit != "um")):
+            if set_:
+                raise InputError(f"{flag} applies to a unit table (--units)")
+
+
+def _positions(path, table, position_unit, magnification):
+    """Positions in micrometres of cortex (N x 2), or None: x and y both or
+    neither, degrees of visual field times the cortical magnification."""
+    has_x, has_y = "x" in table, "y" in table
+    if position_unit == "deg" and not (has_x or has_y):
         raise InputError(f"{path}: --position-unit deg, but the table has no "
                          "x and y columns")
-    if "x" in table and "y" in table:
-        scale = magnification if position_unit == "deg" else 1.0
-        positions = np.column_stack([table["x"], table["y"]]) * scale
-    elif "x" in table or "y" in table:
+    if has_x != has_y:
         raise InputError(f"{path}: positions need both an x and a y column")
+    if not has_x:
+        return None
+    scale = magnification if position_unit == "deg" else 1.0
+    return np.column_stack([table["x"], table["y"]]) * scale
+
+
+def read_unit_table(path, n_units, *, period=DEFAULT_PERIOD, position_unit="um",
+                    magnification=None):
+    """:func:`read_units` with the position rule applied: x and y both or
+    neither; positions in degrees of visual field become micrometres through
+    the cortical magnification. ``path`` None gives an empty UnitTable (the
+    options are still checked)."""
+    _check_position_options(period, position_unit, magnification,
+                            path is not None)
+    if path is None:
+        return UnitTable()
+    table = read_units(path, n_units, period=period)
+    positions = _positions(path, table, position_unit, magnification)
     ids = [str(u) for u in table["id"]] if "id" in table else None
     return UnitTable(str(path), table.get("feature"), positions, ids)
