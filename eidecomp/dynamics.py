@@ -244,7 +244,8 @@ def compare_with_original(circuit, W, h, *, tau_e, tau_i, run=None):
                          f"{a_orig:.3g} per ms); its fixed point is never "
                          "reached")
     if not a_circ < 0:
-        limit = max_stable_tau_ratio(circuit, lo=1e-2, hi=1e2, n_grid=17)
+        lo, hi, n_grid = STABILITY_SCAN
+        limit = max_stable_tau_ratio(circuit, lo=lo, hi=hi, n_grid=n_grid)
         raise InputError(f"the circuit is unstable at tau_I/tau_E = "
                          f"{tau_i / tau_e:g} (stable up to {limit:.3g}); "
                          "choose a smaller --tau-i")

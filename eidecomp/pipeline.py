@@ -15,6 +15,7 @@ from pathlib import Path
 import numpy as np
 
 from . import datasets, dynamics
+from .decompose import METHODS, SOLVERS
 from .errors import InputError
 from .io import bundles, file_checksum, read_mask, read_matrix, read_unit_table
 from .io.bundles import (
@@ -121,8 +122,8 @@ class DecomposeConfig(MatrixOptions):
     """
 
     target_rank: int | None = None
-    method: str = "ialm"
-    solver: str = "CLARABEL"
+    method: str = METHODS[0]
+    solver: str = SOLVERS[0]
     max_iter: int | None = None
     boundary: str = "periodic"
     dtype: str = "float64"

@@ -396,17 +396,8 @@ def test_handle_termination_restores_the_handlers():
     """Python's signal module: getsignal gives back what was installed."""
     from eidecomp.io.staging import Terminated, handle_termination
 
-    inherited = {s: signal.signal(s, signal.SIG_DFL)  # as a terminal gives
-                 for s in (signal.SIGTERM, signal.SIGHUP)}
-    before = {s: signal.getsignal(s) for s in inherited}
-    try:
-        _check_restored(before, Terminated, handle_termination)
-    finally:
-        for s, h in inherited.items():
-            signal.signal(s, h)
-
-
-def _check_restored(before, Terminated, handle_termination):
+    # the autouse fixture gives SIGTERM and SIGHUP their default action
+    before = {s: signal.getsignal(s) for s in (signal.SIGTERM, signal.SIGHUP)}
     with handle_termination():
         assert signal.getsignal(signal.SIGTERM) is not before[signal.SIGTERM]
         with pytest.raises(Terminated) as info:
