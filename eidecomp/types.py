@@ -80,7 +80,9 @@ class OptimalityReport:
         The solver's dual residual (ALM: mu ||S_k - S_{k-1}||_F / ||Y||_F);
         None for solvers that do not report one.
     multiplier_spectral_norm : float or None
-        ||Y||_2; at the optimum at most 1.
+        An upper bound on ||Y||_2 within 1e-6 of it (exact singular values
+        for small Y, Lanczos with a residual bound above;
+        ``decompose._norms``); at the optimum at most 1.
     multiplier_max_norm_over_lam : float or None
         ||Y||_max / lam; at the optimum at most 1.
     n_iter : int
@@ -116,8 +118,9 @@ class Decomposition:
     sparse : ndarray of shape (n_post, n_pre)
         S; zero on unobserved entries.
     rank : int
-        Rank of L (singular values kept by the last thresholding, or, for
-        convex solvers, those above ``rank_rtol`` times the largest).
+        Numerical rank of L, one rule for every method and engine: the
+        singular values above ``params.RANK_RTOL`` times the largest; L is
+        truncated to them (docs/robust_pca.md).
     lam : float
         Weight of ||S||_1 in the objective.
     objective : float

@@ -18,12 +18,12 @@ from ..params import MAX_ITER, SolverSettings, check_lam, default_lam, resolve_d
 from ..types import Decomposition, OptimalityReport, PathPoint, handing_over
 from ._convex import ConvexPCP
 from ._ialm import ialm
-from ._svt import spectral_norm
+from ._norms import spectral_norm_bound
+from ._svt import numerical_rank
 
 __all__ = ["default_lam", "lambda_path", "pcp_objective", "robust_pca"]
 
 METHODS = ("ialm", "convex")
-RANK_RTOL = 1e-6  # convex solutions: singular values below this x the largest
 ZERO_RTOL = 1e-7  # convex solutions: |S_ij| below this x max|W| is solver noise
 
 
@@ -114,7 +114,7 @@ def _report(W, L, S, Y, lam, observed, *, nuclear, dual, n_iter, converged,
     primal = norm_R / norm_W if norm_W else 0.0
     spec = maxn = None
     if Y is not None:
-        spec = spectral_norm(Y)
+        spec = spectral_norm_bound(Y).upper  # never under-reports
         maxn = max(float(Y.max()), -float(Y.min())) / lam
     return OptimalityReport(
         objective=float(nuclear + lam * l1), nuclear_norm=float(nuclear),
@@ -168,8 +168,9 @@ def _convex_decomposition(W, lam, observed, *, program, solver, max_iter):
     S = np.where(np.abs(S) <= ZERO_RTOL * np.abs(W).max(), 0.0, S)
     if observed is not None:
         S[~observed] = 0.0
-    sv = np.linalg.svd(L, compute_uv=False)
-    rank = int(np.count_nonzero(sv > RANK_RTOL * sv[0])) if sv[0] > 0 else 0
+    U, sv, Vt = np.linalg.svd(L, full_matrices=False)
+    rank = numerical_rank(sv)
+    L, sv = (U[:, :rank] * sv[:rank]) @ Vt[:rank], sv[:rank]  # the rank rule
     report = _report(W, L, S, Y, lam, observed, nuclear=float(sv.sum()),
                      dual=None, n_iter=info["n_iter"],
                      converged=info["converged"], solver=info["solver"],

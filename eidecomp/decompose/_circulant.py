@@ -24,7 +24,7 @@ residuals), on arrays of F * F * H * W numbers instead of (F H W)^2.
 
 import numpy as np
 
-from ..params import MAX_ITER, TOL
+from ..params import MAX_ITER, RANK_RTOL, TOL
 from ._ialm import _MU_MAX_FACTOR, end_step
 
 __all__ = ["kernel_ialm"]
@@ -63,6 +63,9 @@ def nuclear_norm(G):
 def _svt(B, tau):
     U, s, Vh = np.linalg.svd(B, full_matrices=False)
     s = np.maximum(s - tau, 0.0)
+    # the numerical-rank rule of the tiled matrix, whose singular values
+    # are those of all the blocks together (_svt.numerical_rank)
+    s[s <= RANK_RTOL[s.dtype.name] * s.max(initial=0.0)] = 0.0
     return (U * s[..., None, :]) @ Vh, np.count_nonzero(s > 0, axis=-1)
 
 

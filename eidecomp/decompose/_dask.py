@@ -40,6 +40,7 @@ from ..errors import InputError
 from ..limits import range_error
 from ..params import MAX_ITER, TOL
 from ._ialm import _MU_MAX_FACTOR, end_step, next_rank
+from ._svt import numerical_rank
 
 __all__ = ["BlockStore", "dask_ialm", "read_block"]
 
@@ -288,6 +289,7 @@ def dask_ialm(store, lam, *, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.5,
                 break
             k, V = 3 * kk, None
         keep = sv > inv_mu
+        keep[numerical_rank(sv[keep] - inv_mu, dtype):] = False
         r_prev, r = r, int(keep.sum())
         U = u[:, keep].astype(dtype)
         s = (sv[keep] - inv_mu).astype(dtype)

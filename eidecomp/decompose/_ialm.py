@@ -34,29 +34,37 @@ array has W's dtype (float64, or float32 in float32 mode).
 import numpy as np
 
 from ..params import MAX_ITER, TOL
+from ._anderson import Anderson, depth_for
 from ._svt import sketch_plan, spectral_norm, svt
 
-__all__ = ["end_step", "ialm", "next_penalty", "next_rank"]
+__all__ = ["end_step", "ialm", "next_penalty", "next_rank", "split_point"]
 
-_GROW = 0.5     # phase 2: mu grows while dual < primal / _GROW ...
-_SHRINK = 10.0  # ... and shrinks once dual > _SHRINK * primal
+GROW_STEPS = 20  # phase 1: mu grows by rho for at most this many steps
+BALANCE = 3.0    # phase 2: mu changes once one residual is BALANCE x the other
+_BALANCE_FACTOR = 2.0
 _MU_MAX_FACTOR = 1e10  # mu never exceeds this multiple of its start
 _BLOCK_ELEMENTS = 1 << 18  # elements per row block of the elementwise passes
 
 
-def next_penalty(mu, primal, dual, polishing, *, tol, rho, mu_max):
-    """The penalty schedule every ALM engine shares; returns (mu, polishing).
+def next_penalty(mu, history, polishing, *, tol, rho, mu_max):
+    """The penalty schedule every ALM engine shares; returns (mu, balancing).
 
-    Growth by rho until the primal residual first falls below tol, then
-    residual balancing: grow while the primal residual dominates, shrink
-    once the dual residual does (module docstring).
+    ``history`` holds one row (primal, dual, rank, mu) per step so far.
+    Growth by rho for at most ``GROW_STEPS`` steps, or until the primal
+    residual first falls below tol; then residual balancing (Boyd et al.
+    2011, section 3.4.1): mu doubles while the primal residual is more than
+    ``BALANCE`` times the dual one, halves in the opposite case, and
+    otherwise stays put (module docstring).
     """
-    polishing = polishing or primal < tol
-    if not polishing or primal > _GROW * dual:
-        mu = min(mu * rho, mu_max)
-    elif dual > _SHRINK * primal:
-        mu = mu / rho
-    return mu, polishing
+    it = len(history)
+    primal, dual = history[-1][:2]
+    if not polishing and it <= GROW_STEPS:
+        return min(mu * rho, mu_max), primal < tol
+    if primal > BALANCE * dual:
+        mu = min(mu * _BALANCE_FACTOR, mu_max)
+    elif dual > BALANCE * primal:
+        mu = mu / _BALANCE_FACTOR
+    return mu, True
 
 
 def end_step(history, callback, it, rank, mu, polishing, dY, dS, nY, norm_W,
@@ -74,7 +82,7 @@ def end_step(history, callback, it, rank, mu, polishing, dY, dS, nY, norm_W,
         callback(it, primal, dual, rank, mu)
     if primal < tol and dual < tol:
         return True, mu, polishing
-    mu, polishing = next_penalty(mu, primal, dual, polishing, tol=tol, rho=rho,
+    mu, polishing = next_penalty(mu, history, polishing, tol=tol, rho=rho,
                                  mu_max=mu_max)
     return False, mu, polishing
 
@@ -84,6 +92,16 @@ def next_rank(sv_prev, r, n_small):
     if r < sv_prev:
         return min(r + 1 + max(2, r // 20), n_small)
     return min(r + 5 + max(5, r // 10), n_small)
+
+
+def split_point(q, S, Y, mu, thr, mask=None):
+    """S and Y (in place) from the point q = S + Y/mu of the fixed-point map:
+    Y/mu = clip_thr(q) on the observed entries (0 off them), S = q - Y/mu."""
+    np.clip(q, -thr, thr, out=Y)
+    if mask is not None:
+        Y *= mask
+    np.subtract(q, Y, out=S)
+    Y *= mu
 
 
 def _svt_argument(T, W, S, Y, inv_mu, blocks, plan):
@@ -136,7 +154,7 @@ def _update_s_y(W, S, Y, Us, Vt, r, mu, thr, mask, blocks, work):
 
 
 def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.5,
-         init=None, rng=None, callback=None):
+         init=None, rng=None, callback=None, accelerate=True):
     """Solve PCP by inexact ALM; arrays in, arrays out.
 
     Parameters
@@ -156,6 +174,9 @@ def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.
         For the random part of the partial SVD's starting block.
     callback : callable or None
         Called as ``callback(iteration, primal, dual, rank, mu)`` every step.
+    accelerate : bool
+        Anderson acceleration in the balancing phase (``_anderson``), with a
+        depth that fits ``_anderson.HISTORY_BYTES``.
 
     Returns
     -------
@@ -210,9 +231,14 @@ def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.
     history = []
     converged = False
     polishing = False  # phase 2: balance the residuals instead of growing mu
+    depth = depth_for(W.size, W.itemsize) if accelerate else 0
+    accel = Anderson(depth) if depth else None
+    q = None  # the accelerated point S + Y/mu (phase 2 only)
     it = 0
     for it in range(1, max_iter + 1):
         inv_mu = 1.0 / mu
+        if accel is not None and polishing and q is None:
+            q = S + Y * inv_mu
         plan = sketch_plan(W.shape, k, V, rng, dtype=dtype)
         sketch = _svt_argument(T, W, S, Y, inv_mu, blocks, plan)
         U, s, Vt, V, _ = svt(T, inv_mu, k=k, V0=V, rng=rng, sketch=sketch)
@@ -221,12 +247,21 @@ def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.
         Us = U * s
         dS2, dY2, Y2 = _update_s_y(W, S, Y, Us, Vt, r, mu, lam * inv_mu, mask,
                                    blocks, (t, c, d))
+        mu_was = mu
         converged, mu, polishing = end_step(
             history, callback, it, r, mu, polishing, np.sqrt(dY2), np.sqrt(dS2),
             np.sqrt(Y2), norm_W, tol=tol, rho=rho, mu_max=mu_max)
         if converged:
             break
+        if q is not None and mu == mu_was:
+            q = accel.step(q, S + Y * inv_mu)
+            split_point(q, S, Y, mu, lam * inv_mu, mask)
+        elif q is not None:
+            accel.reset()  # a new penalty is a new map
+            q = None
     del T, t, c, d  # the work arrays go before L arrives
     L = (Us @ Vt).astype(dtype, copy=False) if r else np.zeros_like(W)
     return L, S, Y, {"n_iter": it, "converged": converged, "history": history,
-                     "mu": mu, "singular_values": np.array(s)}
+                     "mu": mu, "singular_values": np.array(s),
+                     "acceleration": {"depth": depth, "restarts":
+                                      accel.restarts if accel else 0}}

@@ -16,7 +16,9 @@ the smaller dimension a full SVD is used instead.
 
 import numpy as np
 
-__all__ = ["sketch_plan", "spectral_norm", "svt"]
+from ..params import RANK_RTOL
+
+__all__ = ["numerical_rank", "sketch_plan", "spectral_norm", "svt"]
 
 # Below this size a full SVD is as cheap as any partial scheme.
 _SMALL = 64
@@ -34,6 +36,15 @@ def _full_svd(A):
         V, s, Ut = np.linalg.svd(A.T, full_matrices=False)
         return Ut.T, s, V.T
     return np.linalg.svd(A, full_matrices=False)
+
+
+def numerical_rank(s, dtype=np.float64):
+    """How many of the singular values ``s`` (in decreasing order) count:
+    those above ``params.RANK_RTOL`` of the dtype times the largest."""
+    s = np.asarray(s)
+    if s.size == 0 or not s[0] > 0:
+        return 0
+    return int(np.count_nonzero(s > RANK_RTOL[np.dtype(dtype).name] * s[0]))
 
 
 def _orth(Y):
@@ -160,7 +171,7 @@ def svt(A, tau, *, k=None, V0=None, rng=None, full_fraction=0.25, power_iter=1,
     -------
     U : ndarray of shape (m, r)
     s : ndarray of shape (r,)
-        Shrunk singular values, all positive.
+        Shrunk singular values, all above ``numerical_rank``'s cut.
     Vt : ndarray of shape (r, n)
     V_next : ndarray
         Singular vectors to warm-start the next call (pass back as ``V0``).
@@ -173,6 +184,7 @@ def svt(A, tau, *, k=None, V0=None, rng=None, full_fraction=0.25, power_iter=1,
         U, s, Vt = _full_svd(A)
         r = int(np.count_nonzero(s > tau))
         keep = min(small, 2 * r + 2 * _OVERSAMPLE)  # room for the rank to grow
+        r = numerical_rank(s[:r] - tau, A.dtype)
         return U[:, :r], s[:r] - tau, Vt[:r], Vt[:keep].T, small
     if rng is None:
         rng = np.random.default_rng(0)
@@ -189,7 +201,7 @@ def svt(A, tau, *, k=None, V0=None, rng=None, full_fraction=0.25, power_iter=1,
         V0 = Vt.T  # keep what was found; the range finder adds the rest
         if k >= full_fraction * small:
             return svt(A.T if transposed else A, tau, k=None)
-    r = int(np.count_nonzero(s > tau))
+    r = numerical_rank(s[:int(np.count_nonzero(s > tau))] - tau, A.dtype)
     V_next = Vt.T  # every computed vector: the next call starts warm
     U, s, Vt = U[:, :r], s[:r] - tau, Vt[:r]
     if transposed:  # V_next stays a basis of the working (taller) side
