@@ -89,7 +89,7 @@ class Anderson:
         gamma = np.linalg.solve(gram + _REG * scale * np.eye(len(rhs)), rhs)
         out = fx.copy()
         tmp = np.empty_like(out)
-        for c, dh in zip(gamma, self._dH):
+        for c, dh in zip(gamma, self._dH, strict=True):
             np.multiply(dh, c, out=tmp)
             out -= tmp
         return out

@@ -153,6 +153,54 @@ def _update_s_y(W, S, Y, Us, Vt, r, mu, thr, mask, blocks, work):
     return dS2, dY2, Y2
 
 
+def _apply_mask(W, observed):
+    """(W zeroed off the observed entries, the 0/1 mask), or (W, None)."""
+    if observed is None or observed.all():
+        return W, None
+    mask = observed.astype(W.dtype)
+    return W * mask, mask
+
+
+def _workspace(W):
+    """The SVT's argument T (W + Y/mu - S), the row blocks of the elementwise
+    passes and three work arrays of one block each.
+
+    The pass that forms T also forms T @ Omega for the partial SVD, and the
+    pass after it forms L = U s V^T block by block, so L is never stored
+    inside the loop and each iteration streams W, S and Y twice.
+    """
+    m, n = W.shape
+    rows = max(1, min(m, _BLOCK_ELEMENTS // n))
+    blocks = [slice(i, min(i + rows, m)) for i in range(0, m, rows)]
+    work = tuple(np.empty((rows, n), W.dtype) for _ in range(3))
+    return np.empty_like(W), blocks, work
+
+
+def _start(W, init):
+    """(S, Y, mu) to start from: zeros, or a neighbour's warm start."""
+    if init is None:
+        # Y_0 = 0 rather than the textbook W / J(W): the first threshold 1/mu_0
+        # then keeps only the top of the spectrum, so no step starts with a
+        # near-full SVD (any Y_0 converges; this one is cheap). mu_0 only
+        # sets a scale, so ||W||_2 is needed to a few digits.
+        return (np.zeros_like(W), np.zeros_like(W),
+                1.25 / spectral_norm(W, rtol=1e-3))
+    S, Y = (np.array(a, dtype=W.dtype, copy=True) for a in init[1:3])
+    return S, Y, float(init[3])
+
+
+def _accelerate(accel, q, S, Y, mu_was, mu, lam, mask):
+    """The accelerated point after a plain step from q that left (S, Y);
+    S and Y are set from it in place. None once mu has changed (a new
+    penalty is a new map: the history restarts at the next step)."""
+    if mu != mu_was:
+        accel.reset()
+        return None
+    q = accel.step(q, S + Y / mu)
+    split_point(q, S, Y, mu, lam / mu, mask)
+    return q
+
+
 def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.5,
          init=None, rng=None, callback=None, accelerate=True):
     """Solve PCP by inexact ALM; arrays in, arrays out.
@@ -167,7 +215,7 @@ def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.
         Bound on both relative residuals.
     max_iter : int
     rho : float
-        Factor by which mu grows (or shrinks) when the residuals are unbalanced.
+        Factor by which mu grows in the first phase (``next_penalty``).
     init : tuple (L, S, Y, mu) or None
         Warm start, e.g. from a neighbouring lam on a path.
     rng : numpy.random.Generator or None
@@ -191,40 +239,18 @@ def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.
     n_small = min(m, n)
     if rng is None:
         rng = np.random.default_rng(0)
-    mask = None
-    if observed is not None and not observed.all():
-        mask = observed.astype(dtype)
-        W = W * mask
+    W, mask = _apply_mask(W, observed)
     norm_W = float(np.linalg.norm(W))
     if norm_W == 0.0:
         zero = np.zeros_like(W)
         return zero, zero.copy(), zero.copy(), {
             "n_iter": 0, "converged": True, "history": [], "mu": 0.0,
-            "singular_values": np.zeros(0)}
-
-    if init is None:
-        # Y_0 = 0 rather than the textbook W / J(W): the first threshold 1/mu_0
-        # then keeps only the top of the spectrum, so no step starts with a
-        # near-full SVD (any Y_0 converges; this one is cheap). mu_0 only
-        # sets a scale, so ||W||_2 is needed to a few digits.
-        mu = 1.25 / spectral_norm(W, rtol=1e-3)
-        S = np.zeros_like(W)
-        Y = np.zeros_like(W)
-    else:
-        S, Y = (np.array(a, dtype=dtype, copy=True) for a in init[1:3])
-        mu = float(init[3])
+            "singular_values": np.zeros(0),
+            "acceleration": {"depth": 0, "restarts": 0}}
+    S, Y, mu = _start(W, init)
     k = min(10, n_small)
     mu_max = mu * _MU_MAX_FACTOR
-    # The elementwise steps run over blocks of rows; the pass that forms the
-    # SVT's argument T also forms T @ Omega for the partial SVD, and the pass
-    # after it forms L = U s V^T block by block, so L is never stored inside
-    # the loop and each iteration streams W, S and Y twice.
-    rows = max(1, min(m, _BLOCK_ELEMENTS // n))
-    blocks = [slice(i, min(i + rows, m)) for i in range(0, m, rows)]
-    T = np.empty_like(W)   # W + Y/mu - S, the argument of the SVT
-    t = np.empty((rows, n), dtype)
-    c = np.empty((rows, n), dtype)
-    d = np.empty((rows, n), dtype)
+    T, blocks, work = _workspace(W)
     U = Vt = s = None
     V = None
     r = 0
@@ -237,8 +263,8 @@ def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.
     it = 0
     for it in range(1, max_iter + 1):
         inv_mu = 1.0 / mu
-        if accel is not None and polishing and q is None:
-            q = S + Y * inv_mu
+        if q is None and polishing and accel is not None:
+            q = S + Y * inv_mu  # the map's point: accelerate from here
         plan = sketch_plan(W.shape, k, V, rng, dtype=dtype)
         sketch = _svt_argument(T, W, S, Y, inv_mu, blocks, plan)
         U, s, Vt, V, _ = svt(T, inv_mu, k=k, V0=V, rng=rng, sketch=sketch)
@@ -246,20 +272,16 @@ def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.
         k = next_rank(r_prev if it > 1 else r + 1, r, n_small)
         Us = U * s
         dS2, dY2, Y2 = _update_s_y(W, S, Y, Us, Vt, r, mu, lam * inv_mu, mask,
-                                   blocks, (t, c, d))
+                                   blocks, work)
         mu_was = mu
         converged, mu, polishing = end_step(
             history, callback, it, r, mu, polishing, np.sqrt(dY2), np.sqrt(dS2),
             np.sqrt(Y2), norm_W, tol=tol, rho=rho, mu_max=mu_max)
         if converged:
             break
-        if q is not None and mu == mu_was:
-            q = accel.step(q, S + Y * inv_mu)
-            split_point(q, S, Y, mu, lam * inv_mu, mask)
-        elif q is not None:
-            accel.reset()  # a new penalty is a new map
-            q = None
-    del T, t, c, d  # the work arrays go before L arrives
+        if q is not None:
+            q = _accelerate(accel, q, S, Y, mu_was, mu, lam, mask)
+    del T, work  # the work arrays go before L arrives
     L = (Us @ Vt).astype(dtype, copy=False) if r else np.zeros_like(W)
     return L, S, Y, {"n_iter": it, "converged": converged, "history": history,
                      "mu": mu, "singular_values": np.array(s),
