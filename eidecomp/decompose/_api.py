@@ -20,6 +20,7 @@ from ._convex import ConvexPCP
 from ._ialm import ialm
 from ._norms import spectral_norm_bound
 from ._svt import numerical_rank
+from ._threads import blas_threads
 
 __all__ = ["default_lam", "lambda_path", "pcp_objective", "robust_pca"]
 
@@ -331,10 +332,12 @@ def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
                                         solver=solver, max_iter=max_iter)
             return dec, None
 
-    if target_rank is None:
-        dec, _ = solve(lam)
-    else:
-        dec = _search_rank(solve, lam, int(_check_rank(target_rank, W.shape)))
+    with blas_threads(W.shape):
+        if target_rank is None:
+            dec, _ = solve(lam)
+        else:
+            dec = _search_rank(solve, lam,
+                               int(_check_rank(target_rank, W.shape)))
     _warn_if_stopped(dec)
     return dec
 
@@ -418,9 +421,11 @@ def lambda_path(W, lams=None, *, n_lams=12, mask=None, ignore_diagonal=False,
         raise InputError("lambda_path needs at least one lam")
     points, decs, state = [], [], None
     for lam in lams:
-        dec, state = _ialm_decomposition(W, lam, observed, tol=tol,
-                                         max_iter=max_iter, rho=1.5, seed=seed,
-                                         progress=None, init=state)
+        with blas_threads(W.shape):
+            dec, state = _ialm_decomposition(W, lam, observed, tol=tol,
+                                             max_iter=max_iter, rho=1.5,
+                                             seed=seed, progress=None,
+                                             init=state)
         _warn_if_stopped(dec)
         r = dec.report
         points.append(PathPoint(lam=lam, rank=dec.rank, sparsity=dec.sparsity,

@@ -17,15 +17,17 @@ L and S, that is, over kernels. There
   Frobenius norm of the matrix is sqrt(H W) times the kernel's, so the
   relative residuals of the ALM are the same on kernels.
 
-The iteration, its stopping rule and its penalty schedule are those of
-_ialm.py (the inexact ALM of Lin, Chen & Ma 2010 with primal and dual
-residuals), on arrays of F * F * H * W numbers instead of (F H W)^2.
+The iteration, its stopping rule, its penalty schedule and its Anderson
+acceleration are those of _ialm.py (the inexact ALM of Lin, Chen & Ma 2010
+with primal and dual residuals), on arrays of F * F * H * W numbers instead
+of (F H W)^2.
 """
 
 import numpy as np
 
 from ..params import MAX_ITER, RANK_RTOL, TOL
-from ._ialm import _MU_MAX_FACTOR, end_step
+from ._anderson import Anderson, depth_for
+from ._ialm import _MU_MAX_FACTOR, _accelerate, end_step
 
 __all__ = ["kernel_ialm"]
 
@@ -94,6 +96,8 @@ def kernel_ialm(G, lam, *, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.5,
     Y = np.zeros_like(G)
     history = []
     converged = polishing = False
+    depth = depth_for(G.size, G.itemsize)
+    accel = Anderson(depth) if depth else None
     it = 0
     ranks_half = None
     for it in range(1, max_iter + 1):
@@ -107,12 +111,16 @@ def kernel_ialm(G, lam, *, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.5,
         S_new = T - C
         Y_new = mu * C
         dY, dS = np.linalg.norm(Y_new - Y), np.linalg.norm(S_new - S)
+        q = S + Y * inv_mu if polishing and accel is not None else None
         S, Y = S_new, Y_new
+        mu_was = mu
         converged, mu, polishing = end_step(
             history, callback, it, int(ranks_half.max()), mu, polishing, dY, dS,
             np.linalg.norm(Y), norm_W, tol=tol, rho=rho, mu_max=mu_max)
         if converged:
             break
+        if q is not None:  # the dense engine's acceleration, on kernels
+            _accelerate(accel, q, S, Y, mu_was, mu, lam)
     # ranks at every frequency of the full grid: f and -f share a rank
     ranks = np.zeros(grid, int)
     half = w // 2 + 1

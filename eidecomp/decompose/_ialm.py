@@ -189,7 +189,7 @@ def _start(W, init):
     return S, Y, float(init[3])
 
 
-def _accelerate(accel, q, S, Y, mu_was, mu, lam, mask):
+def _accelerate(accel, q, S, Y, mu_was, mu, lam, mask=None):
     """The accelerated point after a plain step from q that left (S, Y);
     S and Y are set from it in place. None once mu has changed (a new
     penalty is a new map: the history restarts at the next step)."""

@@ -8,6 +8,7 @@ from ..params import SolverSettings
 from ..types import KernelDecomposition
 from ._api import robust_pca
 from ._circulant import kernel_ialm, nuclear_norm
+from ._threads import blas_threads
 
 __all__ = ["robust_pca_kernel"]
 
@@ -62,8 +63,9 @@ def robust_pca_kernel(K, grid, *, lam=None, boundary="periodic", offsets=False,
         return robust_pca(expand(K, (h, w), "zero"), lam=lam, tol=tol,
                           max_iter=max_iter, rho=rho, progress=progress,
                           seed=seed)
-    L, S, _, info = kernel_ialm(G, lam, tol=tol, max_iter=settings.max_iter,
-                                rho=rho, callback=progress)
+    with blas_threads(G.shape[:2]):  # many small F x F blocks
+        L, S, _, info = kernel_ialm(G, lam, tol=tol, max_iter=settings.max_iter,
+                                    rho=rho, callback=progress)
     objective = nuclear_norm(L) + lam * h * w * float(np.abs(S).sum())
     dec = KernelDecomposition(low_rank=L, sparse=S, ranks=info["ranks"],
                               lam=lam, objective=objective,
