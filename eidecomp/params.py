@@ -45,11 +45,12 @@ DTYPES = {"float64": np.float64, "float32": np.float32}
 TOL = {"float64": 1e-8, "float32": 1e-6}
 """Default tolerance on the ALM's relative primal and dual residuals, by
 working dtype: float32 residuals bottom out near 1e-7."""
-RANK_RTOL = {"float64": 1e-6, "float32": 1e-4}
+RANK_RTOL = {"float64": 1e-5, "float32": 1e-3}
 """The numerical-rank rule of every method and engine (docs/robust_pca.md):
 a singular value of L at or below RANK_RTOL times the largest is zero, and L
-is truncated to the values above it. A hundred times the dtype's TOL: the
-residuals certify L to about that relative accuracy, not better."""
+is truncated to the values above it. A thousand times the dtype's TOL:
+residuals of 1e-8 left L 7e-7 from the planted L0 on one planted matrix
+(tests/test_acceleration.py), and a spurious value at 1.2e-6 of the largest."""
 MAX_ITER = 5000
 """ALM iteration limit: planted problems stop in ~30, degenerate ones need
 more."""
