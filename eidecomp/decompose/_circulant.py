@@ -25,9 +25,10 @@ of (F H W)^2.
 
 import numpy as np
 
-from ..params import MAX_ITER, RANK_RTOL, TOL
+from ..params import MAX_ITER, TOL
 from ._anderson import Anderson, depth_for
 from ._ialm import _MU_MAX_FACTOR, _accelerate, end_step
+from ._svt import rank_cut
 
 __all__ = ["kernel_ialm"]
 
@@ -67,7 +68,7 @@ def _svt(B, tau):
     s = np.maximum(s - tau, 0.0)
     # the numerical-rank rule of the tiled matrix, whose singular values
     # are those of all the blocks together (_svt.numerical_rank)
-    s[s <= RANK_RTOL[s.dtype.name] * s.max(initial=0.0)] = 0.0
+    s[s <= rank_cut(s.max(initial=0.0), s.dtype)] = 0.0
     return (U * s[..., None, :]) @ Vh, np.count_nonzero(s > 0, axis=-1)
 
 

@@ -18,7 +18,7 @@ import numpy as np
 
 from ..params import RANK_RTOL
 
-__all__ = ["numerical_rank", "sketch_plan", "spectral_norm", "svt"]
+__all__ = ["numerical_rank", "rank_cut", "sketch_plan", "spectral_norm", "svt"]
 
 # Below this size a full SVD is as cheap as any partial scheme.
 _SMALL = 64
@@ -39,13 +39,25 @@ def _full_svd(A):
     return np.linalg.svd(A, full_matrices=False)
 
 
+def rank_cut(largest, dtype=np.float64):
+    """The numerical-rank rule: singular values at or below this value are
+    zero (``params.RANK_RTOL`` of the dtype times the largest)."""
+    return RANK_RTOL[np.dtype(dtype).name] * float(largest)
+
+
 def numerical_rank(s, dtype=np.float64):
-    """How many of the singular values ``s`` (in decreasing order) count:
-    those above ``params.RANK_RTOL`` of the dtype times the largest."""
+    """How many of the singular values ``s`` (in decreasing order) count
+    under the rule of ``rank_cut``."""
     s = np.asarray(s)
     if s.size == 0 or not s[0] > 0:
         return 0
-    return int(np.count_nonzero(s > RANK_RTOL[np.dtype(dtype).name] * s[0]))
+    return int(np.count_nonzero(s > rank_cut(s[0], dtype)))
+
+
+def _kept(s, tau, dtype):
+    """How many of the decreasing values ``s`` survive thresholding at tau
+    and the rank rule."""
+    return numerical_rank(s[:int(np.count_nonzero(s > tau))] - tau, dtype)
 
 
 def _gram_svt(A, tau):
@@ -66,9 +78,8 @@ def _gram_svt(A, tau):
     if top > _GRAM_RATIO * tau:
         return None
     s = np.sqrt(np.clip(evals, 0.0, None))
-    r = int(np.count_nonzero(s > tau))
-    keep = min(len(s), 2 * r + 2 * _OVERSAMPLE)  # room for the rank to grow
-    r = numerical_rank(s[:r] - tau, A.dtype)
+    keep = min(len(s), 2 * int(np.count_nonzero(s > tau)) + 2 * _OVERSAMPLE)
+    r = _kept(s, tau, A.dtype)
     Ur = (B @ V[:, :r]) / s[:r]
     shrunk = s[:r] - tau
     if tall:
@@ -217,9 +228,9 @@ def svt(A, tau, *, k=None, V0=None, rng=None, full_fraction=0.25, power_iter=1,
             if out is not None:
                 return out
         U, s, Vt = _full_svd(A)
-        r = int(np.count_nonzero(s > tau))
-        keep = min(small, 2 * r + 2 * _OVERSAMPLE)  # room for the rank to grow
-        r = numerical_rank(s[:r] - tau, A.dtype)
+        # room for the rank to grow
+        keep = min(small, 2 * int(np.count_nonzero(s > tau)) + 2 * _OVERSAMPLE)
+        r = _kept(s, tau, A.dtype)
         return U[:, :r], s[:r] - tau, Vt[:r], Vt[:keep].T, small
     if rng is None:
         rng = np.random.default_rng(0)
@@ -236,7 +247,7 @@ def svt(A, tau, *, k=None, V0=None, rng=None, full_fraction=0.25, power_iter=1,
         V0 = Vt.T  # keep what was found; the range finder adds the rest
         if k >= full_fraction * small:
             return svt(A.T if transposed else A, tau, k=None)
-    r = numerical_rank(s[:int(np.count_nonzero(s > tau))] - tau, A.dtype)
+    r = _kept(s, tau, A.dtype)
     V_next = Vt.T  # every computed vector: the next call starts warm
     U, s, Vt = U[:, :r], s[:r] - tau, Vt[:r]
     if transposed:  # V_next stays a basis of the working (taller) side
