@@ -23,6 +23,7 @@ import numpy as np
 from .errors import InputError
 
 __all__ = [
+    "CONNECTION_RTOL",
     "DEFAULT_EI_RATIO",
     "DTYPES",
     "MAX_ITER",
@@ -188,6 +189,19 @@ class EIRatio:
 
     def __str__(self):
         return f"{self.text} ({self.value:g} E per interneuron)"
+
+
+# --- what counts as a connection ---------------------------------------------
+
+CONNECTION_RTOL = 1e-6
+"""The one rule for what counts as a connection of an assembled circuit
+(docs/assembly.md): a weight is kept when the strongest path through it
+carries at least CONNECTION_RTOL times max|W|, and zeroed otherwise, before
+anything is reported or exported. For J_EE the path is the weight itself;
+for an interneuron's input J_IE[t, j] it is J_IE[t, j] max_i J_EI[i, t],
+and for its output J_EI[i, t] it is J_EI[i, t] max_j J_IE[t, j], which the
+balance of the two factors leaves unchanged. An interneuron is active when
+it keeps at least one input and one target; the rule keeps both or neither."""
 
 
 # --- time constants -------------------------------------------------------------

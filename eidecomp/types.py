@@ -322,7 +322,13 @@ class AssemblyReport:
     history : tuple of float
         Objective after each sweep.
     notes : tuple of str
-        Facts about this W worth saying (all zeros; no inhibition needed).
+        Facts about this W worth saying (all zeros; no inhibition needed;
+        fewer active interneurons than asked, and why).
+    restarted : int
+        Interneurons that lost every input or target during the fit and were
+        started again on the largest inhibition left unexplained.
+    floored : int
+        Weights zeroed by the connection floor (params.CONNECTION_RTOL).
     """
 
     relative_error: float
@@ -333,6 +339,8 @@ class AssemblyReport:
     converged: bool = True
     history: tuple = field(default=(), repr=False)
     notes: tuple = ()
+    restarted: int = 0
+    floored: int = 0
 
     def as_dict(self):
         out = {k: getattr(self, k) for k in self.__dataclass_fields__}

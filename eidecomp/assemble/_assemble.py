@@ -16,24 +16,35 @@
    subproblem (J_EE) or a convex one-dimensional piece of it (HALS), so the
    objective never increases;
 5. debiasing: the same descent with alpha = 0 on the support of J_EE found
-   in step 4, which removes the shrinkage of the l1 term.
+   in step 4, which removes the shrinkage of the l1 term;
+6. the connection floor (params.CONNECTION_RTOL) zeroes every weight whose
+   strongest path carries less than 1e-6 max|W|. An interneuron left with
+   no input or target (an l1 term in step 3 or a descent can empty it) is
+   started again on the largest nonnegative rank-one piece of the
+   inhibition still unexplained, and steps 4-6 repeat (at most
+   RESTART_ROUNDS times); when nothing worth an interneuron is left, the
+   report says how many W supports.
 """
 
 import numpy as np
 
 from ..errors import InputError, warn_stopped
-from ..params import DEFAULT_EI_RATIO, EIRatio
+from ..params import CONNECTION_RTOL, DEFAULT_EI_RATIO, EIRatio
 from ..types import AssemblyReport, BaselineResult, Circuit, Decomposition
 from ._baselines import _prune_to_density
 from ._baselines import baselines as score_baselines
 from ._counts import inhibitory_count, split_counts
 from ._nmf import hals, nndsvd, sweep
+from ._support import apply_floor, inactive, restart
 
 __all__ = ["assemble"]
 
 ALPHA_DEFAULT = 0.02   # l1 weight on J_EE, times max |W|
 TUNED_L1 = 0.005       # l1 weight on the tuned factors, times max(-S) / max|W|
 SUPPORT_RTOL = 1e-6    # factor entries below this x their column max are zero
+RESTART_ROUNDS = 3     # new starts for emptied interneurons, then refinement
+RESTART_RTOL = 1e-3    # a new start needs a piece of unexplained inhibition
+                       # whose largest path is this x max|W| (less is noise)
 
 
 def _split(W_or_dec, seed, decompose_kwargs):
@@ -66,7 +77,7 @@ def _support(F, axis):
     return F > SUPPORT_RTOL * np.where(peak > 0, peak, np.inf)
 
 
-def _notes(W, n_i, ratio):
+def _notes(W, n_i, ratio, A, B, n_u):
     """What the user should know about W's kind of problem, in words."""
     if not W.any():
         return ("W is all zeros: the circuit has no connection",)
@@ -74,7 +85,16 @@ def _notes(W, n_i, ratio):
         return (f"W has no negative entry, so no inhibition is needed: J_EE = W, "
                 f"and the {n_i} interneuron{'s' * (n_i != 1)} of E:I "
                 f"{ratio.text} {'are' if n_i != 1 else 'is'} kept but silent",)
-    return ()
+    silent = inactive(A, B)
+    if not silent.size:
+        return ()
+    n_ut, n_tt = int((silent < n_u).sum()), int((silent >= n_u).sum())
+    return (f"W supports {n_i - silent.size} active interneurons of the {n_i} "
+            f"asked ({n_ut} untuned and {n_tt} tuned left silent): after "
+            f"{RESTART_ROUNDS} rounds of new starts, no piece of unexplained "
+            f"inhibition with a path of {RESTART_RTOL:g} max|W| or more was "
+            "left for them to carry, and their weights fell below the "
+            f"connection floor ({CONNECTION_RTOL:g} max|W|)",)
 
 
 def _objective(W, J_EE, A, B, alpha):
@@ -105,27 +125,84 @@ def _descend(W, A, B, mask_a, mask_b, alpha, ee_support, max_iter, tol,
     return J_EE, it, converged
 
 
+def _owed(W, J_EE, A, B):
+    """The inhibition W asks for and the circuit does not give, >= 0."""
+    return np.maximum(J_EE - A @ B - W, 0.0)
+
+
+def _fit(W, A, B, masks, alpha, max_iter, tol, history, progress):
+    """Steps 4-5 once, then the connection floor: J_EE, sweeps, converged,
+    weights floored."""
+    J_EE, it1, ok1 = _descend(W, A, B, *masks, alpha, None, max_iter, tol,
+                              history, progress, "refinement")
+    J_EE, it2, ok2 = _descend(W, A, B, *masks, 0.0, J_EE > 0, max_iter, tol,
+                              history, progress, "debiasing")
+    return J_EE, it1 + it2, ok1 and ok2, apply_floor(J_EE, A, B)
+
+
+def _refine(W, A, B, mask_a, mask_b, alpha, n_u, max_iter, tol, history,
+            progress, tell):
+    """Steps 4-5 with the connection floor; new starts for interneurons that
+    end without input or target while inhibition is left unexplained (at
+    most RESTART_ROUNDS times). Returns J_EE, sweeps, converged and the
+    numbers of new starts and of weights the floor removed."""
+    masks = (mask_a, mask_b)
+
+    def fit():
+        return _fit(W, A, B, masks, alpha, max_iter, tol, history, progress)
+
+    J_EE, n_iter, converged, floored = fit()
+    restarted = 0
+    for _ in range(RESTART_ROUNDS):
+        silent = inactive(A, B)
+        if not silent.size:
+            break
+        tell("new starts for emptied interneurons")
+        started = restart(_owed(W, J_EE, A, B), A, B, silent[silent < n_u],
+                          floor=RESTART_RTOL)
+        owed = _owed(W, J_EE, A, B)
+        started += restart(owed, A, B, silent[silent >= n_u],
+                           l1=TUNED_L1 * float(owed.max()), mask_a=mask_a,
+                           mask_b=mask_b, floor=RESTART_RTOL)
+        if not started:
+            break
+        restarted += len(started)
+        J_EE, it, converged, floored = fit()
+        n_iter += it
+    return J_EE, n_iter, converged, (restarted, floored)
+
+
 def _first_factorisations(M_u, M_t, n_u, n_t, start, rng, max_iter, tell):
     """Steps 2-3: NNDSVD + HALS of the inhibitory sides of L (dense, untuned
     pools) and of S (l1, tuned pools, their supports then fixed). Returns
-    the stacked factors A (E x I), B (I x E) and the masks of their
-    supports."""
+    the stacked factors A (E x I), B (I x E), the masks of their supports
+    and the number of tuned pools that emptied and were started again."""
     tell("untuned factorisation")
     A_u, B_u = nndsvd(M_u, n_u)
     A_u, B_u = _fill_dead(A_u, B_u, start, rng)
     A_u, B_u, _ = hals(M_u, A_u, B_u, max_iter=max_iter, tol=1e-6)
     tell("tuned factorisation")
+    l1 = TUNED_L1 * float(M_t.max()) if M_t.size and M_t.any() else 0.0
     A_t, B_t = nndsvd(M_t, n_t)
     A_t, B_t = _fill_dead(A_t, B_t, start, rng)
-    l1 = TUNED_L1 * float(M_t.max()) if M_t.size and M_t.any() else 0.0
     A_t, B_t, _ = hals(M_t, A_t, B_t, l1_a=l1, l1_b=l1, max_iter=max_iter,
                        tol=1e-6)
+    restarted = 0
+    for _ in range(RESTART_ROUNDS):  # the l1 term can empty a pool: start it
+        dead = inactive(A_t, B_t)    # again on the largest piece left
+        started = restart(np.maximum(M_t - A_t @ B_t, 0.0), A_t, B_t, dead,
+                          l1=l1, floor=RESTART_RTOL) if dead.size else []
+        if not started:
+            break
+        restarted += len(started)
+        A_t, B_t, _ = hals(M_t, A_t, B_t, l1_a=l1, l1_b=l1,
+                           max_iter=max_iter, tol=1e-6)
     mask_t_a, mask_t_b = _support(A_t, 0), _support(B_t, 1)
     A_t *= mask_t_a
     B_t *= mask_t_b
     return (np.hstack([A_u, A_t]), np.vstack([B_u, B_t]),
             np.hstack([np.ones_like(A_u, bool), mask_t_a]),
-            np.vstack([np.ones_like(B_u, bool), mask_t_b]))
+            np.vstack([np.ones_like(B_u, bool), mask_t_b]), restarted)
 
 
 def _scored_baselines(W, n_i, circuit, err, dens, max_iter):
@@ -220,20 +297,18 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha
         if progress is not None:
             progress(stage, 0, float("nan"))
 
-    A, B, mask_a, mask_b = _first_factorisations(M_u, M_t, n_u, n_t, start, rng,
-                                                 max_iter, tell)
+    A, B, mask_a, mask_b, first_starts = _first_factorisations(
+        M_u, M_t, n_u, n_t, start, rng, max_iter, tell)
 
     # 4-5. joint refinement, then debiasing on the support of J_EE
     history = []
     if no_inhibition:  # J_EE = W (exactly, below), the pools silent
         A[:], B[:] = 0.0, 0.0
-        J_EE, it1, it2, converged = W.copy(), 0, 0, True
+        J_EE, n_iter, converged, counts = W.copy(), 0, True, (0, 0)
     else:
-        J_EE, it1, ok1 = _descend(W, A, B, mask_a, mask_b, alpha / unit, None,
-                                  max_iter, tol, history, progress, "refinement")
-        J_EE, it2, ok2 = _descend(W, A, B, mask_a, mask_b, 0.0, J_EE > 0,
-                                  max_iter, tol, history, progress, "debiasing")
-        converged = ok1 and ok2
+        J_EE, n_iter, converged, counts = _refine(
+            W, A, B, mask_a, mask_b, alpha / unit, n_u, max_iter, tol, history,
+            progress, tell)
     if not converged:
         warn_stopped("circuit refinement", max_iter, unit="sweeps",
                      advice="raise max_iter")
@@ -247,9 +322,11 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha
         tell("baselines")
         base = _scored_baselines(W, n_i, circuit, err, dens, max_iter)
     report = AssemblyReport(relative_error=err, ee_density=dens,
-                            share_rule=rule, baselines=base, n_iter=it1 + it2,
+                            share_rule=rule, baselines=base, n_iter=n_iter,
                             converged=converged, history=tuple(history),
-                            notes=_notes(W, n_i, ratio))
+                            notes=_notes(W, n_i, ratio, A, B, n_u),
+                            restarted=int(first_starts + counts[0]),
+                            floored=int(counts[1]))
     params = {"ei_ratio": ratio.text, "untuned_share": untuned_share,
               "alpha": alpha, "max_iter": max_iter, "tol": tol, "seed": seed,
               "n_inhibitory": n_i, "lam": dec.lam, "rank": dec.rank,

@@ -1,0 +1,91 @@
+"""Which weights are connections, and new starts for interneurons that lost
+theirs (docs/assembly.md, "No interneuron wasted").
+
+Every function works on the factors of the inhibitory paths, A = J_EI
+(E x I) and B = J_IE (I x E), in units of max|W| (the assembler's working
+scale), and changes them in place.
+"""
+
+import numpy as np
+
+from ..params import CONNECTION_RTOL
+
+__all__ = ["apply_floor", "inactive", "restart"]
+
+_POWER_STEPS = 10  # alternating steps of a new start's rank-one fit
+
+
+def apply_floor(J_EE, A, B, floor=CONNECTION_RTOL):
+    """Zero every weight whose strongest path carries less than ``floor``
+    (params.CONNECTION_RTOL, in units of max|W|), in place.
+
+    Returns the number of nonzero weights removed.
+
+    >>> J = np.array([[1.0, 1e-9]]); A = np.array([[1.0, 1e-4]])
+    >>> B = np.array([[1.0], [1e-4]])
+    >>> apply_floor(J, A, B), J.tolist(), A.tolist(), B.ravel().tolist()
+    (3, [[1.0, 0.0]], [[1.0, 0.0]], [1.0, 0.0])
+    """
+    before = np.count_nonzero(J_EE) + np.count_nonzero(A) + np.count_nonzero(B)
+    J_EE[J_EE < floor] = 0.0
+    peak_a = A.max(axis=0, initial=0.0)   # per interneuron, largest output
+    peak_b = B.max(axis=1, initial=0.0)   # and largest input
+    A[A * peak_b[None, :] < floor] = 0.0
+    B[B * peak_a[:, None] < floor] = 0.0
+    return before - (np.count_nonzero(J_EE) + np.count_nonzero(A)
+                     + np.count_nonzero(B))
+
+
+def inactive(A, B):
+    """Indices of the interneurons with no input or no target."""
+    return np.flatnonzero(~A.any(axis=0) | ~B.any(axis=1))
+
+
+def _rank_one(R, l1):
+    """The largest nonnegative rank-one piece a b^T of R >= 0 around its
+    strongest column, by alternating nonnegative least squares with an l1
+    weight (a few steps; each touches only the rows and columns in play)."""
+    col = int(np.argmax(np.einsum("ij,ij->j", R, R)))
+    a = R[:, col].copy()
+    b = np.zeros(R.shape[1])
+    for _ in range(_POWER_STEPS):
+        rows = np.flatnonzero(a)
+        if rows.size == 0:
+            break
+        b = np.maximum(a[rows] @ R[rows] - l1, 0.0) / float(a[rows] @ a[rows])
+        cols = np.flatnonzero(b)
+        if cols.size == 0:
+            break
+        a = np.maximum(R[:, cols] @ b[cols] - l1, 0.0) / float(b[cols] @ b[cols])
+    if not (a.any() and b.any()):
+        return np.zeros_like(a), np.zeros_like(b)
+    f = np.sqrt(np.linalg.norm(b) / np.linalg.norm(a))  # balanced norms
+    return a * f, b / f
+
+
+def restart(R, A, B, which, *, l1=0.0, mask_a=None, mask_b=None,
+            floor=CONNECTION_RTOL):
+    """Give the interneurons ``which`` new factors in place, one after the
+    other, each the largest nonnegative rank-one piece of what R >= 0 (the
+    inhibition still unexplained) has left after the previous ones.
+
+    With masks, a restarted interneuron's support becomes that of its new
+    factors (a tuned pool and targets found again). Returns the indices
+    that got a start; the others found nothing above ``floor`` left in R.
+    """
+    R = np.array(R, dtype=float, copy=True)
+    started = []
+    for t in which:
+        a, b = _rank_one(R, l1)
+        if a.max(initial=0.0) * b.max(initial=0.0) < floor:
+            break
+        A[:, t], B[t] = a, b
+        if mask_a is not None:
+            mask_a[:, t] = a > 0
+        if mask_b is not None:
+            mask_b[t] = b > 0
+        rows, cols = np.flatnonzero(a), np.flatnonzero(b)
+        block = R[np.ix_(rows, cols)] - np.outer(a[rows], b[cols])
+        R[np.ix_(rows, cols)] = np.maximum(block, 0.0)
+        started.append(int(t))
+    return started
