@@ -27,6 +27,7 @@
 """
 
 import numpy as np
+from scipy import sparse
 
 from ..errors import InputError, warn_stopped
 from ..params import CONNECTION_RTOL, DEFAULT_EI_RATIO, EIRatio
@@ -34,7 +35,8 @@ from ..types import AssemblyReport, BaselineResult, Circuit, Decomposition
 from ._baselines import _prune_to_density
 from ._baselines import baselines as score_baselines
 from ._counts import inhibitory_count, split_counts
-from ._nmf import hals, nndsvd, sweep
+from ._nmf import hals, nndsvd
+from ._split_hals import hals_split, paths, sweep_split
 from ._support import apply_floor, inactive, restart
 
 __all__ = ["assemble"]
@@ -97,46 +99,47 @@ def _notes(W, n_i, ratio, A, B, n_u):
             f"connection floor ({CONNECTION_RTOL:g} max|W|)",)
 
 
-def _objective(W, J_EE, A, B, alpha):
-    R = W - J_EE + A @ B
+def _objective(W, J_EE, A, B, alpha, n_u):
+    R = W - J_EE + paths(A, B, n_u)
     return 0.5 * float(np.vdot(R, R)) + alpha * float(J_EE.sum())
 
 
-def _descend(W, A, B, mask_a, mask_b, alpha, ee_support, max_iter, tol,
+def _descend(W, A, B, n_u, masks, alpha, ee_support, max_iter, tol,
              history, progress=None, stage=""):
-    """Block coordinate descent on J_EE and (A, B); returns J_EE, n, ok."""
+    """Block coordinate descent on J_EE and (A, B), the first ``n_u``
+    components dense and the others sparse; returns J_EE, n, ok."""
     converged = False
     scale = max(0.5 * float(np.vdot(W, W)), 1e-300)  # the objective at zero
     start = len(history)
     while not converged and len(history) - start < max_iter:
-        J_EE = np.maximum(W + A @ B - alpha, 0.0)
+        J_EE = np.maximum(W + paths(A, B, n_u) - alpha, 0.0)
         if ee_support is not None:
             J_EE *= ee_support
-        sweep(J_EE - W, A, B, mask_a=mask_a, mask_b=mask_b)
-        history.append(_objective(W, J_EE, A, B, alpha))
+        sweep_split(J_EE - W, A, B, n_u, mask_a=masks[0], mask_b=masks[1])
+        history.append(_objective(W, J_EE, A, B, alpha, n_u))
         if progress is not None:
             progress(stage, len(history) - start, history[-1])
         converged = (len(history) - start > 1
                      and history[-2] - history[-1] <= tol * scale)
     it = len(history) - start
-    J_EE = np.maximum(W + A @ B - alpha, 0.0)
+    J_EE = np.maximum(W + paths(A, B, n_u) - alpha, 0.0)
     if ee_support is not None:
         J_EE *= ee_support
     return J_EE, it, converged
 
 
-def _owed(W, J_EE, A, B):
+def _owed(W, J_EE, A, B, n_u):
     """The inhibition W asks for and the circuit does not give, >= 0."""
-    return np.maximum(J_EE - A @ B - W, 0.0)
+    return np.maximum(J_EE - paths(A, B, n_u) - W, 0.0)
 
 
-def _fit(W, A, B, masks, alpha, max_iter, tol, history, progress):
+def _fit(W, A, B, n_u, masks, alpha, max_iter, tol, history, progress):
     """Steps 4-5 once, then the connection floor: J_EE, sweeps, converged,
     weights floored."""
-    J_EE, it1, ok1 = _descend(W, A, B, *masks, alpha, None, max_iter, tol,
+    J_EE, it1, ok1 = _descend(W, A, B, n_u, masks, alpha, None, max_iter, tol,
                               history, progress, "refinement")
-    J_EE, it2, ok2 = _descend(W, A, B, *masks, 0.0, J_EE > 0, max_iter, tol,
-                              history, progress, "debiasing")
+    J_EE, it2, ok2 = _descend(W, A, B, n_u, masks, 0.0, J_EE > 0, max_iter,
+                              tol, history, progress, "debiasing")
     return J_EE, it1 + it2, ok1 and ok2, apply_floor(J_EE, A, B)
 
 
@@ -149,7 +152,8 @@ def _refine(W, A, B, mask_a, mask_b, alpha, n_u, max_iter, tol, history,
     masks = (mask_a, mask_b)
 
     def fit():
-        return _fit(W, A, B, masks, alpha, max_iter, tol, history, progress)
+        return _fit(W, A, B, n_u, masks, alpha, max_iter, tol, history,
+                    progress)
 
     J_EE, n_iter, converged, floored = fit()
     restarted = 0
@@ -158,9 +162,9 @@ def _refine(W, A, B, mask_a, mask_b, alpha, n_u, max_iter, tol, history,
         if not silent.size:
             break
         tell("new starts for emptied interneurons")
-        started = restart(_owed(W, J_EE, A, B), A, B, silent[silent < n_u],
-                          floor=RESTART_RTOL)
-        owed = _owed(W, J_EE, A, B)
+        started = restart(_owed(W, J_EE, A, B, n_u), A, B,
+                          silent[silent < n_u], floor=RESTART_RTOL)
+        owed = _owed(W, J_EE, A, B, n_u)
         started += restart(owed, A, B, silent[silent >= n_u],
                            l1=TUNED_L1 * float(owed.max()), mask_a=mask_a,
                            mask_b=mask_b, floor=RESTART_RTOL)
@@ -185,18 +189,20 @@ def _first_factorisations(M_u, M_t, n_u, n_t, start, rng, max_iter, tell):
     l1 = TUNED_L1 * float(M_t.max()) if M_t.size and M_t.any() else 0.0
     A_t, B_t = nndsvd(M_t, n_t)
     A_t, B_t = _fill_dead(A_t, B_t, start, rng)
-    A_t, B_t, _ = hals(M_t, A_t, B_t, l1_a=l1, l1_b=l1, max_iter=max_iter,
-                       tol=1e-6)
+    M_sp = sparse.csr_matrix(M_t)
+    A_t, B_t, _ = hals_split(M_sp, A_t, B_t, 0, l1=l1, max_iter=max_iter,
+                             tol=1e-6)
     restarted = 0
     for _ in range(RESTART_ROUNDS):  # the l1 term can empty a pool: start it
         dead = inactive(A_t, B_t)    # again on the largest piece left
-        started = restart(np.maximum(M_t - A_t @ B_t, 0.0), A_t, B_t, dead,
+        started = restart(np.maximum(M_t - paths(A_t, B_t, 0), 0.0), A_t, B_t,
+                          dead,
                           l1=l1, floor=RESTART_RTOL) if dead.size else []
         if not started:
             break
         restarted += len(started)
-        A_t, B_t, _ = hals(M_t, A_t, B_t, l1_a=l1, l1_b=l1,
-                           max_iter=max_iter, tol=1e-6)
+        A_t, B_t, _ = hals_split(M_sp, A_t, B_t, 0, l1=l1, max_iter=max_iter,
+                                 tol=1e-6)
     mask_t_a, mask_t_b = _support(A_t, 0), _support(B_t, 1)
     A_t *= mask_t_a
     B_t *= mask_t_b
@@ -314,7 +320,7 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha
                      advice="raise max_iter")
     circuit = Circuit(J_EE=J_EE, J_EU=A[:, :n_u], J_UE=B[:n_u],
                       J_ET=A[:, n_u:], J_TE=B[n_u:])
-    err = float(np.linalg.norm(W - circuit.effective_weights())
+    err = float(np.linalg.norm(W - J_EE + paths(A, B, n_u))
                 / max(np.linalg.norm(W), 1e-300))
     dens = float(np.count_nonzero(J_EE) / J_EE.size)
     base = ()
