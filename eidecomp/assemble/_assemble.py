@@ -32,12 +32,12 @@ from scipy import sparse
 from ..errors import InputError, warn_stopped
 from ..params import CONNECTION_RTOL, DEFAULT_EI_RATIO, EIRatio
 from ..types import AssemblyReport, BaselineResult, Circuit, Decomposition
-from ._baselines import _prune_to_density
+from ._baselines import NMF_MAX_UNITS, _prune_to_density
 from ._baselines import baselines as score_baselines
 from ._counts import inhibitory_count, split_counts
-from ._nmf import hals, nndsvd
-from ._split_hals import hals_split, paths, sweep_split
-from ._support import apply_floor, inactive, restart
+from ._nmf import EXACT_SVD_MAX, hals, inner_passes, nndsvd
+from ._split_hals import hals_split, paths, sweep_split, tuned_parts
+from ._support import apply_floor, greedy_start, inactive, restart
 
 __all__ = ["assemble"]
 
@@ -99,8 +99,8 @@ def _notes(W, n_i, ratio, A, B, n_u):
             f"connection floor ({CONNECTION_RTOL:g} max|W|)",)
 
 
-def _objective(W, J_EE, A, B, alpha, n_u):
-    R = W - J_EE + paths(A, B, n_u)
+def _objective(W, J_EE, A, B, alpha, n_u, parts=None):
+    R = W - J_EE + paths(A, B, n_u, parts)
     return 0.5 * float(np.vdot(R, R)) + alpha * float(J_EE.sum())
 
 
@@ -111,18 +111,22 @@ def _descend(W, A, B, n_u, masks, alpha, ee_support, max_iter, tol,
     converged = False
     scale = max(0.5 * float(np.vdot(W, W)), 1e-300)  # the objective at zero
     start = len(history)
+    parts = tuned_parts(A, B, n_u)
     while not converged and len(history) - start < max_iter:
-        J_EE = np.maximum(W + paths(A, B, n_u) - alpha, 0.0)
+        J_EE = np.maximum(W + paths(A, B, n_u, parts) - alpha, 0.0)
         if ee_support is not None:
             J_EE *= ee_support
-        sweep_split(J_EE - W, A, B, n_u, mask_a=masks[0], mask_b=masks[1])
-        history.append(_objective(W, J_EE, A, B, alpha, n_u))
+        J_EE -= W                        # the sweep fits J_EE - W ~ A B
+        parts = sweep_split(J_EE, A, B, n_u, mask_a=masks[0],
+                            mask_b=masks[1], B_sp=parts[1])
+        J_EE += W
+        history.append(_objective(W, J_EE, A, B, alpha, n_u, parts))
         if progress is not None:
             progress(stage, len(history) - start, history[-1])
         converged = (len(history) - start > 1
                      and history[-2] - history[-1] <= tol * scale)
     it = len(history) - start
-    J_EE = np.maximum(W + paths(A, B, n_u) - alpha, 0.0)
+    J_EE = np.maximum(W + paths(A, B, n_u, parts) - alpha, 0.0)
     if ee_support is not None:
         J_EE *= ee_support
     return J_EE, it, converged
@@ -176,18 +180,26 @@ def _refine(W, A, B, mask_a, mask_b, alpha, n_u, max_iter, tol, history,
     return J_EE, n_iter, converged, (restarted, floored)
 
 
-def _first_factorisations(M_u, M_t, n_u, n_t, start, rng, max_iter, tell):
+def _first_factorisations(M_u, M_t, n_u, n_t, start, seed, max_iter, tell):
     """Steps 2-3: NNDSVD + HALS of the inhibitory sides of L (dense, untuned
     pools) and of S (l1, tuned pools, their supports then fixed). Returns
     the stacked factors A (E x I), B (I x E), the masks of their supports
     and the number of tuned pools that emptied and were started again."""
     tell("untuned factorisation")
-    A_u, B_u = nndsvd(M_u, n_u)
+    rng = np.random.default_rng(seed)
+    A_u, B_u = nndsvd(M_u, n_u, seed=seed)
     A_u, B_u = _fill_dead(A_u, B_u, start, rng)
-    A_u, B_u, _ = hals(M_u, A_u, B_u, max_iter=max_iter, tol=1e-6)
+    # above EXACT_SVD_MAX, accelerated HALS: its passes reuse the N x N
+    # products, which are all the cost of a sweep with few components
+    inner = (1 if max(M_u.shape) <= EXACT_SVD_MAX
+             else inner_passes(*M_u.shape, n_u))
+    A_u, B_u, _ = hals(M_u, A_u, B_u, max_iter=max_iter, tol=1e-6, inner=inner)
     tell("tuned factorisation")
     l1 = TUNED_L1 * float(M_t.max()) if M_t.size and M_t.any() else 0.0
-    A_t, B_t = nndsvd(M_t, n_t)
+    if max(M_t.shape) <= EXACT_SVD_MAX:
+        A_t, B_t = nndsvd(M_t, n_t)
+    else:  # an SVD with N / 4 components costs more than all the rest
+        A_t, B_t = greedy_start(M_t, n_t, l1, RESTART_RTOL)
     A_t, B_t = _fill_dead(A_t, B_t, start, rng)
     M_sp = sparse.csr_matrix(M_t)
     A_t, B_t, _ = hals_split(M_sp, A_t, B_t, 0, l1=l1, max_iter=max_iter,
@@ -216,7 +228,11 @@ def _scored_baselines(W, n_i, circuit, err, dens, max_iter):
     is denser (a comparison at equal density)."""
     base = score_baselines(W, n_i, circuit_error=err, circuit_density=dens,
                            max_iter=max_iter)
-    nmf = next(b for b in base if b.name == "nmf")
+    nmf = next((b for b in base if b.name == "nmf"), None)
+    if nmf is None:
+        return base, (f"baseline (d), a plain nonnegative factorisation, was "
+                      f"not scored above {NMF_MAX_UNITS} units (its dense "
+                      "factorisation costs about N^3 / 2 per sweep)",)
     if dens > nmf.ee_density:
         J = _prune_to_density(circuit.J_EE, nmf.ee_density)
         pruned = J - circuit.J_EI @ circuit.J_IE
@@ -225,7 +241,7 @@ def _scored_baselines(W, n_i, circuit, err, dens, max_iter):
             n_i, float(np.linalg.norm(W - pruned)
                        / max(np.linalg.norm(W), 1e-300)),
             float(np.count_nonzero(J) / J.size)),)
-    return base
+    return base, ()
 
 
 def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha=None,
@@ -293,7 +309,6 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha
     M_u = np.maximum(-L, 0.0)
     M_t = np.maximum(-S, 0.0)
     n_u, n_t, rule = split_counts(n_i, untuned_share, dec.rank, bool(M_t.any()))
-    rng = np.random.default_rng(seed)
     alpha = ALPHA_DEFAULT * scale if alpha is None else float(alpha)
     if not np.isfinite(alpha) or alpha < 0:
         raise InputError(f"alpha must be a nonnegative number, got {alpha!r}")
@@ -304,7 +319,8 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha
             progress(stage, 0, float("nan"))
 
     A, B, mask_a, mask_b, first_starts = _first_factorisations(
-        M_u, M_t, n_u, n_t, start, rng, max_iter, tell)
+        M_u, M_t, n_u, n_t, start, seed, max_iter, tell)
+    A = np.asfortranarray(A)   # the sweeps update A by columns
 
     # 4-5. joint refinement, then debiasing on the support of J_EE
     history = []
@@ -323,14 +339,15 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha
     err = float(np.linalg.norm(W - J_EE + paths(A, B, n_u))
                 / max(np.linalg.norm(W), 1e-300))
     dens = float(np.count_nonzero(J_EE) / J_EE.size)
-    base = ()
+    base, base_notes = (), ()
     if baselines:
         tell("baselines")
-        base = _scored_baselines(W, n_i, circuit, err, dens, max_iter)
+        base, base_notes = _scored_baselines(W, n_i, circuit, err, dens,
+                                             max_iter)
     report = AssemblyReport(relative_error=err, ee_density=dens,
                             share_rule=rule, baselines=base, n_iter=n_iter,
                             converged=converged, history=tuple(history),
-                            notes=_notes(W, n_i, ratio, A, B, n_u),
+                            notes=_notes(W, n_i, ratio, A, B, n_u) + base_notes,
                             restarted=int(first_starts + counts[0]),
                             floored=int(counts[1]))
     params = {"ei_ratio": ratio.text, "untuned_share": untuned_share,

@@ -20,7 +20,8 @@ k components, instead of O(m n k + m k^2).
 import numpy as np
 from scipy import sparse
 
-__all__ = ["hals_split", "objective_split", "paths", "sweep_split"]
+__all__ = ["hals_split", "objective_split", "paths", "sweep_split",
+           "tuned_parts"]
 
 _DEAD_RTOL = 1e-12  # as in _nmf: a component whose Gram diagonal is below
                    # this x the largest is dead this sweep
@@ -91,12 +92,31 @@ def _tuned_base(part, j, l1, mask, along_rows):
     return idx, vec[idx]
 
 
+def _assemble_sparse(parts, length, by_columns):
+    """A CSC (columns) or CSR (rows) matrix from per-component (index,
+    value) pairs, in O(nnz)."""
+    sizes = np.fromiter((idx.size for idx, _ in parts), dtype=np.int64,
+                        count=len(parts))
+    ptr = np.concatenate([[0], np.cumsum(sizes)])
+    idx = (np.concatenate([i for i, _ in parts]) if parts
+           else np.zeros(0, dtype=np.int64))
+    val = np.concatenate([v for _, v in parts]) if parts else np.zeros(0)
+    if by_columns:
+        return sparse.csc_matrix((val, idx, ptr), shape=(length, len(parts)))
+    return sparse.csr_matrix((val, idx, ptr), shape=(len(parts), length))
+
+
 def _update_a(A, MBt_u, MBt_t, G, n_u, l1, mask_a):
-    """Every column of A in turn, each the exact minimiser of its problem."""
+    """Every column of A in turn, each the exact minimiser of its problem.
+    Returns the tuned columns as a CSC matrix."""
     dead = _DEAD_RTOL * G.diagonal().max()
+    parts = []
     for j, (nz, g) in enumerate(_columns(G)):
         d = G[j, j]
         if d <= dead or d == 0:
+            if j >= n_u:
+                keep = np.flatnonzero(A[:, j])
+                parts.append((keep, A[keep, j]))
             continue
         if j < n_u:
             col = (MBt_u[:, j] - A[:, nz] @ g + A[:, j] * d) / d
@@ -107,17 +127,26 @@ def _update_a(A, MBt_u, MBt_t, G, n_u, l1, mask_a):
             continue
         rows, base = _tuned_base(MBt_t, j - n_u, l1,
                                  None if mask_a is None else mask_a[:, j], True)
-        val = base - A[rows[:, None], nz] @ g + A[rows, j] * d - l1
+        val = np.maximum(base - A[rows[:, None], nz] @ g + A[rows, j] * d - l1,
+                         0.0) / d
         A[:, j] = 0.0
-        A[rows, j] = np.maximum(val, 0.0) / d
+        A[rows, j] = val
+        pos = val > 0
+        parts.append((rows[pos], val[pos]))
+    return _assemble_sparse(parts, A.shape[0], True)
 
 
 def _update_b(B, AtM_u, AtM_t, G, n_u, l1, mask_b):
-    """Every row of B in turn (G is symmetric: its row j is its column j)."""
+    """Every row of B in turn (G is symmetric: its row j is its column j).
+    Returns the tuned rows as a CSR matrix."""
     dead = _DEAD_RTOL * G.diagonal().max()
+    parts = []
     for j, (nz, g) in enumerate(_columns(G)):
         d = G[j, j]
         if d <= dead or d == 0:
+            if j >= n_u:
+                keep = np.flatnonzero(B[j])
+                parts.append((keep, B[j, keep]))
             continue
         if j < n_u:
             row = (AtM_u[j] - g @ B[nz] + B[j] * d) / d
@@ -128,15 +157,27 @@ def _update_b(B, AtM_u, AtM_t, G, n_u, l1, mask_b):
             continue
         cols, base = _tuned_base(AtM_t, j - n_u, l1,
                                  None if mask_b is None else mask_b[j], False)
-        val = base - g @ B[nz[:, None], cols] + B[j, cols] * d - l1
+        val = np.maximum(base - g @ B[nz[:, None], cols] + B[j, cols] * d - l1,
+                         0.0) / d
         B[j] = 0.0
-        B[j, cols] = np.maximum(val, 0.0) / d
+        B[j, cols] = val
+        pos = val > 0
+        parts.append((cols[pos], val[pos]))
+    return _assemble_sparse(parts, B.shape[1], False)
 
 
-def sweep_split(M, A, B, n_u, *, l1=0.0, mask_a=None, mask_b=None):
+def tuned_parts(A, B, n_u):
+    """The tuned columns of A (CSC) and rows of B (CSR)."""
+    return sparse.csc_matrix(A[:, n_u:]), sparse.csr_matrix(B[n_u:])
+
+
+def sweep_split(M, A, B, n_u, *, l1=0.0, mask_a=None, mask_b=None, B_sp=None):
     """One HALS sweep in place over dense untuned (first ``n_u``) and sparse
     tuned components, minimising 0.5 ||M - A B||_F^2 + l1 (sum of the tuned
     factors); the same updates as :func:`eidecomp.assemble._nmf.sweep`.
+
+    ``B_sp`` is B's tuned rows as CSR when the caller has it (the previous
+    sweep returns it). Returns the tuned parts (A_sp, B_sp) after the sweep.
 
     Examples
     --------
@@ -146,26 +187,31 @@ def sweep_split(M, A, B, n_u, *, l1=0.0, mask_a=None, mask_b=None):
     >>> M = A0 @ B0
     >>> A, B = A0 + 0.1, B0 + 0.1
     >>> before = np.linalg.norm(M - A @ B)
-    >>> sweep_split(M, A, B, 1)
+    >>> _ = sweep_split(M, A, B, 1)
     >>> bool(np.linalg.norm(M - A @ B) <= before)
     True
     """
     if A.shape[1] == 0:
-        return
-    B_sp = sparse.csr_matrix(B[n_u:])
+        return tuned_parts(A, B, n_u)
+    if B_sp is None:
+        B_sp = sparse.csr_matrix(B[n_u:])
     MBt_u, MBt_t = _times_bt(M, B, B_sp, n_u)
-    _update_a(A, MBt_u, MBt_t, _gram(B[:n_u], B_sp, n_u, True), n_u, l1, mask_a)
-    A_sp = sparse.csc_matrix(A[:, n_u:])
+    A_sp = _update_a(A, MBt_u, MBt_t, _gram(B[:n_u], B_sp, n_u, True), n_u, l1,
+                     mask_a)
     AtM_u, AtM_t = _at_times(A, A_sp, M, n_u)
-    _update_b(B, AtM_u, AtM_t, _gram(A[:, :n_u], A_sp, n_u, False), n_u, l1,
-              mask_b)
-    _balance(A, B, n_u, l1)
+    B_sp = _update_b(B, AtM_u, AtM_t, _gram(A[:, :n_u], A_sp, n_u, False), n_u,
+                     l1, mask_b)
+    f = _balance(A, B, n_u, l1)[n_u:]
+    A_sp.data *= np.repeat(f, np.diff(A_sp.indptr))
+    B_sp.data /= np.repeat(f, np.diff(B_sp.indptr))
+    return A_sp, B_sp
 
 
 def _balance(A, B, n_u, l1):
     """Rescale each pair (column of A, row of B), product unchanged: equal
     norms for unpenalised pairs, the l1-optimal scale (equal sums) for the
-    penalised tuned ones, so the objective can only fall."""
+    penalised tuned ones, so the objective can only fall. Returns the
+    factors applied to A's columns."""
     na, nb = np.linalg.norm(A, axis=0), np.linalg.norm(B, axis=1)
     if l1 > 0:
         na[n_u:], nb[n_u:] = A[:, n_u:].sum(axis=0), B[n_u:].sum(axis=1)
@@ -174,26 +220,30 @@ def _balance(A, B, n_u, l1):
     f[ok] = np.sqrt(nb[ok] / na[ok])
     A *= f
     B /= f[:, None]
+    return f
 
 
-def paths(A, B, n_u):
+def paths(A, B, n_u, parts=None):
     """A B as a dense array: the untuned part by BLAS, the tuned part as a
-    scipy.sparse product added in place."""
+    scipy.sparse product added in place (``parts``: the tuned parts, when
+    the caller has them)."""
+    A_sp, B_sp = tuned_parts(A, B, n_u) if parts is None else parts
     P = A[:, :n_u] @ B[:n_u]
-    T = (sparse.csc_matrix(A[:, n_u:]) @ sparse.csr_matrix(B[n_u:])).tocoo()
+    T = (A_sp @ B_sp).tocoo()
     P[T.row, T.col] += T.data
     return P
 
 
-def objective_split(M, A, B, n_u, l1=0.0, m_norm2=None):
+def objective_split(M, A, B, n_u, l1=0.0, m_norm2=None, parts=None):
     """0.5 ||M - A B||_F^2 + l1 (sum of the tuned factors), without forming
-    A B when M is sparse: ||M||^2 - 2 <A^T M, B> + <A^T A, B B^T>."""
-    tuned = l1 * (A[:, n_u:].sum() + B[n_u:].sum())
+    A B when M is sparse: ||M||^2 - 2 <A^T M, B> + <A^T A, B B^T>.
+    ``parts`` are the tuned parts (A_sp, B_sp) when the caller has them."""
+    A_sp, B_sp = tuned_parts(A, B, n_u) if parts is None else parts
+    tuned = l1 * (A_sp.sum() + B_sp.sum())
     if not _is_sparse(M):
-        R = M - paths(A, B, n_u)
+        R = M - paths(A, B, n_u, parts=(A_sp, B_sp))
         return 0.5 * float(np.vdot(R, R)) + tuned
     m2 = float(M.multiply(M).sum()) if m_norm2 is None else m_norm2
-    A_sp, B_sp = sparse.csc_matrix(A[:, n_u:]), sparse.csr_matrix(B[n_u:])
     AtM_u, AtM_t = _at_times(A, A_sp, M, n_u)
     cross = float(np.vdot(AtM_u, B[:n_u]) + AtM_t.multiply(B_sp).sum())
     gram = float(np.vdot(_gram(A[:, :n_u], A_sp, n_u, False),
@@ -206,14 +256,16 @@ def hals_split(M, A, B, n_u, *, l1=0.0, mask_a=None, mask_b=None,
     """:func:`eidecomp.assemble._nmf.hals` with dense untuned and sparse
     tuned components (l1 on the tuned ones only); M dense or scipy.sparse.
     Returns A, B (copies) and the same ``info``."""
-    A = np.array(A, dtype=float, copy=True)
+    A = np.array(A, dtype=float, copy=True, order="F")  # columns contiguous
     B = np.array(B, dtype=float, copy=True)
     m2 = float(M.multiply(M).sum()) if _is_sparse(M) else None
-    history = [objective_split(M, A, B, n_u, l1, m2)]
+    parts = tuned_parts(A, B, n_u)
+    history = [objective_split(M, A, B, n_u, l1, m2, parts)]
     converged = A.shape[1] == 0 or history[0] == 0
     while not converged and len(history) <= max_iter:
-        sweep_split(M, A, B, n_u, l1=l1, mask_a=mask_a, mask_b=mask_b)
-        history.append(objective_split(M, A, B, n_u, l1, m2))
+        parts = sweep_split(M, A, B, n_u, l1=l1, mask_a=mask_a, mask_b=mask_b,
+                            B_sp=parts[1])
+        history.append(objective_split(M, A, B, n_u, l1, m2, parts))
         converged = history[-2] - history[-1] <= tol * history[0]
     return A, B, {"n_iter": len(history) - 1, "converged": converged,
                   "history": history}

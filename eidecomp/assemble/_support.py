@@ -10,7 +10,7 @@ import numpy as np
 
 from ..params import CONNECTION_RTOL
 
-__all__ = ["apply_floor", "inactive", "restart"]
+__all__ = ["apply_floor", "greedy_start", "inactive", "restart"]
 
 _POWER_STEPS = 10  # alternating steps of a new start's rank-one fit
 
@@ -41,11 +41,10 @@ def inactive(A, B):
     return np.flatnonzero(~A.any(axis=0) | ~B.any(axis=1))
 
 
-def _rank_one(R, l1):
+def _rank_one(R, l1, col):
     """The largest nonnegative rank-one piece a b^T of R >= 0 around its
-    strongest column, by alternating nonnegative least squares with an l1
+    column ``col``, by alternating nonnegative least squares with an l1
     weight (a few steps; each touches only the rows and columns in play)."""
-    col = int(np.argmax(np.einsum("ij,ij->j", R, R)))
     a = R[:, col].copy()
     b = np.zeros(R.shape[1])
     for _ in range(_POWER_STEPS):
@@ -74,9 +73,10 @@ def restart(R, A, B, which, *, l1=0.0, mask_a=None, mask_b=None,
     that got a start; the others found nothing above ``floor`` left in R.
     """
     R = np.array(R, dtype=float, copy=True)
+    norms = np.einsum("ij,ij->j", R, R)   # kept up to date below
     started = []
     for t in which:
-        a, b = _rank_one(R, l1)
+        a, b = _rank_one(R, l1, int(np.argmax(norms)))
         if a.max(initial=0.0) * b.max(initial=0.0) < floor:
             break
         A[:, t], B[t] = a, b
@@ -87,5 +87,16 @@ def restart(R, A, B, which, *, l1=0.0, mask_a=None, mask_b=None,
         rows, cols = np.flatnonzero(a), np.flatnonzero(b)
         block = R[np.ix_(rows, cols)] - np.outer(a[rows], b[cols])
         R[np.ix_(rows, cols)] = np.maximum(block, 0.0)
+        norms[cols] = np.einsum("ij,ij->j", R[:, cols], R[:, cols])
         started.append(int(t))
     return started
+
+
+def greedy_start(M, k, l1, floor):
+    """k nonnegative components of M >= 0 taken one after the other, each the
+    largest rank-one piece of what the previous ones left (:func:`restart`
+    from empty factors): a start for a sparse factorisation that needs no
+    SVD and whose components are as sparse as M's pieces. Returns A, B."""
+    A, B = np.zeros((M.shape[0], k)), np.zeros((k, M.shape[1]))
+    restart(M, A, B, range(k), l1=l1, floor=floor)
+    return A, B
