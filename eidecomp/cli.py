@@ -98,7 +98,7 @@ def _add_input(p, matrix_help, kernel_help):
 def _get_parser():
     from .decompose import METHODS, SOLVERS
     from .export import FORMATS
-    from .pipeline import DECOMPOSE_ENGINES, SIMULATORS
+    from .pipeline import DECOMPOSE_ENGINES, SIMULATE_MODELS, SIMULATORS
 
     parser = _Parser(prog="eidecomp", description=(
         "Turn a signed lateral weight matrix W[post, pre] into low-rank and "
@@ -213,10 +213,11 @@ def _get_parser():
     demo.add_argument("-q", "--quiet", action="store_true",
                       help="no progress lines")
     sim = sub.add_parser("simulate", help="run the circuit and the original "
-                         "network", description="Simulate the circuit's linear "
-                         "rate model and the original network on the same drive, "
+                         "network", description="Simulate the circuit's rate "
+                         "model and the original network on the same drive, "
                          "and print how closely the circuit's E rates match the "
-                         "fixed points of W and of W_eff.")
+                         "fixed points of W and of W_eff (linear) or the "
+                         "original's final rates (threshold-linear).")
     sim.add_argument("bundle", metavar="CIRCUIT", help="a circuit bundle folder")
     sim.add_argument("--engine", choices=tuple(SIMULATORS), default="internal",
                      help="internal (scipy's solve_ivp), nest or brian2")
@@ -226,6 +227,19 @@ def _get_parser():
     _add_time_constants(sim, "")
     sim.add_argument("--seed", type=_count, default=0,
                      help="seed of the random drive (default 0)")
+    sim.add_argument("--model", choices=SIMULATE_MODELS, default=SIMULATE_MODELS[0],
+                     help="linear (default): runs to the fixed points, which "
+                     "needs stable linear dynamics; threshold-linear: E units "
+                     "[.]_+, a run of --duration whose final rates are "
+                     "compared, stable or not (internal engine)")
+    sim.add_argument("--gain", type=_positive_float, default=1.0,
+                     help="scale W by this gain (default 1), and the circuit "
+                     "with it: J_EE by the gain, J_EI and J_IE by its square "
+                     "root (Dale's law kept)")
+    sim.add_argument("--duration", type=_positive_float, metavar="MS",
+                     help="simulated time in ms (default: 40 time constants of "
+                     "the slowest mode; 40 of the slower population's when the "
+                     "linear dynamics are unstable)")
     return parser
 
 
@@ -408,8 +422,14 @@ def _circuit_table(result):
     else:
         lines.append("stable up to tau_I/tau_E: "
                      + ("beyond 100" if ratio is None else f"{ratio:.3g}"))
+    if met.get("restarted"):
+        lines.append(f"interneurons started again after losing their inputs "
+                     f"or targets: {met['restarted']}")
+    if met.get("floored"):
+        lines.append(f"weights below the connection floor zeroed: "
+                     f"{met['floored']}")
     lines.extend(f"note: {note}" for note in met.get("notes", ()))
-    if met.get("silent_interneurons") and not met.get("notes"):
+    if met.get("silent_interneurons"):
         lines.append(f"silent interneurons (no input or no target): "
                      f"{met['silent_interneurons']}")
     if not met["converged"]:
@@ -478,22 +498,44 @@ def _demo(args):
     return 0
 
 
+def _gain_limit(g_star):
+    if math.isinf(g_star):
+        return "the original is stable at every gain"
+    return f"the original is stable below {g_star:.4g}"
+
+
 def _simulate(args):
     from .pipeline import run_simulate
 
     r = run_simulate(args.bundle, engine=args.engine, drive=args.input,
-                     tau_e=args.tau_e, tau_i=args.tau_i, seed=args.seed)
+                     tau_e=args.tau_e, tau_i=args.tau_i, seed=args.seed,
+                     gain=args.gain, model=args.model, duration=args.duration)
     rows = [
         ("engine", r["engine"]),
+        ("model", r["model"]),
+        ("gain", f"{r['gain']:g} ({_gain_limit(r['largest_stable_gain'])})"),
         ("drive", r["drive"]),
         ("tau_E, tau_I", f"{r['tau_e_ms']:g} ms, {r['tau_i_ms']:g} ms"),
         ("simulated", f"{r['t_ms']:.4g} ms"),
-        ("circuit E rates vs fixed point of W_eff",
-         f"{r['circuit_vs_fixed_point_W_eff']:.2e}"),
-        ("circuit E rates vs fixed point of W", f"{r['circuit_vs_fixed_point_W']:.2e}"),
-        ("original network vs fixed point of W",
-         f"{r['original_vs_fixed_point_W']:.2e}"),
-        ("circuit vs original network", f"{r['circuit_vs_original']:.2e}"),
+        ("linear growth rate: original, circuit",
+         f"{r['original_growth_rate']:.3g}, {r['circuit_growth_rate']:.3g} per ms"),
+    ]
+    if r["model"] == "linear":
+        rows += [
+            ("circuit E rates vs fixed point of W_eff",
+             f"{r['circuit_vs_fixed_point_W_eff']:.2e}"),
+            ("circuit E rates vs fixed point of W",
+             f"{r['circuit_vs_fixed_point_W']:.2e}"),
+            ("original network vs fixed point of W",
+             f"{r['original_vs_fixed_point_W']:.2e}"),
+        ]
+    else:
+        rows += [("rate of change at the end: original, circuit",
+                  f"{r['original_rate_of_change']:.2e}, "
+                  f"{r['circuit_rate_of_change']:.2e} per ms")]
+    rows += [
+        ("circuit vs original network (final E rates)" if r["model"] != "linear"
+         else "circuit vs original network", f"{r['circuit_vs_original']:.2e}"),
         ("||W - W_eff|| / ||W||", f"{r['reconstruction_error']:.2e}"),
     ]
     print(_table(rows))

@@ -19,6 +19,13 @@ tau dr/dt = -r + f(W_full r + H) with W_full = [[J_EE, -J_EI], [J_IE, 0]].
   interneurons' input J_IE r_E is >= 0 because J_IE >= 0 and r_E >= 0, so
   r_I = J_IE r_E at steady state and the E units see W_eff exactly.
 
+* Stability at any size: the spectral abscissa (largest real part of the
+  spectrum) is numpy.linalg.eigvals' up to :data:`DENSE_MAX_UNITS` units
+  and ARPACK's (scipy.sparse.linalg.eigs, which='LR') above, on the
+  Jacobian as a LinearOperator built from the blocks; the largest stable
+  tau_I / tau_E is bisected on it. Scaling W by a gain g scales the
+  eigenvalues of W, so -I + g W is stable iff g max Re eig(W) < 1.
+
 Every function takes arrays or a Circuit; simulation integrates with
 ``scipy.integrate.solve_ivp``.
 """
@@ -30,9 +37,11 @@ from scipy.integrate import solve_ivp
 
 from .errors import InputError
 
-__all__ = ["compare_with_original", "effective_from_full", "fixed_point",
-           "full_matrix", "jacobian", "max_stable_tau_ratio", "random_drive",
-           "simulate", "spectral_abscissa", "stability_summary"]
+__all__ = ["DENSE_MAX_UNITS", "METHODS", "MODELS", "circuit_abscissa",
+           "compare_with_original", "effective_from_full", "fixed_point",
+           "full_matrix", "jacobian", "jacobian_operator", "largest_stable_gain",
+           "max_stable_tau_ratio", "random_drive", "scaled_circuit", "simulate",
+           "spectral_abscissa", "stability_summary"]
 
 
 def full_matrix(circuit):
@@ -77,19 +86,245 @@ def jacobian(W_full, n_e, tau_e=1.0, tau_i=1.0):
     return (np.asarray(W_full, float) - np.eye(W_full.shape[0])) / tau[:, None]
 
 
-def spectral_abscissa(A):
-    """Largest real part of the eigenvalues of A."""
-    return float(np.max(np.linalg.eigvals(A).real)) if A.size else -np.inf
+# --- the rightmost eigenvalue: dense when cheap, ARPACK on an operator --------
+
+DENSE_MAX_UNITS = 500
+"""Up to this many units the spectral abscissa is numpy.linalg.eigvals'
+(a dense eigenproblem of 500 x 500 takes about 0.1 s); above it, ARPACK's
+(scipy.sparse.linalg.eigs, which='LR') on a linear operator."""
+
+DENSE_FALLBACK_UNITS = 3000  # ARPACK failed: dense up to this size, else warn
+_ARPACK_TOL = 1e-10
+_ARPACK_TRIES = ((6, 30, 30), (12, 60, 300), (24, 120, 600))
+"""(Ritz values k, Krylov basis ncv, restarts) of each ARPACK try. The
+first is cheap and enough where the rightmost eigenvalue stands out of the
+bulk (planted circuits: 90-300 products); a rightmost eigenvalue on the
+rim of a dense disc (random matrices) needs the larger basis, with which it
+converges 3-6 times faster than with a small one. k >= 2 keeps both members
+of a complex pair."""
+_SPARSE_BELOW = 0.25  # a block denser than this is multiplied as an array
 
 
-def max_stable_tau_ratio(circuit, *, lo=1e-3, hi=1e3, n_grid=61, rtol=1e-4):
+def _operand(M):
+    """A block as it is multiplied fastest: CSR when sparse enough."""
+    from scipy import sparse
+
+    if sparse.issparse(M):
+        return sparse.csr_array(M, dtype=float)
+    M = np.asarray(M, dtype=float)
+    if M.size and np.count_nonzero(M) < _SPARSE_BELOW * M.size:
+        return sparse.csr_array(M)
+    return M
+
+
+def _circuit_blocks(circuit):
+    return _operand(circuit.J_EE), _operand(circuit.J_EI), _operand(circuit.J_IE)
+
+
+def _operator(blocks, tau_e, tau_i):
+    from scipy.sparse.linalg import LinearOperator
+
+    EE, EI, IE = blocks
+    n, m = EE.shape[0], EI.shape[1]
+    _taus(1, 1, tau_e, tau_i)  # checks both
+
+    def apply(x):
+        xe, xi = x[:n], x[n:]
+        ye = EE @ xe - xe
+        if m:
+            ye = ye - EI @ xi
+        return np.concatenate([ye / tau_e, (IE @ xe - xi) / tau_i])
+
+    return LinearOperator((n + m, n + m), matvec=apply, matmat=apply, dtype=float)
+
+
+def jacobian_operator(J_EE, J_EI, J_IE, *, tau_e=1.0, tau_i=1.0):
+    """The Jacobian T^-1 (-I + W_full) as a scipy LinearOperator.
+
+    Built from the blocks (magnitudes, Dale's law gives the signs), never
+    forming the (N + n_I)^2 matrix: a product costs one pass over J_EE,
+    J_EI and J_IE, each held as a CSR matrix when less than a quarter of
+    its entries are nonzero.
+
+    Parameters
+    ----------
+    J_EE : array or sparse (N, N)
+    J_EI : array or sparse (N, n_I)
+    J_IE : array or sparse (n_I, N)
+    tau_e, tau_i : float
+        Time constants of the E units and of the interneurons.
+
+    Returns
+    -------
+    scipy.sparse.linalg.LinearOperator of shape (N + n_I, N + n_I)
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> A = jacobian_operator(np.array([[2.0]]), np.array([[1.0]]),
+    ...                       np.array([[2.0]]), tau_i=0.5)
+    >>> A @ np.eye(2)
+    array([[ 1., -1.],
+           [ 4., -2.]])
+    """
+    blocks = tuple(_operand(M) for M in (J_EE, J_EI, J_IE))
+    n, m = blocks[0].shape[0], blocks[1].shape[1]
+    if blocks[0].shape != (n, n) or blocks[1].shape != (n, m) \
+            or blocks[2].shape != (m, n):
+        raise InputError(f"block shapes J_EE {blocks[0].shape}, J_EI "
+                         f"{blocks[1].shape}, J_IE {blocks[2].shape} do not fit")
+    return _operator(blocks, tau_e, tau_i)
+
+
+def _dense(A):
+    if isinstance(A, np.ndarray):
+        return A
+    if hasattr(A, "toarray"):
+        return A.toarray()
+    return A @ np.eye(A.shape[1])
+
+
+def _eigs_try(A, v0, k, ncv, maxiter):
+    """One ARPACK run: (the rightmost eigenvalue's real part or None, the
+    eigenvalues that converged)."""
+    from scipy.sparse.linalg import ArpackNoConvergence, eigs
+
+    n = A.shape[0]
+    k = min(k, n - 2)
+    try:
+        vals = eigs(A, k=k, which="LR", v0=v0, tol=_ARPACK_TOL,
+                    ncv=min(n, max(ncv, 2 * k + 1)), maxiter=maxiter,
+                    return_eigenvectors=False)
+    except ArpackNoConvergence as exc:
+        return None, exc.eigenvalues
+    return float(np.max(vals.real)), vals
+
+
+def _abscissa_arpack(A, seed):
+    """ARPACK's rightmost eigenvalue, retried with larger bases; then dense
+    (small enough) or a warning and the best converged value."""
+    import warnings
+
+    from .errors import SolverFallbackWarning, warn_stopped
+
+    n = A.shape[0]
+    v0 = np.random.default_rng(seed).standard_normal(n)
+    partial = np.empty(0)
+    for k, ncv, maxiter in _ARPACK_TRIES:
+        found, partial = _eigs_try(A, v0, k, ncv, maxiter)
+        if found is not None:
+            return found
+    if n <= DENSE_FALLBACK_UNITS:
+        warnings.warn(f"ARPACK did not converge on the {n}-unit spectral "
+                      "abscissa; solved it densely (numpy.linalg.eigvals)",
+                      SolverFallbackWarning, stacklevel=4)
+        return _abscissa_dense(A)
+    warn_stopped("ARPACK (spectral abscissa)",
+                 sum(t[2] for t in _ARPACK_TRIES), unit="restarts",
+                 detail=f"{len(partial)} eigenvalues converged",
+                 advice="the value is a lower bound", stacklevel=4)
+    return float(np.max(partial.real)) if len(partial) else float("nan")
+
+
+def _abscissa_dense(A):
+    return float(np.max(np.linalg.eigvals(_dense(A)).real))
+
+
+METHODS = ("auto", "dense", "arpack")
+"""How :func:`spectral_abscissa` solves: auto picks dense up to
+:data:`DENSE_MAX_UNITS` units and ARPACK above."""
+
+
+def _abscissa(A, method="auto", seed=0):
+    """The spectral abscissa of an array, sparse matrix or operator."""
+    if method not in METHODS:
+        raise InputError(f"unknown eigenvalue method {method!r} (choose from "
+                         f"{', '.join(METHODS)})")
+    n = A.shape[0]
+    if n == 0:
+        return -np.inf
+    if method == "dense" or (method == "auto" and n <= DENSE_MAX_UNITS) \
+            or n <= 2 * _ARPACK_TRIES[0][0]:
+        return _abscissa_dense(A)
+    if isinstance(A, np.ndarray):
+        A = _operand(A)
+    return _abscissa_arpack(A, seed)
+
+
+def spectral_abscissa(A, *, method="auto", seed=0):
+    """Largest real part of the eigenvalues of A.
+
+    Parameters
+    ----------
+    A : ndarray, scipy sparse matrix or LinearOperator (n, n)
+    method : "auto", "dense" or "arpack"
+        dense: numpy.linalg.eigvals of the whole matrix; arpack: the
+        rightmost of the eigenvalues with largest real part found by
+        scipy.sparse.linalg.eigs (which='LR', tol 1e-10): 6 of them in a
+        Krylov basis of 30, and if that does not converge within 30
+        restarts, 12 in 60, then 24 in 120 (:data:`_ARPACK_TRIES`); if none
+        converges, dense up to 3000 units (SolverFallbackWarning), else a
+        ConvergenceWarning and the largest converged value (a lower bound;
+        nan if none); auto: dense up to :data:`DENSE_MAX_UNITS` units,
+        ARPACK above. Matrices of 12 units or fewer are always dense.
+    seed : int
+        Seed of ARPACK's start vector (numpy Generator).
+
+    Returns
+    -------
+    float (-inf for an empty matrix)
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> spectral_abscissa(np.array([[-1.0, 5.0], [0.0, -2.0]]))
+    -1.0
+    """
+    return _abscissa(A, method, seed)
+
+
+def _crossing(growth, a, b, rtol):
+    """Shrink [a, b] (growth(a) < 0 <= growth(b)) to a factor 1 + rtol:
+    Brent's method on log(ratio) (scipy.optimize.brentq, bisection
+    safeguarded by interpolation), then plain bisection on the bracket of
+    the ratios it tried, if that is still wider; returns the stable end."""
+    from scipy.optimize import brentq
+
+    seen, ends = {}, {np.log(a): a, np.log(b): b}  # the ends: solved already
+
+    def f(log_t):
+        t = ends.get(log_t) or float(np.exp(log_t))
+        seen[t] = growth(t)
+        return seen[t]
+
+    try:
+        brentq(f, *ends, xtol=0.49 * np.log1p(rtol))
+    except (ValueError, RuntimeError):  # a nan abscissa: bisection below
+        pass
+    a = max([t for t, g in seen.items() if g < 0 and t < b] + [a])
+    b = min([t for t, g in seen.items() if g >= 0 and t > a] + [b])
+    while b / a - 1 > rtol:
+        mid = float(np.sqrt(a * b))
+        a, b = (mid, b) if growth(mid) < 0 else (a, mid)
+    return float(a)
+
+
+def max_stable_tau_ratio(circuit, *, lo=1e-3, hi=1e3, n_grid=13, rtol=1e-4,
+                         method="auto", seed=0):
     """Largest tau_I / tau_E up to which the linear circuit stays stable.
 
-    Scans a log grid of ratios from ``lo`` to ``hi`` and bisects the first
-    crossing from stable to unstable. Returns ``inf`` if every ratio on the
-    grid is stable, and 0.0 if the smallest is already unstable (then the
-    original network is itself unstable: the ratio does not matter as
-    tau_I -> 0, where the circuit's Jacobian tends to that of W_eff).
+    Checks ``n_grid`` ratios spaced evenly in log from ``lo`` to ``hi``,
+    smallest first, until one is unstable, then narrows the crossing
+    between it and the last stable one to a factor 1 + ``rtol`` by
+    bracketed root finding on the spectral abscissa (Brent's method, whose
+    worst case is bisection). Each check is the spectral abscissa of the
+    Jacobian as an operator (:func:`jacobian_operator`;
+    :func:`spectral_abscissa` with ``method`` and ``seed``). Returns
+    ``inf`` if every ratio checked is stable, and 0.0 if the smallest is
+    already unstable (then the original network is itself unstable: the
+    ratio does not matter as tau_I -> 0, where the circuit's Jacobian tends
+    to that of W_eff). A window of instability between two stable grid
+    ratios is not seen.
 
     >>> import numpy as np
     >>> from eidecomp.types import Circuit
@@ -99,23 +334,47 @@ def max_stable_tau_ratio(circuit, *, lo=1e-3, hi=1e3, n_grid=61, rtol=1e-4):
     >>> max_stable_tau_ratio(c)    # trace and determinant stay stable
     inf
     """
-    W_full, n_e = full_matrix(circuit)
+    return _stable_ratio(circuit, lo, hi, n_grid, rtol, method, seed, {})
+
+
+def _stable_ratio(circuit, lo, hi, n_grid, rtol, method, seed, known):
+    """max_stable_tau_ratio, with ``known``: ratio -> abscissa already
+    solved (filled in as it goes)."""
+    if not (0 < lo < hi < np.inf and n_grid >= 2 and rtol > 0):
+        raise InputError(f"the tau ratio scan needs 0 < lo < hi, n_grid >= 2 "
+                         f"and rtol > 0, got lo={lo}, hi={hi}, n_grid={n_grid}, "
+                         f"rtol={rtol}")
+    blocks = _circuit_blocks(circuit)
 
     def growth(ratio):
-        return spectral_abscissa(jacobian(W_full, n_e, 1.0, ratio))
+        if ratio not in known:
+            known[ratio] = _abscissa(_operator(blocks, 1.0, ratio), method, seed)
+        return known[ratio]
 
-    grid = np.geomspace(lo, hi, n_grid)
-    stable = [growth(x) < 0 for x in grid]
-    if not stable[0]:
+    grid = [float(x) for x in 10.0 ** np.linspace(np.log10(lo), np.log10(hi),
+                                                   n_grid)]
+    if not growth(grid[0]) < 0:
         return 0.0
-    if all(stable):
+    j = next((j for j in range(1, n_grid) if not growth(grid[j]) < 0), None)
+    if j is None:
         return float("inf")
-    j = stable.index(False)
-    a, b = grid[j - 1], grid[j]
-    while b / a - 1 > rtol:
-        mid = np.sqrt(a * b)
-        a, b = (mid, b) if growth(mid) < 0 else (a, mid)
-    return float(a)
+    return _crossing(growth, grid[j - 1], grid[j], rtol)
+
+
+def circuit_abscissa(circuit, *, tau_e=1.0, tau_i=1.0, method="auto", seed=0):
+    """Spectral abscissa of a Circuit's linear dynamics (per unit time of
+    the taus), from its Jacobian operator.
+
+    >>> import numpy as np
+    >>> from eidecomp.types import Circuit
+    >>> c = Circuit(J_EE=np.array([[0.5]]), J_EU=np.array([[1.0]]),
+    ...             J_UE=np.array([[1.0]]), J_ET=np.zeros((1, 0)),
+    ...             J_TE=np.zeros((0, 1)))
+    >>> circuit_abscissa(c)    # eigenvalues -0.75 +- i 0.97
+    -0.75
+    """
+    op = _operator(_circuit_blocks(circuit), tau_e, tau_i)
+    return _abscissa(op, method, seed)
 
 
 def simulate(W_full, h, *, n_e=None, tau_e=1.0, tau_i=1.0, t_max=None,
@@ -174,16 +433,20 @@ def simulate(W_full, h, *, n_e=None, tau_e=1.0, tau_i=1.0, t_max=None,
 
 # --- summaries the jobs record ---------------------------------------------------
 
-STABILITY_MAX_UNITS = 800  # the tau scan solves dozens of dense eigenproblems
-STABILITY_SCAN = (1e-2, 1e2, 17)  # tau_I / tau_E from, to, grid points
+STABILITY_SCAN = (1e-2, 1e2, 9)  # tau_I / tau_E from, to, grid ratios (then bisection)
+
+
+def _method_name(n):
+    return ("numpy.linalg.eigvals" if n <= DENSE_MAX_UNITS
+            else "ARPACK (scipy.sparse.linalg.eigs, which='LR')")
 
 
 def stability_summary(circuit, W):
     """What circuit.json records of stability: the spectral abscissa of the
     original network (-I + W) and of the circuit at equal time constants,
     and the largest stable tau_I / tau_E over :data:`STABILITY_SCAN`
-    (None: stable over the whole range). Above
-    :data:`STABILITY_MAX_UNITS` units the scan is skipped and says so.
+    (None: stable over the whole range), at any size: dense eigenvalues up
+    to :data:`DENSE_MAX_UNITS` units, ARPACK on the Jacobian operator above.
 
     >>> import numpy as np
     >>> from eidecomp.types import Circuit
@@ -195,23 +458,18 @@ def stability_summary(circuit, W):
     (-1.5, None)
     """
     lo, hi, n_grid = STABILITY_SCAN
+    a_orig = spectral_abscissa(np.asarray(W, dtype=float)) - 1.0
+    known = {1.0: circuit_abscissa(circuit)}  # equal taus: on the scan's grid
+    ratio = _stable_ratio(circuit, lo, hi, n_grid, 1e-3, "auto", 0, known)
+    a_circ = known[1.0]
     n_total = circuit.n_excitatory + circuit.n_inhibitory
-    a_orig = spectral_abscissa(np.asarray(W) - np.eye(np.shape(W)[0]))
-    if n_total > STABILITY_MAX_UNITS:
-        return {"original_spectral_abscissa": a_orig,
-                "circuit_spectral_abscissa_equal_taus": None,
-                "max_stable_tau_ratio": None,
-                "note": f"{n_total} units: the tau scan was skipped (above "
-                        f"{STABILITY_MAX_UNITS}); call "
-                        "eidecomp.dynamics.max_stable_tau_ratio"}
-    W_full, n_e = full_matrix(circuit)
-    a_circ = spectral_abscissa(jacobian(W_full, n_e, 1.0, 1.0))
-    ratio = max_stable_tau_ratio(circuit, lo=lo, hi=hi, n_grid=n_grid, rtol=1e-3)
     return {"original_spectral_abscissa": a_orig,
             "circuit_spectral_abscissa_equal_taus": a_circ,
             "max_stable_tau_ratio": None if math.isinf(ratio) else ratio,
-            "note": f"tau_I / tau_E scanned over [{lo:g}, {hi:g}]; null means "
-                    "stable over the whole range"}
+            "eigenvalue_method": _method_name(n_total),
+            "note": f"tau_I / tau_E checked at {n_grid} ratios over "
+                    f"[{lo:g}, {hi:g}], the crossing then narrowed to 0.1 %; "
+                    "null means stable over the whole range"}
 
 
 def random_drive(n, seed=0):
@@ -223,46 +481,211 @@ def _relative(a, b):
     return float(np.linalg.norm(a - b) / max(np.linalg.norm(b), 1e-300))
 
 
-def compare_with_original(circuit, W, h, *, tau_e, tau_i, run=None):
-    """Run the circuit and the original network dr/dt = -r + W r + h on the
-    same drive ``h`` for 40 time constants of their slowest mode, and
-    compare the circuit's E rates with the fixed points of W_eff and W.
+# --- the circuit against the original network ----------------------------------
 
-    ``run(W_full, H, tau, t_ms)`` -> final rates is the simulator (None:
-    :func:`simulate`, scipy's solve_ivp). Unstable linear dynamics have no
-    fixed point to reach: InputError, with what to change.
+MODELS = {"linear": "linear", "threshold-linear": "relu"}
+"""Rate model of ``eidecomp simulate`` -> the nonlinearity of :func:`simulate`
+(threshold-linear: E units [.]_+, interneurons linear)."""
 
-    Returns a dict of the settings and relative errors.
+
+def largest_stable_gain(W):
+    """Largest g for which dr/dt = -r + g W r is stable: 1 / max Re eig(W),
+    or inf when max Re eig(W) <= 0 (every positive gain is stable).
+
+    The eigenvalues of -I + g W are -1 + g lambda, so the condition is
+    g max Re lambda < 1; stability needs g strictly below the value.
+
+    >>> import numpy as np
+    >>> largest_stable_gain(np.array([[2.0, 1.0], [0.0, -1.0]]))
+    0.5
     """
-    n_e = circuit.n_excitatory
-    W_full = circuit.signed_weights()
-    tau = _taus(W_full.shape[0], n_e, tau_e, tau_i)
-    a_orig = spectral_abscissa((np.asarray(W) - np.eye(n_e)) / tau_e)
-    a_circ = spectral_abscissa((W_full - np.eye(len(tau))) / tau[:, None])
+    return _stable_gain(spectral_abscissa(np.asarray(W, dtype=float)))
+
+
+def _stable_gain(a):
+    return 1.0 / a if a > 0 else float("inf")
+
+
+def scaled_circuit(circuit, gain):
+    """The circuit whose W_eff is ``gain`` W_eff: J_EE times g, J_EI and
+    J_IE each times sqrt(g) (all nonnegative: Dale's law kept).
+
+    >>> import numpy as np
+    >>> from eidecomp.types import Circuit
+    >>> c = Circuit(J_EE=np.array([[0.5]]), J_EU=np.array([[1.0]]),
+    ...             J_UE=np.array([[1.0]]), J_ET=np.zeros((1, 0)),
+    ...             J_TE=np.zeros((0, 1)))
+    >>> scaled_circuit(c, 4.0).effective_weights()
+    array([[-2.]])
+    """
+    import dataclasses
+
+    if not (gain > 0 and math.isfinite(gain)):
+        raise InputError(f"the gain must be a positive number, got {gain!r}")
+    if gain == 1.0:
+        return circuit
+    root = math.sqrt(gain)
+    return dataclasses.replace(
+        circuit, J_EE=gain * circuit.J_EE, J_EU=root * circuit.J_EU,
+        J_UE=root * circuit.J_UE, J_ET=root * circuit.J_ET,
+        J_TE=root * circuit.J_TE)
+
+
+def _round_down(x, digits):
+    """x rounded down to ``digits`` significant digits, strictly below x."""
+    step = 10.0 ** (math.floor(math.log10(x)) - digits + 1)
+    value = math.floor(x / step) * step
+    if value >= x:
+        value -= step
+    return float(f"{value:.{digits}g}")
+
+
+def _gain_advice(g_star):
+    return (f"scale W by a gain below {_round_down(g_star, 3):g} (--gain "
+            f"{_round_down(g_star, 2):g}), or run the threshold-linear model "
+            "(--model threshold-linear) for a bounded run")
+
+
+def _refuse_unstable(circuit, a_orig, a_circ, g_star, tau_e, tau_i):
+    """Unstable linear dynamics have no fixed point to reach: what to change."""
     if not a_orig < 0:
         raise InputError(f"the original network is unstable (growth rate "
                          f"{a_orig:.3g} per ms); its fixed point is never "
-                         "reached")
+                         f"reached: {_gain_advice(g_star)}")
     if not a_circ < 0:
         lo, hi, n_grid = STABILITY_SCAN
         limit = max_stable_tau_ratio(circuit, lo=lo, hi=hi, n_grid=n_grid)
         raise InputError(f"the circuit is unstable at tau_I/tau_E = "
                          f"{tau_i / tau_e:g} (stable up to {limit:.3g}); "
                          "choose a smaller --tau-i")
-    # whole ms: a multiple of every simulator's resolution
-    t_ms = float(math.ceil(40.0 / -max(a_orig, a_circ)))
+
+
+def _duration(a_orig, a_circ, tau_e, tau_i):
+    """40 time constants of the slowest mode when both are stable, else
+    (threshold-linear only) 40 of the slower population's; whole ms, a
+    multiple of every simulator's resolution."""
+    worst = max(a_orig, a_circ)
+    return float(math.ceil(40.0 / -worst if worst < 0 else 40.0 * max(tau_e, tau_i)))
+
+
+def _rate_of_change(W_full, H, tau, r, n_e, relu):
+    """||dr/dt|| / ||r|| at the end of a run, per ms: 0 when settled."""
+    drive = W_full @ r + H
+    if relu:
+        drive[:n_e] = np.maximum(drive[:n_e], 0.0)
+    norm = np.linalg.norm(r)
+    return float(np.linalg.norm((drive - r) / tau) / norm) if norm > 0 else 0.0
+
+
+def _bounded_run(circuit, W, h, tau_e, tau_i, t_ms):
+    """Threshold-linear runs of both networks: the final rates compared."""
+    n_e, W_full = circuit.n_excitatory, circuit.signed_weights()
+    H = np.r_[h, np.zeros(circuit.n_inhibitory)]
+    _, r = simulate(W_full, h, n_e=n_e, tau_e=tau_e, tau_i=tau_i, t_max=t_ms,
+                    nonlinearity="relu")
+    _, r0 = simulate(W, h, tau_e=tau_e, t_max=t_ms, nonlinearity="relu")
+    rates, orig = r[:, -1], r0[:, -1]
+    if not (np.isfinite(rates).all() and np.isfinite(orig).all()):
+        raise InputError(f"the rates grew beyond floating point range within "
+                         f"{t_ms:g} ms; lower --gain or --duration")
+    tau = _taus(len(H), n_e, tau_e, tau_i)
+    return {"circuit_vs_original": _relative(rates[:n_e], orig),
+            "circuit_rate_of_change": _rate_of_change(W_full, H, tau, rates,
+                                                      n_e, True),
+            "original_rate_of_change": _rate_of_change(
+                W, h, np.full(n_e, float(tau_e)), orig, n_e, True)}
+
+
+def _linear_run(circuit, W, h, tau_e, tau_i, t_ms, run):
+    """Linear runs of both networks against the fixed points of W_eff, W."""
+    n_e, W_full = circuit.n_excitatory, circuit.signed_weights()
     if run is None:
         _, r = simulate(W_full, h, n_e=n_e, tau_e=tau_e, tau_i=tau_i, t_max=t_ms)
         _, r0 = simulate(W, h, tau_e=tau_e, t_max=t_ms)
         rates, orig = r[:, -1], r0[:, -1]
     else:
+        tau = _taus(W_full.shape[0], n_e, tau_e, tau_i)
         rates = run(W_full, np.r_[h, np.zeros(circuit.n_inhibitory)], tau, t_ms)
-        orig = run(np.asarray(W), h, np.full(n_e, float(tau_e)), t_ms)
-    W_eff = circuit.effective_weights()
-    fp_eff, fp_W = fixed_point(W_eff, h), fixed_point(W, h)
-    return {"tau_e_ms": tau_e, "tau_i_ms": tau_i, "t_ms": t_ms,
-            "circuit_vs_fixed_point_W_eff": _relative(rates[:n_e], fp_eff),
+        orig = run(W, h, np.full(n_e, float(tau_e)), t_ms)
+    fp_eff = fixed_point(circuit.effective_weights(), h)
+    fp_W = fixed_point(W, h)
+    return {"circuit_vs_fixed_point_W_eff": _relative(rates[:n_e], fp_eff),
             "circuit_vs_fixed_point_W": _relative(rates[:n_e], fp_W),
             "original_vs_fixed_point_W": _relative(orig, fp_W),
-            "circuit_vs_original": _relative(rates[:n_e], orig),
-            "reconstruction_error": _relative(W_eff, W)}
+            "circuit_vs_original": _relative(rates[:n_e], orig)}
+
+
+def compare_with_original(circuit, W, h, *, tau_e, tau_i, run=None, gain=1.0,
+                          model="linear", t_ms=None):
+    """Run the circuit and the original network dr/dt = -r + f(W r + h) on
+    the same drive ``h`` and compare the circuit's E rates with them.
+
+    Parameters
+    ----------
+    circuit : Circuit
+    W : ndarray (N, N)
+        The original network, W[post, pre].
+    h : ndarray (N,)
+        Drive of the E units.
+    tau_e, tau_i : float
+        Time constants in ms.
+    run : callable or None
+        ``run(W_full, H, tau, t_ms)`` -> final rates, the simulator of the
+        linear model (None: :func:`simulate`, scipy's solve_ivp).
+    gain : float
+        W is scaled by ``gain`` and the circuit with it
+        (:func:`scaled_circuit`).
+    model : "linear" or "threshold-linear"
+        linear: both runs against the fixed points of W_eff and W; unstable
+        linear dynamics have no fixed point to reach, so InputError, with
+        the largest stable gain (:func:`largest_stable_gain`) and the
+        threshold-linear model as ways on. threshold-linear (E units
+        [.]_+, :func:`simulate` only): a run of ``t_ms``, whose final rates
+        are compared, stable or not.
+    t_ms : float or None
+        Simulated time; None: 40 time constants of the slowest mode when
+        the linear dynamics are stable, else 40 of the slower population's.
+
+    Returns
+    -------
+    dict of the settings, the linear growth rates and the relative errors.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from eidecomp.types import Circuit
+    >>> c = Circuit(J_EE=np.array([[0.5]]), J_EU=np.array([[1.0]]),
+    ...             J_UE=np.array([[1.0]]), J_ET=np.zeros((1, 0)),
+    ...             J_TE=np.zeros((0, 1)))
+    >>> r = compare_with_original(c, c.effective_weights(), np.ones(1),
+    ...                           tau_e=10.0, tau_i=5.0)
+    >>> r["circuit_vs_original"] < 1e-8
+    True
+    """
+    if model not in MODELS:
+        raise InputError(f"unknown model {model!r} (choose from "
+                         f"{', '.join(MODELS)})")
+    if t_ms is not None and not (t_ms > 0 and math.isfinite(t_ms)):
+        raise InputError(f"the simulated time must be a positive number of ms, "
+                         f"got {t_ms!r}")
+    W = np.asarray(W, dtype=float)
+    a_W = spectral_abscissa(W)
+    g_star = _stable_gain(a_W)
+    circuit, W = scaled_circuit(circuit, gain), gain * W
+    a_orig = (gain * a_W - 1.0) / tau_e
+    a_circ = circuit_abscissa(circuit, tau_e=tau_e, tau_i=tau_i)
+    if model == "linear":
+        _refuse_unstable(circuit, a_orig, a_circ, g_star, tau_e, tau_i)
+    elif run is not None:
+        raise InputError("the threshold-linear model runs on the internal "
+                         "simulator only")
+    t_ms = _duration(a_orig, a_circ, tau_e, tau_i) if t_ms is None else float(t_ms)
+    if model == "linear":
+        errors = _linear_run(circuit, W, h, tau_e, tau_i, t_ms, run)
+    else:
+        errors = _bounded_run(circuit, W, h, tau_e, tau_i, t_ms)
+    return {"model": model, "gain": float(gain), "tau_e_ms": tau_e,
+            "tau_i_ms": tau_i, "t_ms": t_ms,
+            "original_growth_rate": a_orig, "circuit_growth_rate": a_circ,
+            "largest_stable_gain": g_star, **errors,
+            "reconstruction_error": _relative(circuit.effective_weights(), W)}

@@ -31,6 +31,7 @@ from .params import DEFAULT_EI_RATIO, TAU_E_MS, TAU_I_MS, EIRatio
 
 __all__ = [
     "DECOMPOSE_ENGINES",
+    "SIMULATE_MODELS",
     "SIMULATORS",
     "AssembleConfig",
     "MatrixOptions",
@@ -528,20 +529,31 @@ def _read_drive(spec, n, seed):
     return h, str(spec)
 
 
+SIMULATE_MODELS = tuple(dynamics.MODELS)
+"""The rate models ``eidecomp simulate`` runs (:data:`eidecomp.dynamics.MODELS`)."""
+
+
 def run_simulate(bundle, *, engine="internal", drive="random", tau_e=TAU_E_MS,
-                 tau_i=TAU_I_MS, seed=0):
+                 tau_i=TAU_I_MS, seed=0, gain=1.0, model="linear", duration=None):
     """Run the circuit and the original network on the same drive.
 
-    Both are linear rate networks (the original with W = L + S from the
-    bundle, the circuit with W_full), simulated by ``engine`` (a name of
-    :data:`SIMULATORS`) long enough for 40 time constants of their slowest
-    mode: :func:`eidecomp.dynamics.compare_with_original`. Returns its dict
-    of relative errors, with the engine and the drive.
+    The original with W = L + S from the bundle, the circuit with W_full,
+    both scaled by ``gain`` (J_EE by it, J_EI and J_IE by its square root),
+    simulated by ``engine`` (a name of :data:`SIMULATORS`):
+    :func:`eidecomp.dynamics.compare_with_original`. ``model`` is one of
+    :data:`SIMULATE_MODELS`: linear (long enough for 40 time constants of
+    the slowest mode, against the fixed points), or threshold-linear (the
+    internal engine only: a run of ``duration`` ms whose final rates are
+    compared, stable or not). Returns its dict of relative errors, with the
+    engine and the drive.
     """
     if engine not in SIMULATORS:
         raise InputError(f"unknown engine {engine!r} (choose from "
                          f"{', '.join(SIMULATORS)})")
     module, loader = SIMULATORS[engine]
+    if model != "linear" and module is not None:
+        raise InputError(f"--model {model} runs on the internal engine only "
+                         f"(the {engine} runner is linear)")
     if module is not None:
         from .export import require_module
 
@@ -551,7 +563,8 @@ def run_simulate(bundle, *, engine="internal", drive="random", tau_e=TAU_E_MS,
     try:
         result = dynamics.compare_with_original(
             b.circuit, b.original_weights(), h, tau_e=tau_e, tau_i=tau_i,
-            run=None if loader is None else loader())
+            run=None if loader is None else loader(), gain=gain, model=model,
+            t_ms=duration)
     except InputError as exc:
         raise InputError(f"{bundle}: {exc}") from None
     return {"engine": engine, "drive": source, **result}
@@ -579,21 +592,32 @@ def run_report(bundle, output, *, force=False):
 
 
 def run_demo(output, *, force=False, progress=None):
-    """Write the demo inputs and run decompose + assemble + report on them."""
+    """Write the demo inputs and run decompose + assemble + report on them.
+
+    The inputs are read by file name from inside a temporary folder, so
+    circuit.json and the report name them as their copies in the bundle
+    (demo_weights.npy, demo_units.csv), not by a folder that is gone.
+    """
+    import os
     import tempfile
 
-    out = Path(output)
+    out = Path(output).absolute()
     check_bundle_output(out, CIRCUIT, force=force)
     W, units_csv = datasets.demo_inputs()
+    names = ("demo_weights.npy", "demo_units.csv")
     with tempfile.TemporaryDirectory() as tmp:
-        np.save(Path(tmp) / "demo_weights.npy", W)
-        (Path(tmp) / "demo_units.csv").write_text(units_csv, encoding="utf-8")
-        config = AssembleConfig(input=str(Path(tmp) / "demo_weights.npy"),
-                                output=str(out), units=str(Path(tmp) /
-                                                           "demo_units.csv"),
+        np.save(Path(tmp) / names[0], W)
+        (Path(tmp) / names[1]).write_text(units_csv, encoding="utf-8")
+        config = AssembleConfig(input=names[0], output=str(out), units=names[1],
                                 ignore_diagonal=True, report=True, force=force)
         # the inputs go beside the bundle's files, for the reader, in the
         # same all-or-nothing write
-        inputs = {name: (Path(tmp) / name).read_bytes()
-                  for name in ("demo_weights.npy", "demo_units.csv")}
-        return run_assemble(config, stage_progress=progress, extra_files=inputs)
+        inputs = {name: (Path(tmp) / name).read_bytes() for name in names}
+        here = os.getcwd()
+        os.chdir(tmp)
+        try:
+            result = run_assemble(config, stage_progress=progress,
+                                  extra_files=inputs)
+        finally:
+            os.chdir(here)
+    return dataclasses.replace(result, output=Path(output))  # as the user gave it
