@@ -425,6 +425,11 @@ def _circuit_table(result):
     if met.get("restarted"):
         lines.append(f"interneurons started again after losing their inputs "
                      f"or targets: {met['restarted']}")
+    left, positive, largest = met.get("dropped", (0, 0, 0.0))
+    if left:
+        lines.append(f"positive entries of W left out of J_EE by alpha: {left} "
+                     f"of {positive} (largest {largest:.3g}); a smaller "
+                     "--alpha keeps more")
     if met.get("floored"):
         lines.append(f"weights below the connection floor zeroed: "
                      f"{met['floored']}")

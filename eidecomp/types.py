@@ -329,6 +329,10 @@ class AssemblyReport:
         started again on the largest inhibition left unexplained.
     floored : int
         Weights zeroed by the connection floor (params.CONNECTION_RTOL).
+    dropped : tuple of (int, int, float)
+        Positive entries of W that J_EE leaves out, of all positive
+        entries, and the largest of them (in W's units): what the l1 weight
+        alpha cost.
     """
 
     relative_error: float
@@ -341,12 +345,14 @@ class AssemblyReport:
     notes: tuple = ()
     restarted: int = 0
     floored: int = 0
+    dropped: tuple = (0, 0, 0.0)
 
     def as_dict(self):
         out = {k: getattr(self, k) for k in self.__dataclass_fields__}
         out["baselines"] = [b.__dict__.copy() for b in self.baselines]
         out["history"] = list(self.history)
         out["notes"] = list(self.notes)
+        out["dropped"] = list(self.dropped)
         return out
 
 

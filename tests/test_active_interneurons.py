@@ -105,3 +105,20 @@ def test_a_matrix_that_supports_fewer_interneurons_says_so():
     (note,) = [x for x in c.report.notes if "active interneurons" in x]
     assert note.startswith(f"W supports {n_active} active interneurons of the 10")
     assert c.report.relative_error < 0.01
+
+
+def test_the_report_counts_the_positive_entries_alpha_left_out():
+    # W = J_EE - J_EI J_IE with nonnegative blocks, so every positive W_ij
+    # needs J_EE_ij >= W_ij: those left out are what alpha cost (numpy
+    # counts them); a larger alpha leaves out more
+    W, _, _ = make_planted_circuit(120, n_untuned=3, n_tuned=27, seed=21)
+    counts = []
+    for alpha in (0.0, 0.2 * np.abs(W).max()):
+        c = assemble(W, ei_ratio="4:1", alpha=alpha, baselines=False)
+        W_eff = c.effective_weights()
+        assert (c.J_EE >= W_eff - 1e-12).all()
+        left = (W > 0) & (c.J_EE == 0)
+        assert c.report.dropped == (int(left.sum()), int((W > 0).sum()),
+                                    float(W[left].max()) if left.any() else 0.0)
+        counts.append(c.report.dropped[0])
+    assert counts[1] > counts[0]

@@ -99,6 +99,14 @@ def _notes(W, n_i, ratio, A, B, n_u):
             f"connection floor ({CONNECTION_RTOL:g} max|W|)",)
 
 
+def _dropped(W, J_EE):
+    """(left out, all, largest left out) of W's positive entries."""
+    pos = W > 0
+    out = pos & (J_EE <= 0)
+    return (int(out.sum()), int(pos.sum()),
+            float(W[out].max()) if out.any() else 0.0)
+
+
 def _objective(W, J_EE, A, B, alpha, n_u, parts=None):
     R = W - J_EE + paths(A, B, n_u, parts)
     return 0.5 * float(np.vdot(R, R)) + alpha * float(J_EE.sum())
@@ -349,7 +357,8 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha
                             converged=converged, history=tuple(history),
                             notes=_notes(W, n_i, ratio, A, B, n_u) + base_notes,
                             restarted=int(first_starts + counts[0]),
-                            floored=int(counts[1]))
+                            floored=int(counts[1]),
+                            dropped=_dropped(W_given, J_EE))
     params = {"ei_ratio": ratio.text, "untuned_share": untuned_share,
               "alpha": alpha, "max_iter": max_iter, "tol": tol, "seed": seed,
               "n_inhibitory": n_i, "lam": dec.lam, "rank": dec.rank,
