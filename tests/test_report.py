@@ -2,18 +2,32 @@
 
 References: headless Chromium (Debian's package) renders the report and
 counts the figures that decoded (naturalWidth > 0); matplotlib draws every
-figure on a Figure with the Agg renderer; the planted circuit's tuned and
-untuned interneurons are compared as in the assembler benchmark.
+figure on a Figure with the Agg renderer, and its text extents
+(Text.get_window_extent) say whether labels overlap; scipy.optimize.curve_fit
+gives the space constant's interval independently of eidecomp; the planted
+circuit's tuned and untuned interneurons are compared as in the assembler
+benchmark.
 """
 
+import os
 import re
 import subprocess
+import tempfile
+from itertools import combinations
 
 import numpy as np
 import pytest
 from conftest import require_browser
 
 from eidecomp.analysis import plotting
+from eidecomp.analysis.report import (
+    PATH_LAMS,
+    PROFILES_TITLE,
+    path_max_iter,
+    render_report,
+    report_lam_path,
+)
+from eidecomp.analysis.rules import Profile, fit_space_constant
 from eidecomp.cli import main
 from eidecomp.datasets import make_planted_circuit
 
@@ -47,7 +61,7 @@ def test_report_is_self_contained(bundle):
     assert "model hypothesis" in page and "not measurements" in page
     assert not re.search(r"(src|href)=['\"]https?:", page)  # nothing fetched
     assert page.count("data:image/png;base64,") >= 15
-    for section in ("Assembly against the baselines", "Connection rules",
+    for section in ("Assembly against the baselines", "Connection profiles",
                     "Interneuron tuning", "Stability"):
         assert section in page
 
@@ -105,8 +119,230 @@ def test_every_figure_function_returns_its_ax(bundle):
         (plotting.plot_error_density, (meta["metrics"], meta["baselines"])),
         (plotting.plot_population_graph, (population_graph(c),)),
         (plotting.plot_rule, (prof, {"sigma": 1.0, "p0": 0.5})),
+        (plotting.plot_rule, (prof, {"sigma": 1.0, "p0": 0.5,
+                                     "status": "not determined"})),
         (plotting.plot_tuning, ([0.5, 0.7], [0.1, None])),
+        (plotting.plot_lambda_path, (report_lam_path(np.load(
+            bundle.parent / "w.npy")),)),
     ]
     for fn, args in calls:
         ax = Figure().subplots()
         assert fn(ax, *args) is ax
+
+
+# --- what a reader sees ------------------------------------------------------
+
+def _sections(page):
+    return re.findall(r"<h2>([^<]*)</h2>", page)
+
+
+def test_section_is_called_connection_profiles(bundle):
+    # NEST's documentation (connection management, "Connection Rules") uses
+    # "connection rule" for a wiring algorithm (conn_spec rules one_to_one,
+    # pairwise_bernoulli, ...); the report's binned probabilities are
+    # profiles, the word analysis/rules.py uses (feature_profile,
+    # distance_profile)
+    page = (bundle / "report.html").read_text(encoding="utf-8")
+    assert PROFILES_TITLE == "Connection profiles"
+    assert PROFILES_TITLE in _sections(page)
+    assert not re.search("connection rules?", page, re.IGNORECASE)
+
+
+def _distance_profile(sigma, n_pairs, span, seed):
+    """Counts drawn from p(d) = 0.3 exp(-d^2 / (2 sigma^2)) in 25 bins."""
+    rng = np.random.default_rng(seed)
+    edges = np.linspace(0.0, span, 26)
+    d = 0.5 * (edges[1:] + edges[:-1])
+    n = np.full(25, n_pairs)
+    k = rng.binomial(n, 0.3 * np.exp(-d ** 2 / (2 * sigma ** 2)))
+    return Profile(edges, k / n, np.ones(25), n, k, "distance (um)")
+
+
+def _scipy_interval(prof):
+    """The 95 % Wald interval of sigma, by scipy.optimize.curve_fit itself."""
+    from scipy.optimize import curve_fit
+
+    x, p, n = prof.centers, prof.probability, prof.n_pairs
+    se = np.sqrt(np.maximum(p * (1 - p), 1.0 / n) / n)
+    (_, sigma), cov = curve_fit(lambda d, a, s: a * np.exp(-d ** 2 / (2 * s ** 2)),
+                                x, p, p0=(p.max(), x[len(x) // 2]), sigma=se,
+                                absolute_sigma=True, maxfev=10000)
+    half = 1.96 * np.sqrt(cov[1, 1])
+    return abs(sigma) - half, abs(sigma) + half
+
+
+def test_space_constant_wider_than_the_sheet_is_not_determined():
+    # a 1 mm sheet with few pairs per bin and a true sigma near the sheet
+    # size: scipy.optimize.curve_fit's own 95 % interval is wider than 1 mm
+    # (like the issue's 954 [273, 1640] um), and the report must not print
+    # a number for it
+    from eidecomp.analysis.report import _sigma_text
+
+    prof = _distance_profile(900.0, 12, 1000.0, seed=3)
+    low, high = _scipy_interval(prof)
+    assert high - low > 1000.0
+    fit = fit_space_constant(prof)
+    assert (fit.ci_low, fit.ci_high) == pytest.approx((low, high), rel=1e-3)
+    assert fit.status == "not determined"
+    row = {"space_constant": fit.as_dict(), "distance_profile": prof.as_dict()}
+    assert _sigma_text(row) == "not determined"
+
+
+def test_space_constant_bounded_by_the_data_is_a_number():
+    # sigma = 100 um, within the 85-114 um that Levy & Reyes 2012 (J Neurosci
+    # 32:5609) fitted for all cell types in slices of mouse primary auditory
+    # cortex, on many pairs: scipy's interval is narrow and the report shows
+    # "sigma [low, high]" with the same numbers
+    from eidecomp.analysis.report import _sigma_text
+
+    prof = _distance_profile(100.0, 20000, 500.0, seed=4)
+    low, high = _scipy_interval(prof)
+    fit = fit_space_constant(prof)
+    assert fit.status == "determined" and 85.0 <= fit.sigma <= 114.0
+    row = {"space_constant": fit.as_dict(), "distance_profile": prof.as_dict()}
+    assert _sigma_text(row) == f"{fit.sigma:.3g} [{low:.3g}, {high:.3g}]"
+
+
+def test_inputs_table_shows_the_path_the_user_gave(bundle):
+    # the fixture ran `eidecomp run <tmp>/w.npy --units <tmp>/units.csv`:
+    # the table names exactly those paths, and they exist (common practice:
+    # a report names inputs its reader can open)
+    page = (bundle / "report.html").read_text(encoding="utf-8")
+    given = [str(bundle.parent / "w.npy"), str(bundle.parent / "units.csv")]
+    rows = dict(re.findall(r"<tr><td>(matrix|unit table)</td><td>([^<]*)</td>",
+                           page))
+    assert [rows["matrix"], rows["unit table"]] == given
+    assert all(os.path.isfile(p) for p in given)
+
+
+def test_demo_names_its_inputs_by_their_copies_in_the_bundle(tmp_path):
+    # Python's tempfile.TemporaryDirectory removes its folder on exit, so a
+    # path under tempfile.gettempdir() in the report would name nothing; the
+    # demo's inputs are the two files written beside the circuit
+    out = tmp_path / "demo"
+    assert main(["demo", "-o", str(out), "-q"]) == 0
+    page = (out / "report.html").read_text(encoding="utf-8")
+    rows = dict(re.findall(r"<tr><td>(matrix|unit table)</td><td>([^<]*)</td>",
+                           page))
+    assert rows == {"matrix": "demo_weights.npy", "unit table": "demo_units.csv"}
+    assert (out / rows["matrix"]).is_file() and (out / rows["unit table"]).is_file()
+    assert tempfile.gettempdir() + "/tmp" not in page
+
+
+def _overlaps(texts, renderer):
+    boxes = [t.get_window_extent(renderer) for t in texts
+             if t.get_visible() and t.get_text()]
+    return [(a, b) for a, b in combinations(boxes, 2) if a.overlaps(b)]
+
+
+def _drawn(title, draw):
+    """The report's own figure of that title (its size and margins)."""
+    from eidecomp.analysis.report import _LAYOUT, _figure
+
+    fig = _figure(draw, **_LAYOUT.get(title, {}))
+    fig.canvas.draw()
+    return fig, fig.axes[0], fig.canvas.get_renderer()
+
+
+def test_lam_path_tick_labels_do_not_overlap(bundle):
+    # matplotlib's own text extents (Agg renderer, the report's 90 dpi) of
+    # the lam axis labels, over the report's range lam0/4 .. 4 lam0
+    # (lam0 = 1/sqrt(n), Candes et al. 2011, Theorem 1.1)
+    W = np.load(bundle.parent / "w.npy")
+    points = report_lam_path(W)
+    grid = np.geomspace(0.25, 4.0, PATH_LAMS) / np.sqrt(W.shape[0])
+    np.testing.assert_allclose([p.lam for p in points], grid[:len(points)])
+    fig, ax, r = _drawn("lam path",
+                        lambda ax: plotting.plot_lambda_path(ax, points, 0.09))
+    labels = [t for t in ax.get_xticklabels()
+              if ax.get_xlim()[0] <= t.get_position()[0] <= ax.get_xlim()[1]]
+    assert len([t for t in labels if t.get_text()]) >= 3
+    assert not _overlaps(labels, r)
+    assert all("$" not in t.get_text() for t in labels)  # plain numbers
+
+
+def test_error_density_labels_do_not_collide(bundle):
+    # every baseline named once in a legend outside the axes (matplotlib's
+    # extents: the legend box and the axes box are disjoint), however many
+    # constructions sit on one point
+    from eidecomp.io import read_circuit
+
+    _, meta = read_circuit(bundle)
+    fig, ax, r = _drawn("error against J_EE density",
+                        lambda ax: plotting.plot_error_density(
+                            ax, meta["metrics"], meta["baselines"]))
+    names = [t.get_text() for t in ax.get_legend().get_texts()]
+    assert names == ["this circuit"] + [b["name"] for b in meta["baselines"]]
+    assert not _overlaps(ax.get_legend().get_texts(), r)
+    legend_box = ax.get_legend().get_window_extent(r)
+    assert not legend_box.overlaps(ax.get_window_extent(r))
+    assert not [t for t in ax.texts if t.get_text()]  # no labels in the plot
+    assert legend_box.x1 <= fig.bbox.x1  # and inside the figure
+
+
+def test_report_lam_path_marks_stopped_solves(bundle):
+    # a lam solved with the report's step cap either converged or says it
+    # did not: checked against eidecomp.robust_pca run at that lam with the
+    # same tolerance and cap (its own ConvergenceWarning is the reference
+    # of "stopped"), and the page counts the stopped ones
+    from eidecomp.decompose import robust_pca
+    from eidecomp.errors import ConvergenceWarning
+
+    W = np.load(bundle.parent / "w.npy")
+    points = report_lam_path(W)
+    p = points[0]
+    if p.converged:
+        dec = robust_pca(W, lam=p.lam, tol=1e-6, max_iter=path_max_iter(120))
+    else:
+        with pytest.warns(ConvergenceWarning):
+            dec = robust_pca(W, lam=p.lam, tol=1e-6,
+                             max_iter=path_max_iter(120))
+    assert (dec.rank, dec.converged) == (p.rank, p.converged)
+    stopped = [type(p)(**{**p.as_dict(), "converged": False, "n_iter": 100})]
+    from eidecomp.io import read_circuit
+
+    c, meta = read_circuit(bundle)
+    page = render_report(c, meta, W, path_points=points[1:] + stopped)
+    n_stopped = 1 + sum(not q.converged for q in points[1:])
+    assert f"{n_stopped} stopped at the report&#x27;s cap of 100 steps" in page
+
+
+def test_path_step_cap_keeps_full_svd_work_about_constant():
+    # the cost of a full-rank ALM step grows as n^3 (an SVD of n x n,
+    # Golub & Van Loan 2013, section 8.6: O(n^3) flops)
+    assert path_max_iter(300) == 100
+    assert path_max_iter(400) * 400 ** 3 == pytest.approx(100 * 300 ** 3, rel=0.02)
+    assert path_max_iter(600) == 20 and path_max_iter(50) == 100
+
+
+def test_lam_path_stops_where_the_split_has_broken_down(bundle):
+    # past a solve whose L holds more than half of full rank, L takes most
+    # of W (Candes et al. 2011: large lam leaves S empty and L = W); the
+    # larger lams are not solved, and the page says which
+    W = np.load(bundle.parent / "w.npy")
+    points = report_lam_path(W)
+    n = W.shape[0]
+    assert all(p.rank <= n / 2 for p in points[:-1])
+    if len(points) < PATH_LAMS:
+        assert points[-1].rank > n / 2
+    from eidecomp.io import read_circuit
+
+    c, meta = read_circuit(bundle)
+    broken = points[:3] + [type(points[0])(**{**points[0].as_dict(),
+                                              "lam": points[3].lam,
+                                              "rank": n - 1, "converged": True})]
+    page = render_report(c, meta, W, path_points=broken)
+    assert f"the {PATH_LAMS - 4} larger lam up to" in page
+    assert f"L already has rank {n - 1} of {n} (the split has broken" in page
+
+
+def test_a_missing_lam_path_is_explained():
+    # common practice: a report says why a figure is missing, and how to
+    # get it, rather than leaving it out silently
+    from eidecomp.analysis.report import PATH_MAX_UNITS, _path_note
+
+    big = np.zeros((PATH_MAX_UNITS + 1, PATH_MAX_UNITS + 1))
+    assert report_lam_path(big) is None
+    note = _path_note(None, big)
+    assert f"left out above {PATH_MAX_UNITS} units" in note
+    assert "eidecomp.lambda_path" in note

@@ -1,10 +1,10 @@
 """One self-contained HTML report of a circuit bundle (figures embedded).
 
 ``render_report(circuit, meta, W, ...)`` takes what the pipeline loaded from
-a bundle, computes the connection rules and tuning, draws the figures with
+a bundle, computes the connection profiles and tuning, draws the figures with
 analysis.plotting on matplotlib Figure objects (the Agg renderer, no
 display) and returns the page as a string: inputs, parameters, the assembly
-against the baselines, connection rules, tuning, stability, and the caution
+against the baselines, connection profiles, tuning, stability, and the caution
 that the circuit is a hypothesis to test, not a measurement.
 """
 
@@ -22,54 +22,148 @@ from . import plotting
 from .rules import circuit_rules
 from .tuning import interneuron_pools
 
-__all__ = ["PATH_MAX_UNITS", "REPORT_TITLE", "render_report", "report_lam_path"]
+__all__ = ["PATH_MAX_UNITS", "PROFILES_TITLE", "REPORT_TITLE", "path_max_iter",
+           "render_report", "report_lam_path"]
 
 REPORT_TITLE = "eidecomp circuit report"  # also how --force tells a report
+PROFILES_TITLE = "Connection profiles"  # not "rules": simulators' word for wiring
 PATH_MAX_UNITS = 600  # the lam path re-solves robust PCA 8 times
+PATH_LAMS = 8  # from a quarter to four times the default lam
+PATH_TOL = 1e-6  # a figure: rank and sparsity, not a result to reuse
+PATH_STEPS_300 = 100  # ALM steps a lam may take at 300 units (fewer above)
+PATH_MIN_STEPS = 20
+PATH_BREAKDOWN = 0.5  # no larger lam once L holds more than this share of rank
+
+
+def path_max_iter(n):
+    """ALM steps each lam of the report's path may take at ``n`` units.
+
+    The path's cost is its high-lam points, where L is nearly full rank and
+    every step costs a full SVD (~n^3): the cap keeps that work about
+    constant, 100 steps at 300 units and fewer in proportion to (300 / n)^3
+    above, never below 20. A point that stops at its cap is drawn hollow
+    and counted in the caption, not passed off as converged.
+
+    >>> path_max_iter(300), path_max_iter(120), path_max_iter(600)
+    (100, 100, 20)
+    """
+    scaled = PATH_STEPS_300 * (300.0 / max(int(n), 1)) ** 3
+    return int(min(PATH_STEPS_300, max(PATH_MIN_STEPS, round(scaled))))
 
 
 def report_lam_path(W):
-    """The lam path drawn in the report (8 lams), or None above
-    :data:`PATH_MAX_UNITS` units.
+    """The lam path drawn in the report, or None above :data:`PATH_MAX_UNITS`.
 
-    A figure, not a result: a looser tolerance and an iteration cap; rank
-    and sparsity are settled long before either stops, so a solve stopped
-    at the cap is not reported as a warning.
+    Eight lams, log-spaced from a quarter to four times the default
+    1/sqrt(n), each solved from a cold start: on the matrices measured
+    (planted, random sparse and a real connectome, ~300 units) the warm
+    start of :func:`eidecomp.lambda_path` failed at the hard, high-rank
+    points and restarted cold, costing more than cold starts throughout.
+    A figure, not a result: tolerance 1e-6 and :func:`path_max_iter` steps;
+    a point stopped at the cap keeps ``converged=False`` (drawn hollow), so
+    ConvergenceWarning is not shown for it. Once a solve ends with L above
+    half of full rank (converged: the split has broken down, L holds most
+    of W; stopped at the cap: its last iterate already that far), the
+    larger lams, costlier still, are not solved; the page says so.
+
+    Returns
+    -------
+    list of PathPoint or None
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> W = np.random.default_rng(0).standard_normal((30, 30))
+    >>> pts = report_lam_path(W)
+    >>> bool(np.isclose(pts[0].lam, 0.25 / np.sqrt(30)))
+    True
+    >>> all(a.lam < b.lam for a, b in zip(pts, pts[1:]))
+    True
     """
     from ..decompose import lambda_path
 
+    n = max(np.shape(W))
     if np.shape(W)[0] > PATH_MAX_UNITS:
         return None
+    points = []
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ConvergenceWarning)
-        points, _ = lambda_path(W, n_lams=8, tol=1e-6, max_iter=1000)
+        for lam in _path_lams(W):
+            if points and _broken_down(points[-1], W):
+                break
+            pts, _ = lambda_path(W, [float(lam)], tol=PATH_TOL,
+                                 max_iter=path_max_iter(n))
+            points += pts
     return points
 
+
+def _path_lams(W):
+    from ..params import default_lam
+
+    lam0 = default_lam(np.shape(W))
+    return np.geomspace(lam0 / 4, lam0 * 4, PATH_LAMS)
+
+
+def _broken_down(point, W):
+    return point.rank > PATH_BREAKDOWN * min(np.shape(W))
+
+
 CAUTION = ("This circuit is a model hypothesis: one of many Dale's-law circuits "
-           "consistent with the matrix it was built from. Its connection rules "
-           "and interneuron types are predictions to test against anatomy and "
-           "physiology, not measurements.")
+           "consistent with the matrix it was built from. Its connection "
+           "profiles and interneuron types are predictions to test against "
+           "anatomy and physiology, not measurements.")
 
 _CSS = """body{font-family:sans-serif;max-width:1100px;margin:2em auto;color:#222}
 table{border-collapse:collapse;margin:1em 0}td,th{border:1px solid #bbb;
 padding:3px 8px;text-align:right}th{background:#eee}td:first-child{text-align:left}
 .caution{border-left:4px solid #b8433a;padding:.5em 1em;background:#fbf3f2}
-figure{display:inline-block;margin:.5em}img{max-width:520px}"""
+figure{display:inline-block;margin:.5em}img{max-width:640px}"""
 
 _ONLOAD = """<script>window.addEventListener('load',function(){var i=document.
 querySelectorAll('img.figure'),n=0;i.forEach(function(e){if(e.naturalWidth>0)n++});
 document.body.setAttribute('data-figures-rendered',n+'/'+i.length)})</script>"""
 
 
-def _png(draw, figsize=(5.2, 4.0)):
+_MARGINS = {"left": 0.16, "right": 0.95, "bottom": 0.13, "top": 0.91}
+
+
+def _figure(draw, figsize=(5.2, 4.0), **margins):
+    """One Axes on a Figure (Agg canvas) with fixed margins, drawn by ``draw``.
+
+    No layout engine: constrained layout measured every text twice and
+    took half of the report's drawing time; the figures are of known shape,
+    so their margins are set here and in :data:`_LAYOUT` (checked on the
+    rendered PNGs and by tests/test_report.py). A fixed title height
+    (axes.titley) skips matplotlib's search for the top of the tick labels,
+    another fifth of the time.
+    """
+    import matplotlib as mpl
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
 
-    fig = Figure(figsize=figsize, layout="constrained")
-    ax = fig.subplots()
-    draw(ax)
+    with mpl.rc_context({"axes.titley": 1.0}):
+        fig = Figure(figsize=figsize, dpi=90)
+        FigureCanvasAgg(fig)
+        fig.subplots_adjust(**{**_MARGINS, **margins})
+        draw(fig.subplots())
+    return fig
+
+
+def _png(draw, figsize=(5.2, 4.0), **margins):
+    """:func:`_figure` as base64 PNG."""
     buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=90)
+    _figure(draw, figsize, **margins).savefig(buf, format="png", dpi=90)
     return base64.b64encode(buf.getvalue()).decode("ascii")
+
+
+# figures whose shape differs from the default: a legend below (lam path),
+# a legend outside on the right (error against density), no axes (graph)
+_LAYOUT = {
+    "lam path": {"figsize": (5.2, 4.6), "right": 0.86, "bottom": 0.27},
+    "error against J_EE density": {"figsize": (7.0, 4.0), "left": 0.12,
+                                   "right": 0.70},
+    "population graph": {"left": 0.02, "right": 0.98, "bottom": 0.02},
+}
 
 
 def _table(header, rows):
@@ -100,8 +194,8 @@ def _figures(circuit, meta, W, L, path_points, rules, cv):
     W_eff = circuit.effective_weights()
     figs = []
 
-    def fig(title, draw, **kw):
-        figs.append((title, _png(draw, **kw)))
+    def fig(title, draw):
+        figs.append((title, _png(draw, **_LAYOUT.get(title, {}))))
 
     for name, M in (("W", W), ("W_eff", W_eff), ("residual W - W_eff", W - W_eff)):
         fig(f"matrix {name}", lambda ax, M=M, name=name:
@@ -114,7 +208,9 @@ def _figures(circuit, meta, W, L, path_points, rules, cv):
         fig("spectrum of L", lambda ax: plotting.plot_spectrum(
             ax, sv, meta.get("decomposition", {}).get("rank")))
     if path_points:
-        fig("lam path", lambda ax: plotting.plot_lambda_path(ax, path_points))
+        lam = meta.get("decomposition", {}).get("lam")
+        fig("lam path", lambda ax: plotting.plot_lambda_path(
+            ax, path_points, lam=lam))
     fig("error against J_EE density", lambda ax: plotting.plot_error_density(
         ax, meta.get("metrics", {}), meta.get("baselines", [])))
     P = population_graph(circuit)
@@ -134,14 +230,46 @@ def _figures(circuit, meta, W, L, path_points, rules, cv):
 
 
 def _sigma_text(row):
+    """sigma [95 % CI] when the data bound it, else what the fit found
+    (analysis.rules.SpaceConstant.status)."""
+    from .rules import DETERMINED, NO_FIT
+
     sc = row.get("space_constant") or {}
-    top = (row.get("distance_profile") or {}).get("edges", [0])[-1]
-    if sc.get("sigma") is None:
+    status = sc.get("status", NO_FIT if sc.get("sigma") is None else DETERMINED)
+    if status == NO_FIT:
         return "-"
-    if sc["sigma"] > 10 * top:
-        return "no decay"
+    if status != DETERMINED:
+        return status
     return (f"{sc['sigma']:.3g} [{_fmt(sc.get('ci_low'), '.3g')}, "
             f"{_fmt(sc.get('ci_high'), '.3g')}]")
+
+
+def _path_note(points, W):
+    """What the lam path figure shows, or why it is missing."""
+    if not points:
+        return (f"lam path: left out above {PATH_MAX_UNITS} units (it re-solves "
+                "robust PCA at eight lam); eidecomp.lambda_path computes it on "
+                "request." if np.shape(W)[0] > PATH_MAX_UNITS else
+                "lam path: not computed.")
+    stopped = [p for p in points if not p.converged]
+    text = (f"lam path: {len(points)} lam from {points[0].lam:.3g} to "
+            f"{points[-1].lam:.3g}, each solved from a cold start to tolerance "
+            f"{PATH_TOL:g}")
+    grid = _path_lams(W)
+    done = len(points)
+    if done < len(grid) and np.allclose([p.lam for p in points], grid[:done]):
+        last = points[-1]
+        text += (f"; the {len(grid) - done} larger lam up to {grid[-1]:.3g} "
+                 f"not solved: at lam {last.lam:.3g} L already has rank "
+                 f"{last.rank} of {min(np.shape(W))} ("
+                 + ("the split has broken down, L holds most of W)"
+                    if last.converged else "its last iterate, not converged)"))
+    if stopped:
+        text += (f"; {len(stopped)} stopped at the report's cap of "
+                 f"{max(p.n_iter for p in stopped)} steps before converging "
+                 "(hollow markers: the rank and sparsity of the last iterate, "
+                 "not settled)")
+    return text + "."
 
 
 def _stability_text(st):
@@ -192,11 +320,15 @@ def _sections(meta, rules, med, have_units):
         f"{'yes' if met.get('converged') else 'NO'}.</p>",
         _table(["construction", "interneurons", "relative error",
                 "J_EE density"], assembly),
-        "<h2>Connection rules</h2>",
+        f"<h2>{PROFILES_TITLE}</h2>",
         "<p>Connection probability per class; like-to-like index = probability "
         "at the same feature / at the orthogonal one; space constant sigma of a "
-        "Gaussian fit of probability against distance, with its 95 % interval. "
-        "Interneurons take the feature and position of their input pool.</p>",
+        "Gaussian fit of probability against distance, with its 95 % interval, "
+        "given as a number only where the data bound it: 'not determined' "
+        "where the interval is wider than the distances the profile covers or "
+        "reaches zero, 'no decay' where the fitted sigma is more than ten "
+        "times those distances. Interneurons take the feature and position of "
+        "their input pool.</p>",
         _table(["class", "probability", "like-to-like", "sigma [95 % CI]"],
                rule_rows),
         "<h2>Interneuron tuning</h2>",
@@ -224,9 +356,24 @@ def render_report(circuit, meta, W, *, low_rank=None, features=None,
     low_rank : ndarray or None
         L, for its heatmap and spectrum.
     features, positions : ndarray or None
-        From the unit table, for connection rules and tuning.
+        From the unit table, for connection profiles and tuning.
     path_points : list of PathPoint or None
-        A lambda_path result, for the lam path figure.
+        A lambda_path result (:func:`report_lam_path`), for the lam path
+        figure.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from eidecomp import assemble
+    >>> from eidecomp.datasets import make_planted_circuit
+    >>> from eidecomp.decompose import robust_pca
+    >>> W, _, _ = make_planted_circuit(40, n_untuned=2, n_tuned=8, pool=4, seed=0)
+    >>> c = assemble(robust_pca(W), ei_ratio="4:1", baselines=False)
+    >>> meta = {"metrics": {"relative_error": c.report.relative_error,
+    ...                     "ee_density": c.report.ee_density}}
+    >>> page = render_report(c, meta, W)
+    >>> page.startswith("<!DOCTYPE html>") and PROFILES_TITLE in page
+    True
     """
     period = float(meta.get("parameters", {}).get("period", 180.0))
     rules = circuit_rules(circuit, W, features=features, positions=positions,
@@ -240,11 +387,12 @@ def render_report(circuit, meta, W, *, low_rank=None, features=None,
         x is not None for x in v) else None for v in cv.values()]
     parts = _sections(meta, rules, med, features is not None)
     parts.append("<h2>Figures</h2>")
+    parts.append(f"<p>{html.escape(_path_note(path_points, W))}</p>")
     for title, data in figs:
         parts.append(f"<figure><img class='figure' alt='{html.escape(title)}' "
                      f"src='data:image/png;base64,{data}'><figcaption>"
                      f"{html.escape(title)}</figcaption></figure>")
-    parts.append("<h2>Data</h2><details><summary>connection rules (JSON)"
+    parts.append("<h2>Data</h2><details><summary>connection profiles (JSON)"
                  "</summary><pre>" + html.escape(json.dumps(rules, indent=1))
                  + "</pre></details>")
     parts.append(_ONLOAD + "</body></html>")

@@ -1,5 +1,6 @@
-"""Connection rules: connection probability and mean weight against the
-difference in preferred feature and against distance, per connection class.
+"""Connection profiles: connection probability and mean weight against the
+difference in preferred feature and against distance, per connection class
+(the report's "Connection profiles"; not a simulator's connection rule).
 
 For a block J[post, pre] (nonnegative magnitudes) and a property of the
 post and pre units, every (post, pre) pair falls in one bin of the
@@ -11,7 +12,10 @@ connected ones. Self-pairs of a square block (the same unit) are left out.
   probabilities by weighted least squares (scipy.optimize.curve_fit, each
   bin weighted by its binomial standard error), giving the space constant
   sigma with a 95 % confidence interval from the fit's covariance
-  (sigma +- 1.96 se).
+  (sigma +- 1.96 se). A sigma is reported as a number only when the data
+  bound it (``SpaceConstant.status``): an interval wider than the distances
+  the profile covers, or reaching zero, is "not determined", and a sigma ten
+  times beyond the largest binned distance is "no decay".
 * Feature: the like-to-like index is the probability in the first bin
   (the same feature) over that in the last (the orthogonal one, half a
   period away). Pairs with the same preferred orientation connect about
@@ -26,9 +30,10 @@ import numpy as np
 
 from .circular import circular_difference
 
-__all__ = ["CLASSES", "Profile", "SpaceConstant", "circuit_rules",
-           "connection_classes", "distance_profile", "feature_profile",
-           "fit_space_constant", "like_to_like_index"]
+__all__ = ["CLASSES", "DETERMINED", "NOT_DETERMINED", "NO_DECAY", "NO_FIT",
+           "Profile", "SpaceConstant", "circuit_rules", "connection_classes",
+           "distance_profile", "feature_profile", "fit_space_constant",
+           "like_to_like_index", "space_constant_status"]
 
 
 @dataclass(frozen=True)
@@ -54,9 +59,22 @@ class Profile:
                 "n_connected": self.n_connected.tolist()}
 
 
+#: What a space-constant fit says, in the words the report shows.
+DETERMINED, NOT_DETERMINED, NO_DECAY, NO_FIT = (
+    "determined", "not determined", "no decay", "no fit")
+NO_DECAY_FACTOR = 10.0  # sigma beyond this many times the largest distance
+
+
 @dataclass(frozen=True)
 class SpaceConstant:
-    """A Gaussian fit p(d) = p0 exp(-d^2 / (2 sigma^2))."""
+    """A Gaussian fit p(d) = p0 exp(-d^2 / (2 sigma^2)).
+
+    ``status`` says whether the data bound sigma: ``"determined"`` (its 95 %
+    interval lies above zero and is no wider than ``span``, the largest
+    distance the profile covers), ``"not determined"`` (wider, reaching
+    zero, or no interval), ``"no decay"`` (sigma beyond ten times ``span``:
+    flat over the sheet) or ``"no fit"``.
+    """
 
     sigma: float
     ci_low: float
@@ -64,6 +82,8 @@ class SpaceConstant:
     p0: float
     ok: bool
     message: str = ""
+    span: float = float("nan")
+    status: str = NO_FIT
 
     def as_dict(self):
         return {k: (None if isinstance(v, float) and not np.isfinite(v) else v)
@@ -121,16 +141,41 @@ def distance_profile(J, pos_post, pos_pre, *, edges=None, n_bins=25,
 
 
 def fit_space_constant(profile):
-    """Fit p0 exp(-d^2 / (2 sigma^2)) to a distance profile."""
+    """Fit p0 exp(-d^2 / (2 sigma^2)) to a distance profile.
+
+    Parameters
+    ----------
+    profile : Profile
+        A :func:`distance_profile`.
+
+    Returns
+    -------
+    SpaceConstant
+        sigma, its 95 % interval, p0 and ``status`` (whether the data bound
+        sigma).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> edges = np.linspace(0.0, 500.0, 11)
+    >>> d = 0.5 * (edges[1:] + edges[:-1])
+    >>> n = np.full(10, 10000)
+    >>> k = np.round(n * 0.3 * np.exp(-d ** 2 / (2 * 100.0 ** 2))).astype(int)
+    >>> prof = Profile(edges, k / n, np.ones(10), n, k, "distance (um)")
+    >>> fit = fit_space_constant(prof)
+    >>> round(fit.sigma), fit.status
+    (100, 'determined')
+    """
     from scipy.optimize import curve_fit
 
     x = profile.centers
     p = profile.probability
     n = profile.n_pairs
+    top = float(profile.edges[-1])
     ok = np.isfinite(p) & (n > 0)
     if ok.sum() < 3 or not np.any(p[ok] > 0):
         return SpaceConstant(np.nan, np.nan, np.nan, np.nan, False,
-                             "too few connected distance bins to fit")
+                             "too few connected distance bins to fit", top)
     x, p, n = x[ok], p[ok], n[ok]
     # binomial standard error, floored so that empty bins still count
     se = np.sqrt(np.maximum(p * (1 - p), 1.0 / n) / n)
@@ -149,12 +194,32 @@ def fit_space_constant(profile):
             (p0, sigma), cov = curve_fit(gauss, x, p, p0=guess, sigma=se,
                                          absolute_sigma=True, maxfev=10000)
         except (RuntimeError, ValueError) as exc:
-            return SpaceConstant(np.nan, np.nan, np.nan, np.nan, False, str(exc))
+            return SpaceConstant(np.nan, np.nan, np.nan, np.nan, False, str(exc),
+                                 top)
     sigma = abs(float(sigma))
     err = float(np.sqrt(cov[1, 1])) if np.isfinite(cov[1, 1]) else np.nan
     note = "; ".join(dict.fromkeys(str(w.message) for w in caught))
-    return SpaceConstant(sigma, sigma - 1.96 * err, sigma + 1.96 * err,
-                         float(p0), bool(np.isfinite(err)), note)
+    low, high, span = sigma - 1.96 * err, sigma + 1.96 * err, top
+    return SpaceConstant(sigma, low, high, float(p0), bool(np.isfinite(err)),
+                         note, span, space_constant_status(sigma, low, high, span))
+
+
+def space_constant_status(sigma, ci_low, ci_high, span):
+    """Whether a fitted sigma is bounded by the data (see :class:`SpaceConstant`).
+
+    >>> space_constant_status(954.0, 273.0, 1640.0, 1000.0)   # wider than 1 mm
+    'not determined'
+    >>> space_constant_status(100.0, 80.0, 120.0, 1000.0)
+    'determined'
+    """
+    if not np.isfinite(sigma):
+        return NO_FIT
+    if sigma > NO_DECAY_FACTOR * span:
+        return NO_DECAY
+    if not (np.isfinite(ci_low) and np.isfinite(ci_high)) or ci_low <= 0 \
+            or ci_high - ci_low > span:
+        return NOT_DETERMINED
+    return DETERMINED
 
 
 def like_to_like_index(profile):
@@ -184,7 +249,7 @@ def connection_classes(circuit, W):
 
 def circuit_rules(circuit, W, *, features=None, positions=None, period=180.0,
                   n_feature_bins=6, n_distance_bins=25):
-    """Connection rules of every class, as plain dicts (JSON-ready).
+    """Connection profiles and fits of every class, as plain dicts (JSON-ready).
 
     Interneurons have no feature or position of their own; each gets the
     weighted circular mean of its input pool's features and the weighted
