@@ -167,7 +167,8 @@ def _get_parser():
                        help="fraction of interneurons that are untuned; 'auto' "
                        "(default) takes the rank of the low-rank part")
         p.add_argument("--alpha", type=_nonnegative_float,
-                       help="weight of ||J_EE||_1 (default 0.02 max|W|)")
+                       help="weight of ||J_EE||_1 (default 0.02 times the 95th "
+                       "percentile of W's positive entries)")
         p.add_argument("--units", metavar="CSV",
                        help="unit table: a 'feature' column in degrees, "
                        "optional id, x, y; one row per unit of W")

@@ -41,12 +41,34 @@ from ._support import apply_floor, greedy_start, inactive, restart
 
 __all__ = ["assemble"]
 
-ALPHA_DEFAULT = 0.02   # l1 weight on J_EE, times max |W|
+ALPHA_DEFAULT = 0.02   # l1 weight on J_EE, times ALPHA_QUANTILE of W's
+ALPHA_QUANTILE = 0.95  # positive entries (default_alpha)
 TUNED_L1 = 0.005       # l1 weight on the tuned factors, times max(-S) / max|W|
 SUPPORT_RTOL = 1e-6    # factor entries below this x their column max are zero
 RESTART_ROUNDS = 3     # new starts for emptied interneurons, then refinement
 RESTART_RTOL = 1e-3    # a new start needs a piece of unexplained inhibition
                        # whose largest path is this x max|W| (less is noise)
+
+
+def default_alpha(W):
+    """The default l1 weight on J_EE: 0.02 times the 95th percentile of W's
+    positive entries (0 when there are none).
+
+    J_EE reproduces W's positive side, so its weight scales with that side,
+    not with max|W| (set by the inhibition on planted circuits, and by a few
+    large synapse counts on a connectome, where 0.02 max|W| erased every
+    single-synapse connection); the percentile keeps a few large entries
+    from setting it. A positive entry below alpha that no interneuron path
+    lifts is left out of J_EE (the report counts them: metrics.dropped).
+
+    >>> default_alpha(np.array([[0.0, 1.0], [2.0, -50.0]]))
+    0.039
+    """
+    W = np.asarray(W)
+    pos = W[W > 0]
+    if not pos.size:
+        return 0.0
+    return float(ALPHA_DEFAULT * np.quantile(pos, ALPHA_QUANTILE))
 
 
 def _split(W_or_dec, seed, decompose_kwargs):
@@ -269,7 +291,8 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha
         Fraction of the interneurons that are untuned; "auto" takes the rank
         of the low-rank part.
     alpha : float or None
-        Weight of ||J_EE||_1; None means 0.02 max|W|.
+        Weight of ||J_EE||_1; None means :func:`default_alpha` (0.02 times
+        the 95th percentile of W's positive entries).
     max_iter : int
         Sweeps of the joint refinement (and of each debiasing pass).
     tol : float
@@ -317,7 +340,7 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha
     M_u = np.maximum(-L, 0.0)
     M_t = np.maximum(-S, 0.0)
     n_u, n_t, rule = split_counts(n_i, untuned_share, dec.rank, bool(M_t.any()))
-    alpha = ALPHA_DEFAULT * scale if alpha is None else float(alpha)
+    alpha = default_alpha(W_given) if alpha is None else float(alpha)
     if not np.isfinite(alpha) or alpha < 0:
         raise InputError(f"alpha must be a nonnegative number, got {alpha!r}")
     start = 1e-3 if scale > 0 else 0.0  # of empty factor columns

@@ -32,8 +32,8 @@ def apply_floor(J_EE, A, B, floor=CONNECTION_RTOL):
     peak_b = B.max(axis=1, initial=0.0)   # and largest input
     A[A * peak_b[None, :] < floor] = 0.0
     B[B * peak_a[:, None] < floor] = 0.0
-    return before - (np.count_nonzero(J_EE) + np.count_nonzero(A)
-                     + np.count_nonzero(B))
+    return int(before - (np.count_nonzero(J_EE) + np.count_nonzero(A)
+                         + np.count_nonzero(B)))
 
 
 def inactive(A, B):

@@ -37,7 +37,7 @@ from ..kernels import dense_bytes, expand_full
 from ..limits import check_fits
 from ..params import DEFAULT_EI_RATIO, EIRatio
 from ..types import BLOCK_NAMES, Circuit
-from ._assemble import ALPHA_DEFAULT
+from ._assemble import default_alpha
 from ._counts import inhibitory_count, split_counts
 
 __all__ = ["TiledCircuit", "assemble_tiled"]
@@ -147,7 +147,7 @@ def assemble_tiled(dec, W, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto",
         "auto": m_u = the largest rank of L over frequencies (at most m - 1
         when S inhibits anything).
     alpha : float or None
-        l1 weight on J_EE; None means 0.02 max|W| (as in assemble).
+        l1 weight on J_EE; None means assemble's default_alpha of the kernel.
     """
     ratio = EIRatio.parse(ei_ratio)
     G = np.asarray(W, dtype=float)
@@ -159,8 +159,7 @@ def assemble_tiled(dec, W, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto",
     mu, mt, _ = split_counts(m, untuned_share, int(np.max(dec.ranks)),
                              bool(Mt.any()))
     rng = np.random.default_rng(seed)
-    scale = float(np.abs(G).max()) or 1.0
-    alpha = ALPHA_DEFAULT * scale if alpha is None else float(alpha)
+    alpha = default_alpha(G) if alpha is None else float(alpha)
 
     def start(P, Q, target):
         size = np.sqrt(max(float(target.mean()), 1e-12) / max(P, 1))
