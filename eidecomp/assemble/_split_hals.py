@@ -92,23 +92,21 @@ def _tuned_base(part, j, l1, mask, along_rows):
     return idx, vec[idx]
 
 
-def _assemble_sparse(parts, length, by_columns):
-    """A CSC (columns) or CSR (rows) matrix from per-component (index,
-    value) pairs, in O(nnz)."""
+def _csc_from_columns(parts, n_rows):
+    """A CSC matrix from per-column (row index, value) pairs, in O(nnz)."""
     sizes = np.fromiter((idx.size for idx, _ in parts), dtype=np.int64,
                         count=len(parts))
     ptr = np.concatenate([[0], np.cumsum(sizes)])
     idx = (np.concatenate([i for i, _ in parts]) if parts
            else np.zeros(0, dtype=np.int64))
     val = np.concatenate([v for _, v in parts]) if parts else np.zeros(0)
-    if by_columns:
-        return sparse.csc_matrix((val, idx, ptr), shape=(length, len(parts)))
-    return sparse.csr_matrix((val, idx, ptr), shape=(len(parts), length))
+    return sparse.csc_matrix((val, idx, ptr), shape=(n_rows, len(parts)))
 
 
 def _update_a(A, MBt_u, MBt_t, G, n_u, l1, mask_a):
-    """Every column of A in turn, each the exact minimiser of its problem.
-    Returns the tuned columns as a CSC matrix."""
+    """Every column of A in turn, each the exact minimiser of its problem
+    (MBt_u, MBt_t: M B^T's untuned and tuned columns, G = B B^T). Returns
+    the tuned columns as a CSC matrix."""
     dead = _DEAD_RTOL * G.diagonal().max()
     parts = []
     for j, (nz, g) in enumerate(_columns(G)):
@@ -133,37 +131,15 @@ def _update_a(A, MBt_u, MBt_t, G, n_u, l1, mask_a):
         A[rows, j] = val
         pos = val > 0
         parts.append((rows[pos], val[pos]))
-    return _assemble_sparse(parts, A.shape[0], True)
+    return _csc_from_columns(parts, A.shape[0])
 
 
 def _update_b(B, AtM_u, AtM_t, G, n_u, l1, mask_b):
-    """Every row of B in turn (G is symmetric: its row j is its column j).
-    Returns the tuned rows as a CSR matrix."""
-    dead = _DEAD_RTOL * G.diagonal().max()
-    parts = []
-    for j, (nz, g) in enumerate(_columns(G)):
-        d = G[j, j]
-        if d <= dead or d == 0:
-            if j >= n_u:
-                keep = np.flatnonzero(B[j])
-                parts.append((keep, B[j, keep]))
-            continue
-        if j < n_u:
-            row = (AtM_u[j] - g @ B[nz] + B[j] * d) / d
-            np.maximum(row, 0.0, out=row)
-            if mask_b is not None:
-                row *= mask_b[j]
-            B[j] = row
-            continue
-        cols, base = _tuned_base(AtM_t, j - n_u, l1,
-                                 None if mask_b is None else mask_b[j], False)
-        val = np.maximum(base - g @ B[nz[:, None], cols] + B[j, cols] * d - l1,
-                         0.0) / d
-        B[j] = 0.0
-        B[j, cols] = val
-        pos = val > 0
-        parts.append((cols[pos], val[pos]))
-    return _assemble_sparse(parts, B.shape[1], False)
+    """Every row of B in turn: the columns of B^T by :func:`_update_a` (G is
+    symmetric, B^T's columns are B's rows). Returns the tuned rows as CSR."""
+    B_sp = _update_a(B.T, AtM_u.T, AtM_t.T, G, n_u, l1,
+                     None if mask_b is None else mask_b.T)
+    return B_sp.T.tocsr()
 
 
 def tuned_parts(A, B, n_u):
