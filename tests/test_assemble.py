@@ -167,3 +167,15 @@ def test_progress_reports_every_stage():
         assert stage in stages
     sweeps = sum(1 for s, k in seen if s in ("refinement", "debiasing") and k)
     assert sweeps == c.report.n_iter
+
+
+def test_a_stopped_refinement_says_so():
+    # the rule of the brief: a solver stopped before its tolerance warns and
+    # records converged: false (errors.warn_stopped); planted circuit from
+    # make_planted_circuit, two sweeps are far too few
+    from eidecomp.errors import ConvergenceWarning
+
+    W, _, _ = make_planted_circuit(60, n_untuned=2, n_tuned=13, pool=4, seed=3)
+    with pytest.warns(ConvergenceWarning, match="circuit refinement stopped"):
+        c = assemble(W, ei_ratio="4:1", baselines=False, max_iter=2)
+    assert c.report.converged is False

@@ -1,6 +1,7 @@
 """The large-matrix path of the assembler, forced at small sizes.
 
-Above EXACT_SVD_MAX units the assembler takes a randomized SVD for NNDSVD
+Above EXACT_SVD_MAX units (and, for the sweeps, SPARSE_MIN_UNITS) the
+assembler takes a randomized SVD for NNDSVD
 (checked against numpy.linalg.svd), a greedy sparse start for the tuned
 factorisation and accelerated HALS for the untuned one (checked against
 the Karush-Kuhn-Tucker conditions of nonnegative least squares, Gillis
@@ -23,12 +24,14 @@ from eidecomp.datasets import make_planted_circuit
 asm = import_module("eidecomp.assemble._assemble")
 bl = import_module("eidecomp.assemble._baselines")
 nmf = import_module("eidecomp.assemble._nmf")
+split = import_module("eidecomp.assemble._split_hals")
 
 
 @pytest.fixture
 def large_path(monkeypatch):
     monkeypatch.setattr(nmf, "EXACT_SVD_MAX", 50)
     monkeypatch.setattr(asm, "EXACT_SVD_MAX", 50)
+    monkeypatch.setattr(split, "SPARSE_MIN_UNITS", 0)   # sparse sweeps too
 
 
 def test_randomized_nndsvd_matches_the_exact_one(large_path):

@@ -9,6 +9,8 @@ dense sweep (eidecomp.assemble._nmf.sweep), whose iterates the split sweep
 must reproduce.
 """
 
+from importlib import import_module
+
 import numpy as np
 import pytest
 from scipy import sparse
@@ -20,6 +22,15 @@ from eidecomp.assemble._split_hals import (
     paths,
     sweep_split,
 )
+
+split = import_module("eidecomp.assemble._split_hals")
+
+
+@pytest.fixture(autouse=True)
+def sparse_path(monkeypatch):
+    """These small problems take the sparse path under test (below
+    SPARSE_MIN_UNITS the sweep would hand them to the dense one)."""
+    monkeypatch.setattr(split, "SPARSE_MIN_UNITS", 0)
 
 
 def _problem(seed, m=40, n=35, k=7, density=0.3):

@@ -20,8 +20,15 @@ k components, instead of O(m n k + m k^2).
 import numpy as np
 from scipy import sparse
 
-__all__ = ["hals_split", "objective_split", "paths", "sweep_split",
-           "tuned_parts"]
+from ._nmf import sweep
+
+SPARSE_MIN_UNITS = 500
+"""Below this many units a sweep takes the dense path (_nmf.sweep), whose
+iterates are the same to rounding: scipy.sparse's fixed cost per call
+(tens of microseconds) is more than the dense products there."""
+
+__all__ = ["SPARSE_MIN_UNITS", "hals_split", "objective_split", "paths",
+           "sweep_split", "tuned_parts"]
 
 _DEAD_RTOL = 1e-12  # as in _nmf: a component whose Gram diagonal is below
                    # this x the largest is dead this sweep
@@ -168,6 +175,11 @@ def sweep_split(M, A, B, n_u, *, l1=0.0, mask_a=None, mask_b=None, B_sp=None):
     True
     """
     if A.shape[1] == 0:
+        return tuned_parts(A, B, n_u)
+    if max(A.shape[0], B.shape[1]) < SPARSE_MIN_UNITS and not (n_u and l1):
+        # small: the dense sweep is the same computation at less overhead
+        sweep(M.toarray() if _is_sparse(M) else M, A, B, l1_a=l1, l1_b=l1,
+              mask_a=mask_a, mask_b=mask_b)
         return tuned_parts(A, B, n_u)
     if B_sp is None:
         B_sp = sparse.csr_matrix(B[n_u:])
