@@ -122,3 +122,15 @@ def test_the_report_counts_the_positive_entries_alpha_left_out():
                                     float(W[left].max()) if left.any() else 0.0)
         counts.append(c.report.dropped[0])
     assert counts[1] > counts[0]
+
+
+def test_pool_counts_follow_the_floor():
+    # the report's and circuit.json's pool sizes are the connections the
+    # floor kept: numpy's count of nonzero weights, row by row
+    from eidecomp.analysis import interneuron_pools
+
+    W, _, _ = make_planted_circuit(120, n_untuned=3, n_tuned=27, seed=22)
+    c = assemble(W, ei_ratio="4:1", baselines=False)
+    pools = interneuron_pools(c)
+    assert [p["n_inputs"] for p in pools] == np.count_nonzero(c.J_IE, 1).tolist()
+    assert [p["n_targets"] for p in pools] == np.count_nonzero(c.J_EI, 0).tolist()

@@ -15,11 +15,14 @@ from .circular import circular_mean, circular_variance, orientation_selectivity
 __all__ = ["interneuron_pools", "pool_features"]
 
 
-def interneuron_pools(circuit, features=None, period=180.0, rtol=1e-6):
+def interneuron_pools(circuit, features=None, period=180.0, rtol=0.0):
     """Per interneuron: its kind, pool sizes and, given features, its tuning.
 
     An E unit is in an interneuron's input pool (J_IE row) or target set
-    (J_EI column) when the weight exceeds ``rtol`` times that row's or
+    (J_EI column) when the weight is a connection: nonzero after the
+    connection floor that ``assemble`` applies (params.CONNECTION_RTOL), so
+    these counts are the ones circuit.json and the command line give;
+    ``rtol`` > 0 also drops weights below that fraction of the row's or
     column's largest. Returns a list of dicts with keys ``kind``,
     ``index`` (within its population), ``n_inputs``, ``n_targets`` and
     ``circular_variance`` (None without features).

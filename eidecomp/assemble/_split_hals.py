@@ -20,7 +20,7 @@ k components, instead of O(m n k + m k^2).
 import numpy as np
 from scipy import sparse
 
-from ._nmf import sweep
+from ._nmf import _DEAD_RTOL, sweep
 
 SPARSE_MIN_UNITS = 500
 """Below this many units a sweep takes the dense path (_nmf.sweep), whose
@@ -30,8 +30,6 @@ iterates are the same to rounding: scipy.sparse's fixed cost per call
 __all__ = ["SPARSE_MIN_UNITS", "hals_split", "objective_split", "paths",
            "sweep_split", "tuned_parts"]
 
-_DEAD_RTOL = 1e-12  # as in _nmf: a component whose Gram diagonal is below
-                   # this x the largest is dead this sweep
 
 
 def _is_sparse(M):
