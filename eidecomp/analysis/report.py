@@ -284,6 +284,15 @@ def _stability_text(st):
             f"stable tau_I/tau_E: {limit}")
 
 
+def _notes_list(notes):
+    """The assembler's notes (circuit.json metrics.notes), as the command
+    line prints them."""
+    if not notes:
+        return ""
+    items = "".join(f"<li>{html.escape(str(n))}</li>" for n in notes)
+    return f"<p>Notes:</p><ul>{items}</ul>"
+
+
 def _sections(meta, rules, med, have_units):
     """The page up to its figures: inputs, assembly, rules, tuning, stability."""
     met = meta.get("metrics", {})
@@ -320,6 +329,7 @@ def _sections(meta, rules, med, have_units):
         f"{'yes' if met.get('converged') else 'NO'}.</p>",
         _table(["construction", "interneurons", "relative error",
                 "J_EE density"], assembly),
+        _notes_list(met.get("notes", ())),
         f"<h2>{PROFILES_TITLE}</h2>",
         "<p>Connection probability per class; like-to-like index = probability "
         "at the same feature / at the orthogonal one; space constant sigma of a "

@@ -35,7 +35,7 @@ from ..types import AssemblyReport, BaselineResult, Circuit, Decomposition
 from ._baselines import NMF_MAX_UNITS, _prune_to_density
 from ._baselines import baselines as score_baselines
 from ._counts import inhibitory_count, split_counts
-from ._nmf import EXACT_SVD_MAX, hals, inner_passes, nndsvd
+from ._nmf import EXACT_SVD_MAX, Factored, hals, leading_svd, nndsvd
 from ._split_hals import hals_split, paths, sweep_split, tuned_parts
 from ._support import apply_floor, greedy_start, inactive, restart
 
@@ -48,6 +48,17 @@ SUPPORT_RTOL = 1e-6    # factor entries below this x their column max are zero
 RESTART_ROUNDS = 3     # new starts for emptied interneurons, then refinement
 RESTART_RTOL = 1e-3    # a new start needs a piece of unexplained inhibition
                        # whose largest path is this x max|W| (less is noise)
+
+
+LOSS_MARGIN = 1e-3     # baseline (d) beats the circuit by more than this in
+                       # relative error at equal density: the report says so
+STAND_IN_EXTRA = 10    # rank of the untuned factorisation's stand-in for
+                       # max(-L, 0): 2 n_u + this
+
+
+def tuned_l1(M_t):
+    """The l1 weight on the tuned factors: TUNED_L1 max(-S) (working units)."""
+    return TUNED_L1 * float(M_t.max()) if M_t.size and M_t.any() else 0.0
 
 
 def default_alpha(W):
@@ -142,15 +153,19 @@ def _descend(W, A, B, n_u, masks, alpha, ee_support, max_iter, tol,
     scale = max(0.5 * float(np.vdot(W, W)), 1e-300)  # the objective at zero
     start = len(history)
     parts = tuned_parts(A, B, n_u)
+    cache = {}                           # colourings and Grams, sweep to sweep
     while not converged and len(history) - start < max_iter:
         J_EE = np.maximum(W + paths(A, B, n_u, parts) - alpha, 0.0)
         if ee_support is not None:
             J_EE *= ee_support
         J_EE -= W                        # the sweep fits J_EE - W ~ A B
         parts = sweep_split(J_EE, A, B, n_u, mask_a=masks[0],
-                            mask_b=masks[1], B_sp=parts[1])
-        J_EE += W
-        history.append(_objective(W, J_EE, A, B, alpha, n_u, parts))
+                            mask_b=masks[1], A_sp=parts[0], B_sp=parts[1],
+                            cache=cache)
+        J_EE += W                        # its loss is 0.5 ||W - J_EE + A B||^2
+        loss = cache.pop("loss", None)
+        history.append(_objective(W, J_EE, A, B, alpha, n_u, parts)
+                       if loss is None else loss + alpha * float(J_EE.sum()))
         if progress is not None:
             progress(stage, len(history) - start, history[-1])
         converged = (len(history) - start > 1
@@ -217,15 +232,19 @@ def _first_factorisations(M_u, M_t, n_u, n_t, start, seed, max_iter, tell):
     and the number of tuned pools that emptied and were started again."""
     tell("untuned factorisation")
     rng = np.random.default_rng(seed)
-    A_u, B_u = nndsvd(M_u, n_u, seed=seed)
+    # the untuned side comes from a low-rank L: its HALS runs on the leading
+    # 2 n_u + STAND_IN_EXTRA triplets of max(-L, 0), a stand-in whose
+    # products cost O(N q) per component (the refinement then fits W itself)
+    q = min(2 * n_u + STAND_IN_EXTRA, min(M_u.shape))
+    U, s, Vt = leading_svd(M_u, q, seed) if n_u and M_u.any() else (None,) * 3
+    A_u, B_u = nndsvd(M_u, n_u, seed=seed,
+                      svd=None if U is None else (U, s, Vt))
     A_u, B_u = _fill_dead(A_u, B_u, start, rng)
-    # above EXACT_SVD_MAX, accelerated HALS: its passes reuse the N x N
-    # products, which are all the cost of a sweep with few components
-    inner = (1 if max(M_u.shape) <= EXACT_SVD_MAX
-             else inner_passes(*M_u.shape, n_u))
-    A_u, B_u, _ = hals(M_u, A_u, B_u, max_iter=max_iter, tol=1e-6, inner=inner)
+    if U is not None:
+        A_u, B_u, _ = hals(Factored(U * s, Vt), A_u, B_u, max_iter=max_iter,
+                           tol=1e-6)
     tell("tuned factorisation")
-    l1 = TUNED_L1 * float(M_t.max()) if M_t.size and M_t.any() else 0.0
+    l1 = tuned_l1(M_t)
     if max(M_t.shape) <= EXACT_SVD_MAX:
         A_t, B_t = nndsvd(M_t, n_t)
     else:  # an SVD with N / 4 components costs more than all the rest
@@ -271,7 +290,32 @@ def _scored_baselines(W, n_i, circuit, err, dens, max_iter):
             n_i, float(np.linalg.norm(W - pruned)
                        / max(np.linalg.norm(W), 1e-300)),
             float(np.count_nonzero(J) / J.size)),)
-    return base, ()
+    return base, _against_nmf(base, err, dens)
+
+
+def _against_nmf(base, err, dens):
+    """A note when the plain factorisation, baseline (d), reproduces W better
+    than this circuit at equal J_EE density (the sparser of the two, the
+    other pruned to it), with what to try."""
+    rows = {b.name: b for b in base}
+    if "circuit@density" in rows:     # the circuit was the denser
+        ours, theirs = rows["circuit@density"], rows["nmf"]
+    elif "nmf@density" in rows:
+        ours = BaselineResult("circuit", "", 0, err, dens)
+        theirs = rows["nmf@density"]
+    else:
+        return ()
+    if not theirs.relative_error < ours.relative_error - LOSS_MARGIN:
+        return ()
+    return (f"the plain nonnegative factorisation (baseline d, "
+            f"{theirs.n_inhibitory} interneurons, no low-rank/sparse split) "
+            f"reproduces W better at equal J_EE density "
+            f"{theirs.ee_density:.3g}: relative error "
+            f"{theirs.relative_error:.3g} against this circuit's "
+            f"{ours.relative_error:.3g}. W's inhibition is not well described "
+            "as low-rank plus sparse at these settings: try a smaller alpha "
+            "(--alpha) or another lam, or read baseline (d) as the better "
+            "hypothesis (its interneurons are neither untuned nor tuned)",)
 
 
 def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha=None,

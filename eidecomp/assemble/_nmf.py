@@ -18,7 +18,7 @@ factors.
 
 import numpy as np
 
-__all__ = ["hals", "inner_passes", "nndsvd", "sweep"]
+__all__ = ["Factored", "hals", "inner_passes", "leading_svd", "nndsvd", "sweep"]
 
 INNER_EPS = 0.01    # accelerated HALS: stop the passes of one product when
                     # a pass moves the factor by less than this x the first
@@ -29,29 +29,42 @@ _DEAD_RTOL = 1e-12  # a component whose Gram diagonal is below this x the
 EXACT_SVD_MAX = 2000
 """Above this many rows or columns, NNDSVD takes the k leading singular
 triplets from a randomized SVD (Halko, Martinsson, Tropp 2011, SIAM Review
-53(2); scikit-learn's randomized_svd, seeded) instead of a full SVD, whose
+53(2); decompose._svt.leading_triplets, seeded) instead of a full SVD, whose
 cost grows as N^3 (343 s at N = 10,000 on the project's 2-core machine)."""
 
 
 def _leading_svd(M, k, seed):
     if max(M.shape) <= EXACT_SVD_MAX:
         return np.linalg.svd(M, full_matrices=False)
-    from sklearn.utils.extmath import randomized_svd
-
-    return randomized_svd(M, k, n_oversamples=10, n_iter=7,
-                          random_state=np.random.RandomState(seed))
+    return _randomized(M, k, seed)
 
 
-def nndsvd(M, k, seed=0):
+def _randomized(M, k, seed):
+    from ..decompose import leading_triplets  # one randomized SVD
+
+    return leading_triplets(M, k, seed=seed)
+
+
+def leading_svd(M, k, seed=0):
+    """The k leading singular triplets of M (U, s, Vt): all of a full SVD up
+    to :data:`EXACT_SVD_MAX`, a seeded randomized SVD above it or when k is
+    small against the size (k <= min(m, n) / 10)."""
+    if 0 < 10 * k <= min(M.shape):
+        return _randomized(M, k, seed)
+    return _leading_svd(M, k, seed)
+
+
+def nndsvd(M, k, seed=0, svd=None):
     """NNDSVD start for a nonnegative M: A (m, k), B (k, n), both >= 0.
 
-    ``seed`` seeds the randomized SVD used above :data:`EXACT_SVD_MAX`."""
+    ``seed`` seeds the randomized SVD used above :data:`EXACT_SVD_MAX`;
+    ``svd`` is M's leading triplets (U, s, Vt) when the caller has them."""
     m, n = M.shape
     A = np.zeros((m, k))
     B = np.zeros((k, n))
     if k == 0 or not np.any(M):
         return A, B
-    U, s, Vt = _leading_svd(M, k, seed)
+    U, s, Vt = _leading_svd(M, k, seed) if svd is None else svd
     for j in range(min(k, len(s))):
         u, v = U[:, j], Vt[j]
         up, un = np.maximum(u, 0), np.maximum(-u, 0)
@@ -67,9 +80,48 @@ def nndsvd(M, k, seed=0):
     return A, B
 
 
+class Factored:
+    """M = P Q given by its factors (P: m x q, Q: q x n), for HALS on a
+    low-rank stand-in of a large M: every product with M costs O((m + n) q)
+    per component instead of O(m n)."""
+
+    def __init__(self, P, Q):
+        self.P, self.Q = np.asarray(P, dtype=float), np.asarray(Q, dtype=float)
+        self.shape = (self.P.shape[0], self.Q.shape[1])
+
+    def times_t(self, B):
+        """M B^T."""
+        return self.P @ (self.Q @ B.T)
+
+    def t_times(self, A):
+        """A^T M."""
+        return (A.T @ self.P) @ self.Q
+
+    def norm2(self):
+        """||M||_F^2 = trace(P^T P Q Q^T)."""
+        return float(np.vdot(self.P.T @ self.P, self.Q @ self.Q.T))
+
+
+def _times_t(M, B):
+    return M.times_t(B) if isinstance(M, Factored) else M @ B.T
+
+
+def _t_times(A, M):
+    return M.t_times(A) if isinstance(M, Factored) else A.T @ M
+
+
+def _norm2(M):
+    return M.norm2() if isinstance(M, Factored) else float(np.vdot(M, M))
+
+
 def _objective(M, A, B, l1_a, l1_b):
-    R = M - A @ B
-    return 0.5 * float(np.vdot(R, R)) + l1_a * A.sum() + l1_b * B.sum()
+    if isinstance(M, Factored):
+        loss = 0.5 * max(M.norm2() - 2 * float(np.vdot(M.t_times(A), B))
+                         + float(np.vdot(A.T @ A, B @ B.T)), 0.0)
+    else:
+        R = M - A @ B
+        loss = 0.5 * float(np.vdot(R, R))
+    return loss + l1_a * A.sum() + l1_b * B.sum()
 
 
 def hals(M, A, B, *, l1_a=0.0, l1_b=0.0, mask_a=None, mask_b=None,
@@ -78,7 +130,8 @@ def hals(M, A, B, *, l1_a=0.0, l1_b=0.0, mask_a=None, mask_b=None,
 
     Parameters
     ----------
-    M : ndarray (m, n)
+    M : ndarray (m, n) or Factored
+        The matrix, or its factors (a low-rank stand-in for a large one).
     A : ndarray (m, k), B : ndarray (k, n)
         Nonnegative starting factors (copied).
     l1_a, l1_b : float
@@ -169,13 +222,13 @@ def sweep(M, A, B, *, l1_a=0.0, l1_b=0.0, mask_a=None, mask_b=None, inner=1):
     it, from the Gram matrices the sweep computed (no m x n residual)."""
     k = A.shape[1]
     if k == 0:
-        return 0.5 * float(np.vdot(M, M))
-    _passes(M @ B.T, A, B @ B.T, l1_a, mask_a, inner)
+        return 0.5 * _norm2(M)
+    _passes(_times_t(M, B), A, B @ B.T, l1_a, mask_a, inner)
     Bt = B.T                                   # rows of B as columns
-    AtM, AtA = A.T @ M, A.T @ A
+    AtM, AtA = _t_times(A, M), A.T @ A
     _passes(AtM.T, Bt, AtA, l1_b, None if mask_b is None else mask_b.T, inner)
     # 0.5 ||M - A B||^2 from the products at hand (the balance below keeps A B)
-    loss = 0.5 * max(float(np.vdot(M, M)) - 2 * float(np.vdot(AtM, B))
+    loss = 0.5 * max(_norm2(M) - 2 * float(np.vdot(AtM, B))
                      + float(np.vdot(AtA, B @ B.T)), 0.0)
     if (l1_a > 0) == (l1_b > 0):
         _balance(A, B, l1_a, l1_b)

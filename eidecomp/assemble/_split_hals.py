@@ -27,8 +27,8 @@ SPARSE_MIN_UNITS = 500
 iterates are the same to rounding: scipy.sparse's fixed cost per call
 (tens of microseconds) is more than the dense products there."""
 
-__all__ = ["SPARSE_MIN_UNITS", "hals_split", "objective_split", "paths",
-           "sweep_split", "tuned_parts"]
+__all__ = ["SPARSE_MIN_UNITS", "colouring", "hals_split", "objective_split",
+           "paths", "sweep_split", "tuned_parts", "update_order"]
 
 
 
@@ -36,115 +36,221 @@ def _is_sparse(M):
     return sparse.issparse(M)
 
 
-def _gram(X_dense, X_sp, n_u, rows):
-    """X X^T (rows=True, X = B) or X^T X (X = A), dense k x k, from the
-    dense untuned part and the sparse tuned part."""
-    if rows:
-        D, S = X_dense, X_sp
-        dd, sd, ss = D @ D.T, np.asarray(S @ D.T), (S @ S.T).toarray()
-    else:
-        D, S = X_dense, X_sp
-        dd, sd, ss = D.T @ D, np.asarray(S.T @ D), (S.T @ S).toarray()
-    k = n_u + ss.shape[0]
-    G = np.empty((k, k))
-    G[:n_u, :n_u], G[n_u:, :n_u], G[:n_u, n_u:], G[n_u:, n_u:] = dd, sd, sd.T, ss
-    return G
+def _ragged(starts, lens):
+    """The concatenated ranges [s, s + l) for s, l in zip(starts, lens):
+    positions into the index and data arrays of a compressed matrix."""
+    lens = np.asarray(lens, dtype=np.int64)
+    total = int(lens.sum())
+    if total == 0:
+        return np.zeros(0, dtype=np.int64)
+    first = np.concatenate([[0], np.cumsum(lens)[:-1]])
+    return np.repeat(np.asarray(starts, dtype=np.int64) - first, lens) + \
+        np.arange(total)
 
 
-def _times_bt(M, B, B_sp, n_u):
-    """M B^T as (dense untuned part, tuned part): the tuned part is dense
-    for a dense M and CSC for a sparse one."""
-    if _is_sparse(M):
-        return np.asarray(M @ B[:n_u].T), sparse.csc_matrix(M @ B_sp.T)
-    return M @ B[:n_u].T, np.asarray((B_sp @ M.T).T)
+def colouring(G_tt, live, previous=None):
+    """Colours of the tuned components such that no two components of one
+    colour overlap (G_tt[j, l] == 0 between them; G_tt is the tuned block
+    of the Gram matrix, CSR or CSC, symmetric; its diagonal is ignored), by
+    greedy colouring in index order; -1 for components not ``live``.
 
+    Components of one colour are decoupled in the objective, so updating
+    them at once is the same as updating them one after the other.
+    ``previous`` is kept when it is still a valid colouring with no more
+    colours than greedy colouring promises (the largest degree plus one).
 
-def _at_times(A, A_sp, M, n_u):
-    """A^T M as (dense untuned part, tuned part: dense, or CSR for a sparse
-    M)."""
-    if _is_sparse(M):
-        return np.asarray((M.T @ A[:, :n_u]).T), sparse.csr_matrix(A_sp.T @ M)
-    return A[:, :n_u].T @ M, np.asarray(A_sp.T @ M)
-
-
-def _columns(G):
-    """Per column j of the symmetric Gram matrix G: its nonzero rows and
-    values (the components that overlap j), from one CSC conversion."""
-    G_sp = sparse.csc_matrix(G)
-    ptr, idx, val = G_sp.indptr, G_sp.indices, G_sp.data
-    return [(idx[ptr[j]:ptr[j + 1]], val[ptr[j]:ptr[j + 1]])
-            for j in range(G.shape[0])]
-
-
-def _tuned_base(part, j, l1, mask, along_rows):
-    """(indices, values of the product) where tuned component j (column or
-    row j of ``part``) can be nonzero: its ``mask`` (a boolean vector), or
-    without one the entries of the product above l1 (the update subtracts
-    nonnegative terms from it, so elsewhere it is zero)."""
-    if mask is not None:
-        idx = np.flatnonzero(mask)
-        if sparse.issparse(part):
-            vec = (part[:, [j]] if along_rows else part[[j]]).toarray().ravel()
-        else:
-            vec = part[:, j] if along_rows else part[j]
-        return idx, vec[idx]
-    if sparse.issparse(part):
-        lo, hi = part.indptr[j], part.indptr[j + 1]
-        idx, val = part.indices[lo:hi], part.data[lo:hi]
-        return idx[val > l1], val[val > l1]
-    vec = part[:, j] if along_rows else part[j]
-    idx = np.flatnonzero(vec > l1)
-    return idx, vec[idx]
-
-
-def _csc_from_columns(parts, n_rows):
-    """A CSC matrix from per-column (row index, value) pairs, in O(nnz)."""
-    sizes = np.fromiter((idx.size for idx, _ in parts), dtype=np.int64,
-                        count=len(parts))
-    ptr = np.concatenate([[0], np.cumsum(sizes)])
-    idx = (np.concatenate([i for i, _ in parts]) if parts
-           else np.zeros(0, dtype=np.int64))
-    val = np.concatenate([v for _, v in parts]) if parts else np.zeros(0)
-    return sparse.csc_matrix((val, idx, ptr), shape=(n_rows, len(parts)))
-
-
-def _update_a(A, MBt_u, MBt_t, G, n_u, l1, mask_a):
-    """Every column of A in turn, each the exact minimiser of its problem
-    (MBt_u, MBt_t: M B^T's untuned and tuned columns, G = B B^T). Returns
-    the tuned columns as a CSC matrix."""
-    dead = _DEAD_RTOL * G.diagonal().max()
-    parts = []
-    for j, (nz, g) in enumerate(_columns(G)):
-        d = G[j, j]
-        if d <= dead or d == 0:
-            if j >= n_u:
-                keep = np.flatnonzero(A[:, j])
-                parts.append((keep, A[keep, j]))
+    >>> G = sparse.csr_matrix(np.array([[0, 1, 0], [1, 0, 1], [0, 1, 0.]]))
+    >>> colouring(G, np.ones(3, bool)).tolist()
+    [0, 1, 0]
+    """
+    G = sparse.csr_matrix(G_tt)
+    if previous is not None and _still_valid(G, live, previous):
+        return previous
+    ptr, idx = G.indptr, G.indices
+    colour = np.full(G.shape[0], -1, dtype=np.int64)
+    for j in np.flatnonzero(live):
+        used = colour[idx[ptr[j]:ptr[j + 1]]]
+        used = used[used >= 0]
+        if used.size == 0:
+            colour[j] = 0
             continue
-        if j < n_u:
-            col = (MBt_u[:, j] - A[:, nz] @ g + A[:, j] * d) / d
-            np.maximum(col, 0.0, out=col)
-            if mask_a is not None:
-                col *= mask_a[:, j]
-            A[:, j] = col
+        taken = np.zeros(int(used.max()) + 2, dtype=bool)
+        taken[used] = True
+        colour[j] = int(np.argmin(taken))
+    return colour
+
+
+def _still_valid(G, live, colour):
+    if colour.shape[0] != G.shape[0] or (colour[live] < 0).any():
+        return False
+    if colour.max(initial=-1) > np.diff(G.indptr).max(initial=0):
+        return False                    # more colours than greedy would use
+    rows = np.repeat(np.arange(G.shape[0]), np.diff(G.indptr))
+    cols = G.indices
+    both = live[rows] & live[cols] & (rows != cols)
+    return not (colour[rows[both]] == colour[cols[both]]).any()
+
+
+def _grams(Y, Y_sp, n_u):
+    """Y Y^T in pieces, Y (k x n) with tuned rows Y_sp (CSR): the untuned
+    block (dense), untuned-tuned (dense n_u x k_t), the tuned block (CSC)
+    and the diagonal of all."""
+    Y_u = Y[:n_u]
+    G_uu = Y_u @ Y_u.T
+    G_ut = np.asarray(Y_sp @ Y_u.T).T
+    G_tt = sparse.csc_matrix(Y_sp @ Y_sp.T)
+    return G_uu, G_ut, G_tt, np.concatenate([G_uu.diagonal(),
+                                             G_tt.diagonal()])
+
+
+def _rescaled(grams, f):
+    """The pieces of Y Y^T after Y's rows are divided by f."""
+    G_uu, G_ut, G_tt, diag = grams
+    n_u = G_uu.shape[0]
+    fu, ft = f[:n_u], f[n_u:]
+    G_tt = G_tt.tocoo()
+    G_tt = sparse.csc_matrix((G_tt.data / (ft[G_tt.row] * ft[G_tt.col]),
+                              (G_tt.row, G_tt.col)), shape=G_tt.shape)
+    return (G_uu / np.outer(fu, fu), G_ut / np.outer(fu, ft), G_tt,
+            diag / f ** 2)
+
+
+def _inner(g1, g2):
+    """<G1, G2> of two Gram matrices given in pieces."""
+    return (float(np.vdot(g1[0], g2[0])) + 2 * float(np.vdot(g1[1], g2[1]))
+            + float(g1[2].multiply(g2[2]).sum()))
+
+
+def _entries_of(Xs, n_rows):
+    """(rows, cols, values) of a CSC matrix, sorted by column."""
+    cols = np.repeat(np.arange(Xs.shape[1]), np.diff(Xs.indptr))
+    return Xs.indices, cols, Xs.data
+
+
+def _omega(M, Y_sp, l1, mask_t):
+    """Where the tuned columns of X can be nonzero, and (M Y^T) there: the
+    mask's entries, or without one the entries where M Y^T exceeds l1 (the
+    update subtracts nonnegative terms from it, so elsewhere it is zero).
+    Returns rows, cols (sorted by column) and the values of M Y^T."""
+    m = M.shape[0]
+    if _is_sparse(M):
+        P = sparse.csc_matrix(M @ Y_sp.T)
+        P.sum_duplicates()
+        if mask_t is None:
+            rows, cols, vals = _entries_of(P, m)
+            keep = vals > l1
+            return rows[keep], cols[keep], vals[keep]
+        cols, rows = np.nonzero(mask_t.T)
+        vals = np.asarray(P.tocsr()[rows, cols]).ravel() if rows.size \
+            else np.zeros(0)
+        return rows, cols, vals
+    if mask_t is None:
+        P = np.asarray(Y_sp @ M.T)           # k_t x m: (M Y^T)^T
+        cols, rows = np.nonzero(P > l1)
+        return rows, cols, P[cols, rows]
+    cols, rows = np.nonzero(mask_t.T)
+    lens = np.diff(Y_sp.indptr)[cols]
+    if int(lens.sum()) <= Y_sp.nnz * m:      # sampled product, O(triples)
+        pos = _ragged(Y_sp.indptr[cols], lens)
+        owner = np.repeat(np.arange(rows.size), lens)
+        vals = np.bincount(owner, weights=M[rows[owner], Y_sp.indices[pos]]
+                           * Y_sp.data[pos], minlength=rows.size)
+        return rows, cols, vals
+    P = np.asarray(Y_sp @ M.T)
+    return rows, cols, P[cols, rows]
+
+
+def _update_untuned(X, P_u, G_uu, G_ut, X_sp, diag, dead, mask_u, n_u):
+    """The untuned columns of X one at a time (each couples with all)."""
+    for j in range(n_u):
+        if dead[j]:
             continue
-        rows, base = _tuned_base(MBt_t, j - n_u, l1,
-                                 None if mask_a is None else mask_a[:, j], True)
-        val = np.maximum(base - A[rows[:, None], nz] @ g + A[rows, j] * d - l1,
-                         0.0) / d
-        A[:, j] = 0.0
-        A[rows, j] = val
-        pos = val > 0
-        parts.append((rows[pos], val[pos]))
-    return _csc_from_columns(parts, A.shape[0])
+        d = diag[j]
+        col = (P_u[:, j] - X[:, :n_u] @ G_uu[:, j] - X_sp @ G_ut[j]
+               + X[:, j] * d) / d
+        np.maximum(col, 0.0, out=col)
+        if mask_u is not None:
+            col *= mask_u[:, j]
+        X[:, j] = col
 
 
-def _update_b(B, AtM_u, AtM_t, G, n_u, l1, mask_b):
-    """Every row of B in turn: the columns of B^T by :func:`_update_a` (G is
-    symmetric, B^T's columns are B's rows). Returns the tuned rows as CSR."""
-    B_sp = _update_a(B.T, AtM_u.T, AtM_t.T, G, n_u, l1,
-                     None if mask_b is None else mask_b.T)
-    return B_sp.T.tocsr()
+def _class_sum(X_t, rows, cols, G_tt, members):
+    """sum_l X_t[i, l] G_tt[l, j] at the entries (i, j) of one class, by
+    whichever is cheaper: the (entry, component) pairs, or the dense
+    product X_t G_tt[:, class] (``members``: the class, sorted)."""
+    col_lens = np.diff(G_tt.indptr)
+    lens = col_lens[cols]
+    pairs = int(lens.sum())
+    if pairs == 0:
+        return np.zeros(rows.size)
+    if pairs <= int(col_lens[members].sum()) * X_t.shape[0]:
+        pos = _ragged(G_tt.indptr[cols], lens)
+        owner = np.repeat(np.arange(rows.size), lens)
+        return np.bincount(owner, weights=X_t[rows[owner], G_tt.indices[pos]]
+                           * G_tt.data[pos], minlength=rows.size)
+    Y = np.asarray(G_tt[:, members].T @ X_t.T)            # |class| x m
+    return Y[np.searchsorted(members, cols), rows]
+
+
+def _half_sweep(X, M, Y, Y_sp, X_sp, n_u, l1, mask, cache, key, grams=None):
+    """Every column of X (A, or B^T) once, minimising 0.5 ||M - X Y||^2 +
+    l1 (sum of X's tuned columns): the untuned columns one at a time, then
+    the tuned ones a colour class at a time (a class holds components that
+    do not overlap, so the block update is exact). X_sp: X's tuned columns
+    (CSC) before the sweep; ``grams``: Y Y^T in pieces when the caller has
+    it. Returns X's tuned columns after it (CSC), and <M Y^T, X> after it
+    with the Gram pieces used (for the loss)."""
+    m, k = X.shape
+    k_t = k - n_u
+    grams = _grams(Y, Y_sp, n_u) if grams is None else grams
+    G_uu, G_ut, G_tt, diag = grams
+    dead = (diag <= _DEAD_RTOL * diag.max(initial=0.0)) | (diag == 0)
+    mask_u = None if mask is None else mask[:, :n_u]
+    cross = 0.0
+    if n_u:
+        P_u = np.asarray(M @ Y[:n_u].T)
+        _update_untuned(X, P_u, G_uu, G_ut, X_sp, diag, dead, mask_u, n_u)
+        cross = float(np.vdot(P_u, X[:, :n_u]))
+    if k_t == 0:
+        return sparse.csc_matrix((m, 0)), cross, grams
+    live = ~dead[n_u:]
+    colour = colouring(G_tt, live, cache.get(key))
+    cache[key] = colour
+    rows, cols, P_om = _omega(M, Y_sp, l1, None if mask is None
+                              else mask[:, n_u:])
+    keep = live[cols]
+    rows, cols, P_om = rows[keep], cols[keep], P_om[keep]
+    base = P_om - l1 - np.einsum("eu,ue->e", X[rows, :n_u], G_ut[:, cols])
+    order = np.argsort(colour[cols], kind="stable")
+    rows, cols, base, P_om = rows[order], cols[order], base[order], P_om[order]
+    bounds = np.searchsorted(colour[cols], np.arange(colour.max() + 2))
+    o_rows, o_cols, _ = _entries_of(X_sp, m)
+    X_t = X[:, n_u:]
+    d_t = diag[n_u:]
+    values = np.empty(rows.size)
+    for c in range(colour.max() + 1):
+        lo, hi = bounds[c], bounds[c + 1]
+        r, j = rows[lo:hi], cols[lo:hi]
+        val = (base[lo:hi] + X_t[r, j] * d_t[j]
+               - _class_sum(X_t, r, j, G_tt, np.flatnonzero(colour == c)))
+        np.maximum(val, 0.0, out=val)
+        val /= d_t[j]
+        old = colour[o_cols] == c
+        X_t[o_rows[old], o_cols[old]] = 0.0
+        X_t[r, j] = val
+        values[lo:hi] = val
+    cross += float(P_om @ values)
+    kept = ~live[o_cols]                 # dead components keep their values
+    r_all = np.concatenate([rows, o_rows[kept]])
+    c_all = np.concatenate([cols, o_cols[kept]])
+    v_all = np.concatenate([values, X_t[o_rows[kept], o_cols[kept]]])
+    if kept.any():                       # their share of <M Y^T, X>
+        dead_t = np.flatnonzero(~live)
+        P_dead = np.asarray(M @ Y_sp[dead_t].T.toarray())
+        cross += float(np.vdot(P_dead, X_t[:, dead_t]))
+    pos = v_all > 0
+    return (sparse.csc_matrix((v_all[pos], (r_all[pos], c_all[pos])),
+                              shape=(m, k_t)), cross, grams)
 
 
 def tuned_parts(A, B, n_u):
@@ -152,13 +258,20 @@ def tuned_parts(A, B, n_u):
     return sparse.csc_matrix(A[:, n_u:]), sparse.csr_matrix(B[n_u:])
 
 
-def sweep_split(M, A, B, n_u, *, l1=0.0, mask_a=None, mask_b=None, B_sp=None):
+def sweep_split(M, A, B, n_u, *, l1=0.0, mask_a=None, mask_b=None, B_sp=None,
+                A_sp=None, cache=None):
     """One HALS sweep in place over dense untuned (first ``n_u``) and sparse
     tuned components, minimising 0.5 ||M - A B||_F^2 + l1 (sum of the tuned
-    factors); the same updates as :func:`eidecomp.assemble._nmf.sweep`.
+    factors): every column of A, then every row of B, each the exact
+    minimiser of its convex problem given the others.
 
-    ``B_sp`` is B's tuned rows as CSR when the caller has it (the previous
-    sweep returns it). Returns the tuned parts (A_sp, B_sp) after the sweep.
+    The untuned components are updated one at a time, in order; the tuned
+    ones a colour class at a time (:func:`colouring`: no two components of a
+    class overlap, so the block is the same as one at a time, in the order
+    ``cache["order_a"]`` and ``cache["order_b"]`` record). ``A_sp``, ``B_sp``
+    are the tuned parts when the caller has them (the previous sweep returns
+    them); ``cache`` (a dict) keeps the colourings from sweep to sweep.
+    Returns the tuned parts (A_sp, B_sp) after the sweep.
 
     Examples
     --------
@@ -174,23 +287,43 @@ def sweep_split(M, A, B, n_u, *, l1=0.0, mask_a=None, mask_b=None, B_sp=None):
     """
     if A.shape[1] == 0:
         return tuned_parts(A, B, n_u)
+    cache = {} if cache is None else cache
     if max(A.shape[0], B.shape[1]) < SPARSE_MIN_UNITS and not (n_u and l1):
         # small: the dense sweep is the same computation at less overhead
         sweep(M.toarray() if _is_sparse(M) else M, A, B, l1_a=l1, l1_b=l1,
               mask_a=mask_a, mask_b=mask_b)
+        cache.pop("a", None), cache.pop("b", None)
         return tuned_parts(A, B, n_u)
     if B_sp is None:
         B_sp = sparse.csr_matrix(B[n_u:])
-    MBt_u, MBt_t = _times_bt(M, B, B_sp, n_u)
-    A_sp = _update_a(A, MBt_u, MBt_t, _gram(B[:n_u], B_sp, n_u, True), n_u, l1,
-                     mask_a)
-    AtM_u, AtM_t = _at_times(A, A_sp, M, n_u)
-    B_sp = _update_b(B, AtM_u, AtM_t, _gram(A[:, :n_u], A_sp, n_u, False), n_u,
-                     l1, mask_b)
-    f = _balance(A, B, n_u, l1)[n_u:]
-    A_sp.data *= np.repeat(f, np.diff(A_sp.indptr))
-    B_sp.data /= np.repeat(f, np.diff(B_sp.indptr))
+    if A_sp is None:
+        A_sp = sparse.csc_matrix(A[:, n_u:])
+    known = cache.get("grams_b")
+    grams_b = known[1] if known is not None and known[0] is B_sp else None
+    A_sp, _, _ = _half_sweep(A, M, B, B_sp, A_sp, n_u, l1, mask_a, cache, "a",
+                             grams_b)
+    Bt_sp, cross, grams_a = _half_sweep(
+        B.T, M.T, A.T, A_sp.T.tocsr(), B_sp.T.tocsc(), n_u, l1,
+        None if mask_b is None else mask_b.T, cache, "b")
+    B_sp = Bt_sp.T.tocsr()
+    grams_b = _grams(B, B_sp, n_u)
+    # 0.5 ||M - A B||^2 = 0.5 (||M||^2 - 2 <M^T A, B^T> + <A^T A, B B^T>)
+    m2 = cache.get("m2")               # ||M||^2, when the caller keeps M
+    if m2 is None:
+        m2 = float(M.multiply(M).sum() if _is_sparse(M) else np.vdot(M, M))
+    cache["loss"] = 0.5 * max(m2 - 2 * cross + _inner(grams_a, grams_b), 0.0)
+    f = _balance(A, B, n_u, l1)
+    A_sp.data *= np.repeat(f[n_u:], np.diff(A_sp.indptr))
+    B_sp.data /= np.repeat(f[n_u:], np.diff(B_sp.indptr))
+    cache["grams_b"] = (B_sp, _rescaled(grams_b, f))
     return A_sp, B_sp
+
+
+def update_order(colour):
+    """The tuned components in the order a sweep updates them (class by
+    class, ascending within a class), live ones only."""
+    live = np.flatnonzero(colour >= 0)
+    return live[np.argsort(colour[live], kind="stable")]
 
 
 def _balance(A, B, n_u, l1):
@@ -230,28 +363,35 @@ def objective_split(M, A, B, n_u, l1=0.0, m_norm2=None, parts=None):
         R = M - paths(A, B, n_u, parts=(A_sp, B_sp))
         return 0.5 * float(np.vdot(R, R)) + tuned
     m2 = float(M.multiply(M).sum()) if m_norm2 is None else m_norm2
-    AtM_u, AtM_t = _at_times(A, A_sp, M, n_u)
-    cross = float(np.vdot(AtM_u, B[:n_u]) + AtM_t.multiply(B_sp).sum())
-    gram = float(np.vdot(_gram(A[:, :n_u], A_sp, n_u, False),
-                         _gram(B[:n_u], B_sp, n_u, True)))
+    AtM_u = np.asarray(M.T @ A[:, :n_u]).T
+    cross = float(np.vdot(AtM_u, B[:n_u])
+                  + sparse.csr_matrix(A_sp.T @ M).multiply(B_sp).sum())
+    gram = _inner(_grams(A.T, A_sp.T.tocsr(), n_u), _grams(B, B_sp, n_u))
     return 0.5 * max(m2 - 2 * cross + gram, 0.0) + tuned
 
 
 def hals_split(M, A, B, n_u, *, l1=0.0, mask_a=None, mask_b=None,
-               max_iter=500, tol=1e-7):
+               max_iter=500, tol=1e-7, scale=None):
     """:func:`eidecomp.assemble._nmf.hals` with dense untuned and sparse
     tuned components (l1 on the tuned ones only); M dense or scipy.sparse.
+    It stops when a sweep lowers the objective by less than ``tol`` times
+    ``scale`` (by default the objective at the start).
     Returns A, B (copies) and the same ``info``."""
     A = np.array(A, dtype=float, copy=True, order="F")  # columns contiguous
     B = np.array(B, dtype=float, copy=True)
-    m2 = float(M.multiply(M).sum()) if _is_sparse(M) else None
+    m2 = float(M.multiply(M).sum() if _is_sparse(M) else np.vdot(M, M))
     parts = tuned_parts(A, B, n_u)
     history = [objective_split(M, A, B, n_u, l1, m2, parts)]
     converged = A.shape[1] == 0 or history[0] == 0
+    cache = {"m2": m2}
     while not converged and len(history) <= max_iter:
         parts = sweep_split(M, A, B, n_u, l1=l1, mask_a=mask_a, mask_b=mask_b,
-                            B_sp=parts[1])
-        history.append(objective_split(M, A, B, n_u, l1, m2, parts))
-        converged = history[-2] - history[-1] <= tol * history[0]
+                            A_sp=parts[0], B_sp=parts[1], cache=cache)
+        loss = cache.pop("loss", None)
+        history.append(objective_split(M, A, B, n_u, l1, m2, parts)
+                       if loss is None
+                       else loss + l1 * (parts[0].sum() + parts[1].sum()))
+        converged = history[-2] - history[-1] <= tol * (
+            history[0] if scale is None else scale)
     return A, B, {"n_iter": len(history) - 1, "converged": converged,
                   "history": history}

@@ -2,7 +2,8 @@
 
 Public names: :func:`robust_pca` (one solve), :func:`lambda_path` (a sweep over
 lam), :func:`default_lam`, :func:`pcp_objective` and the estimator
-:class:`RobustPCA`. The numerics live in private modules that take and return
+:class:`RobustPCA`; :func:`leading_triplets` (a seeded randomized SVD, which
+the assembler uses too). The numerics live in private modules that take and return
 arrays: ``_ialm`` (inexact ALM), ``_svt`` (singular value thresholding),
 ``_convex`` (cvxpy programs), ``_circulant`` (the same ALM on the kernel of a
 translation-invariant matrix); :func:`robust_pca_kernel` is its public entry.
@@ -12,8 +13,9 @@ from ._api import METHODS, default_lam, lambda_path, pcp_objective, robust_pca
 from ._convex import SOLVERS
 from ._dask_api import DaskDecomposition, robust_pca_dask
 from ._kernel_api import robust_pca_kernel
+from ._svt import leading_triplets
 from .estimator import RobustPCA
 
 __all__ = ["METHODS", "SOLVERS", "DaskDecomposition", "RobustPCA", "default_lam",
-           "lambda_path", "pcp_objective", "robust_pca", "robust_pca_dask",
-           "robust_pca_kernel"]
+           "lambda_path", "leading_triplets", "pcp_objective", "robust_pca",
+           "robust_pca_dask", "robust_pca_kernel"]
