@@ -89,3 +89,45 @@ def test_the_large_path_builds_a_planted_circuit(large_path, monkeypatch, n,
     names = {b.name for b in c.report.baselines}
     assert "nmf" not in names and {"private", "global", "drop"} <= names
     assert any("baseline (d)" in note for note in c.report.notes)
+
+
+def test_an_assembly_that_will_not_fit_is_refused_before_it_starts():
+    # the estimate is checked before any N x N array is made: with a budget
+    # below it, one InputError names the sizes and the memory figures
+    from eidecomp.errors import InputError
+
+    W, _, _ = make_planted_circuit(60, n_untuned=2, n_tuned=13, pool=4, seed=0)
+    need = asm.assembly_bytes(60, 15)
+    assert need == 6 * 60 * 60 * 8 + 2 * 60 * 15 * 17
+    with pytest.raises(InputError, match="assembling 60 excitatory units and "
+                                         "15 interneurons needs about"):
+        assemble(W, max_bytes=need - 1, baselines=False)
+    assert assemble(W, max_bytes=need, baselines=False).n_inhibitory == 15
+
+
+@pytest.mark.filterwarnings("ignore::eidecomp.errors.ConvergenceWarning")
+@pytest.mark.parametrize("n", [400, 2400])
+def test_the_memory_estimate_bounds_what_assembly_allocates(n, monkeypatch):
+    # Python's tracemalloc, which numpy reports its buffers to, measures the
+    # peak of what assemble allocates beside its input (the decomposition);
+    # it must stay within assembly_bytes, which the refusal above uses.
+    # At 2,400 units the large path (greedy start) runs; 60 sweeps keep the
+    # test short (the refinement may stop before its tolerance: ignored).
+    import tracemalloc
+
+    from eidecomp.decompose import robust_pca
+
+    W, _, _ = make_planted_circuit(n, n_untuned=4, n_tuned=n // 4 - 4,
+                                   pool=8, seed=1)
+    dec = robust_pca(W, seed=0)
+    del W
+    tracemalloc.start()
+    try:
+        c = assemble(dec, baselines=False, max_iter=60)
+        peak = tracemalloc.get_traced_memory()[1]
+    finally:
+        tracemalloc.stop()
+    assert peak <= asm.assembly_bytes(n, c.n_inhibitory)
+    assert peak >= 3 * n * n * 8          # W, J_EE and a residual: it is tight
+    if n > nmf.EXACT_SVD_MAX:
+        assert peak >= 0.8 * asm.assembly_bytes(n, c.n_inhibitory)

@@ -30,8 +30,15 @@ import numpy as np
 from scipy import sparse
 
 from ..errors import InputError, warn_stopped
+from ..limits import check_fits
 from ..params import CONNECTION_RTOL, DEFAULT_EI_RATIO, EIRatio
-from ..types import AssemblyReport, BaselineResult, Circuit, Decomposition
+from ..types import (
+    AssemblyReport,
+    BaselineResult,
+    Circuit,
+    Decomposition,
+    handing_over,
+)
 from ._baselines import NMF_MAX_UNITS, _prune_to_density
 from ._baselines import baselines as score_baselines
 from ._counts import inhibitory_count, split_counts
@@ -39,7 +46,7 @@ from ._nmf import EXACT_SVD_MAX, Factored, hals, leading_svd, nndsvd
 from ._split_hals import hals_split, paths, sweep_split, tuned_parts
 from ._support import apply_floor, greedy_start, inactive, restart
 
-__all__ = ["assemble"]
+__all__ = ["assemble", "assembly_bytes"]
 
 ALPHA_DEFAULT = 0.02   # l1 weight on J_EE, times ALPHA_QUANTILE of W's
 ALPHA_QUANTILE = 0.95  # positive entries (default_alpha)
@@ -82,8 +89,23 @@ def default_alpha(W):
     return float(ALPHA_DEFAULT * np.quantile(pos, ALPHA_QUANTILE))
 
 
+def assembly_bytes(n, n_i):
+    """Bytes :func:`assemble` allocates beside its input (checked with
+    tracemalloc in tests/test_assembly_scale.py): W in working units (L + S
+    for a decomposition), then either the tuned side of S and a residual or
+    J_EE (which the circuit keeps) and one temporary, two N x N arrays at a
+    time; the dense factors J_EI, J_IE, a copy of them while they are
+    stacked and refined, and their masks. Up to EXACT_SVD_MAX units, the
+    tuned start's full SVD (U and Vt) and a dense copy of the tuned side
+    add three more N x N arrays (at most 288 MB there)."""
+    n, n_i = int(n), int(n_i)
+    arrays = 3 if n > EXACT_SVD_MAX else 6
+    return arrays * n * n * 8 + 2 * n * n_i * (8 + 8 + 1)
+
+
 def _split(W_or_dec, seed, decompose_kwargs):
-    """(W, L, S, dec): W is the array given, or L + S of a decomposition."""
+    """(W, L, S, dec, own): W is the array given, or L + S of a decomposition
+    (then a new array, ``own``, which the caller may change in place)."""
     if isinstance(W_or_dec, Decomposition):
         dec = W_or_dec
         W = None
@@ -94,7 +116,7 @@ def _split(W_or_dec, seed, decompose_kwargs):
         dec = robust_pca(W, seed=seed, **(decompose_kwargs or {}))
     L = np.asarray(dec.low_rank, dtype=float)
     S = np.asarray(dec.sparse, dtype=float)
-    return (L + S if W is None else W), L, S, dec
+    return (L + S if W is None else W), L, S, dec, W is None
 
 
 def _fill_dead(A, B, scale, rng):
@@ -132,17 +154,39 @@ def _notes(W, n_i, ratio, A, B, n_u):
             f"connection floor ({CONNECTION_RTOL:g} max|W|)",)
 
 
-def _dropped(W, J_EE):
-    """(left out, all, largest left out) of W's positive entries."""
+def _dropped(W, J_EE, unit=1.0):
+    """(left out, all, largest left out, times ``unit``) of W's positive
+    entries."""
     pos = W > 0
     out = pos & (J_EE <= 0)
     return (int(out.sum()), int(pos.sum()),
-            float(W[out].max()) if out.any() else 0.0)
+            float(W[out].max()) * unit if out.any() else 0.0)
+
+
+def _residual(W, J_EE, A, B, n_u, parts=None):
+    """W - J_EE + A B, in one new N x N array."""
+    R = paths(A, B, n_u, parts)
+    R += W
+    R -= J_EE
+    return R
 
 
 def _objective(W, J_EE, A, B, alpha, n_u, parts=None):
-    R = W - J_EE + paths(A, B, n_u, parts)
+    R = _residual(W, J_EE, A, B, n_u, parts)
     return 0.5 * float(np.vdot(R, R)) + alpha * float(J_EE.sum())
+
+
+def _excitation(W, A, B, n_u, alpha, ee_support, parts=None, out=None):
+    """J_EE = max(W + A B - alpha, 0) on ``ee_support`` (None: everywhere),
+    the exact minimiser given the paths; written into ``out`` when given
+    (at most one N x N array either way)."""
+    J = paths(A, B, n_u, parts, out=out)
+    J += W
+    J -= alpha
+    np.maximum(J, 0.0, out=J)
+    if ee_support is not None:
+        J *= ee_support
+    return J
 
 
 def _descend(W, A, B, n_u, masks, alpha, ee_support, max_iter, tol,
@@ -154,10 +198,9 @@ def _descend(W, A, B, n_u, masks, alpha, ee_support, max_iter, tol,
     start = len(history)
     parts = tuned_parts(A, B, n_u)
     cache = {}                           # colourings and Grams, sweep to sweep
+    J_EE = None
     while not converged and len(history) - start < max_iter:
-        J_EE = np.maximum(W + paths(A, B, n_u, parts) - alpha, 0.0)
-        if ee_support is not None:
-            J_EE *= ee_support
+        J_EE = _excitation(W, A, B, n_u, alpha, ee_support, parts, out=J_EE)
         J_EE -= W                        # the sweep fits J_EE - W ~ A B
         parts = sweep_split(J_EE, A, B, n_u, mask_a=masks[0],
                             mask_b=masks[1], A_sp=parts[0], B_sp=parts[1],
@@ -171,15 +214,17 @@ def _descend(W, A, B, n_u, masks, alpha, ee_support, max_iter, tol,
         converged = (len(history) - start > 1
                      and history[-2] - history[-1] <= tol * scale)
     it = len(history) - start
-    J_EE = np.maximum(W + paths(A, B, n_u, parts) - alpha, 0.0)
-    if ee_support is not None:
-        J_EE *= ee_support
-    return J_EE, it, converged
+    return _excitation(W, A, B, n_u, alpha, ee_support, parts, out=J_EE), it, \
+        converged
 
 
 def _owed(W, J_EE, A, B, n_u):
-    """The inhibition W asks for and the circuit does not give, >= 0."""
-    return np.maximum(J_EE - paths(A, B, n_u) - W, 0.0)
+    """The inhibition W asks for and the circuit does not give, >= 0 (one
+    new N x N array)."""
+    R = _residual(W, J_EE, A, B, n_u)
+    np.negative(R, out=R)
+    np.maximum(R, 0.0, out=R)
+    return R
 
 
 def _fit(W, A, B, n_u, masks, alpha, max_iter, tol, history, progress):
@@ -187,7 +232,9 @@ def _fit(W, A, B, n_u, masks, alpha, max_iter, tol, history, progress):
     weights floored."""
     J_EE, it1, ok1 = _descend(W, A, B, n_u, masks, alpha, None, max_iter, tol,
                               history, progress, "refinement")
-    J_EE, it2, ok2 = _descend(W, A, B, n_u, masks, 0.0, J_EE > 0, max_iter,
+    support = J_EE > 0
+    del J_EE
+    J_EE, it2, ok2 = _descend(W, A, B, n_u, masks, 0.0, support, max_iter,
                               tol, history, progress, "debiasing")
     return J_EE, it1 + it2, ok1 and ok2, apply_floor(J_EE, A, B)
 
@@ -212,11 +259,12 @@ def _refine(W, A, B, mask_a, mask_b, alpha, n_u, max_iter, tol, history,
             break
         tell("new starts for emptied interneurons")
         started = restart(_owed(W, J_EE, A, B, n_u), A, B,
-                          silent[silent < n_u], floor=RESTART_RTOL)
+                          silent[silent < n_u], floor=RESTART_RTOL, copy=False)
         owed = _owed(W, J_EE, A, B, n_u)
         started += restart(owed, A, B, silent[silent >= n_u],
                            l1=TUNED_L1 * float(owed.max()), mask_a=mask_a,
-                           mask_b=mask_b, floor=RESTART_RTOL)
+                           mask_b=mask_b, floor=RESTART_RTOL, copy=False)
+        del owed
         if not started:
             break
         restarted += len(started)
@@ -225,13 +273,31 @@ def _refine(W, A, B, mask_a, mask_b, alpha, n_u, max_iter, tol, history,
     return J_EE, n_iter, converged, (restarted, floored)
 
 
-def _first_factorisations(M_u, M_t, n_u, n_t, start, seed, max_iter, tell):
+def _unexplained(M, A, B):
+    """max(M - A B, 0) for tuned-only factors, in one new array."""
+    R = paths(A, B, 0)
+    np.subtract(M, R, out=R)
+    np.maximum(R, 0.0, out=R)
+    return R
+
+
+def _inhibitory_side(X, unit):
+    """max(-X, 0) / unit, in one new array."""
+    M = np.negative(X)
+    np.maximum(M, 0.0, out=M)
+    M /= unit
+    return M
+
+
+def _first_factorisations(L, S, unit, n_u, n_t, start, seed, max_iter, tell):
     """Steps 2-3: NNDSVD + HALS of the inhibitory sides of L (dense, untuned
-    pools) and of S (l1, tuned pools, their supports then fixed). Returns
-    the stacked factors A (E x I), B (I x E), the masks of their supports
-    and the number of tuned pools that emptied and were started again."""
+    pools) and of S (l1, tuned pools, their supports then fixed), in units
+    of ``unit``. Returns the stacked factors A (E x I), B (I x E), the masks
+    of their supports and the number of tuned pools that emptied and were
+    started again. One N x N side is held at a time."""
     tell("untuned factorisation")
     rng = np.random.default_rng(seed)
+    M_u = _inhibitory_side(L, unit)
     # the untuned side comes from a low-rank L: its HALS runs on the leading
     # 2 n_u + STAND_IN_EXTRA triplets of max(-L, 0), a stand-in whose
     # products cost O(N q) per component (the refinement then fits W itself)
@@ -243,7 +309,9 @@ def _first_factorisations(M_u, M_t, n_u, n_t, start, seed, max_iter, tell):
     if U is not None:
         A_u, B_u, _ = hals(Factored(U * s, Vt), A_u, B_u, max_iter=max_iter,
                            tol=1e-6)
+    del M_u
     tell("tuned factorisation")
+    M_t = _inhibitory_side(S, unit)
     l1 = tuned_l1(M_t)
     if max(M_t.shape) <= EXACT_SVD_MAX:
         A_t, B_t = nndsvd(M_t, n_t)
@@ -256,9 +324,8 @@ def _first_factorisations(M_u, M_t, n_u, n_t, start, seed, max_iter, tell):
     restarted = 0
     for _ in range(RESTART_ROUNDS):  # the l1 term can empty a pool: start it
         dead = inactive(A_t, B_t)    # again on the largest piece left
-        started = restart(np.maximum(M_t - paths(A_t, B_t, 0), 0.0), A_t, B_t,
-                          dead,
-                          l1=l1, floor=RESTART_RTOL) if dead.size else []
+        started = restart(_unexplained(M_t, A_t, B_t), A_t, B_t, dead, l1=l1,
+                          floor=RESTART_RTOL, copy=False) if dead.size else []
         if not started:
             break
         restarted += len(started)
@@ -272,7 +339,7 @@ def _first_factorisations(M_u, M_t, n_u, n_t, start, seed, max_iter, tell):
             np.vstack([np.ones_like(B_u, bool), mask_t_b]), restarted)
 
 
-def _scored_baselines(W, n_i, circuit, err, dens, max_iter):
+def _scored_baselines(W, n_i, J_EE, A, B, n_u, err, dens, max_iter):
     """The four baselines, and this circuit pruned to nmf's density when it
     is denser (a comparison at equal density)."""
     base = score_baselines(W, n_i, circuit_error=err, circuit_density=dens,
@@ -283,8 +350,8 @@ def _scored_baselines(W, n_i, circuit, err, dens, max_iter):
                       f"not scored above {NMF_MAX_UNITS} units (its dense "
                       "factorisation costs about N^3 / 2 per sweep)",)
     if dens > nmf.ee_density:
-        J = _prune_to_density(circuit.J_EE, nmf.ee_density)
-        pruned = J - circuit.J_EI @ circuit.J_IE
+        J = _prune_to_density(J_EE, nmf.ee_density)
+        pruned = J - paths(A, B, n_u)
         base += (BaselineResult(
             "circuit@density", "this circuit, J_EE pruned to nmf's density",
             n_i, float(np.linalg.norm(W - pruned)
@@ -320,7 +387,7 @@ def _against_nmf(base, err, dens):
 
 def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha=None,
              max_iter=500, tol=1e-6, seed=0, baselines=True,
-             decompose_kwargs=None, progress=None):
+             decompose_kwargs=None, progress=None, max_bytes=None):
     """Assemble a Dale's-law circuit that reproduces W as closely as it can.
 
     Parameters
@@ -351,6 +418,10 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha
     progress : callable or None
         Called as ``progress(stage, step, objective)``: once at the start of
         each stage, and after every sweep of the refinement and debiasing.
+    max_bytes : int or None
+        Refuse (InputError, before anything is allocated) when
+        :func:`assembly_bytes` exceeds it; None: the memory this process
+        may use (:func:`eidecomp.limits.available_memory`).
 
     Returns
     -------
@@ -369,24 +440,32 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha
     True
     """
     ratio = EIRatio.parse(ei_ratio)
-    W, L, S, dec = _split(W_or_dec, seed, decompose_kwargs)
+    W, L, S, dec, own = _split(W_or_dec, seed, decompose_kwargs)
     if W.ndim != 2 or W.shape[0] != W.shape[1]:
         raise InputError(f"W must be square to build a circuit, got {W.shape}")
     n = W.shape[0]
     n_i = inhibitory_count(n, ratio)
+    check_fits(assembly_bytes(n, n_i),
+               f"assembling {n} excitatory units and {n_i} interneurons",
+               max_bytes=max_bytes,
+               advice="; free other N x N arrays first, or assemble a "
+                      "translation-invariant W from its kernel "
+                      "(assemble_tiled)")
     # Work in units of max|W| and scale back at the end: every step is then
     # homogeneous, so c W gives c J_EE and sqrt(c) J_EI, sqrt(c) J_IE (the
     # inhibitory paths J_EI J_IE scale by c), whatever c.
     scale = float(np.abs(W).max()) if W.size else 0.0
     unit = scale if scale > 0 else 1.0
-    W_given, no_inhibition = W, bool(W.min() >= 0)
-    W, L, S = W / unit, L / unit, S / unit
-    M_u = np.maximum(-L, 0.0)
-    M_t = np.maximum(-S, 0.0)
-    n_u, n_t, rule = split_counts(n_i, untuned_share, dec.rank, bool(M_t.any()))
-    alpha = default_alpha(W_given) if alpha is None else float(alpha)
+    no_inhibition = bool(W.min() >= 0)
+    alpha = default_alpha(W) if alpha is None else float(alpha)
     if not np.isfinite(alpha) or alpha < 0:
         raise InputError(f"alpha must be a nonnegative number, got {alpha!r}")
+    if own:                             # L + S: ours to scale in place
+        W /= unit
+    else:
+        W = W / unit
+    n_u, n_t, rule = split_counts(n_i, untuned_share, dec.rank,
+                                  bool((S < 0).any()))
     start = 1e-3 if scale > 0 else 0.0  # of empty factor columns
 
     def tell(stage):
@@ -394,7 +473,7 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha
             progress(stage, 0, float("nan"))
 
     A, B, mask_a, mask_b, first_starts = _first_factorisations(
-        M_u, M_t, n_u, n_t, start, seed, max_iter, tell)
+        L, S, unit, n_u, n_t, start, seed, max_iter, tell)
     A = np.asfortranarray(A)   # the sweeps update A by columns
 
     # 4-5. joint refinement, then debiasing on the support of J_EE
@@ -409,15 +488,13 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha
     if not converged:
         warn_stopped("circuit refinement", max_iter, unit="sweeps",
                      advice="raise max_iter")
-    circuit = Circuit(J_EE=J_EE, J_EU=A[:, :n_u], J_UE=B[:n_u],
-                      J_ET=A[:, n_u:], J_TE=B[n_u:])
-    err = float(np.linalg.norm(W - J_EE + paths(A, B, n_u))
+    err = float(np.linalg.norm(_residual(W, J_EE, A, B, n_u))
                 / max(np.linalg.norm(W), 1e-300))
     dens = float(np.count_nonzero(J_EE) / J_EE.size)
     base, base_notes = (), ()
     if baselines:
         tell("baselines")
-        base, base_notes = _scored_baselines(W, n_i, circuit, err, dens,
+        base, base_notes = _scored_baselines(W, n_i, J_EE, A, B, n_u, err, dens,
                                              max_iter)
     report = AssemblyReport(relative_error=err, ee_density=dens,
                             share_rule=rule, baselines=base, n_iter=n_iter,
@@ -425,13 +502,18 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha
                             notes=_notes(W, n_i, ratio, A, B, n_u) + base_notes,
                             restarted=int(first_starts + counts[0]),
                             floored=int(counts[1]),
-                            dropped=_dropped(W_given, J_EE))
+                            dropped=_dropped(W, J_EE, unit))
     params = {"ei_ratio": ratio.text, "untuned_share": untuned_share,
               "alpha": alpha, "max_iter": max_iter, "tol": tol, "seed": seed,
               "n_inhibitory": n_i, "lam": dec.lam, "rank": dec.rank,
               "decomposition_converged": dec.converged}
     root = np.sqrt(unit)
-    return Circuit(J_EE=W_given.copy() if no_inhibition else J_EE * unit,
-                   J_EU=circuit.J_EU * root,
-                   J_UE=circuit.J_UE * root, J_ET=circuit.J_ET * root,
-                   J_TE=circuit.J_TE * root, params=params, report=report)
+    if no_inhibition:                   # J_EE = W exactly
+        J_EE = L + S if own else np.array(W_or_dec, dtype=float)
+    else:
+        J_EE *= unit                    # back to W's units, in place
+    with handing_over():                # every block is a new array of ours
+        return Circuit(J_EE=J_EE,
+                       J_EU=A[:, :n_u] * root, J_UE=B[:n_u] * root,
+                       J_ET=A[:, n_u:] * root, J_TE=B[n_u:] * root,
+                       params=params, report=report)

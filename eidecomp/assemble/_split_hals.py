@@ -312,9 +312,7 @@ def sweep_split(M, A, B, n_u, *, l1=0.0, mask_a=None, mask_b=None, B_sp=None,
     if m2 is None:
         m2 = float(M.multiply(M).sum() if _is_sparse(M) else np.vdot(M, M))
     cache["loss"] = 0.5 * max(m2 - 2 * cross + _inner(grams_a, grams_b), 0.0)
-    f = _balance(A, B, n_u, l1)
-    A_sp.data *= np.repeat(f[n_u:], np.diff(A_sp.indptr))
-    B_sp.data /= np.repeat(f[n_u:], np.diff(B_sp.indptr))
+    f = _balance(A, B, n_u, l1, (A_sp, B_sp))
     cache["grams_b"] = (B_sp, _rescaled(grams_b, f))
     return A_sp, B_sp
 
@@ -326,28 +324,45 @@ def update_order(colour):
     return live[np.argsort(colour[live], kind="stable")]
 
 
-def _balance(A, B, n_u, l1):
+def _balance(A, B, n_u, l1, parts):
     """Rescale each pair (column of A, row of B), product unchanged: equal
     norms for unpenalised pairs, the l1-optimal scale (equal sums) for the
-    penalised tuned ones, so the objective can only fall. Returns the
-    factors applied to A's columns."""
-    na, nb = np.linalg.norm(A, axis=0), np.linalg.norm(B, axis=1)
+    penalised tuned ones, so the objective can only fall. The tuned pairs
+    are read and scaled on their nonzeros (``parts``: A's tuned columns as
+    CSC, B's tuned rows as CSR, scaled too). Returns the factors applied to
+    A's columns."""
+    A_sp, B_sp = parts
+    a_cols = np.repeat(np.arange(A_sp.shape[1]), np.diff(A_sp.indptr))
+    b_rows = np.repeat(np.arange(B_sp.shape[0]), np.diff(B_sp.indptr))
     if l1 > 0:
-        na[n_u:], nb[n_u:] = A[:, n_u:].sum(axis=0), B[n_u:].sum(axis=1)
+        na_t = np.bincount(a_cols, A_sp.data, A_sp.shape[1])
+        nb_t = np.bincount(b_rows, B_sp.data, B_sp.shape[0])
+    else:
+        na_t = np.sqrt(np.bincount(a_cols, A_sp.data ** 2, A_sp.shape[1]))
+        nb_t = np.sqrt(np.bincount(b_rows, B_sp.data ** 2, B_sp.shape[0]))
+    na = np.concatenate([np.linalg.norm(A[:, :n_u], axis=0), na_t])
+    nb = np.concatenate([np.linalg.norm(B[:n_u], axis=1), nb_t])
     ok = (na > 0) & (nb > 0)
     f = np.ones_like(na)
     f[ok] = np.sqrt(nb[ok] / na[ok])
-    A *= f
-    B /= f[:, None]
+    A[:, :n_u] *= f[:n_u]
+    B[:n_u] /= f[:n_u, None]
+    ft = f[n_u:]
+    A[A_sp.indices, n_u + a_cols] *= ft[a_cols]
+    B[n_u + b_rows, B_sp.indices] /= ft[b_rows]
+    A_sp.data *= ft[a_cols]
+    B_sp.data /= ft[b_rows]
     return f
 
 
-def paths(A, B, n_u, parts=None):
+def paths(A, B, n_u, parts=None, out=None):
     """A B as a dense array: the untuned part by BLAS, the tuned part as a
     scipy.sparse product added in place (``parts``: the tuned parts, when
-    the caller has them)."""
+    the caller has them; ``out``: an array to write into)."""
     A_sp, B_sp = tuned_parts(A, B, n_u) if parts is None else parts
-    P = A[:, :n_u] @ B[:n_u]
+    if out is None:
+        out = np.empty((A.shape[0], B.shape[1]))
+    P = np.matmul(A[:, :n_u], B[:n_u], out=out)
     T = (A_sp @ B_sp).tocoo()
     P[T.row, T.col] += T.data
     return P

@@ -63,16 +63,17 @@ def _rank_one(R, l1, col):
 
 
 def restart(R, A, B, which, *, l1=0.0, mask_a=None, mask_b=None,
-            floor=CONNECTION_RTOL):
+            floor=CONNECTION_RTOL, copy=True):
     """Give the interneurons ``which`` new factors in place, one after the
     other, each the largest nonnegative rank-one piece of what R >= 0 (the
     inhibition still unexplained) has left after the previous ones.
 
     With masks, a restarted interneuron's support becomes that of its new
     factors (a tuned pool and targets found again). Returns the indices
-    that got a start; the others found nothing above ``floor`` left in R.
+    that got a start; the others found nothing above ``floor`` left in R
+    (which is changed in place with ``copy=False``).
     """
-    R = np.array(R, dtype=float, copy=True)
+    R = np.array(R, dtype=float) if copy else np.asarray(R, dtype=float)
     norms = np.einsum("ij,ij->j", R, R)   # kept up to date below
     started = []
     for t in which:
