@@ -60,6 +60,10 @@ def _add_matrix_options(p):
     p.add_argument("--tol", type=_positive_float,
                    help="ALM tolerance on primal and dual residuals (default "
                    f"{TOL['float64']:g}, or {TOL['float32']:g} with --float32)")
+    p.add_argument("--float32", action="store_true",
+                   help="decompose in float32: half the memory, residuals to "
+                   f"about {TOL['float32']:g} (the default tol then); the "
+                   "circuit is assembled in float64")
 
 
 def _add_job_options(p, target):
@@ -137,9 +141,6 @@ def _get_parser():
     dec.add_argument("--scheduler", metavar="ADDRESS",
                      help="dask scheduler address (default: start a local "
                      "cluster of two workers)")
-    dec.add_argument("--float32", action="store_true",
-                     help="work in float32: half the memory, residuals to "
-                     f"about {TOL['float32']:g} (the default tol then)")
     _add_job_options(dec, "OUT")
     asm = sub.add_parser("assemble", help="Dale's-law circuit from a matrix",
                          description="Build an excitatory / untuned-inhibitory "
@@ -460,6 +461,7 @@ def _assemble(args):
     from .io.bundles import TILED
     from .pipeline import AssembleConfig, run_assemble
 
+    dtype = "float32" if args.float32 else "float64"
     config = AssembleConfig(
         input=args.matrix, output=args.output, ei_ratio=args.ei_ratio,
         untuned_share=args.untuned_share, alpha=args.alpha, units=args.units,
@@ -469,9 +471,9 @@ def _assemble(args):
         expand=getattr(args, "expand", False), key=args.key,
         transpose=args.transpose, mask=args.mask,
         ignore_diagonal=args.ignore_diagonal, lam=args.lam, tol=args.tol,
-        seed=args.seed, force=args.force)
-    progress = None if args.quiet else _Progress(sys.stderr,
-                                                 tol=resolve_tol(args.tol))
+        seed=args.seed, force=args.force, dtype=dtype)
+    progress = None if args.quiet else _Progress(
+        sys.stderr, tol=resolve_tol(args.tol, dtype))
     stages = None if args.quiet else _StageProgress(sys.stderr)
     result = run_assemble(config, progress=progress, stage_progress=stages)
     print(_tiled_line(result) if result.kind is TILED else _circuit_table(result))

@@ -52,8 +52,11 @@ DECOMPOSE_ENGINES = ("memory", "dask")
 
 # --- options that do not apply ---------------------------------------------------
 
+_FLAGS = {"dtype": "--float32"}  # fields whose option is not their name
+
+
 def _flag(name):
-    return "--" + name.replace("_", "-")
+    return _FLAGS.get(name, "--" + name.replace("_", "-"))
 
 
 def refuse_inapplicable(config, allowed, what):
@@ -66,7 +69,8 @@ def refuse_inapplicable(config, allowed, what):
             raise InputError(f"{_flag(f.name)} does not apply to {what}")
 
 
-_MATRIX_OPTIONS = ("key", "transpose", "mask", "ignore_diagonal", "lam", "tol")
+_MATRIX_OPTIONS = ("key", "transpose", "mask", "ignore_diagonal", "lam", "tol",
+                   "dtype")
 
 
 def _load_matrix(config, *, square, what="weight matrix"):
@@ -112,6 +116,7 @@ class MatrixOptions:
     force: bool = False
     kernel: str | None = None
     grid: str | None = None
+    dtype: str = "float64"
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -127,7 +132,6 @@ class DecomposeConfig(MatrixOptions):
     solver: str = SOLVERS[0]
     max_iter: int | None = None
     boundary: str = "periodic"
-    dtype: str = "float64"
     engine: str = "memory"
     scheduler: str | None = None
 
@@ -362,7 +366,8 @@ def _assemble_dense(config, out, progress, stage_progress, extra_files):
     if dec is None:  # every input read and checked: now the work
         dec = robust_pca(W, lam=config.lam, mask=observed,
                          ignore_diagonal=config.ignore_diagonal, tol=config.tol,
-                         seed=config.seed, progress=progress)
+                         seed=config.seed, progress=progress,
+                         dtype=config.dtype)
     circuit = assemble(dec, ei_ratio=ratio, untuned_share=config.untuned_share,
                        alpha=config.alpha, seed=config.seed,
                        progress=stage_progress)
@@ -372,7 +377,8 @@ def _assemble_dense(config, out, progress, stage_progress, extra_files):
                          "position_unit": config.position_unit,
                          "magnification_um_per_deg": config.magnification},
         decomposition={"lam": dec.lam, "rank": dec.rank,
-                       "converged": dec.converged, "n_iter": dec.n_iter},
+                       "converged": dec.converged, "n_iter": dec.n_iter,
+                       "dtype": str(np.asarray(dec.low_rank).dtype)},
         stability=dynamics.stability_summary(circuit, W), pools=pools,
         parameters={"period": config.period}, unit_ids=units.ids)
     files = dict(extra_files or {})

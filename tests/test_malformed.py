@@ -509,6 +509,9 @@ ROWS = [
     ("dec-tol-ignored", {"DEC": "ok"}, ASM_DEC + ["--tol", "1e-6"],
      "--tol does not apply to a decomposition folder (it was decomposed "
      "already: decompose again, or give the matrix)"),
+    ("dec-float32-ignored", {"DEC": "ok"}, ASM_DEC + ["--float32"],
+     "--float32 does not apply to a decomposition folder (it was decomposed "
+     "already: decompose again, or give the matrix)"),
     ("dec-swapped-part", {"DEC": "swap"}, ASM_DEC,
      "{d}/dec/low_rank.npy: checksum does not match summary.json (the file "
      "was changed, swapped or truncated)"),

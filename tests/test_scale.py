@@ -72,3 +72,30 @@ def test_float32_command(tmp_path):
     assert main(["decompose", str(tmp_path / "w.npy"), "-o", str(tmp_path / "o"),
                  "-q", "--float32"]) == 0
     assert np.load(tmp_path / "o" / "low_rank.npy").dtype == np.float32
+
+
+def test_run_takes_float32_and_assembles_in_float64(tmp_path, capsys):
+    # `run --float32` decomposes in float32 (the split's float32 figures
+    # above) and assembles in float64: its circuit agrees with the float64
+    # run's to the float32 split's accuracy, and the bundle records it
+    import json
+
+    from eidecomp.datasets import make_planted_circuit
+
+    W, _, _ = make_planted_circuit(120, n_untuned=3, n_tuned=27, pool=6, seed=2)
+    np.save(tmp_path / "w.npy", W)
+    for name, extra in (("c32", ["--float32"]), ("c64", [])):
+        assert main(["run", str(tmp_path / "w.npy"), "-o", str(tmp_path / name),
+                     "-q"] + extra) == 0
+    capsys.readouterr()
+    J32 = np.load(tmp_path / "c32" / "J_EE.npy")
+    J64 = np.load(tmp_path / "c64" / "J_EE.npy")
+    assert J32.dtype == np.float64
+    assert np.load(tmp_path / "c32" / "low_rank.npy").dtype == np.float32
+    assert np.linalg.norm(J32 - J64) <= 1e-3 * np.linalg.norm(J64)
+    m32 = json.loads((tmp_path / "c32" / "circuit.json").read_text())
+    m64 = json.loads((tmp_path / "c64" / "circuit.json").read_text())
+    assert m32["decomposition"]["dtype"] == "float32"
+    assert m64["decomposition"]["dtype"] == "float64"
+    assert m32["metrics"]["relative_error"] == pytest.approx(
+        m64["metrics"]["relative_error"], abs=1e-4)

@@ -114,9 +114,10 @@ def _split(W_or_dec, seed, decompose_kwargs):
 
         W = np.asarray(W_or_dec, dtype=float)
         dec = robust_pca(W, seed=seed, **(decompose_kwargs or {}))
-    L = np.asarray(dec.low_rank, dtype=float)
-    S = np.asarray(dec.sparse, dtype=float)
-    return (L + S if W is None else W), L, S, dec, W is None
+    L = np.asarray(dec.low_rank)       # float32 parts are read as they are:
+    S = np.asarray(dec.sparse)         # only W and the sides are float64
+    return (np.add(L, S, dtype=float) if W is None else W), L, S, dec, \
+        W is None
 
 
 def _fill_dead(A, B, scale, rng):
@@ -282,8 +283,8 @@ def _unexplained(M, A, B):
 
 
 def _inhibitory_side(X, unit):
-    """max(-X, 0) / unit, in one new array."""
-    M = np.negative(X)
+    """max(-X, 0) / unit, in one new float64 array."""
+    M = np.negative(X, dtype=float)
     np.maximum(M, 0.0, out=M)
     M /= unit
     return M
@@ -509,7 +510,8 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha
               "decomposition_converged": dec.converged}
     root = np.sqrt(unit)
     if no_inhibition:                   # J_EE = W exactly
-        J_EE = L + S if own else np.array(W_or_dec, dtype=float)
+        J_EE = (np.add(L, S, dtype=float) if own
+                else np.array(W_or_dec, dtype=float))
     else:
         J_EE *= unit                    # back to W's units, in place
     with handing_over():                # every block is a new array of ours
