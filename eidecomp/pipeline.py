@@ -364,6 +364,8 @@ def _assemble_dense(config, out, progress, stage_progress, extra_files):
                             position_unit=config.position_unit,
                             magnification=config.magnification)
     if dec is None:  # every input read and checked: now the work
+        if config.dtype == "float32":   # W is kept for the stability and
+            W = W.astype(np.float32)    # report: at the split's precision
         dec = robust_pca(W, lam=config.lam, mask=observed,
                          ignore_diagonal=config.ignore_diagonal, tol=config.tol,
                          seed=config.seed, progress=progress,

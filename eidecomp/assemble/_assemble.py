@@ -94,13 +94,14 @@ def assembly_bytes(n, n_i):
     tracemalloc in tests/test_assembly_scale.py): W in working units (L + S
     for a decomposition), then either the tuned side of S and a residual or
     J_EE (which the circuit keeps) and one temporary, two N x N arrays at a
-    time; the dense factors J_EI, J_IE, a copy of them while they are
-    stacked and refined, and their masks. Up to EXACT_SVD_MAX units, the
-    tuned start's full SVD (U and Vt) and a dense copy of the tuned side
-    add three more N x N arrays (at most 288 MB there)."""
+    time; the dense factors J_EI, J_IE and their masks; a tenth of an
+    N x N array of scratch (the sparse tuned parts, index arrays). Up to
+    EXACT_SVD_MAX units, the tuned start's full SVD (U and Vt) and a dense
+    copy of the tuned side add three more N x N arrays (at most 288 MB
+    there)."""
     n, n_i = int(n), int(n_i)
-    arrays = 3 if n > EXACT_SVD_MAX else 6
-    return arrays * n * n * 8 + 2 * n * n_i * (8 + 8 + 1)
+    arrays = 3.1 if n > EXACT_SVD_MAX else 6.1
+    return int(arrays * n * n * 8) + 2 * n * n_i * (8 + 1)
 
 
 def _split(W_or_dec, seed, decompose_kwargs):
