@@ -81,16 +81,39 @@ def _orders(cache, n_u):
 
 @pytest.mark.parametrize("seed", [0, 1, 2])
 @pytest.mark.parametrize("as_sparse", [False, True])
-def test_tuned_sweeps_reproduce_plain_hals(seed, as_sparse):
+@pytest.mark.parametrize("n_u, l1", [(0, 0.01), (1, 0.3), (3, 0.3)])
+def test_tuned_sweeps_reproduce_plain_hals(seed, as_sparse, n_u, l1):
+    # one cache from sweep to sweep, as the assembler keeps it; a large l1
+    # empties components, which plain HALS then leaves as they are
     M, A0, B0, _ = _problem(seed)
     A1, B1, A2, B2 = A0.copy(), B0.copy(), A0.copy(), B0.copy()
     Mx = sparse.csr_matrix(M) if as_sparse else M
+    cache, parts = {}, (None, None)
     for _ in range(10):
-        cache = {}
-        sweep_split(Mx, A2, B2, 0, l1=0.01, cache=cache)
-        _reference_sweep(M, A1, B1, 0, 0.01, None, None, *_orders(cache, 0))
+        parts = sweep_split(Mx, A2, B2, n_u, l1=l1, A_sp=parts[0],
+                            B_sp=parts[1], cache=cache)
+        _reference_sweep(M, A1, B1, n_u, l1, None, None, *_orders(cache, n_u))
     assert np.abs(A1 - A2).max() <= 1e-12
     assert np.abs(B1 - B2).max() <= 1e-12
+
+
+def test_a_component_that_dies_keeps_its_other_factor():
+    # plain HALS skips a component whose Gram diagonal is zero (its B row
+    # emptied by l1) and leaves its A column; a colouring kept from the
+    # previous sweep must not zero it (four disjoint blocks, the last faint)
+    m = 40
+    M, A, B = np.zeros((m, m)), np.zeros((m, 4), order="F"), np.zeros((4, m))
+    for j, (lo, v) in enumerate(((0, 1.0), (10, 1.5), (20, 1.5), (30, 0.1))):
+        M[lo:lo + 10, lo:lo + 10] = v
+        A[lo:lo + 10, j] = 1.0
+        B[j, lo:lo + 10] = 100.0 if j == 3 else 1.0
+    cache = {}
+    parts = sweep_split(M, A, B, 1, l1=0.5, cache=cache)
+    assert not B[3].any() and A[:, 3].any()          # dead after sweep 1
+    kept = A[:, 3].copy()
+    sweep_split(M, A, B, 1, l1=0.5, A_sp=parts[0], B_sp=parts[1], cache=cache)
+    np.testing.assert_array_equal(A[:, 3], kept)
+    assert 3 - 1 not in update_order(cache["a"])   # tuned index of component 3
 
 
 @pytest.mark.parametrize("seed", [3, 4])

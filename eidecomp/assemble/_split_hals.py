@@ -65,7 +65,9 @@ def colouring(G_tt, live, previous=None):
     """
     G = sparse.csr_matrix(G_tt)
     if previous is not None and _still_valid(G, live, previous):
-        return previous
+        colour = previous.copy()
+        colour[~live] = -1             # a component dead now is not updated
+        return colour
     ptr, idx = G.indptr, G.indices
     colour = np.full(G.shape[0], -1, dtype=np.int64)
     for j in np.flatnonzero(live):
@@ -83,7 +85,8 @@ def colouring(G_tt, live, previous=None):
 def _still_valid(G, live, colour):
     if colour.shape[0] != G.shape[0] or (colour[live] < 0).any():
         return False
-    if colour.max(initial=-1) > np.diff(G.indptr).max(initial=0):
+    degree = np.diff(G.indptr) - (G.diagonal() != 0)   # without itself
+    if colour.max(initial=-1) > degree.max(initial=0):
         return False                    # more colours than greedy would use
     rows = np.repeat(np.arange(G.shape[0]), np.diff(G.indptr))
     cols = G.indices
@@ -149,15 +152,12 @@ def _omega(M, Y_sp, l1, mask_t):
         cols, rows = np.nonzero(P > l1)
         return rows, cols, P[cols, rows]
     cols, rows = np.nonzero(mask_t.T)
-    lens = np.diff(Y_sp.indptr)[cols]
-    if int(lens.sum()) <= Y_sp.nnz * m:      # sampled product, O(triples)
-        pos = _ragged(Y_sp.indptr[cols], lens)
-        owner = np.repeat(np.arange(rows.size), lens)
-        vals = np.bincount(owner, weights=M[rows[owner], Y_sp.indices[pos]]
-                           * Y_sp.data[pos], minlength=rows.size)
-        return rows, cols, vals
-    P = np.asarray(Y_sp @ M.T)
-    return rows, cols, P[cols, rows]
+    lens = np.diff(Y_sp.indptr)[cols]      # the sampled product, from the
+    pos = _ragged(Y_sp.indptr[cols], lens)  # (entry, nonzero of Y) pairs: no
+    owner = np.repeat(np.arange(rows.size), lens)   # more than Y_sp.nnz * m
+    vals = np.bincount(owner, weights=M[rows[owner], Y_sp.indices[pos]]
+                       * Y_sp.data[pos], minlength=rows.size)
+    return rows, cols, vals
 
 
 def _update_untuned(X, P_u, G_uu, G_ut, X_sp, diag, dead, mask_u, n_u):
@@ -174,22 +174,17 @@ def _update_untuned(X, P_u, G_uu, G_ut, X_sp, diag, dead, mask_u, n_u):
         X[:, j] = col
 
 
-def _class_sum(X_t, rows, cols, G_tt, members):
-    """sum_l X_t[i, l] G_tt[l, j] at the entries (i, j) of one class, by
-    whichever is cheaper: the (entry, component) pairs, or the dense
-    product X_t G_tt[:, class] (``members``: the class, sorted)."""
-    col_lens = np.diff(G_tt.indptr)
-    lens = col_lens[cols]
-    pairs = int(lens.sum())
-    if pairs == 0:
+def _class_sum(X_t, rows, cols, G_tt):
+    """sum_l X_t[i, l] G_tt[l, j] at the entries (i, j) of one class, from
+    the (entry, overlapping component) pairs: no more than the dense product
+    X_t G_tt[:, class] would cost, and only at the entries needed."""
+    lens = np.diff(G_tt.indptr)[cols]
+    if not lens.any():
         return np.zeros(rows.size)
-    if pairs <= int(col_lens[members].sum()) * X_t.shape[0]:
-        pos = _ragged(G_tt.indptr[cols], lens)
-        owner = np.repeat(np.arange(rows.size), lens)
-        return np.bincount(owner, weights=X_t[rows[owner], G_tt.indices[pos]]
-                           * G_tt.data[pos], minlength=rows.size)
-    Y = np.asarray(G_tt[:, members].T @ X_t.T)            # |class| x m
-    return Y[np.searchsorted(members, cols), rows]
+    pos = _ragged(G_tt.indptr[cols], lens)
+    owner = np.repeat(np.arange(rows.size), lens)
+    return np.bincount(owner, weights=X_t[rows[owner], G_tt.indices[pos]]
+                       * G_tt.data[pos], minlength=rows.size)
 
 
 def _half_sweep(X, M, Y, Y_sp, X_sp, n_u, l1, mask, cache, key, grams=None):
@@ -232,7 +227,7 @@ def _half_sweep(X, M, Y, Y_sp, X_sp, n_u, l1, mask, cache, key, grams=None):
         lo, hi = bounds[c], bounds[c + 1]
         r, j = rows[lo:hi], cols[lo:hi]
         val = (base[lo:hi] + X_t[r, j] * d_t[j]
-               - _class_sum(X_t, r, j, G_tt, np.flatnonzero(colour == c)))
+               - _class_sum(X_t, r, j, G_tt))
         np.maximum(val, 0.0, out=val)
         val /= d_t[j]
         old = colour[o_cols] == c
@@ -268,7 +263,8 @@ def sweep_split(M, A, B, n_u, *, l1=0.0, mask_a=None, mask_b=None, B_sp=None,
     The untuned components are updated one at a time, in order; the tuned
     ones a colour class at a time (:func:`colouring`: no two components of a
     class overlap, so the block is the same as one at a time, in the order
-    ``cache["order_a"]`` and ``cache["order_b"]`` record). ``A_sp``, ``B_sp``
+    :func:`update_order` gives for ``cache["a"]`` and ``cache["b"]``, the
+    colourings used). ``A_sp``, ``B_sp``
     are the tuned parts when the caller has them (the previous sweep returns
     them); ``cache`` (a dict) keeps the colourings from sweep to sweep.
     Returns the tuned parts (A_sp, B_sp) after the sweep.
