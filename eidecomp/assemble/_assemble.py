@@ -43,7 +43,7 @@ from ._baselines import NMF_MAX_UNITS, _prune_to_density
 from ._baselines import baselines as score_baselines
 from ._counts import inhibitory_count, split_counts
 from ._nmf import EXACT_SVD_MAX, Factored, hals, leading_svd, nndsvd
-from ._split_hals import hals_split, paths, sweep_split, tuned_parts
+from ._split_hals import SPARSE_MIN_UNITS, hals_split, paths, sweep_split, tuned_parts
 from ._support import apply_floor, greedy_start, inactive, restart
 
 __all__ = ["assemble", "assembly_bytes"]
@@ -320,7 +320,8 @@ def _first_factorisations(L, S, unit, n_u, n_t, start, seed, max_iter, tell):
     else:  # an SVD with N / 4 components costs more than all the rest
         A_t, B_t = greedy_start(M_t, n_t, l1, RESTART_RTOL)
     A_t, B_t = _fill_dead(A_t, B_t, start, rng)
-    M_sp = sparse.csr_matrix(M_t)
+    # the sweeps are dense below SPARSE_MIN_UNITS: M_t itself, not a copy
+    M_sp = M_t if max(M_t.shape) < SPARSE_MIN_UNITS else sparse.csr_matrix(M_t)
     A_t, B_t, _ = hals_split(M_sp, A_t, B_t, 0, l1=l1, max_iter=max_iter,
                              tol=1e-6)
     restarted = 0

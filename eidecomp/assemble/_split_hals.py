@@ -286,8 +286,8 @@ def sweep_split(M, A, B, n_u, *, l1=0.0, mask_a=None, mask_b=None, B_sp=None,
     cache = {} if cache is None else cache
     if max(A.shape[0], B.shape[1]) < SPARSE_MIN_UNITS and not (n_u and l1):
         # small: the dense sweep is the same computation at less overhead
-        sweep(M.toarray() if _is_sparse(M) else M, A, B, l1_a=l1, l1_b=l1,
-              mask_a=mask_a, mask_b=mask_b)
+        cache["loss"] = sweep(M.toarray() if _is_sparse(M) else M, A, B,
+                              l1_a=l1, l1_b=l1, mask_a=mask_a, mask_b=mask_b)
         cache.pop("a", None), cache.pop("b", None)
         return tuned_parts(A, B, n_u)
     if B_sp is None:
@@ -366,13 +366,15 @@ def paths(A, B, n_u, parts=None, out=None):
 
 def objective_split(M, A, B, n_u, l1=0.0, m_norm2=None, parts=None):
     """0.5 ||M - A B||_F^2 + l1 (sum of the tuned factors), without forming
-    A B when M is sparse: ||M||^2 - 2 <A^T M, B> + <A^T A, B B^T>.
+    A B (M dense or sparse): ||M||^2 - 2 <A^T M, B> + <A^T A, B B^T>.
     ``parts`` are the tuned parts (A_sp, B_sp) when the caller has them."""
     A_sp, B_sp = tuned_parts(A, B, n_u) if parts is None else parts
     tuned = l1 * (A_sp.sum() + B_sp.sum())
-    if not _is_sparse(M):
-        R = M - paths(A, B, n_u, parts=(A_sp, B_sp))
-        return 0.5 * float(np.vdot(R, R)) + tuned
+    if not _is_sparse(M):                # the same identity, dense: no
+        m2 = float(np.vdot(M, M)) if m_norm2 is None else m_norm2  # N x N
+        cross = float(np.vdot(M @ B.T, A))                         # array
+        gram = float(np.vdot(A.T @ A, B @ B.T))
+        return 0.5 * max(m2 - 2 * cross + gram, 0.0) + tuned
     m2 = float(M.multiply(M).sum()) if m_norm2 is None else m_norm2
     AtM_u = np.asarray(M.T @ A[:, :n_u]).T
     cross = float(np.vdot(AtM_u, B[:n_u])
