@@ -4,8 +4,8 @@ import numpy as np
 
 from .errors import InputError
 
-__all__ = ["MAX_MAGNITUDE", "check_range", "merge_range_stats", "range_error",
-           "range_stats"]
+__all__ = ["MAX_MAGNITUDE", "check_fits", "check_range", "dense_input",
+           "merge_range_stats", "range_error", "range_stats"]
 
 
 MAX_MAGNITUDE = {np.float64: 1e100, np.float32: 1e15}
@@ -154,3 +154,22 @@ def check_fits(need, what, *, max_bytes=None, advice=""):
         raise InputError(f"{what} needs about {need / 2**30:.1f} GiB, more than "
                          f"the {limit / 2**30:.1f} GiB this process may use"
                          f"{advice}")
+
+
+def dense_input(W, name="W"):
+    """W as an array: a scipy.sparse matrix densified (after a memory check:
+    every solver here works on dense N x N arrays), a pandas DataFrame or
+    anything array-like as ``np.asarray`` reads it. The one door through
+    which the library's functions take a matrix from Python.
+
+    >>> from scipy import sparse
+    >>> dense_input(sparse.eye(2, format="csr")).tolist()
+    [[1.0, 0.0], [0.0, 1.0]]
+    """
+    if hasattr(W, "tocoo") and hasattr(W, "nnz"):   # scipy.sparse, any format
+        shape = tuple(int(s) for s in W.shape)
+        itemsize = np.dtype(W.dtype).itemsize if W.dtype.kind in "fiub" else 8
+        check_fits(int(np.prod(shape, dtype=np.int64)) * max(itemsize, 8),
+                   f"densifying the sparse {name} of shape {shape}")
+        return W.toarray()
+    return np.asarray(W)

@@ -64,7 +64,7 @@ def test_target_rank_on_unplanted_matrix():
 
 def test_estimator_agrees_with_function():
     W, _, _ = make_planted(80, seed=7)
-    est = RobustPCA(seed=1)
+    est = RobustPCA(random_state=1)
     assert est.fit(W) is est
     dec = robust_pca(W, seed=1)
     assert np.array_equal(est.low_rank_, dec.low_rank)

@@ -30,7 +30,7 @@ import numpy as np
 from scipy import sparse
 
 from ..errors import InputError, warn_stopped
-from ..limits import check_fits
+from ..limits import check_fits, dense_input
 from ..params import CONNECTION_RTOL, DEFAULT_EI_RATIO, EIRatio
 from ..types import (
     AssemblyReport,
@@ -443,6 +443,8 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha
     True
     """
     ratio = EIRatio.parse(ei_ratio)
+    if not isinstance(W_or_dec, Decomposition):   # scipy.sparse: densified
+        W_or_dec = dense_input(W_or_dec)
     W, L, S, dec, own = _split(W_or_dec, seed, decompose_kwargs)
     if W.ndim != 2 or W.shape[0] != W.shape[1]:
         raise InputError(f"W must be square to build a circuit, got {W.shape}")

@@ -13,7 +13,7 @@ import warnings
 import numpy as np
 
 from ..errors import InputError, warn_stopped
-from ..limits import available_memory, check_range
+from ..limits import available_memory, check_range, dense_input
 from ..params import MAX_ITER, SolverSettings, check_lam, default_lam, resolve_dtype
 from ..types import Decomposition, OptimalityReport, PathPoint, handing_over
 from ._convex import ConvexPCP
@@ -35,7 +35,7 @@ def pcp_objective(L, S, lam, observed=None):
 
 
 def _check_matrix(W, name="W", dtype=np.float64):
-    W = np.asarray(W)
+    W = dense_input(W, name)
     if W.dtype == object or not (np.issubdtype(W.dtype, np.number)
                                  or W.dtype == bool):
         raise InputError(f"{name} must be numeric, got dtype {W.dtype}")
