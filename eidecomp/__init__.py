@@ -10,7 +10,6 @@ the convex solvers, matplotlib only by plotting).
 from ._version import __version__
 from .assemble import assemble  # the function; the subpackage stays importable
 from .decompose import (
-    RobustPCA,
     default_lam,
     lambda_path,
     pcp_objective,
@@ -48,3 +47,11 @@ __all__ = [
     "robust_pca",
     "robust_pca_kernel",
 ]
+
+
+def __getattr__(name):
+    if name == "RobustPCA":          # scikit-learn is imported on first use
+        from .decompose.estimator import RobustPCA
+
+        return RobustPCA
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

@@ -5,7 +5,7 @@ import numpy as np
 from .errors import InputError
 
 __all__ = ["MAX_MAGNITUDE", "check_fits", "check_range", "dense_input",
-           "merge_range_stats", "range_error", "range_stats"]
+           "merge_range_stats", "range_error", "range_stats", "size_text"]
 
 
 MAX_MAGNITUDE = {np.float64: 1e100, np.float32: 1e15}
@@ -173,3 +173,14 @@ def dense_input(W, name="W"):
                    f"densifying the sparse {name} of shape {shape}")
         return W.toarray()
     return np.asarray(W)
+
+
+def size_text(n_bytes):
+    """Bytes as a reader wants them: GiB from 1 GiB up, else MiB.
+
+    >>> size_text(3 * 2**30), size_text(5 * 2**20)
+    ('3.0 GiB', '5 MiB')
+    """
+    if n_bytes >= 2**30:
+        return f"{n_bytes / 2**30:,.1f} GiB"
+    return f"{max(n_bytes / 2**20, 1):.0f} MiB"

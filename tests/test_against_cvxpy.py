@@ -182,3 +182,63 @@ def test_scs_takes_an_iteration_limit():
     W = np.random.default_rng(6).standard_normal((8, 8))
     dec = robust_pca(W, method="convex", solver="SCS", max_iter=20000)
     assert dec.report.solver == "SCS"
+
+
+# VmHWM, not ru_maxrss: Linux hands a child the parent's ru_maxrss at fork
+_PEAK_SCRIPT = """
+import sys, warnings
+import numpy as np
+from eidecomp import robust_pca
+def hwm():
+    for line in open("/proc/self/status"):
+        if line.startswith("VmHWM:"):
+            return 1024 * int(line.split()[1])
+n, solver = int(sys.argv[1]), sys.argv[2]
+W = np.random.default_rng(0).standard_normal((n, 2)) @ np.ones((2, n))
+warnings.simplefilter("ignore")   # the solver's accuracy is not this test's
+robust_pca(np.zeros((4, 4)), method="convex", solver=solver)  # imports, warm
+before = hwm()
+robust_pca(W, method="convex", solver=solver)
+print(hwm() - before)
+"""
+
+
+@pytest.mark.parametrize(("n", "solver"), [(36, "CLARABEL"), (150, "SCS")])
+@pytest.mark.skipif(not __import__("os").path.exists("/proc/self/status"),
+                    reason="reads VmHWM from /proc (Linux)")
+def test_convex_memory_model_bounds_the_solver(n, solver):
+    # reference: the peak RSS of cvxpy's own solve with that solver, in a
+    # fresh process; the model must not promise less than it takes, nor
+    # refuse problems that take a third of what it says
+    import subprocess
+    import sys
+
+    from eidecomp.decompose._convex import convex_bytes
+
+    out = subprocess.run([sys.executable, "-c", _PEAK_SCRIPT, str(n), solver],
+                         capture_output=True, text=True, check=True,
+                         env={"OPENBLAS_NUM_THREADS": "1", "PATH": ""})
+    measured = int(out.stdout.split()[-1])
+    predicted = convex_bytes((n, n), solver)
+    assert measured <= predicted <= 3 * measured, (measured, predicted)
+
+
+def test_convex_program_too_large_is_refused_at_once(tmp_path, capsys):
+    # at 300 x 300, Clarabel's PSD block alone is 8 d^2 = 260 GB (d = 180,300,
+    # the cone cvxpy's nuclear norm becomes): refused before cvxpy starts
+    import time
+
+    from eidecomp.cli import main
+    from eidecomp.datasets import make_planted
+
+    W, _, _ = make_planted(300, rank=3, seed=0)
+    np.save(tmp_path / "W.npy", W)
+    t = time.perf_counter()
+    code = main(["decompose", str(tmp_path / "W.npy"), "--method", "convex",
+                 "-o", str(tmp_path / "out")])
+    took = time.perf_counter() - t
+    err = capsys.readouterr().err.strip()
+    assert code == 2 and len(err.splitlines()) == 1
+    assert "fits up to" in err and "SCS up to" in err and "ialm" in err
+    assert not (tmp_path / "out").exists()
+    assert took < 5.0     # a bound for a loaded CI machine; measured 0.3 ms

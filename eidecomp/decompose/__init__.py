@@ -14,7 +14,16 @@ from ._convex import SOLVERS
 from ._dask_api import DaskDecomposition, robust_pca_dask
 from ._kernel_api import robust_pca_kernel
 from ._svt import leading_triplets
-from .estimator import RobustPCA
+
+
+def __getattr__(name):
+    # the estimator needs scikit-learn, whose import takes most of a second:
+    # loaded on first use, so the command line starts without it (PEP 562)
+    if name == "RobustPCA":
+        from .estimator import RobustPCA
+
+        return RobustPCA
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 __all__ = ["METHODS", "SOLVERS", "DaskDecomposition", "RobustPCA", "default_lam",
            "lambda_path", "leading_triplets", "pcp_objective", "robust_pca",

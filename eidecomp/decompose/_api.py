@@ -13,10 +13,10 @@ import warnings
 import numpy as np
 
 from ..errors import InputError, warn_stopped
-from ..limits import available_memory, check_range, dense_input
+from ..limits import available_memory, check_range, dense_input, size_text
 from ..params import MAX_ITER, SolverSettings, check_lam, default_lam, resolve_dtype
 from ..types import Decomposition, OptimalityReport, PathPoint, handing_over
-from ._convex import ConvexPCP
+from ._convex import SOLVERS, ConvexPCP, convex_bytes, largest_convex
 from ._ialm import ialm
 from ._norms import spectral_norm_bound
 from ._svt import numerical_rank
@@ -182,27 +182,43 @@ def _convex_decomposition(W, lam, observed, *, program, solver, max_iter):
                          report=report, observed=observed)
 
 
-def memory_estimate(shape, dtype=np.float64, method="ialm"):
+def memory_estimate(shape, dtype=np.float64, method="ialm", solver="CLARABEL"):
     """Bytes robust_pca needs for a matrix of this shape: W and at most four
-    more m x n arrays (S, Y, the SVT's argument, then L) for the ALM; the
-    convex programs need far more and are estimated at 40 arrays."""
+    more m x n arrays (S, Y, the SVT's argument, then L) for the ALM; for the
+    convex programs, the solver's own problem (:func:`._convex.convex_bytes`,
+    measured: an interior-point solver's grows as (m + n)^4)."""
     m, n = shape
-    arrays = 5 if method == "ialm" else 40
-    return arrays * m * n * np.dtype(dtype).itemsize
+    if method == "convex":
+        return convex_bytes(shape, solver) + 2 * m * n * 8
+    return 5 * m * n * np.dtype(dtype).itemsize
 
 
-def _check_memory(shape, dtype, method):
+def _check_memory(shape, dtype, method, solver="CLARABEL"):
     if len(shape) != 2:
         return  # _check_matrix gives the message
-    need = memory_estimate(shape, dtype, method)
+    need = memory_estimate(shape, dtype, method, solver)
     have = available_memory()
-    if have and need > have:
-        alt = ("float32 mode (dtype='float32', --float32) halves it; "
-               if np.dtype(dtype) == np.float64 else "")
+    if not have or need <= have:
+        return
+    where = f"a {shape[0]}x{shape[1]} robust PCA"
+    if method == "convex":
+        fits = {s: largest_convex(have, s) for s in SOLVERS}
+        others = [f"{s} up to {fits[s]}x{fits[s]}" for s in SOLVERS
+                  if s != str(solver).upper()]
         raise InputError(
-            f"a {shape[0]}x{shape[1]} robust PCA needs about {need / 2**30:.1f} "
-            f"GiB and {have / 2**30:.1f} GiB are available; {alt}a kernel "
-            "(--kernel) avoids the matrix altogether")
+            f"{where} as a convex program ({str(solver).upper()}) needs about "
+            f"{size_text(need)} and {size_text(have)} are available: it "
+            f"fits up to {fits.get(str(solver).upper(), 0)}x"
+            f"{fits.get(str(solver).upper(), 0)} here"
+            + "".join(f", {o}" for o in others)
+            + "; the fast solver (method 'ialm', the default) needs "
+            f"{size_text(memory_estimate(shape, dtype))}")
+    alt = ("float32 mode (dtype='float32', --float32) halves it; "
+           if np.dtype(dtype) == np.float64 else "")
+    raise InputError(
+        f"{where} needs about {need / 2**30:.1f} "
+        f"GiB and {have / 2**30:.1f} GiB are available; {alt}a kernel "
+        "(--kernel) avoids the matrix altogether")
 
 
 def _warn_if_stopped(dec):
@@ -297,7 +313,7 @@ def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
     """
     dtype = resolve_dtype(dtype)
     if check_memory:
-        _check_memory(np.shape(W), dtype, method)
+        _check_memory(np.shape(W), dtype, method, solver)
     W = _check_matrix(W, dtype=dtype)
     observed = _check_observed(mask, W.shape, ignore_diagonal)
     if method not in METHODS:

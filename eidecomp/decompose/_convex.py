@@ -20,10 +20,55 @@ import numpy as np
 
 from ..errors import InputError, SolverError, SolverFallbackWarning
 
-__all__ = ["ConvexPCP", "solve_convex"]
+__all__ = ["ConvexPCP", "convex_bytes", "largest_convex", "solve_convex"]
 
 SOLVERS = ("CLARABEL", "SCS")
 _MAX_ITER_KEYWORD = {"CLARABEL": "max_iter", "SCS": "max_iters"}  # cvxpy's names
+
+# Peak memory of one solve beside the input, measured (peak RSS less the
+# process's before the solve, numpy + cvxpy imported; cvxpy 1.9, Clarabel
+# 0.11, SCS 3.2) on planted rank-2 matrices:
+#   CLARABEL  40 x 40: 557 MB, 60 x 60: 2,666 MB = 6.6 and 6.3 x 8 d^2 bytes,
+#             d = (m + n)(m + n + 1) / 2 the entries of the PSD cone that
+#             cvxpy's nuclear norm becomes (an interior-point method factors
+#             a dense d x d block of it; at 300 x 300 that block alone is
+#             260 GB);
+#   SCS       120 x 120: 175 MB, 200 x 200: 441 MB, 300 x 300: 964 MB =
+#             12.2, 11.0, 10.7 KB per entry of W (cvxpy's canonical form).
+_CLARABEL_BYTES_PER_D2 = 8 * 7.0
+_SCS_BYTES_PER_ENTRY = 12_500
+
+
+def convex_bytes(shape, solver="CLARABEL"):
+    """Bytes one convex PCP solve with ``solver`` needs for a matrix of
+    ``shape`` (the measured model above, rounded up).
+
+    >>> round(convex_bytes((300, 300), "CLARABEL") / 2**30)
+    1695
+    >>> round(convex_bytes((300, 300), "SCS") / 2**30, 2)
+    1.05
+    """
+    m, n = (int(x) for x in shape)
+    if solver.upper() == "SCS":
+        return int(_SCS_BYTES_PER_ENTRY * m * n)
+    d = (m + n) * (m + n + 1) // 2
+    return int(_CLARABEL_BYTES_PER_D2 * d * d)
+
+
+def largest_convex(limit, solver="CLARABEL"):
+    """The largest n whose n x n convex program fits in ``limit`` bytes.
+
+    >>> largest_convex(2**30, "CLARABEL")
+    46
+    """
+    lo, hi = 0, 1
+    while convex_bytes((hi, hi), solver) <= limit:
+        lo, hi = hi, 2 * hi
+    while hi - lo > 1:                  # convex_bytes(lo) fits, hi does not
+        mid = (lo + hi) // 2
+        lo, hi = (mid, hi) if convex_bytes((mid, mid), solver) <= limit \
+            else (lo, mid)
+    return lo
 
 
 class ConvexPCP:
