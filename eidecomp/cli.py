@@ -8,12 +8,19 @@ written (a full disk: nothing is left half-written), 130 on an interrupt.
 import argparse
 import math
 import sys
-import time
 import warnings
 
 from ._version import __version__
 from .errors import ConvergenceWarning, InputError, SolverError, WriteError
-from .params import DEFAULT_EI_RATIO, MAX_ITER, TAU_E_MS, TAU_I_MS, TOL, resolve_tol
+from .params import (
+    AGREEMENT_RTOL,
+    DEFAULT_EI_RATIO,
+    MAX_ITER,
+    TAU_E_MS,
+    TAU_I_MS,
+    TOL,
+    resolve_tol,
+)
 
 __all__ = ["main"]
 
@@ -66,6 +73,14 @@ def _add_matrix_options(p):
                    "circuit is assembled in float64")
 
 
+def _add_quiet(p):
+    """-q: the one switch of every command's progress lines."""
+    p.add_argument("-q", "--quiet", action="store_true",
+                   help="no progress lines (they go to standard error: a live "
+                   "line on a terminal, a plain line every few seconds "
+                   "otherwise)")
+
+
 def _add_job_options(p, target):
     """--seed, --force and -q: the same for every job that writes a folder."""
     p.add_argument("--seed", type=_count, default=0,
@@ -74,8 +89,7 @@ def _add_job_options(p, target):
     p.add_argument("--force", action="store_true",
                    help=f"replace {target} if it holds an eidecomp output of "
                    "the same kind")
-    p.add_argument("-q", "--quiet", action="store_true",
-                   help="no progress lines")
+    _add_quiet(p)
 
 
 def _add_bundle_job(p, target, what):
@@ -85,8 +99,7 @@ def _add_bundle_job(p, target, what):
                    help=f"{what} (must not exist, unless --force)")
     p.add_argument("--force", action="store_true",
                    help=f"replace {target} if it exists (never an input)")
-    p.add_argument("-q", "--quiet", action="store_true",
-                   help="no progress lines")
+    _add_quiet(p)
 
 
 def _add_input(p, matrix_help, kernel_help):
@@ -212,8 +225,7 @@ def _get_parser():
                       help="folder to write (default eidecomp-demo)")
     demo.add_argument("--force", action="store_true",
                       help="replace DIR if it exists")
-    demo.add_argument("-q", "--quiet", action="store_true",
-                      help="no progress lines")
+    _add_quiet(demo)
     sim = sub.add_parser("simulate", help="run the circuit and the original "
                          "network", description="Simulate the circuit's rate "
                          "model and the original network on the same drive, "
@@ -242,6 +254,7 @@ def _get_parser():
                      help="simulated time in ms (default: 40 time constants of "
                      "the slowest mode; 40 of the slower population's when the "
                      "linear dynamics are unstable)")
+    _add_quiet(sim)
     return parser
 
 
@@ -270,54 +283,12 @@ def _nonnegative_float(text):
     return value
 
 
-class _Progress:
-    """Progress lines on stderr, at most one a second, after the first second,
-    with an estimate of the time left; silent when stderr is not a terminal
-    (a log file or a pipe) unless ``always``."""
+def _progress(args, tol=None):
+    """The command's Progress (eidecomp.progress), None with -q."""
+    from .progress import Progress
 
-    def __init__(self, stream, tol=TOL["float64"], always=False):
-        self.stream = stream
-        self.tol = tol
-        self.start = self.last = time.monotonic()
-        self.enabled = always or getattr(stream, "isatty", lambda: False)()
-        self.trail = []
-
-    def _eta(self, it, worst, now):
-        """Seconds left, from the recent rate at which the larger residual
-        falls (log-linear); None while it is not falling."""
-        self.trail.append((it, now, math.log10(max(worst, 1e-300))))
-        self.trail = self.trail[-20:]
-        if len(self.trail) < 5:
-            return None
-        (i0, t0, r0), (i1, t1, r1) = self.trail[0], self.trail[-1]
-        if r1 >= r0 or i1 == i0:
-            return None
-        per_it = (r0 - r1) / (i1 - i0)
-        left_its = (r1 - math.log10(self.tol)) / per_it
-        return max(left_its, 0.0) * (t1 - t0) / (i1 - i0)
-
-    def __call__(self, it, primal, dual, rank, mu):
-        now = time.monotonic()
-        eta = self._eta(it, max(primal, dual), now)
-        if self.enabled and now - self.last >= 1.0:
-            self.last = now
-            left = "" if eta is None else f", ~{eta:.0f} s left"
-            print(f"  iteration {it:5d}  primal {primal:.2e}  dual {dual:.2e}  "
-                  f"rank {rank}  ({now - self.start:.0f} s{left})",
-                  file=self.stream, flush=True)
-
-
-class _StageProgress(_Progress):
-    """Assembly stages and refinement sweeps, throttled like _Progress."""
-
-    def __call__(self, stage, step, objective):
-        now = time.monotonic()
-        if self.enabled and now - self.last >= 1.0:
-            self.last = now
-            what = f"{stage}" + (f", sweep {step}, objective {objective:.6g}"
-                                 if step else "")
-            print(f"  assembling: {what}  ({now - self.start:.0f} s)",
-                  file=self.stream, flush=True)
+    return Progress(sys.stderr, quiet=getattr(args, "quiet", False),
+                    **({} if tol is None else {"tol": tol}))
 
 
 def _num(value, spec):
@@ -393,9 +364,8 @@ def _decompose(args):
         target_rank=args.target_rank, method=args.method, solver=args.solver,
         tol=args.tol, max_iter=args.max_iter, seed=args.seed, force=args.force,
         dtype=dtype, engine=args.engine, scheduler=args.scheduler)
-    progress = None if args.quiet else _Progress(
-        sys.stderr, tol=resolve_tol(args.tol, dtype))
-    result = run_decompose(config, progress=progress)
+    with _progress(args, resolve_tol(args.tol, dtype)) as progress:
+        result = run_decompose(config, progress=progress.solver)
     print(_summary_table(result))
     return 0
 
@@ -472,10 +442,9 @@ def _assemble(args):
         transpose=args.transpose, mask=args.mask,
         ignore_diagonal=args.ignore_diagonal, lam=args.lam, tol=args.tol,
         seed=args.seed, force=args.force, dtype=dtype)
-    progress = None if args.quiet else _Progress(
-        sys.stderr, tol=resolve_tol(args.tol, dtype))
-    stages = None if args.quiet else _StageProgress(sys.stderr)
-    result = run_assemble(config, progress=progress, stage_progress=stages)
+    with _progress(args, resolve_tol(args.tol, dtype)) as progress:
+        result = run_assemble(config, progress=progress.solver,
+                              stage_progress=progress.stage)
     print(_tiled_line(result) if result.kind is TILED else _circuit_table(result))
     return 0
 
@@ -492,15 +461,18 @@ def _export(args):
 def _report(args):
     from .pipeline import run_report
 
-    print(f"written to {run_report(args.bundle, args.output, force=args.force)}")
+    with _progress(args) as progress:
+        path = run_report(args.bundle, args.output, force=args.force,
+                          progress=progress.stage)
+    print(f"written to {path}")
     return 0
 
 
 def _demo(args):
     from .pipeline import run_demo
 
-    stages = None if args.quiet else _StageProgress(sys.stderr)
-    result = run_demo(args.output, force=args.force, progress=stages)
+    with _progress(args) as progress:
+        result = run_demo(args.output, force=args.force, progress=progress)
     print(_circuit_table(result))
     print(f"report: {result.output / 'report.html'}")
     return 0
@@ -515,9 +487,13 @@ def _gain_limit(g_star):
 def _simulate(args):
     from .pipeline import run_simulate
 
-    r = run_simulate(args.bundle, engine=args.engine, drive=args.input,
-                     tau_e=args.tau_e, tau_i=args.tau_i, seed=args.seed,
-                     gain=args.gain, model=args.model, duration=args.duration)
+    with _progress(args) as progress:
+        progress.stage(f"simulating the circuit and the original network "
+                       f"({args.engine}, {args.model})")
+        r = run_simulate(args.bundle, engine=args.engine, drive=args.input,
+                         tau_e=args.tau_e, tau_i=args.tau_i, seed=args.seed,
+                         gain=args.gain, model=args.model,
+                         duration=args.duration)
     rows = [
         ("engine", r["engine"]),
         ("model", r["model"]),
@@ -547,7 +523,18 @@ def _simulate(args):
         ("||W - W_eff|| / ||W||", f"{r['reconstruction_error']:.2e}"),
     ]
     print(_table(rows))
+    print(_verdict(r["circuit_vs_original"]))
     return 0
+
+
+def _verdict(diff):
+    """The last line of simulate: agrees or differs, against the tolerance."""
+    if diff <= AGREEMENT_RTOL:
+        return (f"verdict: the circuit agrees with the original network "
+                f"(relative difference {diff:.2e} <= {AGREEMENT_RTOL:g})")
+    return (f"verdict: the circuit differs from the original network "
+            f"(relative difference {diff:.2e} > {AGREEMENT_RTOL:g}); compare "
+            "||W - W_eff|| / ||W|| above, or assemble with more interneurons")
 
 
 def _show_warning(message, category, filename, lineno, file=None, line=None):

@@ -23,6 +23,7 @@ import numpy as np
 from .errors import InputError
 
 __all__ = [
+    "AGREEMENT_RTOL",
     "CONNECTION_RTOL",
     "DEFAULT_EI_RATIO",
     "DTYPES",
@@ -211,3 +212,8 @@ TAU_E_MS = 10.0
 TAU_I_MS = 5.0
 """Time constant of the interneurons, ms: faster than E cells (common
 practice)."""
+
+AGREEMENT_RTOL = 0.05
+"""``eidecomp simulate`` says the circuit agrees with the original network
+when the relative difference of their E rates is at most this (our choice,
+printed with every verdict)."""

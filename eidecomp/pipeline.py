@@ -373,7 +373,13 @@ def _assemble_dense(config, out, progress, stage_progress, extra_files):
     circuit = assemble(dec, ei_ratio=ratio, untuned_share=config.untuned_share,
                        alpha=config.alpha, seed=config.seed,
                        progress=stage_progress)
+    def tell(stage):
+        if stage_progress is not None:
+            stage_progress(stage, 0, float("nan"))
+
     pools = interneuron_pools(circuit, units.features, config.period)
+    tell("stability")
+    stability = dynamics.stability_summary(circuit, W)
     doc = bundles.circuit_doc(
         circuit, source={**source, "shape": list(W.shape), "units": units.path,
                          "position_unit": config.position_unit,
@@ -381,14 +387,17 @@ def _assemble_dense(config, out, progress, stage_progress, extra_files):
         decomposition={"lam": dec.lam, "rank": dec.rank,
                        "converged": dec.converged, "n_iter": dec.n_iter,
                        "dtype": str(np.asarray(dec.low_rank).dtype)},
-        stability=dynamics.stability_summary(circuit, W), pools=pools,
+        stability=stability, pools=pools,
         parameters={"period": config.period}, unit_ids=units.ids)
     files = dict(extra_files or {})
     if config.report:
+        tell("report: lambda path")
+        path = report_lam_path(W)
         files["report.html"] = render_report(
             circuit, doc, W, low_rank=np.asarray(dec.low_rank),
             features=units.features, positions=units.positions,
-            path_points=report_lam_path(W))
+            path_points=path, progress=stage_progress)
+    tell("writing the bundle")
     meta = bundles.write_circuit(
         out, circuit, doc, files=files, force=config.force, inputs=inputs,
         arrays={"low_rank": np.asarray(dec.low_rank),
@@ -580,7 +589,7 @@ def run_simulate(bundle, *, engine="internal", drive="random", tau_e=TAU_E_MS,
 
 # --- report and demo ---------------------------------------------------------
 
-def run_report(bundle, output, *, force=False):
+def run_report(bundle, output, *, force=False, progress=None):
     """Write the HTML report of a circuit bundle to ``output``."""
     from .analysis.report import REPORT_TITLE, render_report, report_lam_path
     from .io import write_file
@@ -592,15 +601,18 @@ def run_report(bundle, output, *, force=False):
                        inputs=(bundle,))
     b = bundles.read_circuit_bundle(bundle)
     W = b.original_weights()
+    if progress is not None:
+        progress("report: lambda path", 0, float("nan"))
     page = render_report(b.circuit, b.doc, W, low_rank=b.low_rank,
                          features=b.features, positions=b.positions,
-                         path_points=report_lam_path(W))
+                         path_points=report_lam_path(W), progress=progress)
     return write_file(out, page.encode("utf-8"), force=force, replaceable=keep,
                       inputs=(bundle,))
 
 
 def run_demo(output, *, force=False, progress=None):
-    """Write the demo inputs and run decompose + assemble + report on them.
+    """Write the demo inputs and run decompose + assemble + report on them;
+    ``progress`` is an :class:`eidecomp.progress.Progress` (or None).
 
     The inputs are read by file name from inside a temporary folder, so
     circuit.json and the report name them as their copies in the bundle
@@ -624,8 +636,9 @@ def run_demo(output, *, force=False, progress=None):
         here = os.getcwd()
         os.chdir(tmp)
         try:
-            result = run_assemble(config, stage_progress=progress,
-                                  extra_files=inputs)
+            result = run_assemble(
+                config, progress=progress and progress.solver,
+                stage_progress=progress and progress.stage, extra_files=inputs)
         finally:
             os.chdir(here)
     return dataclasses.replace(result, output=Path(output))  # as the user gave it

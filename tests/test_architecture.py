@@ -26,6 +26,7 @@ ALLOWED = {
     "params": {"errors"},
     "limits": {"errors"},
     "names": {"errors"},
+    "progress": set(),
     "kernels": {"errors", "limits"},
     "io": BASE | {"limits", "names", "params", "types"},
     "decompose": BASE | {"kernels", "limits", "params", "types"},
@@ -38,7 +39,8 @@ ALLOWED = {
     "pipeline": BASE | {"analysis", "assemble", "datasets", "decompose",
                         "dynamics", "export", "io", "kernels", "limits",
                         "params", "types"},
-    "cli": BASE | {"decompose", "export", "io", "params", "pipeline"},
+    "cli": BASE | {"decompose", "export", "io", "params", "pipeline",
+                   "progress"},
     "__init__": BASE | {"assemble", "decompose", "types"},
 }
 

@@ -11,10 +11,11 @@ import numpy as np
 import pytest
 
 from eidecomp import robust_pca
-from eidecomp.cli import _Progress, main
+from eidecomp.cli import main
 from eidecomp.datasets import make_planted
 from eidecomp.decompose._api import memory_estimate
 from eidecomp.errors import InputError
+from eidecomp.progress import FIRST_AFTER, LOG_EVERY, Progress
 
 
 def test_float32_mode_recovers_the_planted_part():
@@ -50,20 +51,54 @@ def test_memory_estimate_refuses_before_any_work():
         robust_pca(np.eye(3), dtype="float16")
 
 
-def test_progress_is_silent_off_a_terminal_and_estimates_time_left():
-    quiet = io.StringIO()  # not a terminal
-    p = _Progress(quiet)
+class _Clock:
+    """A clock the test moves by hand."""
+
+    def __init__(self):
+        self.t = 0.0
+
+    def __call__(self):
+        return self.t
+
+
+def _residuals(p, clock, step):
     for it in range(1, 30):
-        p(it, 10.0 ** (-it / 3), 10.0 ** (-it / 3), 5, 1.0)
-    assert quiet.getvalue() == ""
-    loud = io.StringIO()
-    p = _Progress(loud, tol=1e-8, always=True)
-    p.last -= 10  # as if a second had passed since the last line
-    for it in range(1, 30):
-        p(it, 10.0 ** (-it / 3), 10.0 ** (-it / 3), 5, 1.0)
-        p.last -= 10
-    lines = loud.getvalue().splitlines()
-    assert lines and "s left" in lines[-1]
+        clock.t += step
+        p.solver(it, 10.0 ** (-it / 3), 10.0 ** (-it / 3), 5, 1.0)
+
+
+def test_progress_off_a_terminal_is_a_plain_line_every_few_seconds():
+    log, clock = io.StringIO(), _Clock()   # StringIO is not a terminal
+    p = Progress(log, tol=1e-8, clock=clock)
+    _residuals(p, clock, 0.5)              # 14.5 s of iterations
+    lines = log.getvalue().splitlines()
+    assert "\r" not in log.getvalue()
+    # one line at most every LOG_EVERY s, none before FIRST_AFTER
+    assert len(lines) == int((14.5 - FIRST_AFTER) // LOG_EVERY) + 1
+    assert "s left" in lines[-1] and "robust PCA" in lines[-1]
+
+
+def test_progress_on_a_terminal_rewrites_one_line_and_ends_it():
+    class Tty(io.StringIO):
+        def isatty(self):
+            return True
+
+    screen, clock = Tty(), _Clock()
+    with Progress(screen, clock=clock) as p:
+        _residuals(p, clock, 0.5)
+        clock.t += 1.0
+        p.stage("baselines")
+    out = screen.getvalue()
+    assert out.count("\n") == 1 and out.endswith("\n")   # one line, ended
+    assert out.count("\r") > 5 and "baselines" in out.split("\r")[-1]
+
+
+def test_quiet_progress_shows_nothing():
+    log, clock = io.StringIO(), _Clock()
+    with Progress(log, clock=clock, quiet=True) as p:
+        _residuals(p, clock, 5.0)
+        p.stage("report")
+    assert log.getvalue() == ""
 
 
 def test_float32_command(tmp_path):

@@ -187,7 +187,7 @@ def _ratio_text(text):
         return str(text)
 
 
-def _figures(circuit, meta, W, L, path_points, rules, cv):
+def _figures(circuit, meta, W, L, path_points, rules, cv, tell):
     """(title, base64 PNG) of every figure of the report."""
     from ..graph import population_graph
 
@@ -195,6 +195,7 @@ def _figures(circuit, meta, W, L, path_points, rules, cv):
     figs = []
 
     def fig(title, draw):
+        tell(f"report figure: {title}")
         figs.append((title, _png(draw, **_LAYOUT.get(title, {}))))
 
     for name, M in (("W", W), ("W_eff", W_eff), ("residual W - W_eff", W - W_eff)):
@@ -352,7 +353,7 @@ def _sections(meta, rules, med, have_units):
 
 
 def render_report(circuit, meta, W, *, low_rank=None, features=None,
-                  positions=None, path_points=None):
+                  positions=None, path_points=None, progress=None):
     """The report page, as an HTML string.
 
     Parameters
@@ -370,6 +371,9 @@ def render_report(circuit, meta, W, *, low_rank=None, features=None,
     path_points : list of PathPoint or None
         A lambda_path result (:func:`report_lam_path`), for the lam path
         figure.
+    progress : callable or None
+        Called as ``progress(stage, 0, nan)`` as each part starts (the
+        assembler's signature).
 
     Examples
     --------
@@ -385,6 +389,11 @@ def render_report(circuit, meta, W, *, low_rank=None, features=None,
     >>> page.startswith("<!DOCTYPE html>") and PROFILES_TITLE in page
     True
     """
+    def tell(stage):
+        if progress is not None:
+            progress(stage, 0, float("nan"))
+
+    tell("report: connection profiles")
     period = float(meta.get("parameters", {}).get("period", 180.0))
     rules = circuit_rules(circuit, W, features=features, positions=positions,
                           period=period)
@@ -392,7 +401,7 @@ def render_report(circuit, meta, W, *, low_rank=None, features=None,
     cv = {kind: [p["circular_variance"] for p in pools if p["kind"] == kind]
           for kind in (UNTUNED, TUNED)}
     figs = _figures(circuit, meta, W, low_rank, path_points, rules,
-                    cv if features is not None else None)
+                    cv if features is not None else None, tell)
     med = [np.median([x for x in v if x is not None]) if any(
         x is not None for x in v) else None for v in cv.values()]
     parts = _sections(meta, rules, med, features is not None)

@@ -25,10 +25,17 @@ __all__ = ["build_rate", "build_rate_matrix", "build_spiking", "read_weights",
            "run_rate", "run_rate_matrix"]
 
 
-def _nest():
-    os.environ.setdefault("PYNEST_QUIET", "1")  # no banner on stdout
+def _imported():
+    """The nest module, imported without its banner on stdout (every import
+    of nest here goes through this: the first one decides)."""
+    os.environ.setdefault("PYNEST_QUIET", "1")
     import nest
 
+    return nest
+
+
+def _nest():
+    nest = _imported()
     nest.ResetKernel()
     nest.verbosity = nest.VerbosityLevel.ERROR
     return nest
@@ -62,8 +69,7 @@ def build_rate(circuit, h, *, tau_e=TAU_E_MS, tau_i=TAU_I_MS, resolution=0.1):
 
 def run_rate_matrix(W_full, drive, tau, t_ms=2000.0, *, resolution=0.1):
     """Simulate any signed matrix for ``t_ms``; returns the final rates."""
-    import nest
-
+    nest = _imported()
     nodes = build_rate_matrix(W_full, drive, tau, resolution=resolution)
     nest.Simulate(float(t_ms))
     return np.asarray(nodes.get("rate"), dtype=float)
@@ -71,8 +77,7 @@ def run_rate_matrix(W_full, drive, tau, t_ms=2000.0, *, resolution=0.1):
 
 def run_rate(circuit, h, *, t_ms=2000.0, **kwargs):
     """Build, simulate ``t_ms`` and return (rates, nodes)."""
-    import nest
-
+    nest = _imported()
     nodes = build_rate(circuit, h, **kwargs)
     nest.Simulate(float(t_ms))
     return np.asarray(nodes.get("rate"), dtype=float), nodes
@@ -80,7 +85,7 @@ def run_rate(circuit, h, *, t_ms=2000.0, **kwargs):
 
 def read_weights(nodes):
     """The signed W_full[post, pre] that NEST holds among ``nodes``."""
-    import nest
+    nest = _imported()
 
     first = nodes[0].global_id
     n = len(nodes)
