@@ -53,8 +53,10 @@ def _count(text):
 
 
 def _add_matrix_options(p):
-    """How the matrix is read and which entries count: shared by every
-    command that decomposes one."""
+    """How the matrix is read, which entries count and how it is split:
+    shared by every command that decomposes one (decompose, assemble, run)."""
+    from .decompose import METHODS, SOLVERS
+
     p.add_argument("--key", help="array name in .npz / variable in .mat")
     p.add_argument("--transpose", action="store_true",
                    help="the file is stored [pre, post]")
@@ -71,6 +73,15 @@ def _add_matrix_options(p):
                    help="decompose in float32: half the memory, residuals to "
                    f"about {TOL['float32']:g} (the default tol then); the "
                    "circuit is assembled in float64")
+    p.add_argument("--target-rank", type=_count, metavar="K",
+                   help="search lam for a low-rank part of rank K (instead of "
+                   "--lam)")
+    p.add_argument("--method", choices=METHODS, default=METHODS[0],
+                   help=f"{METHODS[0]} (default): the fast ALM solver; "
+                   "convex: the exact convex program (cvxpy; small matrices)")
+    p.add_argument("--solver", choices=SOLVERS, default=SOLVERS[0],
+                   type=str.upper, help="cvxpy solver for --method convex "
+                   f"(default {SOLVERS[0]})")
 
 
 def _add_quiet(p):
@@ -113,7 +124,6 @@ def _add_input(p, matrix_help, kernel_help):
 
 
 def _get_parser():
-    from .decompose import METHODS, SOLVERS
     from .export import FORMATS
     from .pipeline import DECOMPOSE_ENGINES, SIMULATE_MODELS, SIMULATORS
 
@@ -125,6 +135,7 @@ def _get_parser():
                         version=f"eidecomp {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND",
                                 parser_class=_Parser)
+    parser.subcommands = sub.choices      # name -> its parser
     dec = sub.add_parser("decompose", help="robust PCA of a weight matrix",
                          description="Split W into low-rank L and sparse S "
                          "(Principal Component Pursuit) and write OUT/low_rank.npy, "
@@ -138,12 +149,6 @@ def _get_parser():
     dec.add_argument("-o", "--output", required=True, metavar="OUT",
                      help="folder to write (must not exist, unless --force)")
     _add_matrix_options(dec)
-    dec.add_argument("--target-rank", type=_count, metavar="K",
-                     help="search lam for a low-rank part of rank K")
-    dec.add_argument("--method", choices=METHODS, default=METHODS[0],
-                     help="fast ALM solver or exact convex program (cvxpy)")
-    dec.add_argument("--solver", choices=SOLVERS, default=SOLVERS[0],
-                     type=str.upper, help="cvxpy solver for --method convex")
     dec.add_argument("--max-iter", type=_count, metavar="N",
                      help=f"iteration limit (ALM default {MAX_ITER})")
     dec.add_argument("--engine", choices=DECOMPOSE_ENGINES,
@@ -233,8 +238,10 @@ def _get_parser():
                          "fixed points of W and of W_eff (linear) or the "
                          "original's final rates (threshold-linear).")
     sim.add_argument("bundle", metavar="CIRCUIT", help="a circuit bundle folder")
-    sim.add_argument("--engine", choices=tuple(SIMULATORS), default="internal",
-                     help="internal (scipy's solve_ivp), nest or brian2")
+    sim.add_argument("--simulator", choices=tuple(SIMULATORS),
+                     default="internal", help="internal (default: scipy's "
+                     "solve_ivp), nest or brian2 ('--engine' is decompose's "
+                     "solver engine)")
     sim.add_argument("--input", default="random", metavar="random|FILE",
                      help="drive of the E units: random (seeded) or a file of "
                      "N values")
@@ -245,7 +252,7 @@ def _get_parser():
                      help="linear (default): runs to the fixed points, which "
                      "needs stable linear dynamics; threshold-linear: E units "
                      "[.]_+, a run of --duration whose final rates are "
-                     "compared, stable or not (internal engine)")
+                     "compared, stable or not (internal simulator)")
     sim.add_argument("--gain", type=_positive_float, default=1.0,
                      help="scale W by this gain (default 1), and the circuit "
                      "with it: J_EE by the gain, J_EI and J_IE by its square "
@@ -441,6 +448,7 @@ def _assemble(args):
         expand=getattr(args, "expand", False), key=args.key,
         transpose=args.transpose, mask=args.mask,
         ignore_diagonal=args.ignore_diagonal, lam=args.lam, tol=args.tol,
+        target_rank=args.target_rank, method=args.method, solver=args.solver,
         seed=args.seed, force=args.force, dtype=dtype)
     with _progress(args, resolve_tol(args.tol, dtype)) as progress:
         result = run_assemble(config, progress=progress.solver,
@@ -489,13 +497,13 @@ def _simulate(args):
 
     with _progress(args) as progress:
         progress.stage(f"simulating the circuit and the original network "
-                       f"({args.engine}, {args.model})")
-        r = run_simulate(args.bundle, engine=args.engine, drive=args.input,
+                       f"({args.simulator}, {args.model})")
+        r = run_simulate(args.bundle, simulator=args.simulator, drive=args.input,
                          tau_e=args.tau_e, tau_i=args.tau_i, seed=args.seed,
                          gain=args.gain, model=args.model,
                          duration=args.duration)
     rows = [
-        ("engine", r["engine"]),
+        ("simulator", r["simulator"]),
         ("model", r["model"]),
         ("gain", f"{r['gain']:g} ({_gain_limit(r['largest_stable_gain'])})"),
         ("drive", r["drive"]),
@@ -563,7 +571,10 @@ def main(argv=None):
     try:
         with handle_termination():
             parser = _get_parser()  # imports the jobs: inside the handlers
-            args = parser.parse_args(argv)
+            args, extra = parser.parse_known_args(argv)
+            if extra:   # named by the command that refused them, not the top
+                sub = parser.subcommands.get(args.command, parser)
+                sub.error(f"unrecognized arguments: {' '.join(extra)}")
             if args.command is None:
                 parser.print_help(sys.stderr)
                 return 2

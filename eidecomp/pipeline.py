@@ -70,7 +70,7 @@ def refuse_inapplicable(config, allowed, what):
 
 
 _MATRIX_OPTIONS = ("key", "transpose", "mask", "ignore_diagonal", "lam", "tol",
-                   "dtype")
+                   "dtype", "target_rank", "method", "solver")
 
 
 def _load_matrix(config, *, square, what="weight matrix"):
@@ -117,6 +117,9 @@ class MatrixOptions:
     kernel: str | None = None
     grid: str | None = None
     dtype: str = "float64"
+    target_rank: int | None = None
+    method: str = METHODS[0]
+    solver: str = SOLVERS[0]
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -127,9 +130,6 @@ class DecomposeConfig(MatrixOptions):
     invented example matrix.
     """
 
-    target_rank: int | None = None
-    method: str = METHODS[0]
-    solver: str = SOLVERS[0]
     max_iter: int | None = None
     boundary: str = "periodic"
     engine: str = "memory"
@@ -277,13 +277,19 @@ def run_decompose(config, *, progress=None):
         return _decompose_dask(config, out, progress)
     refuse_inapplicable(config, set(f.name for f in dataclasses.fields(config))
                         - {"grid", "boundary", "scheduler"}, "a matrix")
+    _check_split_options(config)
+    return _decompose_dense(config, out, progress)
+
+
+def _check_split_options(config):
+    """The split's options that exclude each other, for every job that
+    decomposes a matrix (decompose, assemble, run)."""
     if config.method != "convex":
         refuse_inapplicable(config, set(f.name for f in dataclasses.fields(config))
                             - {"solver"}, f"--method {config.method}")
     if config.target_rank is not None and config.lam is not None:
         raise InputError("--lam and --target-rank exclude each other (the rank "
                          "search chooses lam)")
-    return _decompose_dense(config, out, progress)
 
 
 # --- assemble / run ----------------------------------------------------------
@@ -354,6 +360,7 @@ def _assemble_dense(config, out, progress, stage_progress, extra_files):
 
     refuse_inapplicable(config, set(f.name for f in dataclasses.fields(config))
                         - {"grid", "expand"}, "a matrix")
+    _check_split_options(config)
     ratio = EIRatio.parse(config.ei_ratio)  # bad options fail before any work
     inputs = _inputs(config.input, config.mask, config.units)
     check_bundle_output(out, CIRCUIT, force=config.force, inputs=inputs)
@@ -368,8 +375,9 @@ def _assemble_dense(config, out, progress, stage_progress, extra_files):
             W = W.astype(np.float32)    # report: at the split's precision
         dec = robust_pca(W, lam=config.lam, mask=observed,
                          ignore_diagonal=config.ignore_diagonal, tol=config.tol,
-                         seed=config.seed, progress=progress,
-                         dtype=config.dtype)
+                         target_rank=config.target_rank, method=config.method,
+                         solver=config.solver, seed=config.seed,
+                         progress=progress, dtype=config.dtype)
     circuit = assemble(dec, ei_ratio=ratio, untuned_share=config.untuned_share,
                        alpha=config.alpha, seed=config.seed,
                        progress=stage_progress)
@@ -550,27 +558,27 @@ SIMULATE_MODELS = tuple(dynamics.MODELS)
 """The rate models ``eidecomp simulate`` runs (:data:`eidecomp.dynamics.MODELS`)."""
 
 
-def run_simulate(bundle, *, engine="internal", drive="random", tau_e=TAU_E_MS,
+def run_simulate(bundle, *, simulator="internal", drive="random", tau_e=TAU_E_MS,
                  tau_i=TAU_I_MS, seed=0, gain=1.0, model="linear", duration=None):
     """Run the circuit and the original network on the same drive.
 
     The original with W = L + S from the bundle, the circuit with W_full,
     both scaled by ``gain`` (J_EE by it, J_EI and J_IE by its square root),
-    simulated by ``engine`` (a name of :data:`SIMULATORS`):
+    simulated by ``simulator`` (a name of :data:`SIMULATORS`):
     :func:`eidecomp.dynamics.compare_with_original`. ``model`` is one of
     :data:`SIMULATE_MODELS`: linear (long enough for 40 time constants of
     the slowest mode, against the fixed points), or threshold-linear (the
-    internal engine only: a run of ``duration`` ms whose final rates are
+    internal simulator only: a run of ``duration`` ms whose final rates are
     compared, stable or not). Returns its dict of relative errors, with the
-    engine and the drive.
+    simulator and the drive.
     """
-    if engine not in SIMULATORS:
-        raise InputError(f"unknown engine {engine!r} (choose from "
+    if simulator not in SIMULATORS:
+        raise InputError(f"unknown simulator {simulator!r} (choose from "
                          f"{', '.join(SIMULATORS)})")
-    module, loader = SIMULATORS[engine]
+    module, loader = SIMULATORS[simulator]
     if model != "linear" and module is not None:
-        raise InputError(f"--model {model} runs on the internal engine only "
-                         f"(the {engine} runner is linear)")
+        raise InputError(f"--model {model} runs on the internal simulator "
+                         f"only (the {simulator} runner is linear)")
     if module is not None:
         from .export import require_module
 
@@ -584,7 +592,7 @@ def run_simulate(bundle, *, engine="internal", drive="random", tau_e=TAU_E_MS,
             t_ms=duration)
     except InputError as exc:
         raise InputError(f"{bundle}: {exc}") from None
-    return {"engine": engine, "drive": source, **result}
+    return {"simulator": simulator, "drive": source, **result}
 
 
 # --- report and demo ---------------------------------------------------------

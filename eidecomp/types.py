@@ -211,7 +211,8 @@ class KernelDecomposition:
 
 @dataclass(frozen=True)
 class PathPoint:
-    """One lam on a regularisation path."""
+    """One lam on a regularisation path (``seconds``: the wall time of its
+    solve)."""
 
     lam: float
     rank: int
@@ -222,6 +223,7 @@ class PathPoint:
     objective: float
     n_iter: int
     converged: bool
+    seconds: float = 0.0
 
     def as_dict(self):
         return {k: getattr(self, k) for k in self.__dataclass_fields__}

@@ -106,3 +106,17 @@ def test_bundle_checks(planted, tmp_path, capsys):
     # and nothing overwrites a bundle without --force
     assert main(["run", str(d / "w.npy"), "-o", str(out), "-q"]) == 2
     assert "already exists" in capsys.readouterr().err
+
+
+def test_run_takes_the_split_options_of_decompose(tmp_path):
+    # one option table: --target-rank, --method and --solver mean in run
+    # what they mean in decompose (the planted rank-2 low-rank part is found)
+    W, _, _ = make_planted_circuit(60, n_untuned=2, n_tuned=10, pool=4, seed=1)
+    np.save(tmp_path / "w.npy", W)
+    assert main(["run", str(tmp_path / "w.npy"), "-o", str(tmp_path / "c"),
+                 "-q", "--target-rank", "2"]) == 0
+    doc = json.loads((tmp_path / "c" / "circuit.json").read_text())
+    assert doc["decomposition"]["rank"] == 2
+    assert main(["run", str(tmp_path / "w.npy"), "-o", str(tmp_path / "d"),
+                 "-q", "--solver", "SCS"]) == 2          # needs --method convex
+    assert not (tmp_path / "d").exists()

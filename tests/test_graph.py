@@ -331,3 +331,19 @@ def test_csv_weights_are_bare_exact_numbers(small):
                    if header[k] != "weight")
         n += 1
     assert n == G.number_of_edges()
+
+
+@pytest.mark.parametrize("spelling", ["edges", "links"])
+def test_node_link_json_reads_at_both_networkx_spellings(small, spelling):
+    # reference: networkx's own node_link_graph, at the edges= keyword of
+    # networkx >= 3.4 ("edges") and of its older default ("links")
+    import json
+
+    from eidecomp.export import render
+    from eidecomp.graph import circuit_from_graph
+
+    c, _ = small
+    G = nx.node_link_graph(json.loads(render("json", c)), edges=spelling)
+    back = circuit_from_graph(G)
+    for name in ("J_EE", "J_EU", "J_UE", "J_ET", "J_TE"):
+        assert np.allclose(getattr(back, name), getattr(c, name))

@@ -271,7 +271,7 @@ ROWS = [
      "{d}/c: no circuit.json; not a circuit bundle"),
     ("unknown-option", {"w.csv": GOOD},
      ["decompose", "{d}/w.csv", "-o", "{d}/out", "--bogus"],
-     "unrecognized arguments: --bogus (see 'eidecomp --help')"),
+     "unrecognized arguments: --bogus (see 'eidecomp decompose --help')"),
     ("negative-tol", {"w.csv": GOOD},
      ["decompose", "{d}/w.csv", "-o", "{d}/out", "--tol", "-1"],
      "argument --tol: must be a positive number: '-1' "

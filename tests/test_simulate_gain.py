@@ -187,9 +187,9 @@ def test_cli_threshold_linear(bundle, capsys):
 
 
 @pytest.mark.parametrize("argv,message", [
-    (["--model", "threshold-linear", "--engine", "nest"],
-     "--model threshold-linear runs on the internal engine only (the nest "
-     "runner is linear)"),
+    (["--model", "threshold-linear", "--simulator", "nest"],
+     "--model threshold-linear runs on the internal simulator only (the "
+     "nest runner is linear)"),
     (["--gain", "0"], "argument --gain: must be a positive number: '0'"),
     (["--duration", "-1"], "argument --duration: must be a positive number"),
     (["--model", "cubic"], "argument --model: invalid choice: 'cubic'"),

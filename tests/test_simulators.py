@@ -150,13 +150,13 @@ def test_simulate_command(bundle, engine, capsys):
     from eidecomp.cli import main
     from eidecomp.pipeline import run_simulate
 
-    r = run_simulate(bundle, engine=engine, tau_i=5.0)
+    r = run_simulate(bundle, simulator=engine, tau_i=5.0)
     assert r["circuit_vs_fixed_point_W_eff"] < 1e-6
     assert r["original_vs_fixed_point_W"] < 1e-6
     # the circuit reproduces the original responses as well as it
     # reproduces W (both small on this planted circuit)
     assert r["circuit_vs_original"] < 0.05
-    assert main(["simulate", str(bundle), "--engine", engine]) == 0
+    assert main(["simulate", str(bundle), "--simulator", engine]) == 0
     assert "vs fixed point of W_eff" in capsys.readouterr().out
 
 

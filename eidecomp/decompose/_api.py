@@ -8,6 +8,7 @@ starts.
 """
 
 import math
+import time
 import warnings
 
 import numpy as np
@@ -397,7 +398,7 @@ def _search_rank(solve, lam, k, max_evals=40):
 
 
 def lambda_path(W, lams=None, *, n_lams=12, mask=None, ignore_diagonal=False,
-                tol=None, max_iter=MAX_ITER, seed=0):
+                tol=None, max_iter=MAX_ITER, seed=0, progress=None):
     """Solve PCP over a range of lam with warm starts (fast ALM solver).
 
     Parameters
@@ -409,12 +410,18 @@ def lambda_path(W, lams=None, *, n_lams=12, mask=None, ignore_diagonal=False,
     n_lams : int
     mask, ignore_diagonal, tol, max_iter, seed
         As in :func:`robust_pca`.
+    progress : callable or None
+        Called as ``progress(stage, 0, nan)`` before each lam (the stage
+        names the point and the time so far: :class:`eidecomp.progress.Progress`
+        takes it as it is).
 
     Returns
     -------
     points : list of PathPoint
-        One per lam, in increasing lam: rank, sparsity, ||L||_*, ||S||_1 and
-        primal residual.
+        One per lam, in increasing lam: rank, sparsity, ||L||_*, ||S||_1,
+        primal residual, iterations and seconds (their sum is the path's
+        cost). Each solve starts from its neighbour's (warm start), cold
+        when that is slower (:func:`_ialm_decomposition`).
     decompositions : list of Decomposition
 
     Examples
@@ -436,7 +443,13 @@ def lambda_path(W, lams=None, *, n_lams=12, mask=None, ignore_diagonal=False,
     if not lams:
         raise InputError("lambda_path needs at least one lam")
     points, decs, state = [], [], None
-    for lam in lams:
+    start = time.perf_counter()
+    for i, lam in enumerate(lams):
+        if progress is not None:
+            progress(f"lambda path: lam {i + 1} of {len(lams)} = {lam:.3g} "
+                     f"({time.perf_counter() - start:.0f} s so far)", 0,
+                     float("nan"))
+        t = time.perf_counter()
         with blas_threads(W.shape):
             dec, state = _ialm_decomposition(W, lam, observed, tol=tol,
                                              max_iter=max_iter, rho=1.5,
@@ -448,6 +461,7 @@ def lambda_path(W, lams=None, *, n_lams=12, mask=None, ignore_diagonal=False,
                                 nuclear_norm=r.nuclear_norm, l1_norm=r.l1_norm,
                                 primal_residual=r.primal_residual,
                                 objective=r.objective, n_iter=dec.n_iter,
-                                converged=dec.converged))
+                                converged=dec.converged,
+                                seconds=time.perf_counter() - t))
         decs.append(dec)
     return points, decs

@@ -66,7 +66,12 @@ def to_graphml_bytes(G):
 
 
 def to_json_bytes(G):
+    """Node-link JSON that ``networkx.node_link_graph`` reads at either of
+    its spellings: the edges under "edges" (networkx >= 3.4's default) and,
+    the same list again, under "links" (the older default, still accepted
+    with ``edges="links"``)."""
     data = nx.node_link_data(G, edges="edges")
+    data["links"] = data["edges"]
     return (json.dumps(data, indent=1, sort_keys=True) + "\n").encode()
 
 
