@@ -92,11 +92,25 @@ def _add_quiet(p):
                    "otherwise)")
 
 
-def _add_job_options(p, target):
-    """--seed, --force and -q: the same for every job that writes a folder."""
+def _add_seed(p):
+    """--seed: one name, help and default in every command."""
     p.add_argument("--seed", type=_count, default=0,
                    help="seed of every random choice (default 0): the same "
                    "inputs and seed give the same outputs")
+
+
+def _add_drive(p):
+    """--input and --seed of the E units' drive: simulate and the script
+    exports (the same drive, so an exported script responds as simulate)."""
+    p.add_argument("--input", default=None, metavar="random|FILE",
+                   help="drive of the E units: random (the default: uniform "
+                   "on [0.5, 1.5], seeded by --seed) or a file of N values")
+    _add_seed(p)
+
+
+def _add_job_options(p, target):
+    """--seed, --force and -q: the same for every job that writes a folder."""
+    _add_seed(p)
     p.add_argument("--force", action="store_true",
                    help=f"replace {target} if it holds an eidecomp output of "
                    "the same kind")
@@ -213,6 +227,7 @@ def _get_parser():
     exp.add_argument("--format", required=True, choices=FORMATS,
                      help=_format_help())
     _add_time_constants(exp, " (simulator formats)")
+    _add_drive(exp)
     exp.add_argument("--raw-csv", action="store_true",
                      help="csv: write text cells as they are, without "
                      "neutralising those a spreadsheet would run as formulas")
@@ -242,12 +257,8 @@ def _get_parser():
                      default="internal", help="internal (default: scipy's "
                      "solve_ivp), nest or brian2 ('--engine' is decompose's "
                      "solver engine)")
-    sim.add_argument("--input", default="random", metavar="random|FILE",
-                     help="drive of the E units: random (seeded) or a file of "
-                     "N values")
+    _add_drive(sim)
     _add_time_constants(sim, "")
-    sim.add_argument("--seed", type=_count, default=0,
-                     help="seed of the random drive (default 0)")
     sim.add_argument("--model", choices=SIMULATE_MODELS, default=SIMULATE_MODELS[0],
                      help="linear (default): runs to the fixed points, which "
                      "needs stable linear dynamics; threshold-linear: E units "
@@ -461,7 +472,8 @@ def _export(args):
     from .pipeline import run_export
 
     path = run_export(args.bundle, args.format, args.output, force=args.force,
-                      tau_e=args.tau_e, tau_i=args.tau_i, raw_csv=args.raw_csv)
+                      tau_e=args.tau_e, tau_i=args.tau_i, raw_csv=args.raw_csv,
+                      drive=args.input, seed=args.seed)
     print(f"written to {path}")
     return 0
 
@@ -498,7 +510,8 @@ def _simulate(args):
     with _progress(args) as progress:
         progress.stage(f"simulating the circuit and the original network "
                        f"({args.simulator}, {args.model})")
-        r = run_simulate(args.bundle, simulator=args.simulator, drive=args.input,
+        r = run_simulate(args.bundle, simulator=args.simulator,
+                         drive="random" if args.input is None else args.input,
                          tau_e=args.tau_e, tau_i=args.tau_i, seed=args.seed,
                          gain=args.gain, model=args.model,
                          duration=args.duration)

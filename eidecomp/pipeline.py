@@ -52,7 +52,8 @@ DECOMPOSE_ENGINES = ("memory", "dask")
 
 # --- options that do not apply ---------------------------------------------------
 
-_FLAGS = {"dtype": "--float32"}  # fields whose option is not their name
+_FLAGS = {"dtype": "--float32", "drive": "--input"}  # options not named as
+                                                    # their fields
 
 
 def _flag(name):
@@ -476,13 +477,15 @@ def run_assemble(config, *, progress=None, stage_progress=None, extra_files=None
 # --- export ------------------------------------------------------------------
 
 def run_export(bundle, fmt, output, *, force=False, tau_e=TAU_E_MS,
-               tau_i=TAU_I_MS, raw_csv=False):
+               tau_i=TAU_I_MS, raw_csv=False, drive=None, seed=0):
     """Write a circuit bundle in one export format; returns the path written.
 
     ``fmt`` is a name of :data:`eidecomp.export.FORMATS`: graphml, json, csv
     and neuroml write one file; pynn, nest and brian2 a folder holding a
-    script and its data (the E drive is zero: the scripts take the circuit,
-    not an experiment). Features and positions stored in the bundle (from
+    script and its data, with the E units' drive: ``drive`` as for
+    :func:`run_simulate` ("random", seeded by ``seed``, or a file of N
+    values; None: "random"), so that the script's run responds as
+    ``eidecomp simulate`` does. Features and positions stored in the bundle (from
     ``--units``) become node attributes of the graph formats, and the unit
     ids data in every format. ``raw_csv`` writes CSV text cells without the
     CSV-injection quote (eidecomp.export.edges_csv).
@@ -493,7 +496,8 @@ def run_export(bundle, fmt, output, *, force=False, tau_e=TAU_E_MS,
 
     spec = get_format(fmt)
     given = {"tau_e": tau_e != TAU_E_MS, "tau_i": tau_i != TAU_I_MS,
-             "raw_csv": bool(raw_csv)}
+             "raw_csv": bool(raw_csv), "drive": drive is not None,
+             "seed": seed != 0}
     for option, set_ in given.items():
         if set_ and option not in spec.options:
             raise InputError(f"{_flag(option)} does not apply to the {fmt} "
@@ -505,9 +509,13 @@ def run_export(bundle, fmt, output, *, force=False, tau_e=TAU_E_MS,
         check_output(output, force=force, folder=False, replaceable=keep,
                      inputs=(bundle,))
     b = bundles.read_circuit_bundle(bundle)
+    h = None
+    if "drive" in spec.options:        # the same drive as simulate's
+        h, _ = _read_drive("random" if drive is None else drive,
+                           b.circuit.n_excitatory, seed)
     data = render(fmt, b.circuit, features=b.features, positions=b.positions,
                   unit_ids=b.unit_ids,  # names: data, never code
-                  tau_e=tau_e, tau_i=tau_i, raw_csv=raw_csv)
+                  tau_e=tau_e, tau_i=tau_i, raw_csv=raw_csv, drive=h)
     if not spec.folder:
         return write_file(output, data, force=force, replaceable=keep,
                           inputs=(bundle,))

@@ -83,7 +83,7 @@ def edge_csv_text(G, *, raw=False):
 
 
 def render_csv(circuit, *, features=None, positions=None, unit_ids=None,
-               tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False):
+               tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False, drive=None):
     """The edge-list CSV file of the circuit, as UTF-8 bytes (features,
     positions and the time constants do not apply)."""
     G = graph_of(circuit, unit_ids=unit_ids)

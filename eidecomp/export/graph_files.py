@@ -76,7 +76,7 @@ def to_json_bytes(G):
 
 
 def render_graphml(circuit, *, features=None, positions=None, unit_ids=None,
-                   tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False):
+                   tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False, drive=None):
     """The GraphML file of the circuit's neuron graph, as bytes (the time
     constants and ``raw_csv`` do not apply)."""
     return to_graphml_bytes(graph_of(circuit, features=features,
@@ -84,7 +84,7 @@ def render_graphml(circuit, *, features=None, positions=None, unit_ids=None,
 
 
 def render_json(circuit, *, features=None, positions=None, unit_ids=None,
-                tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False):
+                tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False, drive=None):
     """The node-link JSON file of the circuit's neuron graph, as bytes (the
     time constants and ``raw_csv`` do not apply)."""
     return to_json_bytes(graph_of(circuit, features=features,

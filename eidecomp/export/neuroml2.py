@@ -118,7 +118,7 @@ def to_document(circuit, *, tau_e=TAU_E_MS, tau_i=TAU_I_MS,
 
 
 def render_neuroml(circuit, *, features=None, positions=None, unit_ids=None,
-                   tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False):
+                   tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False, drive=None):
     """The ``.net.nml`` file as UTF-8 bytes, read back by libNeuroML and
     validated by its schema check (features, positions and ``raw_csv`` do
     not apply)."""

@@ -145,10 +145,12 @@ def pynn_files(circuit, h=None, *, tau_e=TAU_E_MS, tau_i=TAU_I_MS,
 
 
 def render_pynn(circuit, *, features=None, positions=None, unit_ids=None,
-                tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False):
-    """The PyNN folder (script and data; the E drive is zero) as
-    {file name: bytes} (features, positions and ``raw_csv`` do not apply)."""
-    return pynn_files(circuit, tau_e=tau_e, tau_i=tau_i, unit_ids=unit_ids)
+                tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False, drive=None):
+    """The PyNN folder (script and data; ``drive`` the E units' drive h, N
+    values, None for zero) as {file name: bytes} (features, positions and
+    ``raw_csv`` do not apply)."""
+    return pynn_files(circuit, drive, tau_e=tau_e, tau_i=tau_i,
+                      unit_ids=unit_ids)
 
 
 def write_pynn(circuit, folder, h=None, **kwargs):

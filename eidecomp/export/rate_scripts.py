@@ -54,6 +54,7 @@ def main():
 
     args, d = load()
     nest.ResetKernel()
+    nest.verbosity = nest.VerbosityLevel.ERROR   # stdout holds only the JSON
     nest.resolution = float(d["dt_ms"])
     n = int(d["n"])
     nodes = nest.Create("lin_rate_ipn", n, params={{
@@ -131,19 +132,21 @@ def rate_script_files(circuit, engine, h=None, *, tau_e=TAU_E_MS,
 
 
 def render_nest(circuit, *, features=None, positions=None, unit_ids=None,
-                tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False):
-    """The NEST folder (script and data; the E drive is zero) as
-    {file name: bytes} (features, positions and ``raw_csv`` do not apply)."""
-    return rate_script_files(circuit, "nest", tau_e=tau_e, tau_i=tau_i,
+                tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False, drive=None):
+    """The NEST folder (script and data; ``drive`` the E units' drive h, N
+    values, None for zero) as {file name: bytes} (features, positions and
+    ``raw_csv`` do not apply)."""
+    return rate_script_files(circuit, "nest", drive, tau_e=tau_e, tau_i=tau_i,
                              unit_ids=unit_ids)
 
 
 def render_brian2(circuit, *, features=None, positions=None, unit_ids=None,
-                  tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False):
-    """The Brian2 folder (script and data; the E drive is zero) as
-    {file name: bytes} (features, positions and ``raw_csv`` do not apply)."""
-    return rate_script_files(circuit, "brian2", tau_e=tau_e, tau_i=tau_i,
-                             unit_ids=unit_ids)
+                  tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False, drive=None):
+    """The Brian2 folder (script and data; ``drive`` the E units' drive h, N
+    values, None for zero) as {file name: bytes} (features, positions and
+    ``raw_csv`` do not apply)."""
+    return rate_script_files(circuit, "brian2", drive, tau_e=tau_e,
+                             tau_i=tau_i, unit_ids=unit_ids)
 
 
 def write_rate_script(circuit, folder, engine, h=None, **kwargs):

@@ -91,6 +91,7 @@ class ExportFormat:
 
 
 _TAUS = ("tau_e", "tau_i")
+_SCRIPT = _TAUS + ("drive", "seed")  # the simulator scripts take a drive
 REGISTRY = (
     ExportFormat("graphml", False, graph_files.render_graphml,
                  "neuron-level graph, GraphML (networkx)", suffix=".graphml",
@@ -106,12 +107,13 @@ REGISTRY = (
                  requires="neuroml", suffix=".net.nml",
                  markers=(b'id="eidecomp_circuit"',), options=_TAUS),
     ExportFormat("pynn", True, pynn_script.render_pynn,
-                 "folder: PyNN script (spiking) and its data", options=_TAUS),
+                 "folder: PyNN script (spiking) and its data", options=_SCRIPT),
     ExportFormat("nest", True, rate_scripts.render_nest,
-                 "folder: NEST script (rate model) and its data", options=_TAUS),
+                 "folder: NEST script (rate model) and its data",
+                 options=_SCRIPT),
     ExportFormat("brian2", True, rate_scripts.render_brian2,
                  "folder: Brian2 script (rate model) and its data",
-                 options=_TAUS),
+                 options=_SCRIPT),
 )
 """Every export format, in the order they are listed."""
 
