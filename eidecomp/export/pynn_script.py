@@ -6,21 +6,38 @@ and sizes, connection lists with their receptor, drive, unit names).
 Nothing from the circuit or a unit table is pasted into the code: the
 script reads the .npz with ``allow_pickle=False``.
 
-PyNN describes spiking cells, so the script maps the rate model onto
-current-based integrate-and-fire units (``IF_curr_exp``):
+PyNN describes spiking cells, so the script maps the linear rate model
+tau dr/dt = -r + W_full r + h onto current-based integrate-and-fire units
+(``IF_curr_exp``, PyNN's defaults otherwise) at an operating point where
+every unit fires and its rate is a smooth, nearly linear function of its
+input current (docs/simulators.md gives the derivation):
 
-* every unit gets ``tau_m`` = its population's time constant, and a constant
-  current ``i_offset = rheobase + above_rheobase_nA + nA_per_drive * h``
-  (h = 0 for interneurons), the rheobase of an integrate-and-fire unit being
-  (v_thresh - v_rest) cm / tau_m (1.5 nA at tau_m = 10 ms, 3 nA at 5 ms with
-  PyNN's IF_curr_exp defaults v_rest = -65 mV, v_thresh = -50 mV,
-  cm = 1 nF), so every unit fires tonically whatever its time constant;
-* a synapse of magnitude w becomes a weight of ``nA_per_weight * w`` nA on
-  the ``excitatory`` or ``inhibitory`` receptor, the presynaptic
-  population's kind (Dale's law), with a fixed delay.
+* every unit gets ``tau_m`` = its population's time constant and a bias
+  current of ``bias_ratio`` (2) times its own rheobase, (v_thresh - v_reset)
+  c_m / tau_m, so every population fires tonically whatever its time
+  constant; there the slope of the unit's f-I curve is ``gain`` =
+  f'(I) = 1000 tau_m / (T^2 x (x - 1) I_rh) Hz/nA (x = bias_ratio,
+  T = t_ref + tau_m L the interspike interval, L = ln(x / (x - 1)):
+  67.4 Hz/nA at x = 2 and tau_m = 10 ms, 65.5 at 5 ms);
+* the synaptic current decays with tau_syn = ``tau_syn_ratio`` x tau_m of
+  the postsynaptic unit (0.25: never equal to tau_m, where PyNN's Brian2
+  backend's exact integrator divides by zero);
+* a synapse of magnitude w becomes a weight of ``coupling`` w / (gain
+  tau_syn 1e-3) nA on the ``excitatory`` or ``inhibitory`` receptor, the
+  presynaptic population's kind (Dale's law; negative on the inhibitory
+  one, as PyNN requires of current-based synapses), with a fixed delay: a spike
+  train of rate nu Hz then moves the postsynaptic rate by ``coupling`` w nu,
+  the rate model's w r with r in Hz;
+* the E drive h adds ``rate_per_drive`` / gain nA (``rate_per_drive`` Hz per
+  unit of h, 10 Hz).
 
-This is a modelling choice for exploring the circuit in a spiking simulator,
-not an equivalence with the rate model.
+Linearised about the operating point, the rate changes of the spiking
+network follow dr = rate_per_drive (I - coupling W_full)^-1 dh, the rate
+model's own response at coupling 1 (``benchmarks/spiking.py`` measures how
+closely). This is a modelling choice for exploring the circuit with spikes,
+not an equivalence: the operating point is the bias, not the rate model's
+fixed point, and synchrony, refractoriness and the rectification of units
+pushed below threshold are the spiking network's own.
 """
 
 import numpy as np
@@ -31,15 +48,17 @@ from ..types import BLOCKS
 from ._lists import drive_vector, npz_bytes, population_taus, write_into
 from ._names import unit_id_list
 
-__all__ = ["SCRIPT", "pynn_files", "render_pynn", "rheobase_nA", "write_pynn"]
+__all__ = ["BIAS_RATIO", "RATE_PER_DRIVE_HZ", "SCRIPT", "TAU_SYN_RATIO",
+           "gain_hz_per_nA", "pynn_files", "rate_hz", "render_pynn",
+           "rheobase_nA", "write_pynn"]
 
 SCRIPT = '''"""PyNN model of a circuit assembled by eidecomp (generated file).
 
-Usage: python circuit_pynn.py [--simulator nest] [--t-stop 1000]
+Usage: python circuit_pynn.py [--simulator nest|brian2] [--t-stop 1000] [--save]
 
 Reads circuit_pynn_data.npz beside this file and prints, as JSON, the number
-of spikes fired by each population. The rate-to-spiking mapping is described
-in eidecomp's docs/simulators.md.
+of spikes fired by each population and every unit's rate (Hz). The
+rate-to-spiking mapping is described in eidecomp's docs/simulators.md.
 """
 
 import argparse
@@ -56,20 +75,31 @@ def main():
     ap = argparse.ArgumentParser(description=__doc__.split("\\n")[0])
     ap.add_argument("--simulator", default="nest")
     ap.add_argument("--t-stop", type=float, default=1000.0)
+    ap.add_argument("--save", action="store_true",
+                    help="also write each population's spike trains "
+                    "(spikes_<population>.pkl, neo PickleIO)")
     args = ap.parse_args()
     sim = importlib.import_module("pyNN." + args.simulator)
     data = np.load(HERE / "circuit_pynn_data.npz", allow_pickle=False)
     sim.setup(timestep=float(data["timestep_ms"]))
     sizes = data["sizes"].astype(int)
     starts = np.concatenate([[0], np.cumsum(sizes)])
+    rng = np.random.default_rng(int(data["seed"]))
     pops = {}
     for k, name in enumerate(data["populations"].tolist()):
         if sizes[k] == 0:
             continue
         offsets = data["i_offset"][starts[k]:starts[k + 1]]
+        tau_syn = float(data["tau_syn_ms"][k])
         cells = sim.IF_curr_exp(tau_m=float(data["tau_ms"][k]),
+                                tau_syn_E=tau_syn, tau_syn_I=tau_syn,
                                 i_offset=offsets.tolist())
         pops[name] = sim.Population(int(sizes[k]), cells, label=name)
+        # membrane potentials start spread between reset and threshold (a
+        # seeded draw): tonically firing units start out of phase
+        pops[name].initialize(v=rng.uniform(float(data["v_reset_mV"]),
+                                            float(data["v_thresh_mV"]),
+                                            int(sizes[k])))
         pops[name].record("spikes")
     for k in range(int(data["n_projections"])):
         pre = str(data["proj_pre"][k])
@@ -79,11 +109,17 @@ def main():
                        sim.FromListConnector([tuple(row) for row in conns]),
                        receptor_type=str(data["proj_receptor"][k]))
     sim.run(args.t_stop)
-    counts = {name: int(sum(len(st) for st in
-                            p.get_data().segments[0].spiketrains))
-              for name, p in pops.items()}
+    counts, rates = {}, {}
+    for name, p in pops.items():
+        trains = p.get_data().segments[0].spiketrains
+        n = [len(st) for st in trains]       # in the order of the units
+        counts[name] = int(sum(n))
+        rates[name] = [1000.0 * k / args.t_stop for k in n]
+        if args.save:                    # spike trains, neo's pickle format
+            p.write_data(str(HERE / ("spikes_%s.pkl" % name)))
     sim.end()
-    print(json.dumps({"t_stop_ms": args.t_stop, "spikes": counts}))
+    print(json.dumps({"t_stop_ms": args.t_stop, "spikes": counts,
+                      "rates_hz": rates}))
 
 
 if __name__ == "__main__":
@@ -92,45 +128,109 @@ if __name__ == "__main__":
 
 
 # PyNN's IF_curr_exp defaults (pyNN.standardmodels.cells.IF_curr_exp)
-_V_REST_MV, _V_THRESH_MV, _CM_NF = -65.0, -50.0, 1.0
+_V_RESET_MV, _V_THRESH_MV, _CM_NF, _T_REFRAC_MS = -65.0, -50.0, 1.0, 0.1
+
+BIAS_RATIO = 2.0        # bias current / rheobase: every unit fires
+TAU_SYN_RATIO = 0.25    # tau_syn / tau_m of the postsynaptic unit
+RATE_PER_DRIVE_HZ = 10.0
 
 
 def rheobase_nA(tau_m_ms):
     """The least constant current that makes a PyNN IF_curr_exp unit with
-    its default parameters fire: (v_thresh - v_rest) cm / tau_m.
+    its default parameters fire: (v_thresh - v_reset) cm / tau_m.
 
     >>> rheobase_nA([10.0, 5.0])
     array([1.5, 3. ])
     """
-    return (_V_THRESH_MV - _V_REST_MV) * _CM_NF / np.asarray(tau_m_ms, float)
+    return (_V_THRESH_MV - _V_RESET_MV) * _CM_NF / np.asarray(tau_m_ms, float)
+
+
+def rate_hz(current_nA, tau_m_ms):
+    """The firing rate of a PyNN IF_curr_exp unit (default parameters) under
+    a constant current: 1000 / (t_ref + tau_m ln(x / (x - 1))), x the
+    current over the rheobase; 0 at or below it.
+
+    >>> round(float(rate_hz(3.0, 10.0)), 2)     # twice the rheobase
+    142.22
+    """
+    x = np.asarray(current_nA, float) / rheobase_nA(tau_m_ms)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        period = _T_REFRAC_MS + np.asarray(tau_m_ms) * np.log(x / (x - 1.0))
+        return np.where(x > 1.0, 1000.0 / period, 0.0)
+
+
+def gain_hz_per_nA(tau_m_ms, bias_ratio=BIAS_RATIO):
+    """The slope of :func:`rate_hz` at ``bias_ratio`` x the rheobase, Hz/nA
+    (exact derivative, refractory period included).
+
+    >>> round(float(gain_hz_per_nA(10.0)), 1), round(float(gain_hz_per_nA(5.0)), 1)
+    (67.4, 65.5)
+    """
+    tau = np.asarray(tau_m_ms, float)
+    x = float(bias_ratio)
+    L = np.log(x / (x - 1.0))
+    period = _T_REFRAC_MS + tau * L
+    # d rate / dI = 1000 tau / (period^2 x (x - 1) I_rh)
+    return 1000.0 * tau / (period ** 2 * x * (x - 1.0) * rheobase_nA(tau))
+
+
+def _bias(circuit, taus, gain, bias_ratio, coupling):
+    """Each unit's bias current (nA): the current that puts it at
+    ``bias_ratio`` x its rheobase once its synaptic input at the operating
+    point is counted, every unit firing at :func:`rate_hz` of that current
+    (the mean-field operating point: the recurrent input a unit gets there,
+    coupling (W_full r0)_i Hz, is taken off its bias)."""
+    sizes = [p.size for p in circuit.populations]
+    target = np.repeat(bias_ratio * rheobase_nA(taus), sizes)
+    r0 = rate_hz(target, np.repeat(taus, sizes))
+    recurrent_hz = circuit.signed_weights() @ r0
+    return target - coupling * recurrent_hz / np.repeat(gain, sizes)
 
 
 def pynn_files(circuit, h=None, *, tau_e=TAU_E_MS, tau_i=TAU_I_MS,
-               nA_per_weight=0.1, nA_per_drive=1.0, above_rheobase_nA=0.1,
-               delay_ms=1.0, timestep_ms=0.1, unit_ids=None):
-    """{file name: bytes} of the script and its data.
+               bias_ratio=BIAS_RATIO, tau_syn_ratio=TAU_SYN_RATIO,
+               rate_per_drive=RATE_PER_DRIVE_HZ, coupling=1.0, delay_ms=0.1,
+               timestep_ms=0.1, seed=0, unit_ids=None):
+    """{file name: bytes} of the script and its data (the mapping of the
+    module's docstring; ``coupling`` scales every synapse, 1 for the rate
+    model's own).
 
     ``unit_ids`` (the unit table's names) are stored in the data file as a
     string array, ``unit_ids``; the script's text never contains them."""
+    if not bias_ratio > 1:
+        raise ValueError(f"bias_ratio must exceed 1, got {bias_ratio!r}")
     ids = unit_id_list(unit_ids, circuit.n_excitatory)
     h = np.zeros(circuit.n_excitatory) if h is None else h
     H = drive_vector(circuit, h)
     pops = circuit.populations
     sizes = np.array([p.size for p in pops])
     taus = population_taus(circuit, tau_e, tau_i)
-    bias = np.repeat(rheobase_nA(taus) + above_rheobase_nA, sizes)
+    gain = gain_hz_per_nA(taus, bias_ratio)
+    tau_syn = tau_syn_ratio * taus
+    per_unit = {p.name: k for k, p in enumerate(pops)}
     data = {"populations": np.array([p.name for p in pops], dtype=str),
-            "sizes": sizes, "tau_ms": taus,
+            "sizes": sizes, "tau_ms": taus, "tau_syn_ms": tau_syn,
+            "gain_hz_per_nA": gain,
+            "rate_per_drive_hz": np.array(float(rate_per_drive)),
+            "coupling": np.array(float(coupling)),
+            "seed": np.array(int(seed)),
+            "v_reset_mV": np.array(_V_RESET_MV),
+            "v_thresh_mV": np.array(_V_THRESH_MV),
             "timestep_ms": np.array(timestep_ms),
-            "i_offset": bias + nA_per_drive * H}
+            "i_offset": _bias(circuit, taus, gain, bias_ratio, coupling)
+            + np.repeat(rate_per_drive / gain, sizes) * H}
     pres, posts, receptors = [], [], []
     for b in BLOCKS:
         J = getattr(circuit, b.name)
         i, j = np.nonzero(J)
         if not len(i):
             continue
+        k = per_unit[b.post_name]          # the receiving unit sets the scale
+        nA = coupling / (gain[k] * tau_syn[k] * 1e-3)
+        if synapse_kind(b) == "inhibitory":  # PyNN's convention: current-
+            nA = -nA                          # based inhibitory weights < 0
         data[f"proj_{len(pres)}"] = np.column_stack(
-            [j, i, nA_per_weight * J[i, j], np.full(len(i), float(delay_ms))])
+            [j, i, nA * J[i, j], np.full(len(i), float(delay_ms))])
         pres.append(b.pre_name)
         posts.append(b.post_name)
         receptors.append(synapse_kind(b))  # PyNN's receptor types
