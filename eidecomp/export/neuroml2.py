@@ -72,9 +72,11 @@ def _cell(kind):
 
 
 def to_document(circuit, *, tau_e=TAU_E_MS, tau_i=TAU_I_MS,
-                name="eidecomp_circuit", unit_ids=None):
+                name="eidecomp_circuit", unit_ids=None, positions=None):
     """A neuroml.NeuroMLDocument of the circuit (``unit_ids``: see the
-    module's docstring)."""
+    module's docstring). With ``positions`` (N x 2, micrometres, from the
+    unit table) the E population is a populationList whose instances carry
+    each unit's location (z = 0)."""
     import neuroml
 
     ids = unit_id_list(unit_ids, circuit.n_excitatory)
@@ -97,6 +99,12 @@ def to_document(circuit, *, tau_e=TAU_E_MS, tau_i=TAU_I_MS,
                                             size=pop.size)
             if pop.kind == EXCITATORY and ids is not None:
                 population.notes = unit_ids_notes(ids)
+            if pop.kind == EXCITATORY and positions is not None:
+                population.type = "populationList"
+                for k, (x, y) in enumerate(np.asarray(positions, float)):
+                    population.instances.append(neuroml.Instance(
+                        id=k, location=neuroml.Location(
+                            x=float(x), y=float(y), z=0.0)))
             net.populations.append(population)
     for b in BLOCKS:
         J = getattr(circuit, b.name)
@@ -120,14 +128,15 @@ def to_document(circuit, *, tau_e=TAU_E_MS, tau_i=TAU_I_MS,
 def render_neuroml(circuit, *, features=None, positions=None, unit_ids=None,
                    tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False, drive=None):
     """The ``.net.nml`` file as UTF-8 bytes, read back by libNeuroML and
-    validated by its schema check (features, positions and ``raw_csv`` do
-    not apply)."""
+    validated by its schema check; ``positions`` become the E units'
+    instance locations (features, the drive and ``raw_csv`` do not apply)."""
     import io
 
     from neuroml.nml.nml import parseString
     from neuroml.writers import NeuroMLWriter
 
-    doc = to_document(circuit, tau_e=tau_e, tau_i=tau_i, unit_ids=unit_ids)
+    doc = to_document(circuit, tau_e=tau_e, tau_i=tau_i, unit_ids=unit_ids,
+                      positions=positions)
     buf = io.StringIO()
     NeuroMLWriter.write(doc, buf, close=False)
     text = buf.getvalue()
