@@ -17,6 +17,7 @@ from .decompose import (
     robust_pca_kernel,
 )
 from .errors import ConvergenceWarning, InputError, SolverError
+from .io import read_circuit as load_circuit  # (Circuit, circuit.json) of a bundle
 from .types import (
     AssemblyReport,
     Circuit,
@@ -43,6 +44,7 @@ __all__ = [
     "assemble",
     "default_lam",
     "lambda_path",
+    "load_circuit",
     "pcp_objective",
     "robust_pca",
     "robust_pca_kernel",

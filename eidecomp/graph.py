@@ -22,8 +22,8 @@ import numpy as np
 
 from .types import BLOCKS, EXCITATORY, POPULATION_NAMES, TUNED, UNTUNED, Circuit
 
-__all__ = ["circuit_from_graph", "neuron_graph", "node_name", "population_graph",
-           "synapse_kind"]
+__all__ = ["POPULATION_COLUMNS", "circuit_from_graph", "neuron_graph",
+           "node_name", "population_graph", "population_table", "synapse_kind"]
 
 _PREFIX = {EXCITATORY: "E", UNTUNED: "U", TUNED: "T"}
 """Node names: this prefix and the unit's index within its population."""
@@ -97,6 +97,34 @@ def population_graph(circuit):
                    probability=count / J.size,
                    mean_weight=float(J[J != 0].mean()), synapse=synapse_kind(b))
     return G
+
+
+POPULATION_COLUMNS = ("pre_population", "post_population", "synapse",
+                      "pre_size", "post_size", "count", "probability",
+                      "mean_weight")
+"""The columns of :func:`population_table`."""
+
+
+def population_table(circuit):
+    """One row (a dict of POPULATION_COLUMNS) per connected pair of
+    populations, read off :func:`population_graph`: the synapse kind, the
+    sizes, the number of connections, the connection probability and the
+    mean nonzero weight. ``pandas.DataFrame(population_table(c))`` gives a
+    DataFrame.
+
+    >>> from eidecomp.types import Circuit
+    >>> c = Circuit(J_EE=np.eye(2), J_EU=np.ones((2, 1)), J_UE=np.ones((1, 2)),
+    ...             J_ET=np.zeros((2, 0)), J_TE=np.zeros((0, 2)))
+    >>> [(r["pre_population"], r["post_population"], r["probability"])
+    ...  for r in population_table(c)]
+    [('E', 'E', 0.5), ('I_untuned', 'E', 1.0), ('E', 'I_untuned', 1.0)]
+    """
+    P = population_graph(circuit)
+    return [{"pre_population": u, "post_population": v,
+             "synapse": a["synapse"], "pre_size": P.nodes[u]["size"],
+             "post_size": P.nodes[v]["size"], "count": a["count"],
+             "probability": a["probability"], "mean_weight": a["mean_weight"]}
+            for u, v, a in P.edges(data=True)]
 
 
 def circuit_from_graph(G):

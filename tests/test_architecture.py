@@ -41,7 +41,7 @@ ALLOWED = {
                         "params", "types"},
     "cli": BASE | {"decompose", "export", "io", "params", "pipeline",
                    "progress"},
-    "__init__": BASE | {"assemble", "decompose", "types"},
+    "__init__": BASE | {"assemble", "decompose", "io", "types"},
 }
 
 

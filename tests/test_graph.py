@@ -347,3 +347,39 @@ def test_node_link_json_reads_at_both_networkx_spellings(small, spelling):
     back = circuit_from_graph(G)
     for name in ("J_EE", "J_EU", "J_UE", "J_ET", "J_TE"):
         assert np.allclose(getattr(back, name), getattr(c, name))
+
+
+def test_population_table_csv_counts_each_block(small):
+    # reference: numpy's count of each block's nonzeros over its size, read
+    # back with Python's csv module from the "populations" export
+    import csv
+    import io
+
+    from eidecomp.export import render
+    from eidecomp.types import BLOCKS
+
+    c, _ = small
+    rows = list(csv.DictReader(io.StringIO(render("populations", c).decode())))
+    by_pair = {(r["pre_population"], r["post_population"]): r for r in rows}
+    for b in BLOCKS:
+        J = getattr(c, b.name)
+        if not J.any():
+            assert (b.pre_name, b.post_name) not in by_pair
+            continue
+        r = by_pair[(b.pre_name, b.post_name)]
+        assert int(r["count"]) == np.count_nonzero(J)
+        assert float(r["probability"]) == np.count_nonzero(J) / J.size
+        assert float(r["mean_weight"]) == pytest.approx(J[J > 0].mean(), rel=1e-15)
+        assert r["synapse"] == ("excitatory" if b.sign > 0 else "inhibitory")
+
+
+def test_load_circuit_is_public(tmp_path):
+    import eidecomp
+    from eidecomp.cli import main
+
+    W, _, _ = make_planted_circuit(40, n_untuned=2, n_tuned=6, pool=3, seed=1)
+    np.save(tmp_path / "w.npy", W)
+    assert main(["run", str(tmp_path / "w.npy"), "-o", str(tmp_path / "c"),
+                 "-q"]) == 0
+    c, doc = eidecomp.load_circuit(tmp_path / "c")
+    assert c.n_excitatory == 40 and doc["counts"]["excitatory"] == 40

@@ -34,11 +34,13 @@ True
 import csv
 import io
 
+from ..graph import POPULATION_COLUMNS, population_table
 from ..params import TAU_E_MS, TAU_I_MS
 from .graph_files import graph_of
 
-__all__ = ["FORMULA_TRIGGERS", "edge_csv_text", "neutralise_cell",
-           "render_csv", "restore_cell", "write_edge_csv"]
+__all__ = ["FORMULA_TRIGGERS", "POPULATION_HEADER", "edge_csv_text",
+           "neutralise_cell", "population_csv_text", "render_csv",
+           "render_populations", "restore_cell", "write_edge_csv"]
 
 FORMULA_TRIGGERS = ("=", "+", "-", "@", "\t", "\r")
 """First characters that make a spreadsheet read a cell as a formula (OWASP
@@ -61,6 +63,29 @@ COLUMNS = ("pre", "post", "pre_population", "post_population", "synapse",
            "weight")
 HEADER_LINE = ",".join(f'"{c}"' for c in COLUMNS)
 """How every CSV edge list begins (all text cells are quoted)."""
+
+
+POPULATION_HEADER = ",".join(f'"{c}"' for c in POPULATION_COLUMNS)
+"""How every population table begins."""
+
+
+def population_csv_text(circuit):
+    """:func:`eidecomp.graph.population_table` as CSV text (the population
+    names are the fixed ones of eidecomp.types: nothing to neutralise)."""
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n", quoting=csv.QUOTE_NONNUMERIC)
+    w.writerow(POPULATION_COLUMNS)
+    for row in population_table(circuit):
+        w.writerow([row[c] for c in POPULATION_COLUMNS])
+    return buf.getvalue()
+
+
+def render_populations(circuit, *, features=None, positions=None,
+                       unit_ids=None, tau_e=TAU_E_MS, tau_i=TAU_I_MS,
+                       raw_csv=False, drive=None):
+    """The population-level table (connection probability and mean weight
+    per pair of populations) as CSV bytes; nothing else applies."""
+    return population_csv_text(circuit).encode("utf-8")
 
 
 def edge_csv_text(G, *, raw=False):

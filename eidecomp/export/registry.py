@@ -102,6 +102,10 @@ REGISTRY = (
     ExportFormat("csv", False, edges_csv.render_csv,
                  "edge list, one row per synapse", suffix=".csv",
                  markers=(edges_csv.HEADER_LINE.encode(),), options=("raw_csv",)),
+    ExportFormat("populations", False, edges_csv.render_populations,
+                 "population-level table: connection probability and mean "
+                 "weight per pair of populations, CSV", suffix=".csv",
+                 markers=(edges_csv.POPULATION_HEADER.encode(),)),
     ExportFormat("neuroml", False, neuroml2.render_neuroml,
                  "NeuroML2 network (libNeuroML), schema-validated",
                  requires="neuroml", suffix=".net.nml",
