@@ -40,11 +40,17 @@ def synapse_kind(block):
     return "excitatory" if block.sign > 0 else "inhibitory"
 
 
-def neuron_graph(circuit, *, features=None, x=None, y=None, unit_ids=None):
+def neuron_graph(circuit, *, features=None, x=None, y=None, unit_ids=None,
+                 interneurons=None):
     """The neuron-level directed graph of a Circuit.
 
     ``features``, ``x``, ``y`` and ``unit_ids`` (the unit table's names,
     kept as string data) become attributes of the excitatory nodes.
+    ``interneurons`` is ``(features, positions)`` of the interneurons,
+    untuned first (each may be None), as
+    :func:`eidecomp.analysis.pool_features` derives them from their input
+    pools; a finite value becomes the node's ``feature`` or ``x`` and ``y``
+    (an interneuron with no input has none).
 
     Examples
     --------
@@ -71,6 +77,8 @@ def neuron_graph(circuit, *, features=None, x=None, y=None, unit_ids=None):
                         attrs[key] = float(values[i])
                 if unit_ids is not None:
                     attrs["unit_id"] = str(unit_ids[i])
+            else:
+                attrs.update(_derived(interneurons, circuit, pop.kind, i))
             G.add_node(node_name(pop.kind, i), **attrs)
     for b in BLOCKS:
         J = getattr(circuit, b.name)
@@ -81,6 +89,20 @@ def neuron_graph(circuit, *, features=None, x=None, y=None, unit_ids=None):
              {"weight": float(J[i, j]), "synapse": synapse})
             for i, j in zip(posts, pres, strict=True))
     return G
+
+
+def _derived(interneurons, circuit, kind, i):
+    """The feature and position attributes of interneuron i of ``kind``."""
+    if interneurons is None:
+        return {}
+    k = i if kind == UNTUNED else circuit.n_untuned + i
+    feats, pos = interneurons
+    out = {}
+    if feats is not None and np.isfinite(feats[k]):
+        out["feature"] = float(feats[k])
+    if pos is not None and np.all(np.isfinite(pos[k])):
+        out["x"], out["y"] = float(pos[k][0]), float(pos[k][1])
+    return out
 
 
 def population_graph(circuit):
@@ -117,7 +139,7 @@ def population_table(circuit):
     ...             J_ET=np.zeros((2, 0)), J_TE=np.zeros((0, 2)))
     >>> [(r["pre_population"], r["post_population"], r["probability"])
     ...  for r in population_table(c)]
-    [('E', 'E', 0.5), ('I_untuned', 'E', 1.0), ('E', 'I_untuned', 1.0)]
+    [('E', 'E', 0.5), ('E', 'I_untuned', 1.0), ('I_untuned', 'E', 1.0)]
     """
     P = population_graph(circuit)
     return [{"pre_population": u, "post_population": v,

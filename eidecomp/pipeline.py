@@ -480,15 +480,17 @@ def run_export(bundle, fmt, output, *, force=False, tau_e=TAU_E_MS,
                tau_i=TAU_I_MS, raw_csv=False, drive=None, seed=0):
     """Write a circuit bundle in one export format; returns the path written.
 
-    ``fmt`` is a name of :data:`eidecomp.export.FORMATS`: graphml, json, csv
-    and neuroml write one file; pynn, nest and brian2 a folder holding a
-    script and its data, with the E units' drive: ``drive`` as for
-    :func:`run_simulate` ("random", seeded by ``seed``, or a file of N
-    values; None: "random"), so that the script's run responds as
-    ``eidecomp simulate`` does. Features and positions stored in the bundle (from
-    ``--units``) become node attributes of the graph formats, and the unit
-    ids data in every format. ``raw_csv`` writes CSV text cells without the
-    CSV-injection quote (eidecomp.export.edges_csv).
+    ``fmt`` is a name of :data:`eidecomp.export.FORMATS`: graphml, json,
+    csv, populations and neuroml write one file; pynn, nest and brian2 a
+    folder holding a script and its data, with the E units' drive: ``drive``
+    as for :func:`run_simulate` ("random", seeded by ``seed``, or a file of
+    N values; None: "random"), so that the script's run responds as
+    ``eidecomp simulate`` does. Features and positions stored in the bundle
+    (from ``--units``) become node attributes of the graph formats (and
+    NeuroML2 instance locations and notes), the interneurons' derived from
+    their input pools (:func:`eidecomp.analysis.pool_features`), and the
+    unit ids data in every format. ``raw_csv`` writes CSV text cells without
+    the CSV-injection quote (eidecomp.export.edges_csv).
     """
     from .export import get_format, render
     from .io import write_file, write_folder
@@ -515,7 +517,8 @@ def run_export(bundle, fmt, output, *, force=False, tau_e=TAU_E_MS,
                            b.circuit.n_excitatory, seed)
     data = render(fmt, b.circuit, features=b.features, positions=b.positions,
                   unit_ids=b.unit_ids,  # names: data, never code
-                  tau_e=tau_e, tau_i=tau_i, raw_csv=raw_csv, drive=h)
+                  tau_e=tau_e, tau_i=tau_i, raw_csv=raw_csv, drive=h,
+                  period=b.period)
     if not spec.folder:
         return write_file(output, data, force=force, replaceable=keep,
                           inputs=(bundle,))

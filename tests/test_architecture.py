@@ -33,7 +33,7 @@ ALLOWED = {
     "assemble": BASE | {"decompose", "kernels", "limits", "params", "types"},
     "dynamics": BASE | {"types"},
     "graph": BASE | {"names", "types"},
-    "export": BASE | {"graph", "io", "names", "params", "types"},
+    "export": BASE | {"analysis", "graph", "io", "names", "params", "types"},
     "analysis": BASE | {"decompose", "graph", "params", "types"},
     "datasets": BASE | {"types"},
     "pipeline": BASE | {"analysis", "assemble", "datasets", "decompose",

@@ -383,3 +383,143 @@ def test_load_circuit_is_public(tmp_path):
                  "-q"]) == 0
     c, doc = eidecomp.load_circuit(tmp_path / "c")
     assert c.n_excitatory == 40 and doc["counts"]["excitatory"] == 40
+
+
+# --- what the unit table gave, in every graph format ---------------------------
+# References: networkx's GraphML and node-link readers, igraph's GraphML
+# reader, Python's csv module and libNeuroML read the files back; the
+# interneurons' values are checked against the weighted mean direction of
+# their input pool computed here from its formula (Mardia and Jupp 2000,
+# Directional Statistics, section 2.2.1, from memory: the argument of
+# sum w exp(i 2 pi f / P), mapped back to [0, P)) and numpy's weighted
+# average of the pool's positions.
+
+@pytest.fixture(scope="module")
+def tabled(tmp_path_factory):
+    """A bundle made by ``run --units`` with features and positions."""
+    from eidecomp.cli import main
+
+    d = tmp_path_factory.mktemp("tabled")
+    W, _, features = make_planted_circuit(40, n_untuned=2, n_tuned=8, pool=4,
+                                          seed=3)
+    np.save(d / "w.npy", W)
+    pos = np.column_stack([np.arange(40) * 12.5, (np.arange(40) % 7) * 20.0])
+    with open(d / "units.csv", "w") as fh:
+        fh.write("id,feature,x,y\n")
+        for i, (f, (x, y)) in enumerate(zip(features, pos, strict=True)):
+            fh.write(f"u{i},{float(f)!r},{float(x)!r},{float(y)!r}\n")
+    assert main(["run", str(d / "w.npy"), "--units", str(d / "units.csv"),
+                 "-o", str(d / "c"), "-q"]) == 0
+    circuit, _ = __import__("eidecomp").load_circuit(d / "c")
+    return d, circuit, features, pos
+
+
+def _expected_interneurons(circuit, features, pos, period=180.0):
+    J = circuit.J_IE
+    z = (J * np.exp(2j * np.pi * features / period)).sum(axis=1)
+    feats = np.mod(np.angle(z) * period / (2 * np.pi), period)
+    has_input = J.sum(axis=1) > 0
+    where = np.array([np.average(pos, axis=0, weights=row) if row.sum() > 0
+                      else [np.nan, np.nan] for row in J])
+    names = ([f"U{i}" for i in range(circuit.n_untuned)]
+             + [f"T{i}" for i in range(circuit.n_tuned)])
+    return names, feats, where, has_input
+
+
+def _export(d, fmt, suffix):
+    from eidecomp.cli import main
+
+    out = d / f"out{suffix}"
+    assert main(["export", str(d / "c"), "--format", fmt, "-o", str(out),
+                 "--force", "-q"]) == 0
+    return out
+
+
+def test_graphml_and_json_carry_every_units_feature_and_position(tabled):
+    d, circuit, features, pos = tabled
+    names, feats, where, has_input = _expected_interneurons(circuit, features,
+                                                            pos)
+    assert has_input.any()
+    for G in (nx.read_graphml(_export(d, "graphml", ".graphml")),
+              read_json(_export(d, "json", ".json"))):
+        for i in range(40):
+            node = G.nodes[f"E{i}"]
+            assert (node["feature"], node["x"], node["y"]) == (
+                features[i], pos[i, 0], pos[i, 1])
+        for k, name in enumerate(names):
+            node = G.nodes[name]
+            if not has_input[k]:
+                assert "feature" not in node and "x" not in node
+                continue
+            diff = (node["feature"] - feats[k] + 90.0) % 180.0 - 90.0
+            assert abs(diff) < 1e-9, name
+            assert node["x"] == pytest.approx(where[k, 0], rel=1e-12)
+            assert node["y"] == pytest.approx(where[k, 1], rel=1e-12)
+
+
+def test_igraph_reads_the_graphml_export(tabled):
+    import igraph  # in the test extra
+    d, circuit, features, pos = tabled
+    g = igraph.Graph.Read_GraphML(str(_export(d, "graphml", ".graphml")))
+    assert g.is_directed()
+    assert g.vcount() == circuit.n_excitatory + circuit.n_untuned + circuit.n_tuned
+    n_edges = sum(np.count_nonzero(getattr(circuit, b)) for b in
+                  ("J_EE", "J_EU", "J_UE", "J_ET", "J_TE"))
+    assert g.ecount() == n_edges
+    by_name = {v["id"]: v for v in g.vs}
+    assert [by_name[f"E{i}"]["x"] for i in range(40)] == pos[:, 0].tolist()
+    names, feats, _, has_input = _expected_interneurons(circuit, features, pos)
+    k = int(np.flatnonzero(has_input)[0])
+    diff = (by_name[names[k]]["feature"] - feats[k] + 90.0) % 180.0 - 90.0
+    assert abs(diff) < 1e-9
+    # the weights of E -> E edges, pre -> post, as J_EE[post, pre]
+    for e in g.es.select(synapse="excitatory")[:50]:
+        pre, post = g.vs[e.source]["id"], g.vs[e.target]["id"]
+        if pre[0] == post[0] == "E":
+            assert e["weight"] == circuit.J_EE[int(post[1:]), int(pre[1:])]
+
+
+def test_csv_export_carries_both_ends_values(tabled):
+    d, circuit, features, pos = tabled
+    with open(_export(d, "csv", ".csv"), newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    ee = [r for r in rows if r["pre_population"] == r["post_population"] == "E"]
+    assert ee
+    for r in ee:
+        i, j = int(r["pre"][1:]), int(r["post"][1:])
+        assert float(r["pre_feature"]) == features[i]
+        assert (float(r["post_x"]), float(r["post_y"])) == tuple(pos[j])
+
+
+def test_neuroml_export_carries_positions_and_features(tabled):
+    require("neuroml")
+    import json
+
+    from neuroml.loaders import read_neuroml2_file
+
+    d, circuit, features, pos = tabled
+    names, feats, where, has_input = _expected_interneurons(circuit, features,
+                                                            pos)
+    doc = read_neuroml2_file(str(_export(d, "neuroml", ".net.nml")))
+    pops = {p.id: p for p in doc.networks[0].populations}
+    E = pops["E"]
+    assert [(i.location.x, i.location.y) for i in E.instances] == [
+        tuple(p) for p in pos]
+    assert json.loads(E.notes)["features"] == features.tolist()
+    start = 0
+    for pop_name, size in (("I_untuned", circuit.n_untuned),
+                           ("I_tuned", circuit.n_tuned)):
+        part = slice(start, start + size)
+        start += size
+        got = json.loads(pops[pop_name].notes)["features"]
+        for g, f, h in zip(got, feats[part], has_input[part], strict=True):
+            if not h:
+                assert g is None
+                continue
+            assert abs((g - f + 90.0) % 180.0 - 90.0) < 1e-9
+        if has_input[part].all():
+            locs = np.array([(i.location.x, i.location.y)
+                             for i in pops[pop_name].instances])
+            np.testing.assert_allclose(locs, where[part], rtol=1e-12)
+        else:
+            assert not pops[pop_name].instances

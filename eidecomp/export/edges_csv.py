@@ -5,9 +5,12 @@ Columns ``pre``, ``post`` (node names), ``pre_population``,
 ``weight`` (the nonnegative magnitude, Python's shortest round-trip decimal,
 so ``float()`` gives it back bit for bit), then ``pre_unit_id`` and
 ``post_unit_id`` when the units are named (the unit table's names; empty for
-interneurons). Written by Python's csv module: every text cell is wrapped in
-double quotes, a double quote inside it doubled (RFC 4180, 2.6-2.7); the
-weight is a bare number.
+interneurons), then ``pre_feature``, ``post_feature``, ``pre_x``, ``pre_y``,
+``post_x``, ``post_y`` for the node attributes the unit table gave (an
+interneuron's are its input pool's, :func:`eidecomp.analysis.pool_features`;
+an empty cell where a node has none). Written by Python's csv module: every
+text cell is wrapped in double quotes, a double quote inside it doubled (RFC
+4180, 2.6-2.7); the weight is a bare number.
 
 CSV injection
 -------------
@@ -35,6 +38,7 @@ import csv
 import io
 
 from ..graph import POPULATION_COLUMNS, population_table
+from ..io.units import DEFAULT_PERIOD
 from ..params import TAU_E_MS, TAU_I_MS
 from .graph_files import graph_of
 
@@ -61,6 +65,8 @@ def restore_cell(text):
 
 COLUMNS = ("pre", "post", "pre_population", "post_population", "synapse",
            "weight")
+NODE_VALUES = ("feature", "x", "y")
+"""Numeric node attributes written, per end of the edge, when present."""
 HEADER_LINE = ",".join(f'"{c}"' for c in COLUMNS)
 """How every CSV edge list begins (all text cells are quoted)."""
 
@@ -82,7 +88,8 @@ def population_csv_text(circuit):
 
 def render_populations(circuit, *, features=None, positions=None,
                        unit_ids=None, tau_e=TAU_E_MS, tau_i=TAU_I_MS,
-                       raw_csv=False, drive=None):
+                       raw_csv=False, drive=None,
+                       period=DEFAULT_PERIOD):
     """The population-level table (connection probability and mean weight
     per pair of populations) as CSV bytes; nothing else applies."""
     return population_csv_text(circuit).encode("utf-8")
@@ -95,7 +102,10 @@ def edge_csv_text(G, *, raw=False):
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n", quoting=csv.QUOTE_NONNUMERIC)
     named = any("unit_id" in a for _, a in G.nodes(data=True))
-    w.writerow(list(COLUMNS) + (["pre_unit_id", "post_unit_id"] if named else []))
+    numeric = [key for key in NODE_VALUES
+               if any(key in a for _, a in G.nodes(data=True))]
+    w.writerow(list(COLUMNS) + (["pre_unit_id", "post_unit_id"] if named else [])
+               + [f"{end}_{key}" for key in numeric for end in ("pre", "post")])
     for u, v, attrs in G.edges(data=True):
         text = [u, v, G.nodes[u]["population"], G.nodes[v]["population"],
                 attrs["synapse"]]
@@ -103,15 +113,19 @@ def edge_csv_text(G, *, raw=False):
             text += [G.nodes[u].get("unit_id", ""), G.nodes[v].get("unit_id", "")]
         row = [cell(t) for t in text]
         # the csv module writes a float with repr(): the shortest round trip
-        w.writerow(row[:5] + [float(attrs["weight"])] + row[5:])
+        w.writerow(row[:5] + [float(attrs["weight"])] + row[5:]
+                   + [G.nodes[n].get(key, "") for key in numeric for n in (u, v)])
     return buf.getvalue()
 
 
 def render_csv(circuit, *, features=None, positions=None, unit_ids=None,
-               tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False, drive=None):
-    """The edge-list CSV file of the circuit, as UTF-8 bytes (features,
-    positions and the time constants do not apply)."""
-    G = graph_of(circuit, unit_ids=unit_ids)
+               tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False, drive=None,
+               period=DEFAULT_PERIOD):
+    """The edge-list CSV file of the circuit, as UTF-8 bytes, with the unit
+    table's features and positions per end of each edge (the time constants
+    do not apply)."""
+    G = graph_of(circuit, features=features, positions=positions,
+                 unit_ids=unit_ids, period=period)
     return edge_csv_text(G, raw=raw_csv).encode("utf-8")
 
 

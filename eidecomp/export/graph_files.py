@@ -14,8 +14,10 @@ import json
 import networkx as nx
 import numpy as np
 
+from ..analysis.tuning import pool_features
 from ..errors import InputError
 from ..graph import neuron_graph
+from ..io.units import DEFAULT_PERIOD
 from ..params import TAU_E_MS, TAU_I_MS
 from ._names import NOT_XML_CHAR, per_unit, unit_id_list
 
@@ -24,20 +26,27 @@ __all__ = ["graph_of", "read_graphml", "read_json", "render_graphml",
            "write_json"]
 
 
-def graph_of(circuit, *, features=None, positions=None, unit_ids=None):
+def graph_of(circuit, *, features=None, positions=None, unit_ids=None,
+             period=DEFAULT_PERIOD):
     """The :func:`eidecomp.graph.neuron_graph` of ``circuit`` with the unit
     table's values checked: ``features`` (n_E,), ``positions`` (n_E, 2) as
-    ``x`` and ``y``, ``unit_ids`` (n_E names)."""
+    ``x`` and ``y``, ``unit_ids`` (n_E names). The interneurons get their
+    input pool's weighted circular mean feature (over ``period`` degrees)
+    and weighted mean position (:func:`eidecomp.analysis.pool_features`)."""
     n = circuit.n_excitatory
-    x = y = None
+    features = per_unit(features, n, "features")
+    x = y = pos = None
     if positions is not None:
         pos = np.asarray(positions, dtype=float)
         if pos.shape != (n, 2):
             raise InputError(f"positions have shape {pos.shape}, expected "
                              f"({n}, 2) (x, y of each excitatory unit)")
         x, y = pos[:, 0], pos[:, 1]
-    return neuron_graph(circuit, features=per_unit(features, n, "features"),
-                        x=x, y=y, unit_ids=unit_id_list(unit_ids, n))
+    pools = None
+    if features is not None or pos is not None:
+        pools = pool_features(circuit, features, pos, period)
+    return neuron_graph(circuit, features=features, x=x, y=y,
+                        unit_ids=unit_id_list(unit_ids, n), interneurons=pools)
 
 
 def _check_xml_text(G):
@@ -76,19 +85,23 @@ def to_json_bytes(G):
 
 
 def render_graphml(circuit, *, features=None, positions=None, unit_ids=None,
-                   tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False, drive=None):
+                   tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False, drive=None,
+                   period=DEFAULT_PERIOD):
     """The GraphML file of the circuit's neuron graph, as bytes (the time
     constants and ``raw_csv`` do not apply)."""
     return to_graphml_bytes(graph_of(circuit, features=features,
-                                     positions=positions, unit_ids=unit_ids))
+                                     positions=positions, unit_ids=unit_ids,
+                                     period=period))
 
 
 def render_json(circuit, *, features=None, positions=None, unit_ids=None,
-                tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False, drive=None):
+                tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False, drive=None,
+                period=DEFAULT_PERIOD):
     """The node-link JSON file of the circuit's neuron graph, as bytes (the
     time constants and ``raw_csv`` do not apply)."""
     return to_json_bytes(graph_of(circuit, features=features,
-                                  positions=positions, unit_ids=unit_ids))
+                                  positions=positions, unit_ids=unit_ids,
+                                  period=period))
 
 
 def write_graphml(G, path):

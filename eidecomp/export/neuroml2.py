@@ -16,45 +16,58 @@ Python's shortest round-trip form (repr) instead, so reading the file back
 gives the weights bit for bit.
 
 Unit names go into the notes of the excitatory population as a JSON object
-``{"unit_ids": [...]}`` whose text holds no markup character and no raw
-control character: JSON escapes quotes, backslashes and every control
-character (CR, LF and tab included: an XML parser would turn a raw CR into
-LF), and ``<``, ``>`` and ``&`` are written as the JSON escapes ``\\u003c``,
-``\\u003e``, ``\\u0026``. libNeuroML's writer keeps ``<![CDATA[...]]>``
-sections of a text unescaped, so a name holding one would otherwise come
-back changed; here ``json.loads`` of the notes gives every name exactly.
+``{"unit_ids": [...]}`` (with ``"features"`` too when the unit table gives
+them; an interneuron population's notes hold its pool features) whose text
+holds no markup character and no raw control character: JSON escapes quotes,
+backslashes and every control character (CR, LF and tab included: an XML
+parser would turn a raw CR into LF), and ``<``, ``>`` and ``&`` are written
+as the JSON escapes ``\\u003c``, ``\\u003e``, ``\\u0026``. libNeuroML's
+writer keeps ``<![CDATA[...]]>`` sections of a text unescaped, so a name
+holding one would otherwise come back changed; here ``json.loads`` of the
+notes gives every name exactly (:func:`notes_values`).
 """
 
 import json
 
 import numpy as np
 
+from ..analysis.tuning import pool_features
+from ..io.units import DEFAULT_PERIOD
 from ..params import TAU_E_MS, TAU_I_MS
-from ..types import BLOCKS, EXCITATORY, POPULATION_NAMES
-from ._names import unit_id_list
+from ..types import BLOCKS, EXCITATORY, POPULATION_NAMES, TUNED, UNTUNED
+from ._names import per_unit, unit_id_list
 
-__all__ = ["notes_unit_ids", "read_blocks", "render_neuroml", "to_document",
-           "unit_ids_notes", "write_neuroml"]
+__all__ = ["notes_values", "population_notes", "read_blocks",
+           "render_neuroml", "to_document", "write_neuroml"]
 
 _EXC_CELL, _INH_CELL = "eidecomp_exc_unit", "eidecomp_inh_unit"
 _MARKUP = str.maketrans({"<": "\\u003c", ">": "\\u003e", "&": "\\u0026"})
 
 
-def unit_ids_notes(unit_ids):
-    """The notes text of the excitatory population: ASCII JSON, no markup.
+def population_notes(unit_ids=None, features=None):
+    """The notes text of a population: ASCII JSON, no markup, holding the
+    unit ids and the features (null where undefined) that are given.
 
-    >>> unit_ids_notes(["<![CDATA[x]]>", "a\\r\\nb"])
+    >>> population_notes(["<![CDATA[x]]>", "a\\r\\nb"])
     '{"unit_ids": ["\\\\u003c![CDATA[x]]\\\\u003e", "a\\\\r\\\\nb"]}'
-    >>> notes_unit_ids(unit_ids_notes(["<![CDATA[x]]>"]))
+    >>> notes_values(population_notes(["<![CDATA[x]]>"]))["unit_ids"]
     ['<![CDATA[x]]>']
+    >>> population_notes(features=[10.0, float("nan")])
+    '{"features": [10.0, null]}'
     """
-    return json.dumps({"unit_ids": list(unit_ids)}, ensure_ascii=True) \
+    values = {}
+    if unit_ids is not None:
+        values["unit_ids"] = list(unit_ids)
+    if features is not None:
+        values["features"] = [float(f) if np.isfinite(f) else None
+                              for f in features]
+    return json.dumps(values, ensure_ascii=True, allow_nan=False) \
         .translate(_MARKUP)
 
 
-def notes_unit_ids(notes):
-    """The unit ids held by :func:`unit_ids_notes` text."""
-    return json.loads(notes)["unit_ids"]
+def notes_values(notes):
+    """The values held by :func:`population_notes` text (a dict)."""
+    return json.loads(notes)
 
 
 def _exact_connection_class():
@@ -72,14 +85,24 @@ def _cell(kind):
 
 
 def to_document(circuit, *, tau_e=TAU_E_MS, tau_i=TAU_I_MS,
-                name="eidecomp_circuit", unit_ids=None, positions=None):
+                name="eidecomp_circuit", unit_ids=None, positions=None,
+                features=None, period=DEFAULT_PERIOD):
     """A neuroml.NeuroMLDocument of the circuit (``unit_ids``: see the
     module's docstring). With ``positions`` (N x 2, micrometres, from the
     unit table) the E population is a populationList whose instances carry
-    each unit's location (z = 0)."""
+    each unit's location (z = 0), and so is an interneuron population whose
+    units all have input: at its input pool's weighted mean position
+    (:func:`eidecomp.analysis.pool_features`). ``features`` go into the
+    populations' notes, an interneuron's as its pool's weighted circular
+    mean over ``period`` degrees (null for one with no input)."""
     import neuroml
 
-    ids = unit_id_list(unit_ids, circuit.n_excitatory)
+    n = circuit.n_excitatory
+    ids = unit_id_list(unit_ids, n)
+    features = per_unit(features, n, "features")
+    pos = None if positions is None else np.asarray(positions, float)
+    f_i, p_i = (pool_features(circuit, features, pos, period)
+                if features is not None or pos is not None else (None, None))
     Conn = _exact_connection_class()
     doc = neuroml.NeuroMLDocument(id=name)
     for cell, tau in ((_EXC_CELL, tau_e), (_INH_CELL, tau_i)):
@@ -93,19 +116,28 @@ def to_document(circuit, *, tau_e=TAU_E_MS, tau_i=TAU_I_MS,
         neuroml.LinearGradedSynapse(id="inh_syn", conductance="1nS"))
     net = neuroml.Network(id="network")
     doc.networks.append(net)
+    start = {UNTUNED: 0, TUNED: circuit.n_untuned}
     for pop in circuit.populations:
-        if pop.size:
-            population = neuroml.Population(id=pop.name, component=_cell(pop.kind),
-                                            size=pop.size)
-            if pop.kind == EXCITATORY and ids is not None:
-                population.notes = unit_ids_notes(ids)
-            if pop.kind == EXCITATORY and positions is not None:
-                population.type = "populationList"
-                for k, (x, y) in enumerate(np.asarray(positions, float)):
-                    population.instances.append(neuroml.Instance(
-                        id=k, location=neuroml.Location(
-                            x=float(x), y=float(y), z=0.0)))
-            net.populations.append(population)
+        if not pop.size:
+            continue
+        population = neuroml.Population(id=pop.name, component=_cell(pop.kind),
+                                        size=pop.size)
+        if pop.kind == EXCITATORY:
+            feats, where, names = features, pos, ids
+        else:
+            part = slice(start[pop.kind], start[pop.kind] + pop.size)
+            feats = None if f_i is None else f_i[part]
+            where = None if p_i is None else p_i[part]
+            names = None
+        if names is not None or feats is not None:
+            population.notes = population_notes(names, feats)
+        if where is not None and np.isfinite(where).all():
+            population.type = "populationList"
+            for k, (x, y) in enumerate(where):
+                population.instances.append(neuroml.Instance(
+                    id=k, location=neuroml.Location(
+                        x=float(x), y=float(y), z=0.0)))
+        net.populations.append(population)
     for b in BLOCKS:
         J = getattr(circuit, b.name)
         rows, cols = np.nonzero(J)
@@ -126,17 +158,19 @@ def to_document(circuit, *, tau_e=TAU_E_MS, tau_i=TAU_I_MS,
 
 
 def render_neuroml(circuit, *, features=None, positions=None, unit_ids=None,
-                   tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False, drive=None):
+                   tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False, drive=None,
+                   period=DEFAULT_PERIOD):
     """The ``.net.nml`` file as UTF-8 bytes, read back by libNeuroML and
-    validated by its schema check; ``positions`` become the E units'
-    instance locations (features, the drive and ``raw_csv`` do not apply)."""
+    validated by its schema check; ``positions`` become instance locations
+    and ``features`` notes (:func:`to_document`; the drive and ``raw_csv``
+    do not apply)."""
     import io
 
     from neuroml.nml.nml import parseString
     from neuroml.writers import NeuroMLWriter
 
     doc = to_document(circuit, tau_e=tau_e, tau_i=tau_i, unit_ids=unit_ids,
-                      positions=positions)
+                      positions=positions, features=features, period=period)
     buf = io.StringIO()
     NeuroMLWriter.write(doc, buf, close=False)
     text = buf.getvalue()

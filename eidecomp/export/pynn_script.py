@@ -43,6 +43,7 @@ pushed below threshold are the spiking network's own.
 import numpy as np
 
 from ..graph import synapse_kind
+from ..io.units import DEFAULT_PERIOD
 from ..params import TAU_E_MS, TAU_I_MS
 from ..types import BLOCKS
 from ._lists import drive_vector, npz_bytes, population_taus, write_into
@@ -245,7 +246,8 @@ def pynn_files(circuit, h=None, *, tau_e=TAU_E_MS, tau_i=TAU_I_MS,
 
 
 def render_pynn(circuit, *, features=None, positions=None, unit_ids=None,
-                tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False, drive=None):
+                tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False, drive=None,
+                period=DEFAULT_PERIOD):
     """The PyNN folder (script and data; ``drive`` the E units' drive h, N
     values, None for zero) as {file name: bytes} (features, positions and
     ``raw_csv`` do not apply)."""

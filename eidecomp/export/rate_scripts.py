@@ -10,6 +10,7 @@ and brian2_builder do) and prints the final rates as JSON.
 
 import numpy as np
 
+from ..io.units import DEFAULT_PERIOD
 from ..params import TAU_E_MS, TAU_I_MS
 from ._lists import connection_list, drive_vector, npz_bytes, tau_vector, write_into
 from ._names import unit_id_list
@@ -132,7 +133,8 @@ def rate_script_files(circuit, engine, h=None, *, tau_e=TAU_E_MS,
 
 
 def render_nest(circuit, *, features=None, positions=None, unit_ids=None,
-                tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False, drive=None):
+                tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False, drive=None,
+                period=DEFAULT_PERIOD):
     """The NEST folder (script and data; ``drive`` the E units' drive h, N
     values, None for zero) as {file name: bytes} (features, positions and
     ``raw_csv`` do not apply)."""
@@ -141,7 +143,8 @@ def render_nest(circuit, *, features=None, positions=None, unit_ids=None,
 
 
 def render_brian2(circuit, *, features=None, positions=None, unit_ids=None,
-                  tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False, drive=None):
+                  tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False, drive=None,
+                  period=DEFAULT_PERIOD):
     """The Brian2 folder (script and data; ``drive`` the E units' drive h, N
     values, None for zero) as {file name: bytes} (features, positions and
     ``raw_csv`` do not apply)."""

@@ -6,7 +6,8 @@ names the optional module it needs (checked with importlib.util.find_spec
 before rendering), gives a one-line help text, and holds a pure renderer::
 
     render(circuit, *, features=None, positions=None, unit_ids=None,
-           tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False)
+           tau_e=TAU_E_MS, tau_i=TAU_I_MS, raw_csv=False, drive=None,
+           period=DEFAULT_PERIOD)
         -> bytes                              (one file)
         -> {file name: bytes | str | ndarray} (a folder)
 
@@ -22,7 +23,7 @@ Examples
 >>> c = Circuit(J_EE=np.eye(2), J_EU=np.ones((2, 1)), J_UE=np.ones((1, 2)),
 ...             J_ET=np.zeros((2, 0)), J_TE=np.zeros((0, 2)))
 >>> FORMATS
-('graphml', 'json', 'csv', 'neuroml', 'pynn', 'nest', 'brian2')
+('graphml', 'json', 'csv', 'populations', 'neuroml', 'pynn', 'nest', 'brian2')
 >>> get_format("pynn").folder, sorted(render("nest", c))
 (True, ['circuit_nest.py', 'circuit_rate_data.npz'])
 >>> render("csv", c, unit_ids=["=1+1", "b"]).decode().splitlines()[1]

@@ -58,6 +58,7 @@ from .binary import npy_header, read_npy
 from .jsondoc import load_json, require
 from .matrices import file_checksum
 from .staging import check_output, file_bytes, staged_folder
+from .units import DEFAULT_PERIOD
 
 __all__ = [
     "CIRCUIT",
@@ -499,6 +500,11 @@ class CircuitBundle:
     @property
     def unit_ids(self):
         return self.doc.get("unit_ids")
+
+    @property
+    def period(self):
+        """The features' period in degrees (the unit table's, as stored)."""
+        return float(self.doc["parameters"].get("period") or DEFAULT_PERIOD)
 
     def original_weights(self):
         """W = L + S, the matrix the circuit was built from; W_eff when the
