@@ -479,12 +479,12 @@ def _export(args):
 
 
 def _report(args):
-    from .pipeline import run_report
+    from .pipeline import report_figures_folder, run_report
 
     with _progress(args) as progress:
         path = run_report(args.bundle, args.output, force=args.force,
                           progress=progress.stage)
-    print(f"written to {path}")
+    print(f"written to {path}; figures as SVG in {report_figures_folder(path)}")
     return 0
 
 

@@ -43,10 +43,13 @@ __all__ = [
     "run_demo",
     "run_export",
     "run_report",
+    "REPORT_SVG_PREFIX",
+    "report_figures_folder",
     "run_simulate",
 ]
 
 EXAMPLE = "example"
+REPORT_SVG_PREFIX = "report-"  # of a bundle's report figures (SVG files)
 DECOMPOSE_ENGINES = ("memory", "dask")
 
 
@@ -355,7 +358,7 @@ def _check_square(W, name):
 
 def _assemble_dense(config, out, progress, stage_progress, extra_files):
     from .analysis import interneuron_pools
-    from .analysis.report import render_report, report_lam_path
+    from .analysis.report import render_report_files, report_lam_path
     from .assemble import assemble, inhibitory_count
     from .decompose import robust_pca
 
@@ -402,10 +405,11 @@ def _assemble_dense(config, out, progress, stage_progress, extra_files):
     if config.report:
         tell("report: lambda path")
         path = report_lam_path(W)
-        files["report.html"] = render_report(
+        files["report.html"], svgs = render_report_files(
             circuit, doc, W, low_rank=np.asarray(dec.low_rank),
             features=units.features, positions=units.positions,
-            path_points=path, progress=stage_progress)
+            path_points=path, progress=stage_progress, link=REPORT_SVG_PREFIX)
+        files.update({REPORT_SVG_PREFIX + name: v for name, v in svgs.items()})
     tell("writing the bundle")
     meta = bundles.write_circuit(
         out, circuit, doc, files=files, force=config.force, inputs=inputs,
@@ -609,24 +613,48 @@ def run_simulate(bundle, *, simulator="internal", drive="random", tau_e=TAU_E_MS
 # --- report and demo ---------------------------------------------------------
 
 def run_report(bundle, output, *, force=False, progress=None):
-    """Write the HTML report of a circuit bundle to ``output``."""
-    from .analysis.report import REPORT_TITLE, render_report, report_lam_path
-    from .io import write_file
+    """Write the HTML report of a circuit bundle to ``output``, and its
+    figures as SVG files in the folder beside it named after it
+    (report.html: report-figures/); returns the page's path."""
+    from .analysis.report import REPORT_TITLE, render_report_files, report_lam_path
+    from .io import write_file, write_folder
     from .io.staging import check_output, holding
 
     bundles.expect_kind(bundle, CIRCUIT)  # a wrong input is named first
     keep = holding((REPORT_TITLE.encode(),), "report")
     out = check_output(output, force=force, folder=False, replaceable=keep,
                        inputs=(bundle,))
+    figures = report_figures_folder(out)
+
+    def keep_figures(folder):  # an earlier report's figures, nothing else
+        if all(p.is_file() and p.suffix == ".svg" and keep(p) is None
+               for p in Path(folder).iterdir()):
+            return None
+        return "not the figures of an eidecomp report"
+
+    check_output(figures, force=force, replaceable=keep_figures,
+                 inputs=(bundle,))
     b = bundles.read_circuit_bundle(bundle)
     W = b.original_weights()
     if progress is not None:
         progress("report: lambda path", 0, float("nan"))
-    page = render_report(b.circuit, b.doc, W, low_rank=b.low_rank,
-                         features=b.features, positions=b.positions,
-                         path_points=report_lam_path(W), progress=progress)
+    page, svgs = render_report_files(
+        b.circuit, b.doc, W, low_rank=b.low_rank, features=b.features,
+        positions=b.positions, path_points=report_lam_path(W),
+        progress=progress, link=f"{figures.name}/")
+    if progress is not None:
+        progress("report: writing", 0, float("nan"))
+    write_folder(figures, svgs, force=force, replaceable=keep_figures,
+                 inputs=(bundle,))
     return write_file(out, page.encode("utf-8"), force=force, replaceable=keep,
                       inputs=(bundle,))
+
+
+def report_figures_folder(page):
+    """Where the SVG figures of the report ``page`` go: beside it, named
+    after it (``out/report.html`` -> ``out/report-figures``)."""
+    page = Path(page)
+    return page.with_name(f"{page.stem}-figures")
 
 
 def run_demo(output, *, force=False, progress=None):

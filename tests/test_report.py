@@ -82,6 +82,56 @@ def test_report_command(bundle, tmp_path, capsys):
     assert not (tmp_path / "x.html").exists()
 
 
+def _svg_links(page):
+    return re.findall(r"<a href='([^']+\.svg)'>SVG</a>", page)
+
+
+def _parsed_svg(path):
+    """The root of an SVG file as Python's XML parser reads it; the W3C SVG
+    1.1 namespace is the reference for what an SVG document is."""
+    import xml.etree.ElementTree as ET
+
+    root = ET.parse(path).getroot()
+    assert root.tag == "{http://www.w3.org/2000/svg}svg", path
+    return root
+
+
+def test_every_figure_is_also_an_svg_file_the_page_links_to(bundle, tmp_path):
+    # in the bundle (run --report): report-NN-name.svg beside report.html
+    page = (bundle / "report.html").read_text(encoding="utf-8")
+    links = _svg_links(page)
+    assert len(links) == page.count("data:image/png;base64,") >= 15
+    assert sorted(links) == sorted(p.name for p in bundle.glob("report-*.svg"))
+    for name in links:
+        title = _parsed_svg(bundle / name).find("{http://www.w3.org/2000/svg}title")
+        assert title.text.startswith("eidecomp circuit report: ")
+    # the report command: a folder named after the page, beside it
+    out = tmp_path / "r.html"
+    assert main(["report", str(bundle), "-o", str(out), "-q"]) == 0
+    links = _svg_links(out.read_text(encoding="utf-8"))
+    assert links and all(name.startswith("r-figures/") for name in links)
+    first = {p.name: p.read_bytes() for p in (tmp_path / "r-figures").iterdir()}
+    assert sorted(first) == sorted(n.split("/")[1] for n in links)
+    for name in links:
+        _parsed_svg(tmp_path / name)
+    # the same bundle gives the same bytes (no date, fixed ids)
+    assert main(["report", str(bundle), "-o", str(out), "-q", "--force"]) == 0
+    again = {p.name: p.read_bytes() for p in (tmp_path / "r-figures").iterdir()}
+    assert again == first
+
+
+def test_report_keeps_a_folder_that_is_not_its_figures(bundle, tmp_path, capsys):
+    out = tmp_path / "r.html"
+    (tmp_path / "r-figures").mkdir()
+    (tmp_path / "r-figures" / "notes.txt").write_text("mine")
+    assert main(["report", str(bundle), "-o", str(out), "-q", "--force"]) == 2
+    err = capsys.readouterr().err
+    assert "r-figures" in err and "not the figures of an eidecomp report" in err
+    assert len(err.strip().splitlines()) == 1
+    assert not out.exists()                       # nothing written
+    assert (tmp_path / "r-figures" / "notes.txt").read_text() == "mine"
+
+
 def test_demo_runs_and_its_report_renders(tmp_path):
     out = tmp_path / "demo"
     assert main(["demo", "-o", str(out), "-q"]) == 0

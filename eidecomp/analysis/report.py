@@ -12,6 +12,7 @@ import base64
 import html
 import io
 import json
+import re
 import warnings
 
 import numpy as np
@@ -23,7 +24,7 @@ from .rules import circuit_rules
 from .tuning import interneuron_pools
 
 __all__ = ["PATH_MAX_UNITS", "PROFILES_TITLE", "REPORT_TITLE", "path_max_iter",
-           "render_report", "report_lam_path"]
+           "render_report", "render_report_files", "report_lam_path", "svg_name"]
 
 REPORT_TITLE = "eidecomp circuit report"  # also how --force tells a report
 PROFILES_TITLE = "Connection profiles"  # not "rules": simulators' word for wiring
@@ -149,11 +150,33 @@ def _figure(draw, figsize=(5.2, 4.0), **margins):
     return fig
 
 
-def _png(draw, figsize=(5.2, 4.0), **margins):
-    """:func:`_figure` as base64 PNG."""
+def _rendered(draw, svg=None, figsize=(5.2, 4.0), **margins):
+    """:func:`_figure` as base64 PNG, and with ``svg`` (the figure's title)
+    as SVG bytes from the same drawing (else None). The SVG's title begins
+    with REPORT_TITLE (how ``--force`` tells it), and it is reproducible:
+    no date, fixed ids."""
+    import matplotlib as mpl
+
+    fig = _figure(draw, figsize, **margins)
     buf = io.BytesIO()
-    _figure(draw, figsize, **margins).savefig(buf, format="png", dpi=90)
-    return base64.b64encode(buf.getvalue()).decode("ascii")
+    fig.savefig(buf, format="png", dpi=90)
+    png = base64.b64encode(buf.getvalue()).decode("ascii")
+    if not svg:
+        return png, None
+    vector = io.BytesIO()
+    with mpl.rc_context({"svg.hashsalt": "eidecomp"}):
+        fig.savefig(vector, format="svg",
+                    metadata={"Date": None, "Title": f"{REPORT_TITLE}: {svg}"})
+    return png, vector.getvalue()
+
+
+def svg_name(k, title):
+    """The file name of the report's figure number ``k`` (from 1).
+
+    >>> svg_name(3, "E->I_tuned: distance")
+    '03-e-i-tuned-distance.svg'
+    """
+    return f"{k:02d}-{re.sub(r'[^a-z0-9]+', '-', title.lower()).strip('-')}.svg"
 
 
 # figures whose shape differs from the default: a legend below (lam path),
@@ -187,8 +210,8 @@ def _ratio_text(text):
         return str(text)
 
 
-def _figures(circuit, meta, W, L, path_points, rules, cv, tell):
-    """(title, base64 PNG) of every figure of the report."""
+def _figures(circuit, meta, W, L, path_points, rules, cv, tell, svg=False):
+    """(title, base64 PNG, SVG bytes or None) of every figure of the report."""
     from ..graph import population_graph
 
     W_eff = circuit.effective_weights()
@@ -196,7 +219,8 @@ def _figures(circuit, meta, W, L, path_points, rules, cv, tell):
 
     def fig(title, draw):
         tell(f"report figure: {title}")
-        figs.append((title, _png(draw, **_LAYOUT.get(title, {}))))
+        figs.append((title, *_rendered(draw, title if svg else None,
+                                       **_LAYOUT.get(title, {}))))
 
     for name, M in (("W", W), ("W_eff", W_eff), ("residual W - W_eff", W - W_eff)):
         fig(f"matrix {name}", lambda ax, M=M, name=name:
@@ -389,6 +413,25 @@ def render_report(circuit, meta, W, *, low_rank=None, features=None,
     >>> page.startswith("<!DOCTYPE html>") and PROFILES_TITLE in page
     True
     """
+    return _render(circuit, meta, W, low_rank, features, positions,
+                   path_points, progress)[0]
+
+
+def render_report_files(circuit, meta, W, *, low_rank=None, features=None,
+                        positions=None, path_points=None, progress=None,
+                        link=""):
+    """The report page and each of its figures as an SVG file.
+
+    As :func:`render_report`; returns ``(page, {svg_name(k, title): SVG
+    bytes})``. Each caption links to its file at ``link + name`` (the path
+    of the SVG files relative to the page, e.g. ``"report-figures/"``).
+    """
+    return _render(circuit, meta, W, low_rank, features, positions,
+                   path_points, progress, svg=True, link=link)
+
+
+def _render(circuit, meta, W, low_rank, features, positions, path_points,
+            progress, svg=False, link=""):
     def tell(stage):
         if progress is not None:
             progress(stage, 0, float("nan"))
@@ -401,18 +444,25 @@ def render_report(circuit, meta, W, *, low_rank=None, features=None,
     cv = {kind: [p["circular_variance"] for p in pools if p["kind"] == kind]
           for kind in (UNTUNED, TUNED)}
     figs = _figures(circuit, meta, W, low_rank, path_points, rules,
-                    cv if features is not None else None, tell)
+                    cv if features is not None else None, tell, svg=svg)
     med = [np.median([x for x in v if x is not None]) if any(
         x is not None for x in v) else None for v in cv.values()]
     parts = _sections(meta, rules, med, features is not None)
     parts.append("<h2>Figures</h2>")
     parts.append(f"<p>{html.escape(_path_note(path_points, W))}</p>")
-    for title, data in figs:
+    files = {}
+    for k, (title, data, vector) in enumerate(figs, start=1):
+        caption = html.escape(title)
+        if vector is not None:
+            name = svg_name(k, title)
+            files[name] = vector
+            href = html.escape(link + name, quote=True)
+            caption += f" (<a href='{href}'>SVG</a>)"
         parts.append(f"<figure><img class='figure' alt='{html.escape(title)}' "
                      f"src='data:image/png;base64,{data}'><figcaption>"
-                     f"{html.escape(title)}</figcaption></figure>")
+                     f"{caption}</figcaption></figure>")
     parts.append("<h2>Data</h2><details><summary>connection profiles (JSON)"
                  "</summary><pre>" + html.escape(json.dumps(rules, indent=1))
                  + "</pre></details>")
     parts.append(_ONLOAD + "</body></html>")
-    return "\n".join(parts)
+    return "\n".join(parts), files
