@@ -57,11 +57,13 @@ def _add_matrix_options(p):
     shared by every command that decomposes one (decompose, assemble, run)."""
     from .decompose import METHODS, SOLVERS
 
-    p.add_argument("--key", help="array name in .npz / variable in .mat")
+    p.add_argument("--key", help="array name in .npz / variable in .mat "
+                   "(default: the file's only one)")
     p.add_argument("--transpose", action="store_true",
                    help="the file is stored [pre, post]")
     p.add_argument("--mask", metavar="FILE",
-                   help="matrix of W's shape: 1 where an entry is unobserved")
+                   help="matrix of W's shape: 1 where an entry is unobserved "
+                   "(default: every entry observed)")
     p.add_argument("--ignore-diagonal", action="store_true",
                    help="treat self-connections as unobserved")
     p.add_argument("--lam", type=_positive_float,
@@ -75,7 +77,7 @@ def _add_matrix_options(p):
                    "circuit is assembled in float64")
     p.add_argument("--target-rank", type=_count, metavar="K",
                    help="search lam for a low-rank part of rank K (instead of "
-                   "--lam)")
+                   "--lam; default: no search)")
     p.add_argument("--method", choices=METHODS, default=METHODS[0],
                    help=f"{METHODS[0]} (default): the fast ALM solver; "
                    "convex: the exact convex program (cvxpy; small matrices)")
@@ -132,13 +134,15 @@ def _add_input(p, matrix_help, kernel_help):
     p.add_argument("matrix", nargs="?", help=matrix_help + " (omit with --kernel)")
     p.add_argument("--kernel", metavar="K.npy",
                    help="a lateral kernel K[post_feature, pre_feature, dy, dx] "
-                   f"(odd, centred) tiled over --grid, instead of a matrix: "
-                   f"{kernel_help}")
-    p.add_argument("--grid", metavar="HxW", help="grid of the kernel, e.g. 64x64")
+                   f"(odd, centred) tiled over --grid, instead of a matrix "
+                   f"(default: a matrix): {kernel_help}")
+    p.add_argument("--grid", metavar="HxW", help="grid of the kernel, e.g. 64x64 "
+                   "(no default: needed with --kernel)")
 
 
 def _get_parser():
     from .export import FORMATS
+    from .io.units import DEFAULT_PERIOD, POSITION_UNITS
     from .pipeline import DECOMPOSE_ENGINES, SIMULATE_MODELS, SIMULATORS
 
     parser = _Parser(prog="eidecomp", description=(
@@ -158,13 +162,15 @@ def _get_parser():
                "'example' for the built-in invented example",
                "decompose it in the Fourier domain, never forming the matrix")
     dec.add_argument("--boundary", choices=("periodic", "zero"), default="periodic",
-                     help="periodic: structured solver on the kernel; zero: "
-                     "expanded to the dense matrix (memory permitting)")
+                     help="periodic (default): structured solver on the "
+                     "kernel; zero: expanded to the dense matrix (memory "
+                     "permitting)")
     dec.add_argument("-o", "--output", required=True, metavar="OUT",
                      help="folder to write (must not exist, unless --force)")
     _add_matrix_options(dec)
     dec.add_argument("--max-iter", type=_count, metavar="N",
-                     help=f"iteration limit (ALM default {MAX_ITER})")
+                     help=f"iteration limit (default {MAX_ITER} for the ALM; "
+                     "the cvxpy solver's own for --method convex)")
     dec.add_argument("--engine", choices=DECOMPOSE_ENGINES,
                      default=DECOMPOSE_ENGINES[0],
                      help="memory (default) or dask: the matrix read in blocks "
@@ -204,17 +210,22 @@ def _get_parser():
                        "percentile of W's positive entries)")
         p.add_argument("--units", metavar="CSV",
                        help="unit table: a 'feature' column in degrees, "
-                       "optional id, x, y; one row per unit of W")
-        p.add_argument("--period", type=_positive_float, default=180.0,
-                       help="period of the feature in degrees (180 "
-                       "orientation, 360 direction)")
-        p.add_argument("--position-unit", choices=("um", "deg"), default="um",
-                       help="unit of the x, y columns: micrometres of cortex, "
-                       "or degrees of visual field (then give --magnification)")
+                       "optional id, x, y; one row per unit of W (default: "
+                       "none; then no profiles or tuning)")
+        p.add_argument("--period", type=_positive_float, default=DEFAULT_PERIOD,
+                       help="period of the feature in degrees (default "
+                       f"{DEFAULT_PERIOD:g}: orientation; 360: direction)")
+        p.add_argument("--position-unit", choices=POSITION_UNITS,
+                       default=POSITION_UNITS[0],
+                       help="unit of the x, y columns: um (default: micrometres "
+                       "of cortex) or deg (degrees of visual field; then give "
+                       "--magnification)")
         p.add_argument("--magnification", type=_positive_float, metavar="UM_PER_DEG",
-                       help="cortical magnification, micrometres per degree")
+                       help="cortical magnification, micrometres per degree "
+                       "(needed with --position-unit deg; no default)")
         p.add_argument("--report", action="store_true",
-                       help="also write CIRCUIT/report.html in the same pass")
+                       help="also write CIRCUIT/report.html (and its "
+                       "figures as SVG) in the same pass")
         _add_matrix_options(p)
         _add_job_options(p, "CIRCUIT")
     exp = sub.add_parser("export", help="write a circuit as a graph file",

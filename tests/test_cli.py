@@ -170,3 +170,48 @@ def test_builtin_example(tmp_path):
                  "--ignore-diagonal"]) == 0
     summary = json.loads((out / "summary.json").read_text())
     assert summary["converged"] and summary["rank"] == 3
+
+
+# --- every option's help states its default and its unit -------------------------
+# Reference: argparse's own record of each option (its Action objects: the
+# default it applies, whether it is required): the help must say what
+# argparse will do when the option is left out.
+
+def _subcommands():
+    from eidecomp.cli import _get_parser
+
+    return _get_parser().subcommands
+
+
+def _shown(value):
+    return f"{value:g}" if isinstance(value, float) else str(value)
+
+
+@pytest.mark.parametrize("command", sorted(_subcommands()))
+def test_help_states_every_default(command):
+    import argparse
+
+    for a in _subcommands()[command]._actions:
+        if (not a.option_strings or a.required or a.default is False
+                or isinstance(a, argparse._HelpAction)):
+            continue
+        h, name = " ".join((a.help or "").split()), a.option_strings[-1]
+        assert "default" in h, (command, name, h)
+        if a.default is not None:
+            v = _shown(a.default)
+            assert (f"default {v}" in h or f"{v} (default" in h
+                    or f"'{v}' (default" in h
+                    or f"(default: {v}" in h or f"default: {v}" in h), \
+                (command, name, a.default, h)
+
+
+UNITS = {"--tau-e": "ms", "--tau-i": "ms", "--duration": "ms",
+         "--period": "degrees", "--magnification": "micrometres per degree"}
+
+
+@pytest.mark.parametrize("command", sorted(_subcommands()))
+def test_help_states_every_unit(command):
+    for a in _subcommands()[command]._actions:
+        for flag in a.option_strings:
+            if flag in UNITS:
+                assert UNITS[flag] in " ".join(a.help.split()), (command, flag)
