@@ -44,7 +44,8 @@ def test_a_piped_demo_prints_plain_progress_lines(piped_demo):
     assert "\r" not in proc.stderr          # no live line off a terminal
     # which stages show depends on how long each takes on this machine (one
     # line per LOG_EVERY at most); each line names one of the demo's stages
-    assert all(any(stage in line for stage in DEMO_STAGES) for line in lines)
+    named = DEMO_STAGES + ("report figure: ",)   # any of the figures
+    assert all(any(stage in line for stage in named) for line in lines), lines
 
 
 def test_each_stage_of_the_demo_is_named_when_it_outlasts_the_interval(
