@@ -134,6 +134,9 @@ class Decomposition:
     report : OptimalityReport
     observed : ndarray of bool or None
         Observed entries; None when all are.
+    unit_ids : tuple of str or None
+        The units' labels, from a labelled W (a DataFrame whose index and
+        columns agree: :func:`eidecomp.limits.unit_labels`).
     """
 
     low_rank: np.ndarray
@@ -147,6 +150,7 @@ class Decomposition:
     method: str = "ialm"
     report: OptimalityReport | None = field(default=None, repr=False)
     observed: np.ndarray | None = field(default=None, repr=False)
+    unit_ids: tuple | None = field(default=None, repr=False)
 
     def __post_init__(self):
         _freeze(self, "low_rank", "sparse", "observed")
@@ -377,6 +381,8 @@ class Circuit:
     ============  ==========  =====================================
 
     Units are ordered E, then untuned, then tuned, in every full matrix.
+    ``unit_ids`` names the E units (W's units), from a labelled W; the
+    exports write them unless given others.
 
     Examples
     --------
@@ -397,8 +403,15 @@ class Circuit:
     J_TE: np.ndarray
     params: dict = field(default_factory=dict, repr=False)
     report: AssemblyReport | None = field(default=None, repr=False)
+    unit_ids: tuple | None = field(default=None, repr=False)
 
     def __post_init__(self):
+        if self.unit_ids is not None:
+            ids = tuple(str(u) for u in self.unit_ids)
+            if len(ids) != np.shape(self.J_EE)[0]:
+                raise ValueError(f"{len(ids)} unit ids for "
+                                 f"{np.shape(self.J_EE)[0]} excitatory units")
+            object.__setattr__(self, "unit_ids", ids)
         for name in BLOCK_NAMES:
             a = np.asarray(getattr(self, name), dtype=float)
             if a.ndim != 2:

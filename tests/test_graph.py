@@ -383,6 +383,12 @@ def test_load_circuit_is_public(tmp_path):
                  "-q"]) == 0
     c, doc = eidecomp.load_circuit(tmp_path / "c")
     assert c.n_excitatory == 40 and doc["counts"]["excitatory"] == 40
+    assert c.unit_ids is None                  # no unit table: no names
+
+
+def test_load_circuit_names_the_units_of_the_unit_table(tabled):
+    d, circuit, _, _ = tabled
+    assert circuit.unit_ids == tuple(f"u{i}" for i in range(40))
 
 
 # --- what the unit table gave, in every graph format ---------------------------
@@ -523,3 +529,50 @@ def test_neuroml_export_carries_positions_and_features(tabled):
             np.testing.assert_allclose(locs, where[part], rtol=1e-12)
         else:
             assert not pops[pop_name].instances
+
+
+# --- a labelled W: a pandas DataFrame --------------------------------------------
+# Reference: pandas (in the test extra) holds the labels; the decomposition and
+# the circuit must equal those of the bare numpy array, and the exports carry
+# the DataFrame's index as the units' ids, read back by networkx.
+
+def test_a_dataframes_index_becomes_the_unit_ids():
+    import io
+
+    import pandas as pd
+
+    from eidecomp import robust_pca
+    from eidecomp.export import render
+
+    W, _, _ = make_planted_circuit(30, n_untuned=2, n_tuned=6, pool=3, seed=5)
+    labels = [f"cell-{k:03d}" for k in range(30)]
+    df = pd.DataFrame(W, index=labels, columns=labels)
+    dec = robust_pca(df)
+    assert dec.unit_ids == tuple(labels)
+    np.testing.assert_array_equal(dec.low_rank, robust_pca(W).low_rank)
+    c = assemble(df, baselines=False)
+    assert c.unit_ids == tuple(labels)
+    assert assemble(dec, baselines=False).unit_ids == tuple(labels)
+    ref = assemble(W, baselines=False)
+    np.testing.assert_array_equal(c.J_EE, ref.J_EE)
+    assert ref.unit_ids is None
+    G = nx.read_graphml(io.BytesIO(render("graphml", c)))
+    assert [G.nodes[f"E{i}"]["unit_id"] for i in range(30)] == labels
+    # given ids win over the circuit's own
+    G = nx.read_graphml(io.BytesIO(render("graphml", c, unit_ids=list("abcdefghij"
+                                                                      * 3))))
+    assert G.nodes["E1"]["unit_id"] == "b"
+
+
+def test_a_dataframe_whose_rows_and_columns_differ_is_refused():
+    import pandas as pd
+
+    from eidecomp import robust_pca
+    from eidecomp.errors import InputError
+
+    W, _, _ = make_planted_circuit(20, n_untuned=1, n_tuned=4, pool=3, seed=0)
+    df = pd.DataFrame(W, index=[f"a{k}" for k in range(20)],
+                      columns=[f"b{k}" for k in range(20)])
+    with pytest.raises(InputError, match="different labels"):
+        assemble(df, baselines=False)
+    assert robust_pca(df).unit_ids is None   # not unit ids: a split still runs

@@ -30,7 +30,7 @@ import numpy as np
 from scipy import sparse
 
 from ..errors import InputError, warn_stopped
-from ..limits import check_fits, dense_input
+from ..limits import check_fits, dense_input, unit_labels
 from ..params import CONNECTION_RTOL, DEFAULT_EI_RATIO, EIRatio
 from ..types import (
     AssemblyReport,
@@ -397,7 +397,9 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha
     ----------
     W_or_dec : ndarray (N, N) or Decomposition
         The signed matrix W[post, pre], or its robust PCA (then W = L + S).
-        An array is decomposed with ``robust_pca`` at its defaults.
+        An array is decomposed with ``robust_pca`` at its defaults; a
+        scipy.sparse matrix is densified; a pandas DataFrame's index (the
+        same labels as its columns) becomes the circuit's ``unit_ids``.
     ei_ratio : EIRatio, str or float
         Excitatory units per interneuron: 4, "4:1", "9:2"
         (:class:`eidecomp.params.EIRatio`); stored as its text.
@@ -443,7 +445,10 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha
     True
     """
     ratio = EIRatio.parse(ei_ratio)
-    if not isinstance(W_or_dec, Decomposition):   # scipy.sparse: densified
+    if isinstance(W_or_dec, Decomposition):
+        ids = W_or_dec.unit_ids
+    else:                                         # scipy.sparse: densified
+        ids = unit_labels(W_or_dec, square=True)  # a DataFrame's index
         W_or_dec = dense_input(W_or_dec)
     W, L, S, dec, own = _split(W_or_dec, seed, decompose_kwargs)
     if W.ndim != 2 or W.shape[0] != W.shape[1]:
@@ -522,4 +527,4 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha
         return Circuit(J_EE=J_EE,
                        J_EU=A[:, :n_u] * root, J_UE=B[:n_u] * root,
                        J_ET=A[:, n_u:] * root, J_TE=B[n_u:] * root,
-                       params=params, report=report)
+                       params=params, report=report, unit_ids=ids)

@@ -7,6 +7,7 @@ with an :class:`~eidecomp.types.OptimalityReport`. ``lambda_path`` and
 starts.
 """
 
+import dataclasses
 import math
 import time
 import warnings
@@ -14,7 +15,13 @@ import warnings
 import numpy as np
 
 from ..errors import InputError, warn_stopped
-from ..limits import available_memory, check_range, dense_input, size_text
+from ..limits import (
+    available_memory,
+    check_range,
+    dense_input,
+    size_text,
+    unit_labels,
+)
 from ..params import MAX_ITER, SolverSettings, check_lam, default_lam, resolve_dtype
 from ..types import Decomposition, OptimalityReport, PathPoint, handing_over
 from ._convex import SOLVERS, ConvexPCP, convex_bytes, largest_convex
@@ -247,7 +254,9 @@ def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
     Parameters
     ----------
     W : array_like of shape (n_post, n_pre)
-        Signed weight matrix, W[post, pre].
+        Signed weight matrix, W[post, pre]: an array, a scipy.sparse matrix,
+        or a pandas DataFrame (whose index, when its columns are the same
+        labels, becomes the result's ``unit_ids``).
     lam : float or None
         Weight of the l1 term. None: 1 / sqrt(max(m, n)) (Theorem 1.1).
     method : {"ialm", "convex"}
@@ -315,6 +324,7 @@ def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
     dtype = resolve_dtype(dtype)
     if check_memory:
         _check_memory(np.shape(W), dtype, method, solver)
+    ids = unit_labels(W)
     W = _check_matrix(W, dtype=dtype)
     observed = _check_observed(mask, W.shape, ignore_diagonal)
     if method not in METHODS:
@@ -356,6 +366,9 @@ def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
             dec = _search_rank(solve, lam,
                                int(_check_rank(target_rank, W.shape)))
     _warn_if_stopped(dec)
+    if ids is not None:
+        with handing_over():  # the same (read-only) arrays, now labelled
+            dec = dataclasses.replace(dec, unit_ids=ids)
     return dec
 
 

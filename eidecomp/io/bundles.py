@@ -34,6 +34,7 @@ the command line asks it, and ``--force`` replaces only a folder of the same
 kind (:func:`replaceable_by`).
 """
 
+import dataclasses
 import hashlib
 from contextlib import contextmanager
 from dataclasses import dataclass, field
@@ -52,6 +53,7 @@ from ..types import (
     Circuit,
     Decomposition,
     KernelDecomposition,
+    handing_over,
 )
 from . import staging
 from .binary import npy_header, read_npy
@@ -527,6 +529,9 @@ def read_circuit_bundle(folder):
         raise InputError(f"{folder}: {exc}") from None
     _check_circuit_doc(doc, where, circuit.n_excitatory)
     _check_counts(doc, where, circuit)
+    if doc.get("unit_ids") is not None:   # checked above: one per E unit
+        with handing_over():              # the blocks just read, now named
+            circuit = dataclasses.replace(circuit, unit_ids=doc["unit_ids"])
     n = circuit.n_excitatory
     extra = {name: _array(folder, doc, f"{name}.npy")
              for name in ("low_rank", "sparse", "features", "positions")}
