@@ -482,9 +482,12 @@ def _assemble(args):
 def _export(args):
     from .pipeline import run_export
 
-    path = run_export(args.bundle, args.format, args.output, force=args.force,
-                      tau_e=args.tau_e, tau_i=args.tau_i, raw_csv=args.raw_csv,
-                      drive=args.input, seed=args.seed)
+    with _progress(args) as progress:
+        progress.stage(f"export: {args.format}")   # shown if it takes a while
+        path = run_export(args.bundle, args.format, args.output,
+                          force=args.force, tau_e=args.tau_e, tau_i=args.tau_i,
+                          raw_csv=args.raw_csv, drive=args.input,
+                          seed=args.seed)
     print(f"written to {path}")
     return 0
 
