@@ -15,6 +15,7 @@ from .errors import ConvergenceWarning, InputError, SolverError, WriteError
 from .params import (
     AGREEMENT_RTOL,
     DEFAULT_EI_RATIO,
+    DEFAULT_PERIOD,
     MAX_ITER,
     TAU_E_MS,
     TAU_I_MS,
@@ -142,7 +143,7 @@ def _add_input(p, matrix_help, kernel_help):
 
 def _get_parser():
     from .export import FORMATS
-    from .io.units import DEFAULT_PERIOD, POSITION_UNITS
+    from .io.units import POSITION_UNITS
     from .pipeline import DECOMPOSE_ENGINES, SIMULATE_MODELS, SIMULATORS
 
     parser = _Parser(prog="eidecomp", description=(
@@ -246,8 +247,11 @@ def _get_parser():
                          description="Write one self-contained HTML file with "
                          "the inputs, parameters, the assembly against the "
                          "baselines, connection rules, tuning, stability and "
-                         "figures.")
-    _add_bundle_job(rep, "FILE", "the HTML file to write")
+                         "figures, and each figure as an SVG file in the "
+                         "folder FILE's name without its suffix + '-figures' "
+                         "beside it (report.html: report-figures/).")
+    _add_bundle_job(rep, "FILE", "the HTML file to write, and its figures "
+                    "folder beside it")
     demo = sub.add_parser("demo", help="the whole job on invented demo data",
                           description="Write an invented demo matrix and unit "
                           "table, and run decompose, assemble and report on "

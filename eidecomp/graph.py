@@ -45,7 +45,8 @@ def neuron_graph(circuit, *, features=None, x=None, y=None, unit_ids=None,
     """The neuron-level directed graph of a Circuit.
 
     ``features``, ``x``, ``y`` and ``unit_ids`` (the unit table's names,
-    kept as string data) become attributes of the excitatory nodes.
+    kept as string data; by default the circuit's own) become attributes of
+    the excitatory nodes.
     ``interneurons`` is ``(features, positions)`` of the interneurons,
     untuned first (each may be None), as
     :func:`eidecomp.analysis.pool_features` derives them from their input
@@ -64,6 +65,7 @@ def neuron_graph(circuit, *, features=None, x=None, y=None, unit_ids=None,
     >>> sorted(G.predecessors("U0"))
     ['E0']
     """
+    unit_ids = circuit.named(unit_ids)
     G = nx.DiGraph(convention="edges run pre -> post; weights are "
                    "nonnegative, the sign is the synapse kind")
     extras = {"feature": features, "x": x, "y": y}

@@ -175,29 +175,6 @@ def dense_input(W, name="W"):
     return np.asarray(W)
 
 
-def unit_labels(W, name="W", *, square=False):
-    """The unit ids a labelled matrix carries: a pandas DataFrame's index
-    (the post units) as strings, when its columns (the pre units) are the
-    same labels in the same order; None for an unlabelled matrix. With
-    ``square`` (a circuit: one set of units) differing labels are refused;
-    otherwise (a rectangular W[post, pre]) they are not unit ids: None.
-
-    >>> unit_labels([[0.0, 1.0], [1.0, 0.0]]) is None
-    True
-    """
-    index, columns = getattr(W, "index", None), getattr(W, "columns", None)
-    if index is None or columns is None:
-        return None
-    rows, cols = [str(x) for x in index], [str(x) for x in columns]
-    if rows == cols:
-        return tuple(rows)
-    if square:
-        raise InputError(f"{name}'s rows (post units) and columns (pre units) "
-                         "carry different labels; a circuit's W has one set of "
-                         "units, in the same order along both")
-    return None
-
-
 def size_text(n_bytes):
     """Bytes as a reader wants them: GiB from 1 GiB up, else MiB.
 

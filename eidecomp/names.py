@@ -11,7 +11,9 @@ refuse it when one reaches them through the library.
 
 import re
 
-__all__ = ["NOT_XML_CHAR", "xml_char_problem"]
+from .errors import InputError
+
+__all__ = ["NOT_XML_CHAR", "unit_labels", "xml_char_problem"]
 
 NOT_XML_CHAR = re.compile("[^\t\n\r\x20-\ud7ff\ue000-\ufffd\U00010000-\U0010ffff]")
 """A character that XML 1.0 cannot hold (W3C XML 1.0, 2.2, production [2])."""
@@ -26,3 +28,42 @@ def xml_char_problem(name):
     """
     bad = NOT_XML_CHAR.search(name)
     return None if bad is None else f"U+{ord(bad.group()):04X}"
+
+
+def unit_labels(W, name="W", *, square=False):
+    """The unit ids a labelled matrix carries: a pandas DataFrame's index
+    (the post units) as strings, when its columns (the pre units) are the
+    same labels in the same order; None for an unlabelled matrix or
+    pandas' default 0, 1, 2, ... (a RangeIndex). The labels obey the unit
+    table's rules: unique, and writable as XML 1.0 (InputError naming the
+    first that is not). With ``square`` (a circuit: one set of units)
+    differing row and column labels are refused; otherwise (a rectangular
+    W[post, pre]) they are not unit ids: None.
+
+    >>> unit_labels([[0.0, 1.0], [1.0, 0.0]]) is None
+    True
+    """
+    index, columns = getattr(W, "index", None), getattr(W, "columns", None)
+    if index is None or columns is None or (
+            type(index).__name__ == "RangeIndex"
+            and type(columns).__name__ == "RangeIndex"):
+        return None
+    rows, cols = [str(x) for x in index], [str(x) for x in columns]
+    if rows != cols:
+        if square:
+            raise InputError(f"{name}'s rows (post units) and columns (pre "
+                             "units) carry different labels; a circuit's W "
+                             "has one set of units, in the same order along "
+                             "both")
+        return None
+    seen = {}
+    for k, label in enumerate(rows):
+        if label in seen:
+            raise InputError(f"{name}: units {seen[label]} and {k} have the "
+                             f"same label {label!r}; unit ids must be unique")
+        seen[label] = k
+        bad = xml_char_problem(label)
+        if bad:
+            raise InputError(f"{name}: unit {k} ({label!r}): {bad} cannot be "
+                             "written (XML 1.0 cannot hold it)")
+    return tuple(rows)

@@ -24,6 +24,7 @@ from .errors import InputError
 
 __all__ = [
     "AGREEMENT_RTOL",
+    "DEFAULT_PERIOD",
     "CONNECTION_RTOL",
     "DEFAULT_EI_RATIO",
     "DTYPES",
@@ -212,6 +213,9 @@ TAU_E_MS = 10.0
 TAU_I_MS = 5.0
 """Time constant of the interneurons, ms: faster than E cells (common
 practice)."""
+
+DEFAULT_PERIOD = 180.0
+"""Period of the units' features, degrees: orientation (360 for direction)."""
 
 AGREEMENT_RTOL = 0.05
 """``eidecomp simulate`` says the circuit agrees with the original network

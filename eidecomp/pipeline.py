@@ -26,8 +26,7 @@ from .io.bundles import (
     TILED,
     check_bundle_output,
 )
-from .io.units import DEFAULT_PERIOD
-from .params import DEFAULT_EI_RATIO, TAU_E_MS, TAU_I_MS, EIRatio
+from .params import DEFAULT_EI_RATIO, DEFAULT_PERIOD, TAU_E_MS, TAU_I_MS, EIRatio
 
 __all__ = [
     "DECOMPOSE_ENGINES",
@@ -632,8 +631,12 @@ def run_report(bundle, output, *, force=False, progress=None):
             return None
         return "not the figures of an eidecomp report"
 
-    check_output(figures, force=force, replaceable=keep_figures,
-                 inputs=(bundle,))
+    try:
+        check_output(figures, force=force, replaceable=keep_figures,
+                     inputs=(bundle,))
+    except InputError as exc:   # a path the user did not type: say what it is
+        raise InputError(f"{exc} (the folder of the report's SVG figures, "
+                         f"beside {out.name})") from None
     b = bundles.read_circuit_bundle(bundle)
     W = b.original_weights()
     if progress is not None:

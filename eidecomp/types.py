@@ -136,7 +136,7 @@ class Decomposition:
         Observed entries; None when all are.
     unit_ids : tuple of str or None
         The units' labels, from a labelled W (a DataFrame whose index and
-        columns agree: :func:`eidecomp.limits.unit_labels`).
+        columns agree: :func:`eidecomp.names.unit_labels`).
     """
 
     low_rank: np.ndarray
@@ -429,6 +429,11 @@ class Circuit:
             if getattr(self, b.name).shape != shape:
                 raise ValueError(f"{b.name} has shape "
                                  f"{getattr(self, b.name).shape}, expected {shape}")
+
+    def named(self, unit_ids=None):
+        """The E units' ids a writer uses: ``unit_ids`` when given, else the
+        circuit's own (None: the units are unnamed)."""
+        return self.unit_ids if unit_ids is None else unit_ids
 
     @property
     def n_excitatory(self):

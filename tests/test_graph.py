@@ -5,6 +5,7 @@ module, read back what we wrote; networkx.utils.graphs_equal compares.
 """
 
 import csv
+import json
 
 import networkx as nx
 import numpy as np
@@ -576,3 +577,93 @@ def test_a_dataframe_whose_rows_and_columns_differ_is_refused():
     with pytest.raises(InputError, match="different labels"):
         assemble(df, baselines=False)
     assert robust_pca(df).unit_ids is None   # not unit ids: a split still runs
+
+
+def _hand_circuit():
+    """6 E units, 1 untuned and 2 tuned interneurons; tuned 1 has no input."""
+    from eidecomp.types import Circuit
+
+    rng = np.random.default_rng(8)
+    J_TE = np.zeros((2, 6))
+    J_TE[0, :3] = [1.0, 2.0, 0.5]
+    return Circuit(J_EE=rng.random((6, 6)) * (rng.random((6, 6)) < 0.4),
+                   J_EU=rng.random((6, 1)), J_UE=rng.random((1, 6)),
+                   J_ET=rng.random((6, 2)), J_TE=J_TE)
+
+
+def test_direction_features_and_an_interneuron_without_input(tmp_path):
+    # reference: the mean-direction formula at period 360 (see above) and
+    # numpy's weighted average; networkx, csv and libNeuroML read back
+    import io
+    import json
+
+    from eidecomp.export import render
+
+    c = _hand_circuit()
+    features = np.array([350.0, 10.0, 40.0, 200.0, 120.0, 300.0])
+    pos = np.column_stack([np.arange(6) * 30.0, np.zeros(6)])
+    names, feats, where, has_input = _expected_interneurons(c, features, pos,
+                                                            period=360.0)
+    assert has_input.tolist() == [True, True, False]
+    G = nx.read_graphml(io.BytesIO(render("graphml", c, features=features,
+                                          positions=pos, period=360.0)))
+    J = read_json_bytes(render("json", c, features=features, positions=pos,
+                               period=360.0))
+    for graph in (G, J):
+        for k, name in enumerate(names[:2]):
+            diff = (graph.nodes[name]["feature"] - feats[k] + 180.0) % 360.0 - 180.0
+            assert abs(diff) < 1e-9
+            assert graph.nodes[name]["x"] == pytest.approx(where[k, 0], rel=1e-12)
+        assert not {"feature", "x", "y"} & set(graph.nodes["T1"])
+    rows = list(csv.DictReader(io.StringIO(render(
+        "csv", c, features=features, positions=pos, period=360.0).decode())))
+    t1 = [r for r in rows if r["post"] == "T1" or r["pre"] == "T1"]
+    assert t1 and all(r["post_feature"] == "" for r in t1 if r["post"] == "T1")
+    require("neuroml")
+    from neuroml.loaders import read_neuroml2_file
+
+    path = tmp_path / "c.net.nml"
+    path.write_bytes(render("neuroml", c, features=features, positions=pos,
+                            period=360.0))
+    pops = {p.id: p for p in read_neuroml2_file(str(path)).networks[0].populations}
+    notes = json.loads(pops["I_tuned"].notes)["features"]
+    assert notes[1] is None and abs((notes[0] - feats[1] + 180) % 360 - 180) < 1e-9
+    assert not pops["I_tuned"].instances          # one position undefined
+    assert len(pops["I_untuned"].instances) == 1
+
+
+def read_json_bytes(data):
+    return nx.node_link_graph(json.loads(data), edges="edges")
+
+
+@pytest.mark.parametrize("fmt", ["graphml", "json", "csv", "neuroml"])
+def test_a_non_finite_feature_or_position_is_refused(fmt):
+    from eidecomp.errors import InputError
+    from eidecomp.export import render
+
+    if fmt == "neuroml":
+        require("neuroml")
+    c = _hand_circuit()
+    features = np.array([350.0, np.nan, 40.0, 200.0, 120.0, 300.0])
+    with pytest.raises(InputError, match="features: unit 1 has nan, not a finite number"):
+        render(fmt, c, features=features)
+    pos = np.zeros((6, 2))
+    pos[4, 1] = np.inf
+    with pytest.raises(InputError, match="positions: unit 4 has \\[0.0, inf\\], not a finite"):
+        render(fmt, c, positions=pos)
+
+
+def test_dataframe_labels_follow_the_unit_id_rules():
+    import pandas as pd
+
+    from eidecomp import robust_pca
+    from eidecomp.errors import InputError
+
+    W, _, _ = make_planted_circuit(20, n_untuned=1, n_tuned=4, pool=3, seed=0)
+    assert robust_pca(pd.DataFrame(W)).unit_ids is None   # 0, 1, ...: unnamed
+    twice = [f"u{k % 10}" for k in range(20)]
+    with pytest.raises(InputError, match="units 0 and 10 have the same label"):
+        assemble(pd.DataFrame(W, index=twice, columns=twice), baselines=False)
+    odd = [f"u{k}" for k in range(19)] + ["bell\x07"]
+    with pytest.raises(InputError, match="unit 19 .*U\\+0007"):
+        robust_pca(pd.DataFrame(W, index=odd, columns=odd))

@@ -10,29 +10,40 @@ circvar use the same definitions, and the tests hold us to them).
 
 import numpy as np
 
+from ..params import DEFAULT_PERIOD
+
 __all__ = ["circular_difference", "circular_mean", "circular_variance",
            "orientation_selectivity"]
+
+
+NO_DIRECTION = 1e-12
+"""A mean resultant this small relative to the total weight has no angle."""
 
 
 def _phase(features, period):
     return np.exp(2j * np.pi * np.asarray(features, dtype=float) / period)
 
 
-def circular_mean(features, weights=None, period=180.0):
-    """Weighted circular mean in [0, period); NaN when the weights are all 0.
+def circular_mean(features, weights=None, period=DEFAULT_PERIOD):
+    """Weighted circular mean in [0, period); NaN when the weights are all 0
+    or the mean resultant vanishes (no preferred direction: its length at
+    most NO_DIRECTION of the total weight, which rounding alone reaches).
 
     >>> round(float(circular_mean([170.0, 20.0])), 6)   # across the wrap at 180
     5.0
+    >>> float(circular_mean([0.0, 45.0, 90.0, 135.0]))  # evenly spread
+    nan
     """
     f = np.asarray(features, dtype=float)
     w = np.ones_like(f) if weights is None else np.asarray(weights, dtype=float)
     z = np.sum(w * _phase(f, period), axis=-1)
-    if np.ndim(z) == 0 and (np.sum(w) == 0 or z == 0):
+    total = np.sum(np.abs(w), axis=-1)
+    if np.ndim(z) == 0 and (total == 0 or abs(z) <= NO_DIRECTION * total):
         return np.nan
     return np.mod(np.angle(z) * period / (2 * np.pi), period)
 
 
-def circular_variance(weights, features, period=180.0):
+def circular_variance(weights, features, period=DEFAULT_PERIOD):
     """Circular variance 1 - |z| of each row of ``weights`` over ``features``.
 
     >>> circular_variance([[1, 0, 0, 0], [1, 1, 1, 1]], [0, 45, 90, 135])
@@ -48,7 +59,7 @@ def circular_variance(weights, features, period=180.0):
     return cv
 
 
-def circular_difference(a, b, period=180.0):
+def circular_difference(a, b, period=DEFAULT_PERIOD):
     """|a - b| on the circle, in [0, period / 2].
 
     >>> float(circular_difference(170.0, 10.0))
@@ -58,7 +69,7 @@ def circular_difference(a, b, period=180.0):
     return np.minimum(d, period - d)
 
 
-def orientation_selectivity(weights, features, period=180.0, n_bins=8):
+def orientation_selectivity(weights, features, period=DEFAULT_PERIOD, n_bins=8):
     """(R_pref - R_orth) / (R_pref + R_orth) of each row's binned profile.
 
     The weights are summed in ``n_bins`` bins of feature; R_pref is the

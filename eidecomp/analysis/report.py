@@ -14,10 +14,12 @@ import io
 import json
 import re
 import warnings
+from urllib.parse import quote
 
 import numpy as np
 
 from ..errors import ConvergenceWarning
+from ..params import DEFAULT_PERIOD
 from ..types import TUNED, UNTUNED
 from . import plotting
 from .rules import circuit_rules
@@ -437,7 +439,7 @@ def _render(circuit, meta, W, low_rank, features, positions, path_points,
             progress(stage, 0, float("nan"))
 
     tell("report: connection profiles")
-    period = float(meta.get("parameters", {}).get("period", 180.0))
+    period = float(meta.get("parameters", {}).get("period", DEFAULT_PERIOD))
     rules = circuit_rules(circuit, W, features=features, positions=positions,
                           period=period)
     pools = interneuron_pools(circuit, features, period)
@@ -456,7 +458,7 @@ def _render(circuit, meta, W, low_rank, features, positions, path_points,
         if vector is not None:
             name = svg_name(k, title)
             files[name] = vector
-            href = html.escape(link + name, quote=True)
+            href = html.escape(quote(link + name), quote=True)
             caption += f" (<a href='{href}'>SVG</a>)"
         parts.append(f"<figure><img class='figure' alt='{html.escape(title)}' "
                      f"src='data:image/png;base64,{data}'><figcaption>"

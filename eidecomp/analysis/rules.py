@@ -28,6 +28,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..params import DEFAULT_PERIOD
 from .circular import circular_difference
 
 __all__ = ["CLASSES", "DETERMINED", "NOT_DETERMINED", "NO_DECAY", "NO_FIT",
@@ -114,7 +115,7 @@ def _binned(J, diff, edges, exclude_self, quantity):
                    conn.astype(int), quantity)
 
 
-def feature_profile(J, feature_post, feature_pre, *, period=180.0, n_bins=6,
+def feature_profile(J, feature_post, feature_pre, *, period=DEFAULT_PERIOD, n_bins=6,
                     exclude_self=True):
     """Probability and mean weight against |feature difference| (circular).
 
@@ -247,7 +248,7 @@ def connection_classes(circuit, W):
             "W negative": (np.maximum(-W, 0.0), "E", "E")}
 
 
-def circuit_rules(circuit, W, *, features=None, positions=None, period=180.0,
+def circuit_rules(circuit, W, *, features=None, positions=None, period=DEFAULT_PERIOD,
                   n_feature_bins=6, n_distance_bins=25):
     """Connection profiles and fits of every class, as plain dicts (JSON-ready).
 

@@ -9,13 +9,14 @@ orientation selectivity index of the pool's binned profile.
 
 import numpy as np
 
+from ..params import DEFAULT_PERIOD
 from ..types import TUNED, UNTUNED
 from .circular import circular_mean, circular_variance, orientation_selectivity
 
 __all__ = ["interneuron_pools", "pool_features"]
 
 
-def interneuron_pools(circuit, features=None, period=180.0, rtol=0.0):
+def interneuron_pools(circuit, features=None, period=DEFAULT_PERIOD, rtol=0.0):
     """Per interneuron: its kind, pool sizes and, given features, its tuning.
 
     An E unit is in an interneuron's input pool (J_IE row) or target set
@@ -52,7 +53,7 @@ def interneuron_pools(circuit, features=None, period=180.0, rtol=0.0):
     return out
 
 
-def pool_features(circuit, features=None, positions=None, period=180.0):
+def pool_features(circuit, features=None, positions=None, period=DEFAULT_PERIOD):
     """Feature and position of each interneuron, from its input pool.
 
     The preferred feature is the weighted circular mean of the pool's

@@ -30,7 +30,8 @@ import numpy as np
 from scipy import sparse
 
 from ..errors import InputError, warn_stopped
-from ..limits import check_fits, dense_input, unit_labels
+from ..limits import check_fits, dense_input
+from ..names import unit_labels
 from ..params import CONNECTION_RTOL, DEFAULT_EI_RATIO, EIRatio
 from ..types import (
     AssemblyReport,

@@ -20,8 +20,8 @@ from ..limits import (
     check_range,
     dense_input,
     size_text,
-    unit_labels,
 )
+from ..names import unit_labels
 from ..params import MAX_ITER, SolverSettings, check_lam, default_lam, resolve_dtype
 from ..types import Decomposition, OptimalityReport, PathPoint, handing_over
 from ._convex import SOLVERS, ConvexPCP, convex_bytes, largest_convex

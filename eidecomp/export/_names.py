@@ -14,7 +14,7 @@ import numpy as np
 from ..errors import InputError
 from ..names import NOT_XML_CHAR, xml_char_problem
 
-__all__ = ["NOT_XML_CHAR", "per_unit", "unit_id_list"]
+__all__ = ["NOT_XML_CHAR", "finite", "per_unit", "per_unit_xy", "unit_id_list"]
 
 def unit_id_list(unit_ids, n_units):
     """``unit_ids`` as a list of ``n_units`` str, or None; InputError naming
@@ -50,4 +50,26 @@ def per_unit(values, n_units, what):
     if arr.shape != (n_units,):
         raise InputError(f"{what} has shape {arr.shape}, expected ({n_units},) "
                          "(one value per excitatory unit)")
+    return finite(arr, what)
+
+
+def per_unit_xy(positions, n_units):
+    """``positions`` as a float64 (n_units, 2) array of finite x, y, or None."""
+    if positions is None:
+        return None
+    pos = np.asarray(positions, dtype=float)
+    if pos.shape != (n_units, 2):
+        raise InputError(f"positions have shape {pos.shape}, expected "
+                         f"({n_units}, 2) (x, y of each excitatory unit)")
+    return finite(pos, "positions")
+
+
+def finite(arr, what):
+    """``arr``, or InputError naming the first unit whose value is NaN or
+    Inf (no export writes one: JSON cannot, the others would mislead)."""
+    bad = np.flatnonzero(~np.isfinite(arr).reshape(len(arr), -1).all(axis=1))
+    if bad.size:
+        k = int(bad[0])
+        raise InputError(f"{what}: unit {k} has {arr[k].tolist()!r}, not a "
+                         "finite number")
     return arr

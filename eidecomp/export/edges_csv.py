@@ -5,8 +5,8 @@ Columns ``pre``, ``post`` (node names), ``pre_population``,
 ``weight`` (the nonnegative magnitude, Python's shortest round-trip decimal,
 so ``float()`` gives it back bit for bit), then ``pre_unit_id`` and
 ``post_unit_id`` when the units are named (the unit table's names; empty for
-interneurons), then ``pre_feature``, ``post_feature``, ``pre_x``, ``pre_y``,
-``post_x``, ``post_y`` for the node attributes the unit table gave (an
+interneurons), then ``pre_feature``, ``post_feature``, ``pre_x``, ``post_x``,
+``pre_y``, ``post_y`` for the node attributes the unit table gave (an
 interneuron's are its input pool's, :func:`eidecomp.analysis.pool_features`;
 an empty cell where a node has none). Written by Python's csv module: every
 text cell is wrapped in double quotes, a double quote inside it doubled (RFC
@@ -38,8 +38,7 @@ import csv
 import io
 
 from ..graph import POPULATION_COLUMNS, population_table
-from ..io.units import DEFAULT_PERIOD
-from ..params import TAU_E_MS, TAU_I_MS
+from ..params import DEFAULT_PERIOD, TAU_E_MS, TAU_I_MS
 from .graph_files import graph_of
 
 __all__ = ["FORMULA_TRIGGERS", "POPULATION_HEADER", "edge_csv_text",

@@ -12,14 +12,12 @@ refused (:func:`eidecomp.export._names.unit_id_list`).
 import json
 
 import networkx as nx
-import numpy as np
 
 from ..analysis.tuning import pool_features
 from ..errors import InputError
 from ..graph import neuron_graph
-from ..io.units import DEFAULT_PERIOD
-from ..params import TAU_E_MS, TAU_I_MS
-from ._names import NOT_XML_CHAR, per_unit, unit_id_list
+from ..params import DEFAULT_PERIOD, TAU_E_MS, TAU_I_MS
+from ._names import NOT_XML_CHAR, per_unit, per_unit_xy, unit_id_list
 
 __all__ = ["graph_of", "read_graphml", "read_json", "render_graphml",
            "render_json", "to_graphml_bytes", "to_json_bytes", "write_graphml",
@@ -35,18 +33,14 @@ def graph_of(circuit, *, features=None, positions=None, unit_ids=None,
     and weighted mean position (:func:`eidecomp.analysis.pool_features`)."""
     n = circuit.n_excitatory
     features = per_unit(features, n, "features")
-    x = y = pos = None
-    if positions is not None:
-        pos = np.asarray(positions, dtype=float)
-        if pos.shape != (n, 2):
-            raise InputError(f"positions have shape {pos.shape}, expected "
-                             f"({n}, 2) (x, y of each excitatory unit)")
-        x, y = pos[:, 0], pos[:, 1]
+    pos = per_unit_xy(positions, n)
+    x, y = (None, None) if pos is None else (pos[:, 0], pos[:, 1])
     pools = None
     if features is not None or pos is not None:
         pools = pool_features(circuit, features, pos, period)
     return neuron_graph(circuit, features=features, x=x, y=y,
-                        unit_ids=unit_id_list(unit_ids, n), interneurons=pools)
+                        unit_ids=unit_id_list(circuit.named(unit_ids), n),
+                        interneurons=pools)
 
 
 def _check_xml_text(G):
@@ -81,7 +75,8 @@ def to_json_bytes(G):
     with ``edges="links"``)."""
     data = nx.node_link_data(G, edges="edges")
     data["links"] = data["edges"]
-    return (json.dumps(data, indent=1, sort_keys=True) + "\n").encode()
+    return (json.dumps(data, indent=1, sort_keys=True, allow_nan=False)
+            + "\n").encode()
 
 
 def render_graphml(circuit, *, features=None, positions=None, unit_ids=None,

@@ -32,10 +32,9 @@ import json
 import numpy as np
 
 from ..analysis.tuning import pool_features
-from ..io.units import DEFAULT_PERIOD
-from ..params import TAU_E_MS, TAU_I_MS
+from ..params import DEFAULT_PERIOD, TAU_E_MS, TAU_I_MS
 from ..types import BLOCKS, EXCITATORY, POPULATION_NAMES, TUNED, UNTUNED
-from ._names import per_unit, unit_id_list
+from ._names import per_unit, per_unit_xy, unit_id_list
 
 __all__ = ["notes_values", "population_notes", "read_blocks",
            "render_neuroml", "to_document", "write_neuroml"]
@@ -98,9 +97,9 @@ def to_document(circuit, *, tau_e=TAU_E_MS, tau_i=TAU_I_MS,
     import neuroml
 
     n = circuit.n_excitatory
-    ids = unit_id_list(unit_ids, n)
+    ids = unit_id_list(circuit.named(unit_ids), n)
     features = per_unit(features, n, "features")
-    pos = None if positions is None else np.asarray(positions, float)
+    pos = per_unit_xy(positions, n)
     f_i, p_i = (pool_features(circuit, features, pos, period)
                 if features is not None or pos is not None else (None, None))
     Conn = _exact_connection_class()

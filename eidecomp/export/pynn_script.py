@@ -43,8 +43,7 @@ pushed below threshold are the spiking network's own.
 import numpy as np
 
 from ..graph import synapse_kind
-from ..io.units import DEFAULT_PERIOD
-from ..params import TAU_E_MS, TAU_I_MS
+from ..params import DEFAULT_PERIOD, TAU_E_MS, TAU_I_MS
 from ..types import BLOCKS
 from ._lists import drive_vector, npz_bytes, population_taus, write_into
 from ._names import unit_id_list
@@ -200,7 +199,7 @@ def pynn_files(circuit, h=None, *, tau_e=TAU_E_MS, tau_i=TAU_I_MS,
     string array, ``unit_ids``; the script's text never contains them."""
     if not bias_ratio > 1:
         raise ValueError(f"bias_ratio must exceed 1, got {bias_ratio!r}")
-    ids = unit_id_list(unit_ids, circuit.n_excitatory)
+    ids = unit_id_list(circuit.named(unit_ids), circuit.n_excitatory)
     h = np.zeros(circuit.n_excitatory) if h is None else h
     H = drive_vector(circuit, h)
     pops = circuit.populations

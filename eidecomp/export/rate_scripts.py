@@ -10,8 +10,7 @@ and brian2_builder do) and prints the final rates as JSON.
 
 import numpy as np
 
-from ..io.units import DEFAULT_PERIOD
-from ..params import TAU_E_MS, TAU_I_MS
+from ..params import DEFAULT_PERIOD, TAU_E_MS, TAU_I_MS
 from ._lists import connection_list, drive_vector, npz_bytes, tau_vector, write_into
 from ._names import unit_id_list
 
@@ -119,7 +118,7 @@ def rate_script_files(circuit, engine, h=None, *, tau_e=TAU_E_MS,
     string array, ``unit_ids``; the script's text never contains them."""
     if engine not in ENGINES:
         raise ValueError(f"unknown engine {engine!r}")
-    ids = unit_id_list(unit_ids, circuit.n_excitatory)
+    ids = unit_id_list(circuit.named(unit_ids), circuit.n_excitatory)
     h = np.zeros(circuit.n_excitatory) if h is None else h
     H = drive_vector(circuit, h)
     pre, post, w = connection_list(circuit)

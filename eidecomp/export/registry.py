@@ -140,9 +140,8 @@ def get_format(name):
 def render(name, circuit, **options):
     """Render ``circuit`` in format ``name``: bytes, or {file name: data}
     for a folder format. Refuses a format whose optional module is missing.
-    The circuit's own ``unit_ids`` are written unless ``unit_ids`` is given."""
+    Every renderer writes the circuit's own ``unit_ids`` unless ``unit_ids``
+    is given (:meth:`eidecomp.types.Circuit.named`)."""
     fmt = get_format(name)
     fmt.check_available()
-    if options.get("unit_ids") is None and circuit.unit_ids is not None:
-        options["unit_ids"] = circuit.unit_ids   # a labelled W's, by default
     return fmt.render(circuit, **options)

@@ -44,6 +44,7 @@ import numpy as np
 
 from .._version import __version__
 from ..errors import InputError
+from ..params import DEFAULT_PERIOD
 from ..types import (
     BLOCK_NAMES,
     EXCITATORY,
@@ -60,7 +61,6 @@ from .binary import npy_header, read_npy
 from .jsondoc import load_json, require
 from .matrices import file_checksum
 from .staging import check_output, file_bytes, staged_folder
-from .units import DEFAULT_PERIOD
 
 __all__ = [
     "CIRCUIT",

@@ -18,9 +18,10 @@ import numpy as np
 
 from ..errors import InputError
 from ..names import NOT_XML_CHAR
+from ..params import DEFAULT_PERIOD
 from .text import input_file, read_input_bytes, show_cell
 
-__all__ = ["DEFAULT_PERIOD", "MAX_FIELD", "POSITION_UNITS", "UnitTable",
+__all__ = ["MAX_FIELD", "POSITION_UNITS", "UnitTable",
            "read_unit_table", "read_units"]
 
 MAX_FIELD = 4096
@@ -139,7 +140,7 @@ def _unit_ids(path, body, j):
     return np.array(ids, dtype=str)
 
 
-def read_units(path, n_units, *, period=180.0):
+def read_units(path, n_units, *, period=DEFAULT_PERIOD):
     """A table of the excitatory units, one row per unit of W, in W's order.
 
     A CSV file with a header row. Columns: ``feature`` (the preferred
@@ -175,7 +176,6 @@ class UnitTable:
 
 
 POSITION_UNITS = ("um", "deg")
-DEFAULT_PERIOD = 180.0  # degrees: orientation (360 for direction)
 
 
 def _check_position_options(period, position_unit, magnification, has_table):
@@ -192,7 +192,7 @@ def _check_position_options(period, position_unit, magnification, has_table):
                          "(--position-unit deg)")
     if not has_table:
         for flag, set_ in (("--period", period != DEFAULT_PERIOD),
-                           ("--position-unit", position_unit != "um")):
+                           ("--position-unit", position_unit != POSITION_UNITS[0])):
             if set_:
                 raise InputError(f"{flag} applies to a unit table (--units)")
 
@@ -212,7 +212,8 @@ def _positions(path, table, position_unit, magnification):
     return np.column_stack([table["x"], table["y"]]) * scale
 
 
-def read_unit_table(path, n_units, *, period=DEFAULT_PERIOD, position_unit="um",
+def read_unit_table(path, n_units, *, period=DEFAULT_PERIOD,
+                    position_unit=POSITION_UNITS[0],
                     magnification=None):
     """:func:`read_units` with the position rule applied: x and y both or
     neither; positions in degrees of visual field become micrometres through
