@@ -645,11 +645,13 @@ def test_a_non_finite_feature_or_position_is_refused(fmt):
         require("neuroml")
     c = _hand_circuit()
     features = np.array([350.0, np.nan, 40.0, 200.0, 120.0, 300.0])
-    with pytest.raises(InputError, match="features: unit 1 has nan, not a finite number"):
+    with pytest.raises(InputError,
+                       match="features: unit 1 has nan, not a finite number"):
         render(fmt, c, features=features)
     pos = np.zeros((6, 2))
     pos[4, 1] = np.inf
-    with pytest.raises(InputError, match="positions: unit 4 has \\[0.0, inf\\], not a finite"):
+    with pytest.raises(InputError,
+                       match="positions: unit 4 has \\[0.0, inf\\], not a finite"):
         render(fmt, c, positions=pos)
 
 

@@ -83,6 +83,23 @@ def _cell(kind):
     return _EXC_CELL if kind == EXCITATORY else _INH_CELL
 
 
+def _population(pop, feats, where, names):
+    """The neuroml.Population of ``pop``: notes with its names and
+    features, instance locations when every unit has a position."""
+    import neuroml
+
+    population = neuroml.Population(id=pop.name, component=_cell(pop.kind),
+                                    size=pop.size)
+    if names is not None or feats is not None:
+        population.notes = population_notes(names, feats)
+    if where is not None and np.isfinite(where).all():
+        population.type = "populationList"
+        for k, (x, y) in enumerate(where):
+            population.instances.append(neuroml.Instance(
+                id=k, location=neuroml.Location(x=float(x), y=float(y), z=0.0)))
+    return population
+
+
 def to_document(circuit, *, tau_e=TAU_E_MS, tau_i=TAU_I_MS,
                 name="eidecomp_circuit", unit_ids=None, positions=None,
                 features=None, period=DEFAULT_PERIOD):
@@ -119,24 +136,13 @@ def to_document(circuit, *, tau_e=TAU_E_MS, tau_i=TAU_I_MS,
     for pop in circuit.populations:
         if not pop.size:
             continue
-        population = neuroml.Population(id=pop.name, component=_cell(pop.kind),
-                                        size=pop.size)
         if pop.kind == EXCITATORY:
-            feats, where, names = features, pos, ids
+            values = (features, pos, ids)
         else:
             part = slice(start[pop.kind], start[pop.kind] + pop.size)
-            feats = None if f_i is None else f_i[part]
-            where = None if p_i is None else p_i[part]
-            names = None
-        if names is not None or feats is not None:
-            population.notes = population_notes(names, feats)
-        if where is not None and np.isfinite(where).all():
-            population.type = "populationList"
-            for k, (x, y) in enumerate(where):
-                population.instances.append(neuroml.Instance(
-                    id=k, location=neuroml.Location(
-                        x=float(x), y=float(y), z=0.0)))
-        net.populations.append(population)
+            values = (None if f_i is None else f_i[part],
+                      None if p_i is None else p_i[part], None)
+        net.populations.append(_population(pop, *values))
     for b in BLOCKS:
         J = getattr(circuit, b.name)
         rows, cols = np.nonzero(J)
