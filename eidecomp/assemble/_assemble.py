@@ -105,6 +105,14 @@ def assembly_bytes(n, n_i):
     return int(arrays * n * n * 8) + 2 * n * n_i * (8 + 1)
 
 
+def _labelled(W_or_dec):
+    """(unit ids, the input as an array or Decomposition): a DataFrame's
+    index, a decomposition's ids; scipy.sparse densified."""
+    if isinstance(W_or_dec, Decomposition):
+        return W_or_dec.unit_ids, W_or_dec
+    return unit_labels(W_or_dec, square=True), dense_input(W_or_dec)
+
+
 def _split(W_or_dec, seed, decompose_kwargs):
     """(W, L, S, dec, own): W is the array given, or L + S of a decomposition
     (then a new array, ``own``, which the caller may change in place)."""
@@ -446,11 +454,7 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha
     True
     """
     ratio = EIRatio.parse(ei_ratio)
-    if isinstance(W_or_dec, Decomposition):
-        ids = W_or_dec.unit_ids
-    else:                                         # scipy.sparse: densified
-        ids = unit_labels(W_or_dec, square=True)  # a DataFrame's index
-        W_or_dec = dense_input(W_or_dec)
+    ids, W_or_dec = _labelled(W_or_dec)
     W, L, S, dec, own = _split(W_or_dec, seed, decompose_kwargs)
     if W.ndim != 2 or W.shape[0] != W.shape[1]:
         raise InputError(f"W must be square to build a circuit, got {W.shape}")
