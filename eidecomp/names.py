@@ -13,7 +13,7 @@ import re
 
 from .errors import InputError
 
-__all__ = ["NOT_XML_CHAR", "unit_labels", "xml_char_problem"]
+__all__ = ["NOT_XML_CHAR", "check_writable", "unit_labels", "xml_char_problem"]
 
 NOT_XML_CHAR = re.compile("[^\t\n\r\x20-\ud7ff\ue000-\ufffd\U00010000-\U0010ffff]")
 """A character that XML 1.0 cannot hold (W3C XML 1.0, 2.2, production [2])."""
@@ -28,6 +28,16 @@ def xml_char_problem(name):
     """
     bad = NOT_XML_CHAR.search(name)
     return None if bad is None else f"U+{ord(bad.group()):04X}"
+
+
+def check_writable(names, where=""):
+    """InputError naming the first of ``names`` (unit ids, in order) that
+    XML 1.0 cannot hold; ``where`` prefixes the message."""
+    for k, name in enumerate(names):
+        bad = xml_char_problem(name)
+        if bad:
+            raise InputError(f"{where}unit {k} ({name!r}): {bad} cannot be "
+                             "written (XML 1.0 cannot hold it)")
 
 
 def unit_labels(W, name="W", *, square=False):
@@ -62,8 +72,5 @@ def unit_labels(W, name="W", *, square=False):
             raise InputError(f"{name}: units {seen[label]} and {k} have the "
                              f"same label {label!r}; unit ids must be unique")
         seen[label] = k
-        bad = xml_char_problem(label)
-        if bad:
-            raise InputError(f"{name}: unit {k} ({label!r}): {bad} cannot be "
-                             "written (XML 1.0 cannot hold it)")
+    check_writable(rows, f"{name}: ")
     return tuple(rows)

@@ -497,7 +497,7 @@ def run_export(bundle, fmt, output, *, force=False, tau_e=TAU_E_MS,
     """
     from .export import get_format, render
     from .io import write_file, write_folder
-    from .io.staging import check_output, holding
+    from .io.staging import check_output, holding, holding_only
 
     spec = get_format(fmt)
     given = {"tau_e": tau_e != TAU_E_MS, "tau_i": tau_i != TAU_I_MS,
@@ -526,11 +526,8 @@ def run_export(bundle, fmt, output, *, force=False, tau_e=TAU_E_MS,
         return write_file(output, data, force=force, replaceable=keep,
                           inputs=(bundle,))
 
-    def replaceable(folder):  # an earlier export of this format, nothing else
-        if all(p.is_file() and p.name in data for p in Path(folder).iterdir()):
-            return None
-        return f"a folder that is not a {fmt} export"
-
+    replaceable = holding_only(lambda p: p.name in data,
+                               f"a folder that is not a {fmt} export")
     return write_folder(output, data, force=force, replaceable=replaceable,
                         inputs=(bundle,))
 
@@ -617,7 +614,7 @@ def run_report(bundle, output, *, force=False, progress=None):
     (report.html: report-figures/); returns the page's path."""
     from .analysis.report import REPORT_TITLE, render_report_files, report_lam_path
     from .io import write_file, write_folder
-    from .io.staging import check_output, holding
+    from .io.staging import check_output, holding, holding_only
 
     bundles.expect_kind(bundle, CIRCUIT)  # a wrong input is named first
     keep = holding((REPORT_TITLE.encode(),), "report")
@@ -625,11 +622,8 @@ def run_report(bundle, output, *, force=False, progress=None):
                        inputs=(bundle,))
     figures = report_figures_folder(out)
 
-    def keep_figures(folder):  # an earlier report's figures, nothing else
-        if all(p.is_file() and p.suffix == ".svg" and keep(p) is None
-               for p in Path(folder).iterdir()):
-            return None
-        return "not the figures of an eidecomp report"
+    keep_figures = holding_only(lambda p: p.suffix == ".svg" and keep(p) is None,
+                                "not the figures of an eidecomp report")
 
     try:
         check_output(figures, force=force, replaceable=keep_figures,

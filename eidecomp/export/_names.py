@@ -12,7 +12,7 @@ cannot carry it, and a numpy string array drops a trailing NUL.
 import numpy as np
 
 from ..errors import InputError
-from ..names import NOT_XML_CHAR, xml_char_problem
+from ..names import NOT_XML_CHAR, check_writable
 
 __all__ = ["NOT_XML_CHAR", "finite", "per_unit", "per_unit_xy", "unit_id_list"]
 
@@ -34,11 +34,7 @@ def unit_id_list(unit_ids, n_units):
     if len(ids) != n_units:
         raise InputError(f"{len(ids)} unit ids for a circuit of {n_units} "
                          "excitatory units")
-    for k, name in enumerate(ids):
-        bad = xml_char_problem(name)
-        if bad:
-            raise InputError(f"unit {k} ({name!r}): {bad} cannot be written "
-                             "(XML 1.0 cannot hold it)")
+    check_writable(ids)
     return ids
 
 

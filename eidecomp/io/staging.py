@@ -35,6 +35,7 @@ from ..errors import InputError, WriteError
 
 __all__ = ["HEAD_BYTES", "TERMINATING_SIGNALS", "Terminated", "any_file",
            "check_output", "file_bytes", "handle_termination", "holding",
+           "holding_only",
            "npy_bytes", "staged_folder", "write_file", "write_folder"]
 
 #: Signals that stop a run like SIGINT: ``kill``'s default, and a closed terminal.
@@ -334,6 +335,17 @@ def holding(markers, what):
         if any(m in head for m in markers):
             return None
         return f"not an eidecomp {what}"
+    return rule
+
+
+def holding_only(accept, why):
+    """The ``replaceable`` rule of a folder output: a folder whose every
+    entry is a regular file that ``accept(path)`` takes (an earlier output
+    of the same kind); otherwise ``why``, the reason it is kept."""
+    def rule(folder):
+        if all(p.is_file() and accept(p) for p in Path(folder).iterdir()):
+            return None
+        return why
     return rule
 
 
