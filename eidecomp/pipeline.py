@@ -613,8 +613,8 @@ def run_report(bundle, output, *, force=False, progress=None):
     figures as SVG files in the folder beside it named after it
     (report.html: report-figures/); returns the page's path."""
     from .analysis.report import REPORT_TITLE, render_report_files, report_lam_path
-    from .io import write_file, write_folder
-    from .io.staging import check_output, holding, holding_only
+    from .io import staged_folder, write_file
+    from .io.staging import check_output, fill_folder, holding, holding_only
 
     bundles.expect_kind(bundle, CIRCUIT)  # a wrong input is named first
     keep = holding((REPORT_TITLE.encode(),), "report")
@@ -641,10 +641,14 @@ def run_report(bundle, output, *, force=False, progress=None):
         progress=progress, link=f"{figures.name}/")
     if progress is not None:
         progress("report: writing", 0, float("nan"))
-    write_folder(figures, svgs, force=force, replaceable=keep_figures,
-                 inputs=(bundle,))
-    return write_file(out, page.encode("utf-8"), force=force, replaceable=keep,
-                      inputs=(bundle,))
+    # the page is written while the new figures wait under a temporary name:
+    # a failed write of either leaves the old page and figures as they were
+    # (only the folder's own rename comes after the page's)
+    with staged_folder(figures, force=force, replaceable=keep_figures,
+                       inputs=(bundle,)) as staged:
+        fill_folder(staged, svgs)
+        return write_file(out, page.encode("utf-8"), force=force,
+                          replaceable=keep, inputs=(bundle,))
 
 
 def report_figures_folder(page):

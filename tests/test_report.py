@@ -132,6 +132,31 @@ def test_report_keeps_a_folder_that_is_not_its_figures(bundle, tmp_path, capsys)
     assert (tmp_path / "r-figures" / "notes.txt").read_text() == "mine"
 
 
+def test_a_failed_page_write_leaves_the_old_figures_beside_the_old_page(
+        bundle, tmp_path, monkeypatch, capsys):
+    # the page and its figures folder are one output: when the page cannot be
+    # written (here a full disk, simulated), the folder is not replaced either
+    import eidecomp.io
+    from eidecomp.errors import WriteError
+
+    out = tmp_path / "r.html"
+    assert main(["report", str(bundle), "-o", str(out), "-q"]) == 0
+    old_page = out.read_bytes()
+    svg = sorted((tmp_path / "r-figures").iterdir())[0]
+    svg.write_bytes(svg.read_bytes() + b"<!-- the earlier run -->")
+    old_figures = {p.name: p.read_bytes() for p in svg.parent.iterdir()}
+
+    def full_disk(path, *args, **kwargs):
+        raise WriteError(f"{path}: cannot write (No space left on device)")
+
+    monkeypatch.setattr(eidecomp.io, "write_file", full_disk)
+    assert main(["report", str(bundle), "-o", str(out), "-q", "--force"]) == 1
+    assert "No space left" in capsys.readouterr().err
+    assert out.read_bytes() == old_page
+    assert {p.name: p.read_bytes() for p in svg.parent.iterdir()} == old_figures
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["r-figures", "r.html"]
+
+
 def test_demo_runs_and_its_report_renders(tmp_path):
     out = tmp_path / "demo"
     assert main(["demo", "-o", str(out), "-q"]) == 0

@@ -34,8 +34,8 @@ import numpy as np
 from ..errors import InputError, WriteError
 
 __all__ = ["HEAD_BYTES", "TERMINATING_SIGNALS", "Terminated", "any_file",
-           "check_output", "file_bytes", "handle_termination", "holding",
-           "holding_only",
+           "check_output", "file_bytes", "fill_folder", "handle_termination",
+           "holding", "holding_only",
            "npy_bytes", "staged_folder", "write_file", "write_folder"]
 
 #: Signals that stop a run like SIGINT: ``kill``'s default, and a closed terminal.
@@ -571,6 +571,13 @@ def write_folder(out, files, *, force=False, replaceable=None, inputs=()):
     """
     with staged_folder(out, force=force, replaceable=replaceable,
                        inputs=inputs) as tmp:
-        for name, value in files.items():
-            _write_bytes(tmp / name, file_bytes(value))
+        fill_folder(tmp, files)
     return Path(out)
+
+
+def fill_folder(folder, files):
+    """Write ``files`` (as in :func:`write_folder`) into an existing folder,
+    typically the temporary one of :func:`staged_folder`, each flushed to
+    disk."""
+    for name, value in files.items():
+        _write_bytes(Path(folder) / name, file_bytes(value))
