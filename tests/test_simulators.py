@@ -253,8 +253,10 @@ def test_pynn_spiking_rates_follow_the_rate_model(circuit, tmp_path, simulator):
     # the spiking export on PyNN's two backends, two seeded drives: the E
     # units' rate changes against the rate model's linear response,
     # rate_per_drive (I - W_full)^-1 dH (numpy). With the background the
-    # units do not phase-lock, and the changes follow the prediction in
-    # shape and in size (benchmarks/spiking.py: r 0.998 on planted circuits)
+    # units do not phase-lock, and with the synapse the slowest filter the
+    # changes follow the prediction in shape and in size, and the mean rates
+    # the operating point (benchmarks/spiking.py: r >= 0.99 on the demo and
+    # planted circuits)
     require("pyNN")
     require(simulator)
     import json
@@ -263,7 +265,14 @@ def test_pynn_spiking_rates_follow_the_rate_model(circuit, tmp_path, simulator):
     import sys
 
     from eidecomp.dynamics import random_drive
-    from eidecomp.export.pynn_script import RATE_PER_DRIVE_HZ, write_pynn
+    from eidecomp.export._lists import population_taus
+    from eidecomp.export.pynn_script import (
+        BIAS_RATIO,
+        RATE_PER_DRIVE_HZ,
+        rate_hz,
+        rheobase_nA,
+        write_pynn,
+    )
 
     c, _, W_full, _ = circuit
     rates = []
@@ -279,6 +288,18 @@ def test_pynn_spiking_rates_follow_the_rate_model(circuit, tmp_path, simulator):
         out = json.loads(run.stdout.strip().splitlines()[-1])
         assert all(n > 0 for n in out["spikes"].values()), out
         rates.append(np.array(out["rates_hz"]["E"]))
+        # each population's mean rate: r0 (its operating point) plus the
+        # linear response to the drive
+        taus = population_taus(c)
+        r0 = rate_hz(BIAS_RATIO * rheobase_nA(taus), taus)
+        response = RATE_PER_DRIVE_HZ * np.linalg.solve(
+            np.eye(W_full.shape[0]) - W_full, np.r_[h, np.zeros(c.n_inhibitory)])
+        start = 0
+        for p, base in zip(c.populations, r0, strict=True):
+            predicted = base + response[start:start + p.size].mean()
+            start += p.size
+            assert np.mean(out["rates_hz"][p.name]) == pytest.approx(
+                predicted, rel=0.05), p.name
     dh = random_drive(c.n_excitatory, 1)[0] - random_drive(c.n_excitatory, 0)[0]
     n_i = c.n_inhibitory
     predicted = RATE_PER_DRIVE_HZ * np.linalg.solve(
@@ -319,7 +340,7 @@ def test_pynn_background_current_has_the_stated_sd(tau_m):
     meter = nest.Create("multimeter", params={
         "record_from": ["I_syn_ex", "I_syn_in"], "interval": 0.5})
     nest.Connect(meter, unit)
-    nest.Simulate(20000.0)
+    nest.Simulate(60000.0)
     ev = meter.get("events")
     keep = ev["times"] > 50.0                       # past the start
     current = (ev["I_syn_ex"] + ev["I_syn_in"])[keep] * 1e-3   # nA
