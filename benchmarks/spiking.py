@@ -16,7 +16,9 @@ The table gives, per circuit and simulator, the predicted and measured mean
 rate of each population, the number of units that never fired, and the
 Pearson correlation of the measured E rate changes with the rate model's
 prediction, beside their correlation with the drive change alone (the
-feed-forward part: how much the recurrent prediction adds).
+feed-forward part: how much the recurrent prediction adds), and the slope
+of the measured changes regressed on the predicted ones (1 when their size
+matches too).
 
 Targets (issue 16): every population fires; r >= 0.8 on the demo circuit and
 on a planted one, on both simulators.
@@ -123,21 +125,23 @@ def main():
                 dr = np.array(rb["E"]) - np.array(ra["E"])
                 r = float(np.corrcoef(dr, change)[0, 1])
                 r_ff = float(np.corrcoef(dr, h_b - h_a)[0, 1])
+                slope = float(np.polyfit(change, dr, 1)[0])
                 silent = {p: int(sum(x == 0 for x in v)) for p, v in ra.items()}
                 fires = all(np.mean(v) > 0 for v in ra.values())
                 ok &= fires and r >= TARGET_R
-                rows.append((cname, sim, means, ra, silent, r, r_ff, ta + tb))
+                rows.append((cname, sim, means, ra, silent, r, r_ff, slope,
+                             ta + tb))
                 print(f"{cname:12} {sim:7} r = {r:.3f} (drive alone {r_ff:.3f}), "
-                      f"{ta + tb:.0f} s", flush=True)
+                      f"slope {slope:.2f}, {ta + tb:.0f} s", flush=True)
     print(f"\nt_stop {args.t_stop:g} ms per run; rates in Hz, predicted | "
           "measured (silent units)")
     print(f"{'circuit':12} {'sim':7} {'E':>19} {'I_untuned':>19} "
-          f"{'I_tuned':>19} {'r':>6} {'r drive':>7} {'s':>5}")
-    for cname, sim, means, ra, silent, r, r_ff, secs in rows:
+          f"{'I_tuned':>19} {'r':>6} {'r drive':>7} {'slope':>6} {'s':>5}")
+    for cname, sim, means, ra, silent, r, r_ff, slope, secs in rows:
         cells = [f"{means[p]:6.1f} | {np.mean(ra[p]):6.1f} ({silent[p]})"
                  if p in ra else "-" for p in ("E", "I_untuned", "I_tuned")]
         print(f"{cname:12} {sim:7} {cells[0]:>19} {cells[1]:>19} "
-              f"{cells[2]:>19} {r:6.3f} {r_ff:7.3f} {secs:5.0f}")
+              f"{cells[2]:>19} {r:6.3f} {r_ff:7.3f} {slope:6.2f} {secs:5.0f}")
     print(f"\n{'PASS' if ok else 'FAIL'}  every population fires and r >= "
           f"{TARGET_R} on every circuit and simulator")
 
