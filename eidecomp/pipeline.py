@@ -27,6 +27,7 @@ from .io.bundles import (
     check_bundle_output,
 )
 from .params import DEFAULT_EI_RATIO, DEFAULT_PERIOD, TAU_E_MS, TAU_I_MS, EIRatio
+from .progress import announcer
 
 __all__ = [
     "DECOMPOSE_ENGINES",
@@ -384,10 +385,7 @@ def _assemble_dense(config, out, progress, stage_progress, extra_files):
     circuit = assemble(dec, ei_ratio=ratio, untuned_share=config.untuned_share,
                        alpha=config.alpha, seed=config.seed,
                        progress=stage_progress)
-    def tell(stage):
-        if stage_progress is not None:
-            stage_progress(stage, 0, float("nan"))
-
+    tell = announcer(stage_progress)
     pools = interneuron_pools(circuit, units.features, config.period)
     tell("stability")
     stability = dynamics.stability_summary(circuit, W)
@@ -633,14 +631,13 @@ def run_report(bundle, output, *, force=False, progress=None):
                          f"beside {out.name})") from None
     b = bundles.read_circuit_bundle(bundle)
     W = b.original_weights()
-    if progress is not None:
-        progress("report: lambda path", 0, float("nan"))
+    tell = announcer(progress)
+    tell("report: lambda path")
     page, svgs = render_report_files(
         b.circuit, b.doc, W, low_rank=b.low_rank, features=b.features,
         positions=b.positions, path_points=report_lam_path(W),
         progress=progress, link=f"{figures.name}/")
-    if progress is not None:
-        progress("report: writing", 0, float("nan"))
+    tell("report: writing")
     # the page is written while the new figures wait under a temporary name:
     # a failed write of either leaves the old page and figures as they were
     # (only the folder's own rename comes after the page's)

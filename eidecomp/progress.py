@@ -20,11 +20,28 @@ import sys
 import threading
 import time
 
-__all__ = ["FIRST_AFTER", "LIVE_EVERY", "LOG_EVERY", "Progress"]
+__all__ = ["FIRST_AFTER", "LIVE_EVERY", "LOG_EVERY", "Progress", "announcer"]
 
 FIRST_AFTER = 1.0   # seconds of work before the first line
 LIVE_EVERY = 0.5    # seconds between rewrites of the live line (a terminal)
 LOG_EVERY = 3.0     # seconds between plain lines (not a terminal)
+
+
+def announcer(progress):
+    """The function that announces a stage by name to a stage callback
+    (``progress(stage, step, objective)``, e.g. :meth:`Progress.stage`) as
+    its start (step 0, no objective); it does nothing when ``progress`` is
+    None.
+
+    >>> seen = []
+    >>> announcer(lambda *args: seen.append(args))("stability")
+    >>> seen
+    [('stability', 0, nan)]
+    >>> announcer(None)("stability")
+    """
+    if progress is None:
+        return lambda stage: None
+    return lambda stage: progress(stage, 0, math.nan)
 
 
 class Progress:

@@ -20,6 +20,7 @@ import numpy as np
 
 from ..errors import ConvergenceWarning
 from ..params import DEFAULT_PERIOD
+from ..progress import announcer
 from ..types import TUNED, UNTUNED
 from . import plotting
 from .rules import circuit_rules
@@ -434,10 +435,7 @@ def render_report_files(circuit, meta, W, *, low_rank=None, features=None,
 
 def _render(circuit, meta, W, low_rank, features, positions, path_points,
             progress, svg=False, link=""):
-    def tell(stage):
-        if progress is not None:
-            progress(stage, 0, float("nan"))
-
+    tell = announcer(progress)
     tell("report: connection profiles")
     period = float(meta.get("parameters", {}).get("period", DEFAULT_PERIOD))
     rules = circuit_rules(circuit, W, features=features, positions=positions,

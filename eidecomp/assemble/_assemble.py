@@ -33,6 +33,7 @@ from ..errors import InputError, warn_stopped
 from ..limits import check_fits, dense_input
 from ..names import unit_labels
 from ..params import CONNECTION_RTOL, DEFAULT_EI_RATIO, EIRatio
+from ..progress import announcer
 from ..types import (
     AssemblyReport,
     BaselineResult,
@@ -483,10 +484,7 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha
                                   bool((S < 0).any()))
     start = 1e-3 if scale > 0 else 0.0  # of empty factor columns
 
-    def tell(stage):
-        if progress is not None:
-            progress(stage, 0, float("nan"))
-
+    tell = announcer(progress)
     A, B, mask_a, mask_b, first_starts = _first_factorisations(
         L, S, unit, n_u, n_t, start, seed, max_iter, tell)
     A = np.asfortranarray(A)   # the sweeps update A by columns

@@ -23,6 +23,7 @@ from ..limits import (
 )
 from ..names import unit_labels
 from ..params import MAX_ITER, SolverSettings, check_lam, default_lam, resolve_dtype
+from ..progress import announcer
 from ..types import Decomposition, OptimalityReport, PathPoint, handing_over
 from ._convex import SOLVERS, ConvexPCP, convex_bytes, largest_convex
 from ._ialm import ialm
@@ -456,12 +457,11 @@ def lambda_path(W, lams=None, *, n_lams=12, mask=None, ignore_diagonal=False,
     if not lams:
         raise InputError("lambda_path needs at least one lam")
     points, decs, state = [], [], None
+    tell = announcer(progress)
     start = time.perf_counter()
     for i, lam in enumerate(lams):
-        if progress is not None:
-            progress(f"lambda path: lam {i + 1} of {len(lams)} = {lam:.3g} "
-                     f"({time.perf_counter() - start:.0f} s so far)", 0,
-                     float("nan"))
+        tell(f"lambda path: lam {i + 1} of {len(lams)} = {lam:.3g} "
+             f"({time.perf_counter() - start:.0f} s so far)")
         t = time.perf_counter()
         with blas_threads(W.shape):
             dec, state = _ialm_decomposition(W, lam, observed, tol=tol,
