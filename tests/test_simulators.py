@@ -42,25 +42,6 @@ def test_nest_rate_reaches_fixed_point(circuit, tau_i):
     np.testing.assert_array_equal(nest_builder.read_weights(nodes), W_full)
 
 
-def test_nest_spiking_variant_spikes(circuit):
-    nest = require("nest")
-    from eidecomp.export import nest_builder
-
-    c, h, W_full, _ = circuit
-    pops = nest_builder.build_spiking(c, h)
-    rec = nest.Create("spike_recorder")
-    for p in pops.values():
-        nest.Connect(p, rec)
-    nest.Simulate(500.0)
-    senders = set(rec.get("events")["senders"].tolist())
-    for name, p in pops.items():
-        assert senders & set(p.tolist()), f"no spikes from {name}"
-    # the spiking network holds the same synapses, scaled
-    units = pops["E"] + pops["I_untuned"] + pops["I_tuned"]
-    conns = nest.GetConnections(source=units, target=units)
-    assert len(conns) == np.count_nonzero(W_full)
-
-
 @pytest.mark.parametrize("tau_i", [5.0, 10.0])
 def test_brian2_rate_reaches_fixed_point(circuit, tau_i):
     require("brian2")

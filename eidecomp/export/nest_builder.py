@@ -19,9 +19,9 @@ import os
 import numpy as np
 
 from ..params import TAU_E_MS, TAU_I_MS
-from ._lists import connection_list, drive_vector, tau_vector
+from ._lists import drive_vector, tau_vector
 
-__all__ = ["build_rate", "build_rate_matrix", "build_spiking", "read_weights",
+__all__ = ["build_rate", "build_rate_matrix", "read_weights",
            "run_rate", "run_rate_matrix"]
 
 
@@ -97,27 +97,3 @@ def read_weights(nodes):
         tgt = np.atleast_1d(np.asarray(d["target"])) - first
         W[tgt, src] = np.atleast_1d(d["weight"])
     return W
-
-
-def build_spiking(circuit, h, *, pA_per_weight=20.0, pA_per_drive=200.0,
-                  bias_pA=400.0, delay_ms=1.0, resolution=0.1):
-    """Create the spiking variant; returns {population: NodeCollection}.
-
-    The default bias (400 pA) sits just above the rheobase of NEST's default
-    iaf_psc_exp (15 mV x 250 pF / 10 ms = 375 pA), so every unit fires
-    tonically and the synapses modulate its rate.
-    """
-    nest = _nest()
-    nest.resolution = resolution
-    H = drive_vector(circuit, h)
-    nodes = nest.Create("iaf_psc_exp", H.size)
-    nodes.set(I_e=(bias_pA + pA_per_drive * H).tolist())
-    pre, post, w = connection_list(circuit)
-    ids = np.asarray(nodes.tolist())
-    if len(w):
-        nest.Connect(ids[pre], ids[post], conn_spec="one_to_one",
-                     syn_spec={"synapse_model": "static_synapse",
-                               "weight": pA_per_weight * w,
-                               "delay": np.full(len(w), float(delay_ms))})
-    return {name: nodes[s] for name, s in circuit.slices().items()
-            if s.stop > s.start}
