@@ -37,8 +37,9 @@ from scipy.integrate import solve_ivp
 
 from .errors import InputError
 
-__all__ = ["DENSE_MAX_UNITS", "METHODS", "MODELS", "circuit_abscissa",
-           "compare_with_original", "effective_from_full", "fixed_point",
+__all__ = ["DENSE_MAX_UNITS", "DIVERGED", "MAX_EVALUATIONS", "METHODS", "MODELS",
+           "circuit_abscissa", "compare_with_original", "effective_from_full",
+           "fixed_point",
            "full_matrix", "jacobian", "jacobian_operator", "largest_stable_gain",
            "max_stable_tau_ratio", "random_drive", "scaled_circuit", "simulate",
            "spectral_abscissa", "stability_summary"]
@@ -377,8 +378,13 @@ def circuit_abscissa(circuit, *, tau_e=1.0, tau_i=1.0, method="auto", seed=0):
     return _abscissa(op, method, seed)
 
 
+DIVERGED = 1e100  # rates beyond this magnitude end a run: it has diverged
+MAX_EVALUATIONS = 1_000_000  # right-hand sides one run may evaluate
+
+
 def simulate(W_full, h, *, n_e=None, tau_e=1.0, tau_i=1.0, t_max=None,
-             nonlinearity="linear", r0=None, rtol=1e-10, atol=1e-12):
+             nonlinearity="linear", r0=None, rtol=1e-10, atol=1e-12,
+             t_eval=None, max_evaluations=MAX_EVALUATIONS):
     """Integrate tau dr/dt = -r + f(W_full r + H) with solve_ivp (LSODA).
 
     Parameters
@@ -395,10 +401,20 @@ def simulate(W_full, h, *, n_e=None, tau_e=1.0, tau_i=1.0, t_max=None,
         the linearisation (rates within e^-40 of the fixed point).
     nonlinearity : "linear" or "relu"
         f for the E units; interneurons are always linear.
+    t_eval : sequence of float or None
+        Times to return; None returns every step the integrator took
+        (memory grows with the steps: callers that need the end state pass
+        ``(t_max,)``).
+    max_evaluations : int
+        A run that needs more evaluations of the right-hand side (a circuit
+        whose rates never settle makes LSODA's steps collapse) stops with
+        an InputError saying so, rather than running on for hours.
 
     Returns
     -------
     t : ndarray, r : ndarray (n, len(t))
+        A run whose rates pass :data:`DIVERGED` in magnitude stops there;
+        its last column is then that state.
     """
     W_full = np.asarray(W_full, dtype=float)
     n = W_full.shape[0]
@@ -416,7 +432,15 @@ def simulate(W_full, h, *, n_e=None, tau_e=1.0, tau_i=1.0, t_max=None,
                              f"abscissa {a:.3g}); give t_max explicitly")
         t_max = 40.0 / -a
 
-    def rhs(_, r):
+    count = [0]
+
+    def rhs(t, r):
+        count[0] += 1
+        if count[0] > max_evaluations:
+            raise InputError(
+                f"the rates had not settled at {t:.4g} of {t_max:g} time units "
+                f"after {max_evaluations:,} steps of the integrator (an "
+                f"unstable circuit); lower --gain or --duration")
         drive = W_full @ r + H
         if relu:
             drive[:n_e] = np.maximum(drive[:n_e], 0.0)
@@ -424,10 +448,18 @@ def simulate(W_full, h, *, n_e=None, tau_e=1.0, tau_i=1.0, t_max=None,
 
     r0 = np.zeros(n) if r0 is None else np.asarray(r0, float)
     J = (W_full - np.eye(n)) / tau[:, None]
+    def diverged(_, r):
+        return DIVERGED - np.max(np.abs(r))
+
+    diverged.terminal = True
     sol = solve_ivp(rhs, (0.0, t_max), r0, method="LSODA", rtol=rtol, atol=atol,
-                    jac=None if relu else (lambda _, __: J))
+                    jac=None if relu else (lambda _, __: J), events=diverged,
+                    t_eval=t_eval)
     if not sol.success:
         raise RuntimeError(f"solve_ivp failed: {sol.message}")
+    if sol.status == 1:               # the divergence event ended the run
+        return (np.r_[sol.t, sol.t_events[0]],
+                np.hstack([np.reshape(sol.y, (n, -1)), sol.y_events[0].T]))
     return sol.t, sol.y
 
 
@@ -582,11 +614,12 @@ def _bounded_run(circuit, W, h, tau_e, tau_i, t_ms):
     n_e, W_full = circuit.n_excitatory, circuit.signed_weights()
     H = np.r_[h, np.zeros(circuit.n_inhibitory)]
     _, r = simulate(W_full, h, n_e=n_e, tau_e=tau_e, tau_i=tau_i, t_max=t_ms,
-                    nonlinearity="relu")
-    _, r0 = simulate(W, h, tau_e=tau_e, t_max=t_ms, nonlinearity="relu")
+                    nonlinearity="relu", t_eval=(t_ms,))
+    _, r0 = simulate(W, h, tau_e=tau_e, t_max=t_ms, nonlinearity="relu",
+                     t_eval=(t_ms,))
     rates, orig = r[:, -1], r0[:, -1]
-    if not (np.isfinite(rates).all() and np.isfinite(orig).all()):
-        raise InputError(f"the rates grew beyond floating point range within "
+    if not (np.abs(rates).max() < DIVERGED and np.abs(orig).max() < DIVERGED):
+        raise InputError(f"the rates diverged (past {DIVERGED:.0e}) within "
                          f"{t_ms:g} ms; lower --gain or --duration")
     tau = _taus(len(H), n_e, tau_e, tau_i)
     return {"circuit_vs_original": _relative(rates[:n_e], orig),
@@ -600,8 +633,9 @@ def _linear_run(circuit, W, h, tau_e, tau_i, t_ms, run):
     """Linear runs of both networks against the fixed points of W_eff, W."""
     n_e, W_full = circuit.n_excitatory, circuit.signed_weights()
     if run is None:
-        _, r = simulate(W_full, h, n_e=n_e, tau_e=tau_e, tau_i=tau_i, t_max=t_ms)
-        _, r0 = simulate(W, h, tau_e=tau_e, t_max=t_ms)
+        _, r = simulate(W_full, h, n_e=n_e, tau_e=tau_e, tau_i=tau_i, t_max=t_ms,
+                        t_eval=(t_ms,))
+        _, r0 = simulate(W, h, tau_e=tau_e, t_max=t_ms, t_eval=(t_ms,))
         rates, orig = r[:, -1], r0[:, -1]
     else:
         tau = _taus(W_full.shape[0], n_e, tau_e, tau_i)

@@ -100,3 +100,33 @@ def test_stability_limit_agrees_with_simulation(ratio, grows):
     late, early = np.abs(r[:, -1]).max(), 1e-3
     assert (late > 10 * early) == grows
     assert (late < 0.1 * early) == (not grows)
+
+
+def test_simulate_keeps_only_the_asked_times_and_bounds_its_work():
+    # reference: the fixed point (I - W)^-1 h by numpy.linalg.solve. A run
+    # asked for its end state returns one column (its memory does not grow
+    # with the integrator's steps), and a run that would need more steps
+    # than max_evaluations stops with one clear error instead of running on
+    from eidecomp.dynamics import simulate
+    from eidecomp.errors import InputError
+
+    rng = np.random.default_rng(4)
+    W = 0.3 * rng.standard_normal((20, 20)) / np.sqrt(20)
+    h = rng.uniform(0.5, 1.5, 20)
+    t, r = simulate(W, h, t_max=60.0, t_eval=(60.0,))
+    assert t.shape == (1,) and r.shape == (20, 1)
+    np.testing.assert_allclose(r[:, 0], np.linalg.solve(np.eye(20) - W, h),
+                               rtol=1e-8)
+    with pytest.raises(InputError, match="had not settled .* after 50 steps"):
+        simulate(W, h, t_max=60.0, t_eval=(60.0,), max_evaluations=50)
+
+
+def test_a_diverging_run_stops_at_the_bound():
+    # dr/dt = -r + 2 r + 1 grows as e^t: the run ends where |r| passes
+    # DIVERGED (about t = ln(1e100) = 230), long before t_max
+    from eidecomp.dynamics import DIVERGED, simulate
+
+    t, r = simulate(np.array([[2.0]]), np.array([1.0]), t_max=1e6,
+                    t_eval=(1e6,))
+    assert abs(r[0, -1]) >= DIVERGED * (1 - 1e-6)
+    assert t[-1] == pytest.approx(np.log(DIVERGED), rel=1e-3)
