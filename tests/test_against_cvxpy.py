@@ -242,3 +242,26 @@ def test_convex_program_too_large_is_refused_at_once(tmp_path, capsys):
     assert "fits up to" in err and "SCS up to" in err and "ialm" in err
     assert not (tmp_path / "out").exists()
     assert took < 5.0     # a bound for a loaded CI machine; measured 0.3 ms
+
+
+@pytest.mark.filterwarnings("ignore:Solution may be inaccurate:UserWarning")
+def test_a_fallback_solver_that_would_not_fit_is_not_tried(monkeypatch):
+    # reference: cvxpy/SCS stopped after 2 iterations ends without an optimal
+    # status; the fallback (Clarabel) is then checked against the memory
+    # available (here made to look tiny) instead of being started blind
+    import eidecomp.decompose._convex as convex
+    from eidecomp.errors import SolverError
+
+    W = np.random.default_rng(0).standard_normal((120, 120))
+    problem = convex.ConvexPCP(W)
+    monkeypatch.setattr(convex, "available_memory", lambda: 1)
+    with pytest.raises(SolverError, match="CLARABEL was not tried: it needs about"):
+        problem.solve(0.09, solver="SCS", max_iter=2)
+
+
+def test_an_unknown_convex_solver_is_named_before_any_memory_check():
+    from eidecomp import robust_pca
+    from eidecomp.errors import InputError
+
+    with pytest.raises(InputError, match="unknown convex solver 'ECOS'"):
+        robust_pca(np.zeros((300, 300)), method="convex", solver="ECOS")

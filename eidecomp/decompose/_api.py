@@ -205,6 +205,9 @@ def memory_estimate(shape, dtype=np.float64, method="ialm", solver="CLARABEL"):
 def _check_memory(shape, dtype, method, solver="CLARABEL"):
     if len(shape) != 2:
         return  # _check_matrix gives the message
+    if method == "convex" and str(solver).upper() not in SOLVERS:
+        raise InputError(f"unknown convex solver {solver!r}; choose one of "
+                         f"{', '.join(SOLVERS)}")
     need = memory_estimate(shape, dtype, method, solver)
     have = available_memory()
     if not have or need <= have:

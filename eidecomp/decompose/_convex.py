@@ -19,6 +19,7 @@ import warnings
 import numpy as np
 
 from ..errors import InputError, SolverError, SolverFallbackWarning
+from ..limits import available_memory, size_text
 
 __all__ = ["ConvexPCP", "convex_bytes", "largest_convex", "solve_convex"]
 
@@ -87,7 +88,7 @@ class ConvexPCP:
         import cvxpy as cp
 
         self._cp = cp
-        m, n = W.shape
+        m, n = self.shape = W.shape
         self.L = cp.Variable((m, n), name="L")
         self.S = cp.Variable((m, n), name="S")
         self.lam = cp.Parameter(nonneg=True, name="lam", value=1.0)
@@ -129,6 +130,12 @@ class ConvexPCP:
         order = [solver] + ([s for s in SOLVERS if s != solver] if fallback else [])
         reasons = []
         for name in order:
+            if reasons and not self._fits(name):
+                reasons.append(f"{name} was not tried: it needs about "
+                               f"{size_text(convex_bytes(self.shape, name))}, "
+                               f"more than {size_text(available_memory())} "
+                               "available")
+                continue
             try:
                 out = self._solve_with(name, lam, max_iter, verbose)
             except SolverError as exc:
@@ -140,6 +147,13 @@ class ConvexPCP:
                 out[3]["fallback_from"] = reasons[0]
             return out
         raise SolverError("; ".join(reasons))
+
+    def _fits(self, solver):
+        """Whether the solver's own problem fits in the memory available
+        (the check robust_pca makes for the solver asked for, made again
+        before a fallback)."""
+        have = available_memory()
+        return not have or convex_bytes(self.shape, solver) <= have
 
     def _solve_with(self, solver, lam, max_iter, verbose):
         cp = self._cp
