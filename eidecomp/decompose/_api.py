@@ -25,7 +25,7 @@ from ..names import unit_labels
 from ..params import MAX_ITER, SolverSettings, check_lam, default_lam, resolve_dtype
 from ..progress import announcer
 from ..types import Decomposition, OptimalityReport, PathPoint, handing_over
-from ._convex import SOLVERS, ConvexPCP, convex_bytes, largest_convex
+from ._convex import SOLVERS, ConvexPCP, convex_bytes, largest_convex, solver_name
 from ._ialm import ialm
 from ._norms import spectral_norm_bound
 from ._svt import numerical_rank
@@ -205,9 +205,8 @@ def memory_estimate(shape, dtype=np.float64, method="ialm", solver="CLARABEL"):
 def _check_memory(shape, dtype, method, solver="CLARABEL"):
     if len(shape) != 2:
         return  # _check_matrix gives the message
-    if method == "convex" and str(solver).upper() not in SOLVERS:
-        raise InputError(f"unknown convex solver {solver!r}; choose one of "
-                         f"{', '.join(SOLVERS)}")
+    if method == "convex":
+        solver_name(solver)
     need = memory_estimate(shape, dtype, method, solver)
     have = available_memory()
     if not have or need <= have:

@@ -40,6 +40,15 @@ _CLARABEL_BYTES_PER_D2 = 8 * 7.0
 _SCS_BYTES_PER_ENTRY = 12_500
 
 
+def solver_name(solver):
+    """The name of one of SOLVERS, in capitals; an InputError otherwise."""
+    name = str(solver).upper()
+    if name not in SOLVERS:
+        raise InputError(f"unknown convex solver {name!r}; choose one of "
+                         f"{', '.join(SOLVERS)}")
+    return name
+
+
 def convex_bytes(shape, solver="CLARABEL"):
     """Bytes one convex PCP solve with ``solver`` needs for a matrix of
     ``shape`` (the measured model above, rounded up).
@@ -123,10 +132,7 @@ class ConvexPCP:
         names the one that solved it. Both failing is a SolverError naming
         both reasons.
         """
-        solver = solver.upper()
-        if solver not in SOLVERS:
-            raise InputError(f"unknown convex solver {solver!r}; choose one of "
-                             f"{', '.join(SOLVERS)}")
+        solver = solver_name(solver)
         order = [solver] + ([s for s in SOLVERS if s != solver] if fallback else [])
         reasons = []
         for name in order:
