@@ -16,7 +16,9 @@ from .params import (
     AGREEMENT_RTOL,
     DEFAULT_EI_RATIO,
     DEFAULT_PERIOD,
+    GAP_TOL,
     MAX_ITER,
+    STOP_RULES,
     TAU_E_MS,
     TAU_I_MS,
     TOL,
@@ -72,6 +74,13 @@ def _add_matrix_options(p):
     p.add_argument("--tol", type=_positive_float,
                    help="ALM tolerance on primal and dual residuals (default "
                    f"{TOL['float64']:g}, or {TOL['float32']:g} with --float32)")
+    p.add_argument("--stop", choices=STOP_RULES,
+                   help=f"{STOP_RULES[0]} (default): also stop once the "
+                   "certified duality gap is below --gap-tol; residuals: "
+                   "only when both residuals are below --tol (strict)")
+    p.add_argument("--gap-tol", type=_positive_float,
+                   help="bound on the certified relative duality gap "
+                   f"(default {GAP_TOL['float64']:g}; needs --stop gap)")
     p.add_argument("--float32", action="store_true",
                    help="decompose in float32: half the memory, residuals to "
                    f"about {TOL['float32']:g} (the default tol then); the "
@@ -366,12 +375,26 @@ def _dense_rows(result):
         s["parameters"].get("target_rank") is None
     return [("shape", _shape(s)),
             ("lam", _num(s["lam"], ".6g") + ("  (default)" if default else "")),
-            ("rank of L", str(s["rank"])),
             ("nonzeros in S", f"{100 * s['sparsity']:.2f} %"),
             ("objective", _num(s["objective"], ".10g")),
             ("primal residual", _num(o["primal_residual"], ".2e")),
+            ("duality gap", _num(o.get("duality_gap"), ".2e")
+             + f"  (certified; stop: {o.get('stop', '-')})"),
             ("||Y||_2", _num(o["multiplier_spectral_norm"], ".6f")),
-            ("||Y||_max / lam", _num(o["multiplier_max_norm_over_lam"], ".6f"))]
+            ("||Y||_max / lam", _num(o["multiplier_max_norm_over_lam"], ".6f")),
+            ("reported rank", f"{s['rank']} (+{s.get('rank_band', 0)} values "
+             "below the rank cut)"),
+            ("support of S", _percent(s.get("support_density")))]
+
+
+def _percent(x):
+    return "-" if x is None else f"{100 * x:.2f} %"
+
+
+def _verdict_line(summary):
+    """The verdict's one line, first in the summary, or None."""
+    v = summary.get("verdict")
+    return None if not v else v["line"]
 
 
 def _summary_table(result):
@@ -380,9 +403,11 @@ def _summary_table(result):
     rows = {KERNEL_DECOMPOSITION: _kernel_rows,
             FACTORED: _factored_rows}.get(result.kind, _dense_rows)(result)
     s = result.summary
-    return _table(rows + [("iterations", str(s["n_iter"])),
-                          ("converged", "yes" if s["converged"] else "NO"),
-                          ("written to", str(result.output))])
+    table = _table(rows + [("iterations", str(s["n_iter"])),
+                           ("converged", "yes" if s["converged"] else "NO"),
+                           ("written to", str(result.output))])
+    line = _verdict_line(s)
+    return table if line is None else f"{line}\n{table}"
 
 
 def _decompose(args):
@@ -395,7 +420,8 @@ def _decompose(args):
         transpose=args.transpose, mask=args.mask,
         ignore_diagonal=args.ignore_diagonal, lam=args.lam,
         target_rank=args.target_rank, method=args.method, solver=args.solver,
-        tol=args.tol, max_iter=args.max_iter, seed=args.seed, force=args.force,
+        tol=args.tol, stop=args.stop, gap_tol=args.gap_tol,
+        max_iter=args.max_iter, seed=args.seed, force=args.force,
         dtype=dtype, engine=args.engine, scheduler=args.scheduler)
     with _progress(args, resolve_tol(args.tol, dtype)) as progress:
         result = run_decompose(config, progress=progress.solver)
@@ -406,7 +432,9 @@ def _decompose(args):
 def _circuit_table(result):
     m = result.meta
     c, met = m["counts"], m["metrics"]
-    lines = [
+    verdict = _verdict_line(m.get("decomposition", {}))
+    lines = [] if verdict is None else [verdict]
+    lines += [
         f"circuit: {c['excitatory']} E, {c['untuned']} untuned I, "
         f"{c['tuned']} tuned I  ({met['share_rule']})",
         f"{'construction':<18} {'n_I':>6} {'rel. error':>11} {'J_EE density':>13}",
@@ -474,7 +502,8 @@ def _assemble(args):
         expand=getattr(args, "expand", False), key=args.key,
         transpose=args.transpose, mask=args.mask,
         ignore_diagonal=args.ignore_diagonal, lam=args.lam, tol=args.tol,
-        target_rank=args.target_rank, method=args.method, solver=args.solver,
+        stop=args.stop, gap_tol=args.gap_tol, target_rank=args.target_rank,
+        method=args.method, solver=args.solver,
         seed=args.seed, force=args.force, dtype=dtype)
     with _progress(args, resolve_tol(args.tol, dtype)) as progress:
         result = run_assemble(config, progress=progress.solver,

@@ -17,11 +17,23 @@ inhibition (rank 3), sparse like-to-like excitation and sparse
 feature-specific suppression, with optional dense measurement noise (PCP
 spreads dense noise over many tiny singular values; stable PCP, with
 ``delta``, is the program for noisy data).
+
+``gabor_covariance``, ``patch_partial_correlations`` and
+``sparse_coding_lateral`` build the lateral matrices users bring, from
+natural-stimulus statistics: scikit-learn's two sample photographs (an open
+dataset the registry package ships, ``sklearn.datasets.load_sample_images``)
+through a Gabor bank, as pixel-patch partial correlations, and as the
+lateral weights -(Phi^T Phi - I) of a sparse-coding dictionary learned on
+them (scikit-learn's ``MiniBatchDictionaryLearning``; the lateral form is the
+locally competitive algorithm's, Rozell et al. 2008, Neural Comput 20(10),
+from memory). They need scikit-learn and scipy, imported inside.
 """
 
 import numpy as np
 
-__all__ = ["demo_inputs", "example_lateral", "make_planted", "make_planted_circuit"]
+__all__ = ["demo_inputs", "example_lateral", "gabor_covariance", "make_planted",
+           "make_planted_circuit", "patch_partial_correlations",
+           "sparse_coding_lateral"]
 
 
 def make_planted(n, *, rank=None, corruption=0.05, magnitude=1.0, seed=0,
@@ -168,3 +180,135 @@ def demo_inputs(seed=7):
     lines = ["id,feature,x,y"] + [f"unit{i:03d},{t!r},{a!r},{b!r}"
                                   for i, (t, a, b) in enumerate(rows)]
     return W, "\n".join(lines) + "\n"
+
+
+def _gray_photographs():
+    """scikit-learn's sample photographs in grey, each standardised."""
+    from sklearn.datasets import load_sample_images
+
+    out = []
+    for im in load_sample_images().images:
+        g = im.astype(float).mean(axis=2)
+        out.append((g - g.mean()) / g.std())
+    return out
+
+
+def _patches(size, n, rng):
+    """``n`` random ``size`` x ``size`` patches of the photographs, as rows."""
+    photos = _gray_photographs()
+    which = rng.integers(len(photos), size=n)
+    rows = np.empty((n, size * size))
+    for i, k in enumerate(which):
+        g = photos[k]
+        y = rng.integers(g.shape[0] - size)
+        x = rng.integers(g.shape[1] - size)
+        rows[i] = g[y:y + size, x:x + size].ravel()
+    return rows
+
+
+def _gabor(size, theta, frequency, sigma):
+    """A zero-mean, unit-norm even Gabor filter (cosine phase)."""
+    h = size // 2
+    y, x = np.mgrid[-h:h + 1, -h:h + 1].astype(float)
+    along = x * np.cos(theta) + y * np.sin(theta)
+    g = np.exp(-(x ** 2 + y ** 2) / (2 * sigma ** 2)) * np.cos(
+        2 * np.pi * frequency * along)
+    g -= g.mean()
+    return g / np.linalg.norm(g)
+
+
+def gabor_covariance(n_orientations=16, grid=6, *, spacing=4, size=11,
+                     frequency=0.15, sigma=2.5, stride=7):
+    """A signed lateral matrix from Gabor responses to photographs.
+
+    Units are (orientation, position) pairs: ``n_orientations`` even Gabor
+    filters on a ``grid`` x ``grid`` lattice ``spacing`` pixels apart. Their
+    rectified responses are sampled over every window of the two sample
+    photographs (``stride`` pixels apart); W is the covariance of those
+    responses less its median, zero on the diagonal, scaled to max|W| = 1
+    (a Hebbian-style estimate of lateral weights from stimulus statistics).
+
+    Returns
+    -------
+    W : ndarray (n_orientations * grid**2, same)
+        Unit k * grid**2 + p is orientation 180 k / n_orientations degrees at
+        position p (row-major on the lattice).
+
+    Examples
+    --------
+    >>> W = gabor_covariance(4, 3)
+    >>> W.shape, float(np.abs(W).max()), float(np.abs(np.diag(W)).max())
+    ((36, 36), 1.0, 0.0)
+    """
+    from scipy.signal import fftconvolve
+
+    photos = _gray_photographs()
+    span = (grid - 1) * spacing + 1
+    filters = [_gabor(size, np.pi * k / n_orientations, frequency, sigma)
+               for k in range(n_orientations)]
+    rows = []
+    for g in photos:
+        maps = [np.maximum(fftconvolve(g, f, mode="valid"), 0.0) for f in filters]
+        h, w = maps[0].shape
+        for y in range(0, h - span, stride):
+            for x in range(0, w - span, stride):
+                rows.append(np.concatenate([
+                    m[y:y + span:spacing, x:x + span:spacing].ravel()
+                    for m in maps]))
+    C = np.cov(np.asarray(rows), rowvar=False)
+    W = C - np.median(C)
+    np.fill_diagonal(W, 0.0)
+    return W / np.abs(W).max()
+
+
+def patch_partial_correlations(size=12, n_patches=40000, *, seed=0):
+    """Partial correlations among the pixels of photograph patches.
+
+    W_ij = -P_ij / sqrt(P_ii P_jj), P the inverse covariance of
+    ``n_patches`` random ``size`` x ``size`` patches of the sample
+    photographs; zero diagonal. A lateral matrix read off stimulus
+    statistics (each unit a pixel of the patch).
+
+    Examples
+    --------
+    >>> W = patch_partial_correlations(4, 2000)
+    >>> W.shape, bool(np.allclose(W, W.T))
+    ((16, 16), True)
+    """
+    X = _patches(size, n_patches, np.random.default_rng(seed))
+    P = np.linalg.inv(np.cov(X, rowvar=False))
+    d = np.sqrt(np.diag(P))
+    W = -P / np.outer(d, d)
+    np.fill_diagonal(W, 0.0)
+    return W
+
+
+def sparse_coding_lateral(n_atoms=256, size=8, n_patches=20000, *, alpha=1.0,
+                          n_epochs=10, seed=0):
+    """Lateral weights -(Phi^T Phi - I) of a sparse-coding dictionary.
+
+    Phi (size^2 x n_atoms, unit-norm columns) is learned by scikit-learn's
+    ``MiniBatchDictionaryLearning`` (``alpha``, batches of 256,
+    ``n_epochs`` passes, ``random_state=seed``) on mean-removed patches of
+    the sample photographs; the locally competitive algorithm's units
+    inhibit each other by the overlap of their atoms (see the module
+    docstring).
+
+    Examples
+    --------
+    >>> W = sparse_coding_lateral(12, 4, 2000, n_epochs=2)
+    >>> W.shape, float(np.abs(np.diag(W)).max()) < 1e-12
+    ((12, 12), True)
+    """
+    from sklearn.decomposition import MiniBatchDictionaryLearning
+
+    X = _patches(size, n_patches, np.random.default_rng(seed))
+    X -= X.mean(axis=1, keepdims=True)
+    learner = MiniBatchDictionaryLearning(n_components=n_atoms, alpha=alpha,
+                                          batch_size=256, max_iter=n_epochs,
+                                          random_state=seed)
+    Phi = learner.fit(X).components_.T
+    Phi = Phi / np.linalg.norm(Phi, axis=0)
+    W = -(Phi.T @ Phi)
+    np.fill_diagonal(W, 0.0)
+    return W

@@ -28,6 +28,7 @@ from .io.bundles import (
 )
 from .params import DEFAULT_EI_RATIO, DEFAULT_PERIOD, TAU_E_MS, TAU_I_MS, EIRatio
 from .progress import announcer
+from .types import handing_over
 
 __all__ = [
     "DECOMPOSE_ENGINES",
@@ -74,7 +75,7 @@ def refuse_inapplicable(config, allowed, what):
 
 
 _MATRIX_OPTIONS = ("key", "transpose", "mask", "ignore_diagonal", "lam", "tol",
-                   "dtype", "target_rank", "method", "solver")
+                   "stop", "gap_tol", "dtype", "target_rank", "method", "solver")
 
 
 def _load_matrix(config, *, square, what="weight matrix"):
@@ -116,6 +117,8 @@ class MatrixOptions:
     ignore_diagonal: bool = False
     lam: float | None = None
     tol: float | None = None
+    stop: str | None = None
+    gap_tol: float | None = None
     seed: int = 0
     force: bool = False
     kernel: str | None = None
@@ -166,14 +169,47 @@ def _decompose_dense(config, out, progress):
                      ignore_diagonal=config.ignore_diagonal,
                      target_rank=config.target_rank, tol=config.tol,
                      max_iter=config.max_iter, solver=config.solver,
-                     seed=config.seed, progress=progress, dtype=config.dtype)
+                     seed=config.seed, progress=progress, dtype=config.dtype,
+                     **_stop_options(config))
+    dec = _with_suggestion(W, dec, config, _stage_of(progress))
     summary = bundles.write_decomposition(
         out, dec, source=source,
         mask={"path": config.mask, "ignore_diagonal": config.ignore_diagonal},
         parameters=_parameters(config, ("lam", "target_rank", "method", "solver",
-                                        "tol", "max_iter", "seed", "dtype")),
+                                        "tol", "stop", "gap_tol", "max_iter",
+                                        "seed", "dtype")),
         force=config.force, inputs=inputs)
     return DecomposeResult(DECOMPOSITION, dec, summary, out)
+
+
+def _stop_options(config):
+    """robust_pca's stop and gap_tol from the config (None: the library's
+    defaults, ``params.STOP_RULES[0]`` and ``params.GAP_TOL``)."""
+    out = {} if config.stop is None else {"stop": config.stop}
+    if config.gap_tol is not None:
+        out["gap_tol"] = config.gap_tol
+    return out
+
+
+def _with_suggestion(W, dec, config, progress):
+    """``dec`` with the lam path's suggestion in its verdict, when the
+    verdict says W is not low-rank plus sparse at the lam chosen (the ALM
+    only, and not when a target rank chose lam)."""
+    from .decompose import suggest_lam
+
+    if (dec.verdict is None or dec.verdict.fits or dec.method != "ialm"
+            or config.target_rank is not None):
+        return dec
+    verdict, _ = suggest_lam(W, dec, mask=dec.observed, seed=config.seed,
+                             progress=progress)
+    with handing_over():
+        return dataclasses.replace(dec, verdict=verdict)
+
+
+def _stage_of(progress):
+    """The stage callback beside a solver callback (``Progress.solver`` ->
+    ``Progress.stage``), or None: the lam path announces stages."""
+    return getattr(getattr(progress, "__self__", None), "stage", None)
 
 
 def _decompose_dask(config, out, progress):
@@ -381,7 +417,9 @@ def _assemble_dense(config, out, progress, stage_progress, extra_files):
                          ignore_diagonal=config.ignore_diagonal, tol=config.tol,
                          target_rank=config.target_rank, method=config.method,
                          solver=config.solver, seed=config.seed,
-                         progress=progress, dtype=config.dtype)
+                         progress=progress, dtype=config.dtype,
+                         **_stop_options(config))
+        dec = _with_suggestion(W, dec, config, stage_progress)
     circuit = assemble(dec, ei_ratio=ratio, untuned_share=config.untuned_share,
                        alpha=config.alpha, seed=config.seed,
                        progress=stage_progress)
@@ -395,7 +433,8 @@ def _assemble_dense(config, out, progress, stage_progress, extra_files):
                          "magnification_um_per_deg": config.magnification},
         decomposition={"lam": dec.lam, "rank": dec.rank,
                        "converged": dec.converged, "n_iter": dec.n_iter,
-                       "dtype": str(np.asarray(dec.low_rank).dtype)},
+                       "dtype": str(np.asarray(dec.low_rank).dtype),
+                       **bundles.split_fields(dec)},
         stability=stability, pools=pools,
         parameters={"period": config.period}, unit_ids=units.ids)
     files = dict(extra_files or {})

@@ -26,6 +26,7 @@ __all__ = [
     "OptimalityReport",
     "PathPoint",
     "Population",
+    "SplitVerdict",
 ]
 
 
@@ -89,6 +90,15 @@ class OptimalityReport:
     converged : bool
     solver : str
     status : str
+    duality_gap : float or None
+        Certified relative duality gap (``decompose._certificate``): the
+        feasible split (L, P_Omega(W - L)) has an objective at most this
+        fraction above the optimum. None where no multiplier is known.
+    dual_objective : float or None
+        The lower bound on the optimal objective behind the gap.
+    stop : str
+        The stop rule that ended the solve (``params.STOP_RULES``, or the
+        convex solver's own).
     """
 
     objective: float
@@ -102,9 +112,55 @@ class OptimalityReport:
     converged: bool
     solver: str
     status: str
+    duality_gap: float | None = None
+    dual_objective: float | None = None
+    stop: str = "residuals"
 
     def as_dict(self):
         return {k: getattr(self, k) for k in self.__dataclass_fields__}
+
+
+@dataclass(frozen=True)
+class SplitVerdict:
+    """Whether W is low-rank plus sparse at one lam, in numbers and one line.
+
+    Attributes
+    ----------
+    fits : bool
+        True when every rule of ``params.FIT_RULES`` holds.
+    rank : int
+    rank_share : float
+        The reported rank over min(m, n).
+    support_density : float
+    rank_band : int
+    lam : float
+    reasons : tuple of str
+        The rules that failed, in words.
+    suggested_lam : float or None
+        Where a lam path finds the rank and the support settled and the
+        rules met (:func:`eidecomp.decompose.settled_lam`); None when no
+        path was run or none settled.
+    path_checked : bool
+        A lam path was run for ``suggested_lam``.
+    line : str
+        The plain sentence every output shows.
+    """
+
+    fits: bool
+    rank: int
+    rank_share: float
+    support_density: float
+    rank_band: int
+    lam: float
+    reasons: tuple = ()
+    suggested_lam: float | None = None
+    path_checked: bool = False
+    line: str = ""
+
+    def as_dict(self):
+        return {k: (list(v) if isinstance(v, tuple) else v)
+                for k, v in ((k, getattr(self, k))
+                             for k in self.__dataclass_fields__)}
 
 
 @dataclass(frozen=True)
@@ -118,9 +174,10 @@ class Decomposition:
     sparse : ndarray of shape (n_post, n_pre)
         S; zero on unobserved entries.
     rank : int
-        Numerical rank of L, one rule for every method and engine: the
-        singular values above ``params.RANK_RTOL`` times the largest; L is
-        truncated to them (docs/robust_pca.md).
+        The reported rank of L, one rule for every method: its singular
+        values above ``params.REPORTED_RANK_RTOL`` times the largest
+        (docs/robust_pca.md, "The rank"). L itself keeps every value above
+        the solver's noise floor (``params.RANK_RTOL``).
     lam : float
         Weight of ||S||_1 in the objective.
     objective : float
@@ -137,6 +194,15 @@ class Decomposition:
     unit_ids : tuple of str or None
         The units' labels, from a labelled W (a DataFrame whose index and
         columns agree: :func:`eidecomp.names.unit_labels`).
+    rank_band : int
+        Singular values of L between the noise floor and the reported-rank
+        cut: many of them mean L's spectrum trails off with no edge.
+    support_density : float or None
+        Fraction of observed entries with |S_ij| above
+        ``params.SUPPORT_RTOL`` times max|W| (the reported support).
+    verdict : SplitVerdict or None
+        Whether W is low-rank plus sparse at this lam
+        (:func:`eidecomp.decompose.judge_split`).
     """
 
     low_rank: np.ndarray
@@ -151,6 +217,9 @@ class Decomposition:
     report: OptimalityReport | None = field(default=None, repr=False)
     observed: np.ndarray | None = field(default=None, repr=False)
     unit_ids: tuple | None = field(default=None, repr=False)
+    rank_band: int = 0
+    support_density: float | None = None
+    verdict: "SplitVerdict | None" = field(default=None, repr=False)
 
     def __post_init__(self):
         _freeze(self, "low_rank", "sparse", "observed")
@@ -228,6 +297,9 @@ class PathPoint:
     n_iter: int
     converged: bool
     seconds: float = 0.0
+    support_density: float | None = None
+    rank_band: int = 0
+    duality_gap: float | None = None
 
     def as_dict(self):
         return {k: getattr(self, k) for k in self.__dataclass_fields__}

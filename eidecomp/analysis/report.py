@@ -312,6 +312,16 @@ def _stability_text(st):
             f"stable tau_I/tau_E: {limit}")
 
 
+def _verdict_para(decomposition):
+    """The split's verdict (circuit.json decomposition.verdict) as the
+    page's first paragraph, or nothing when none was recorded."""
+    verdict = decomposition.get("verdict")
+    if not verdict:
+        return []
+    style = "" if verdict.get("fits") else " class='caution'"
+    return [f"<p{style}>{html.escape(str(verdict.get('line', '')))}</p>"]
+
+
 def _notes_list(notes):
     """The assembler's notes (circuit.json metrics.notes), as the command
     line prints them."""
@@ -340,6 +350,7 @@ def _sections(meta, rules, med, have_units):
         f"<title>{REPORT_TITLE}</title>", f"<style>{_CSS}</style>",
         "</head><body>", "<h1>Circuit report</h1>",
         f"<p class='caution'>{html.escape(CAUTION)}</p>",
+        *_verdict_para(meta.get("decomposition", {})),
         "<h2>Inputs and parameters</h2>",
         _table(["item", "value"], [
             ["matrix", inp.get("path", "-")], ["sha256", inp.get("sha256") or "-"],
@@ -350,6 +361,8 @@ def _sections(meta, rules, med, have_units):
             ["split rule", met.get("share_rule", "-")],
             ["alpha", _fmt(par.get("alpha"))], ["lam", _fmt(par.get("lam"))],
             ["rank of L", par.get("rank", "-")],
+            ["certified duality gap",
+             _fmt(meta.get("decomposition", {}).get("duality_gap"), ".2e")],
             ["eidecomp", meta.get("eidecomp_version", "-")]]),
         "<h2>Assembly against the baselines</h2>",
         f"<p>{c.get('excitatory', 0)} excitatory, {c.get('untuned', 0)} untuned "

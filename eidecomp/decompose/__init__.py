@@ -1,7 +1,8 @@
 """Robust PCA: split a weight matrix into low-rank and sparse parts.
 
 Public names: :func:`robust_pca` (one solve), :func:`lambda_path` (a sweep over
-lam), :func:`default_lam`, :func:`pcp_objective` and the estimator
+lam), :func:`judge_split` and :func:`suggest_lam` (is W low-rank plus sparse,
+and at which lam), :func:`default_lam`, :func:`pcp_objective` and the estimator
 :class:`RobustPCA`; :func:`leading_triplets` (a seeded randomized SVD, which
 the assembler uses too). The numerics live in private modules that take and return
 arrays: ``_ialm`` (inexact ALM), ``_svt`` (singular value thresholding),
@@ -9,11 +10,19 @@ arrays: ``_ialm`` (inexact ALM), ``_svt`` (singular value thresholding),
 translation-invariant matrix); :func:`robust_pca_kernel` is its public entry.
 """
 
-from ._api import METHODS, default_lam, lambda_path, pcp_objective, robust_pca
+from ._api import (
+    METHODS,
+    default_lam,
+    lambda_path,
+    pcp_objective,
+    robust_pca,
+    suggest_lam,
+)
 from ._convex import SOLVERS
 from ._dask_api import DaskDecomposition, robust_pca_dask
 from ._kernel_api import robust_pca_kernel
 from ._svt import leading_triplets
+from ._verdict import judge_split, settled_lam
 
 
 def __getattr__(name):
@@ -26,5 +35,6 @@ def __getattr__(name):
     raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 __all__ = ["METHODS", "SOLVERS", "DaskDecomposition", "RobustPCA", "default_lam",
-           "lambda_path", "leading_triplets", "pcp_objective", "robust_pca",
-           "robust_pca_dask", "robust_pca_kernel"]
+           "judge_split", "lambda_path", "leading_triplets", "pcp_objective",
+           "robust_pca", "robust_pca_dask", "robust_pca_kernel", "settled_lam",
+           "suggest_lam"]

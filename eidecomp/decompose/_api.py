@@ -14,7 +14,7 @@ import warnings
 
 import numpy as np
 
-from ..errors import InputError, warn_stopped
+from ..errors import ConvergenceWarning, InputError, warn_stopped
 from ..limits import (
     available_memory,
     check_range,
@@ -22,16 +22,28 @@ from ..limits import (
     size_text,
 )
 from ..names import unit_labels
-from ..params import MAX_ITER, SolverSettings, check_lam, default_lam, resolve_dtype
+from ..params import (
+    GAP_TOL,
+    MAX_ITER,
+    PRIMAL_TOL,
+    SUPPORT_RTOL,
+    SolverSettings,
+    check_lam,
+    default_lam,
+    resolve_dtype,
+)
 from ..progress import announcer
 from ..types import Decomposition, OptimalityReport, PathPoint, handing_over
 from ._convex import SOLVERS, ConvexPCP, convex_bytes, largest_convex, solver_name
+from ._certificate import duality_gap
 from ._ialm import ialm
 from ._norms import spectral_norm_bound
-from ._svt import numerical_rank
+from ._svt import numerical_rank, reported_rank
+from ._verdict import judge_split, settled_lam
 from ._threads import blas_threads
 
-__all__ = ["default_lam", "lambda_path", "pcp_objective", "robust_pca"]
+__all__ = ["default_lam", "lambda_path", "pcp_objective", "robust_pca",
+           "suggest_lam"]
 
 METHODS = ("ialm", "convex")
 ZERO_RTOL = 1e-7  # convex solutions: |S_ij| below this x max|W| is solver noise
@@ -118,7 +130,7 @@ def _check_observed(observed, shape, ignore_diagonal):
 
 
 def _report(W, L, S, Y, lam, observed, *, nuclear, dual, n_iter, converged,
-            solver, status):
+            solver, status, certificate=None, stop="residuals"):
     l1 = _sum_abs(S, observed)
     norm_R, norm_W = _residual_norm(W, L, S, observed)
     primal = norm_R / norm_W if norm_W else 0.0
@@ -131,11 +143,49 @@ def _report(W, L, S, Y, lam, observed, *, nuclear, dual, n_iter, converged,
         l1_norm=l1, primal_residual=primal, dual_residual=dual,
         multiplier_spectral_norm=spec, multiplier_max_norm_over_lam=maxn,
         n_iter=int(n_iter), converged=bool(converged), solver=solver,
-        status=status)
+        status=status, stop=stop,
+        duality_gap=None if certificate is None else certificate.gap,
+        dual_objective=None if certificate is None else certificate.dual)
+
+
+def _support_density(S, W, observed=None):
+    """The reported support of S: the fraction of observed entries with
+    |S_ij| above ``params.SUPPORT_RTOL`` times max|W| (row blocks)."""
+    rows = max(1, (1 << 22) // max(W.shape[1], 1))
+    top = max(float(np.max(W)), -float(np.min(W))) if W.size else 0.0
+    cut = SUPPORT_RTOL * top
+    count = total = 0
+    for s in range(0, W.shape[0], rows):
+        big = np.abs(S[s:s + rows]) > cut
+        if observed is not None:
+            big = big[observed[s:s + rows]]
+        count += int(np.count_nonzero(big))
+        total += big.size
+    return count / total if total else 0.0
+
+
+def _judged(dec, W, observed, sv):
+    """``dec`` with its reported rank, band, support and verdict."""
+    rank, band = reported_rank(sv, dec.low_rank.dtype)
+    support = _support_density(dec.sparse, W, observed)
+    verdict = judge_split(rank, W.shape, support, band, dec.lam)
+    with handing_over():
+        return dataclasses.replace(dec, rank=rank, rank_band=band,
+                                   support_density=support, verdict=verdict)
+
+
+def _primal_tol(gap_tol, dtype):
+    """The primal residual at which the gap is checked: ``params.PRIMAL_TOL``
+    at the default gap, in proportion for a looser one (a path that needs
+    only the rank and the support)."""
+    name = np.dtype(dtype).name
+    if gap_tol is None:
+        return PRIMAL_TOL[name]
+    return PRIMAL_TOL[name] * max(1.0, gap_tol / GAP_TOL[name])
 
 
 def _ialm_decomposition(W, lam, observed, *, tol, max_iter, rho, seed,
-                        progress, init=None):
+                        progress, init=None, gap_tol=None):
     """One ALM solve; ``init`` is a neighbour's (L, S, Y, mu, n_iter).
 
     A warm start enters with the neighbour's large mu and a multiplier made
@@ -149,28 +199,34 @@ def _ialm_decomposition(W, lam, observed, *, tol, max_iter, rho, seed,
         budget = min(max_iter, max(50, 2 * int(init[4])))
         L, S, Y, info = ialm(W, lam, observed=observed, tol=tol, max_iter=budget,
                              rho=rho, rng=np.random.default_rng(seed),
-                             init=init[:4], callback=progress)
+                             init=init[:4], callback=progress, gap_tol=gap_tol,
+                             primal_tol=_primal_tol(gap_tol, W.dtype))
         if not info["converged"]:
             info = None
     if info is None:
         L, S, Y, info = ialm(W, lam, observed=observed, tol=tol,
                              max_iter=max_iter, rho=rho,
-                             rng=np.random.default_rng(seed), callback=progress)
+                             rng=np.random.default_rng(seed), callback=progress,
+                             gap_tol=gap_tol,
+                             primal_tol=_primal_tol(gap_tol, W.dtype))
     if observed is not None:
         S[~observed] = 0.0  # unobserved: L is the completion, S carries nothing
     hist = info["history"]
     dual = hist[-1][1] if hist else 0.0
     sv = info["singular_values"]
+    stopped = ("converged" if info["converged"] else
+               "stalled" if info["n_iter"] < max_iter else "max_iter")
     report = _report(W, L, S, Y, lam, observed, nuclear=float(sv.sum()),
                      dual=float(dual), n_iter=info["n_iter"],
                      converged=info["converged"], solver="ialm",
-                     status="converged" if info["converged"] else "max_iter")
+                     status=stopped, certificate=info["certificate"],
+                     stop="residuals" if gap_tol is None else "gap")
     with handing_over():  # L and S are this solve's own: no copies
         dec = Decomposition(low_rank=L, sparse=S, rank=len(sv), lam=float(lam),
                             objective=report.objective, n_iter=info["n_iter"],
                             converged=info["converged"], history=tuple(hist),
                             method="ialm", report=report, observed=observed)
-    return dec, (L, S, Y, info["mu"], info["n_iter"])
+    return _judged(dec, W, observed, sv), (L, S, Y, info["mu"], info["n_iter"])
 
 
 def _convex_decomposition(W, lam, observed, *, program, solver, max_iter):
@@ -180,15 +236,20 @@ def _convex_decomposition(W, lam, observed, *, program, solver, max_iter):
         S[~observed] = 0.0
     U, sv, Vt = np.linalg.svd(L, full_matrices=False)
     rank = numerical_rank(sv)
-    L, sv = (U[:, :rank] * sv[:rank]) @ Vt[:rank], sv[:rank]  # the rank rule
+    L, sv = (U[:, :rank] * sv[:rank]) @ Vt[:rank], sv[:rank]  # the noise floor
+    cert = None
+    if Y is not None:  # cvxpy's sign convention is its own: try both
+        cert = duality_gap(W, lam, L, float(sv.sum()), (Y, -Y), observed)
     report = _report(W, L, S, Y, lam, observed, nuclear=float(sv.sum()),
                      dual=None, n_iter=info["n_iter"],
                      converged=info["converged"], solver=info["solver"],
-                     status=info["status"])
-    return Decomposition(low_rank=L, sparse=S, rank=rank, lam=float(lam),
-                         objective=report.objective, n_iter=info["n_iter"],
-                         converged=info["converged"], method="convex",
-                         report=report, observed=observed)
+                     status=info["status"], certificate=cert,
+                     stop=info["solver"])
+    dec = Decomposition(low_rank=L, sparse=S, rank=rank, lam=float(lam),
+                        objective=report.objective, n_iter=info["n_iter"],
+                        converged=info["converged"], method="convex",
+                        report=report, observed=observed)
+    return _judged(dec, W, observed, sv)
 
 
 def memory_estimate(shape, dtype=np.float64, method="ialm", solver="CLARABEL"):
@@ -234,17 +295,21 @@ def _check_memory(shape, dtype, method, solver="CLARABEL"):
 
 def _warn_if_stopped(dec):
     if not dec.converged:
-        dual = dec.report.dual_residual
+        rep = dec.report
+        dual, gap = rep.dual_residual, rep.duality_gap
         warn_stopped("robust PCA", dec.n_iter, stacklevel=4,
-                     detail=f"primal residual {dec.report.primal_residual:.2e}, "
+                     detail=f"primal residual {rep.primal_residual:.2e}, "
                      + ("no dual residual" if dual is None
-                        else f"dual residual {dual:.2e}"))
+                        else f"dual residual {dual:.2e}")
+                     + ("" if gap is None else f", certified gap {gap:.2e}")
+                     + (" (the gap stopped falling)" if rep.status == "stalled"
+                        else ""))
 
 
 def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
                target_rank=None, tol=None, max_iter=None, rho=1.5, delta=None,
                low_rank_sign=None, solver="CLARABEL", seed=0, progress=None,
-               dtype="float64", check_memory=True):
+               dtype="float64", check_memory=True, stop="gap", gap_tol=None):
     r"""Split W into a low-rank part L and a sparse part S by robust PCA.
 
     Solves Principal Component Pursuit (Candes, Li, Ma, Wright 2011, eq. 1.1)
@@ -278,6 +343,17 @@ def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
         ALM: bound on the relative primal and dual residuals; None means
         1e-8 (float64) or 1e-6 (float32, whose residuals bottom out near
         1e-7).
+    stop : {"gap", "residuals"}
+        ALM: both stop when the residuals are below ``tol``. ``"gap"``
+        (default) also stops, once the residuals no longer fall fast, when
+        the certified relative duality gap is at most ``gap_tol`` and the
+        primal residual at most ``params.PRIMAL_TOL``: ``converged`` then
+        means the objective is proved within ``gap_tol`` of the optimum.
+        ``"residuals"`` is the strict stop alone (docs/robust_pca.md, "The
+        stop"). The gap is reported either way.
+    gap_tol : float or None
+        Bound on the certified relative duality gap; None means
+        ``params.GAP_TOL`` (1e-4).
     max_iter : int or None
         Iteration limit. ALM: default 5000, a ``ConvergenceWarning`` if
         reached. Convex: passed to the solver; None keeps the solver's own.
@@ -309,7 +385,8 @@ def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
     Warns
     -----
     ConvergenceWarning
-        When the ALM solver stops at ``max_iter``.
+        When the ALM solver stops at ``max_iter``, or (stop ``"gap"``) when
+        its certified gap stops falling above ``gap_tol``.
 
     Examples
     --------
@@ -319,9 +396,11 @@ def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
     >>> L0 = rng.standard_normal((60, 2)) @ rng.standard_normal((2, 60))
     >>> S0 = np.where(rng.random((60, 60)) < 0.05, 10.0, 0.0)
     >>> dec = robust_pca(L0 + S0)
-    >>> dec.rank, dec.converged
-    (2, True)
+    >>> dec.rank, dec.converged, dec.report.duality_gap <= 1e-4
+    (2, True, True)
     >>> bool(np.allclose(dec.low_rank, L0, atol=1e-6))
+    True
+    >>> dec.verdict.fits
     True
     """
     dtype = resolve_dtype(dtype)
@@ -342,7 +421,8 @@ def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
     if delta is not None and not (np.isfinite(delta) and delta >= 0):
         raise InputError(f"delta must be a finite number >= 0, got {delta!r}")
     settings = SolverSettings.resolve(W.shape, lam=lam, tol=tol,
-                                      max_iter=max_iter, dtype=dtype)
+                                      max_iter=max_iter, dtype=dtype,
+                                      stop=stop, gap_tol=gap_tol)
     lam, tol = settings.lam, settings.tol
     if not rho > 1:
         raise InputError(f"rho must be greater than 1, got {rho!r}")
@@ -351,8 +431,8 @@ def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
         def solve(lam_, init=None):
             return _ialm_decomposition(W, lam_, observed, tol=tol,
                                        max_iter=settings.max_iter, rho=rho,
-                                       seed=seed,
-                                       progress=progress, init=init)
+                                       seed=seed, progress=progress, init=init,
+                                       gap_tol=settings.gap_tol)
     else:
         program = ConvexPCP(W, observed=observed, delta=delta,
                             low_rank_sign=low_rank_sign)
@@ -414,7 +494,8 @@ def _search_rank(solve, lam, k, max_evals=40):
 
 
 def lambda_path(W, lams=None, *, n_lams=12, mask=None, ignore_diagonal=False,
-                tol=None, max_iter=MAX_ITER, seed=0, progress=None):
+                tol=None, max_iter=MAX_ITER, seed=0, progress=None, stop="gap",
+                gap_tol=None):
     """Solve PCP over a range of lam with warm starts (fast ALM solver).
 
     Parameters
@@ -424,8 +505,9 @@ def lambda_path(W, lams=None, *, n_lams=12, mask=None, ignore_diagonal=False,
         The values of lam. None: ``n_lams`` values log-spaced from a quarter
         to four times the default 1 / sqrt(max(m, n)).
     n_lams : int
-    mask, ignore_diagonal, tol, max_iter, seed
-        As in :func:`robust_pca`.
+    mask, ignore_diagonal, tol, max_iter, seed, stop, gap_tol
+        As in :func:`robust_pca`: every point is stopped by the same rule
+        and certified by its own duality gap.
     progress : callable or None
         Called as ``progress(stage, 0, nan)`` before each lam (the stage
         names the point and the time so far: :class:`eidecomp.progress.Progress`
@@ -436,7 +518,7 @@ def lambda_path(W, lams=None, *, n_lams=12, mask=None, ignore_diagonal=False,
     points : list of PathPoint
         One per lam, in increasing lam: rank, sparsity, ||L||_*, ||S||_1,
         primal residual, iterations and seconds (their sum is the path's
-        cost). Each solve starts from its neighbour's (warm start), cold
+        cost), the reported support, the rank band and the certified gap. Each solve starts from its neighbour's (warm start), cold
         when that is slower (:func:`_ialm_decomposition`).
     decompositions : list of Decomposition
 
@@ -451,7 +533,8 @@ def lambda_path(W, lams=None, *, n_lams=12, mask=None, ignore_diagonal=False,
     """
     W = _check_matrix(W)
     observed = _check_observed(mask, W.shape, ignore_diagonal)
-    tol = SolverSettings.resolve(W.shape, tol=tol, max_iter=max_iter).tol
+    settings = SolverSettings.resolve(W.shape, tol=tol, max_iter=max_iter,
+                                      stop=stop, gap_tol=gap_tol)
     if lams is None:
         lam0 = default_lam(W.shape)
         lams = np.geomspace(lam0 / 4, lam0 * 4, int(n_lams))
@@ -466,10 +549,12 @@ def lambda_path(W, lams=None, *, n_lams=12, mask=None, ignore_diagonal=False,
              f"({time.perf_counter() - start:.0f} s so far)")
         t = time.perf_counter()
         with blas_threads(W.shape):
-            dec, state = _ialm_decomposition(W, lam, observed, tol=tol,
-                                             max_iter=max_iter, rho=1.5,
-                                             seed=seed, progress=None,
-                                             init=state)
+            dec, state = _ialm_decomposition(W, lam, observed,
+                                             tol=settings.tol,
+                                             max_iter=settings.max_iter,
+                                             rho=1.5, seed=seed, progress=None,
+                                             init=state,
+                                             gap_tol=settings.gap_tol)
         _warn_if_stopped(dec)
         r = dec.report
         points.append(PathPoint(lam=lam, rank=dec.rank, sparsity=dec.sparsity,
@@ -477,6 +562,64 @@ def lambda_path(W, lams=None, *, n_lams=12, mask=None, ignore_diagonal=False,
                                 primal_residual=r.primal_residual,
                                 objective=r.objective, n_iter=dec.n_iter,
                                 converged=dec.converged,
-                                seconds=time.perf_counter() - t))
+                                seconds=time.perf_counter() - t,
+                                support_density=dec.support_density,
+                                rank_band=dec.rank_band,
+                                duality_gap=r.duality_gap))
         decs.append(dec)
     return points, decs
+
+
+SUGGEST_GAP_TOL = 1e-3
+"""The stop of :func:`suggest_lam`'s path: the reported rank and support
+settle by a certified gap of 1e-3 (docs/robust_pca.md, "The rank")."""
+
+
+def suggest_lam(W, dec=None, *, n_lams=7, mask=None, ignore_diagonal=False,
+                seed=0, progress=None):
+    """The split's verdict with the lam a coarse lam path suggests.
+
+    Runs :func:`lambda_path` over ``n_lams`` values from a quarter to four
+    times the default lam, stopped at a certified gap of
+    :data:`SUGGEST_GAP_TOL`, and reads it with
+    :func:`eidecomp.decompose._verdict.settled_lam` (where the rank and the
+    support settle, every rule met).
+
+    Parameters
+    ----------
+    W : array_like of shape (n_post, n_pre)
+    dec : Decomposition or None
+        The split to judge; None judges the path's point nearest the
+        default lam.
+    n_lams, mask, ignore_diagonal, seed, progress
+        As in :func:`lambda_path`.
+
+    Returns
+    -------
+    verdict : SplitVerdict
+        ``dec``'s verdict with ``suggested_lam`` filled in (or None when no
+        lam settles) and ``path_checked`` true.
+    points : list of PathPoint
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from eidecomp.datasets import make_planted
+    >>> W, _, _ = make_planted(80, rank=3, corruption=0.05, seed=1)
+    >>> verdict, points = suggest_lam(W, n_lams=7)
+    >>> verdict.fits, verdict.suggested_lam is not None
+    (True, True)
+    """
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ConvergenceWarning)  # a loose path
+        points, decs = lambda_path(W, n_lams=n_lams, mask=mask,
+                                   ignore_diagonal=ignore_diagonal, seed=seed,
+                                   progress=progress, gap_tol=SUGGEST_GAP_TOL)
+    shape = decs[0].shape
+    if dec is None:
+        lam0 = default_lam(shape)
+        dec = min(decs, key=lambda d: abs(math.log(d.lam / lam0)))
+    v = dec.verdict
+    return judge_split(v.rank, shape, v.support_density, v.rank_band, v.lam,
+                       suggested_lam=settled_lam(points, shape),
+                       path_checked=True), points

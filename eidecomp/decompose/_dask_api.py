@@ -146,7 +146,8 @@ def robust_pca_dask(W, *, lam=None, tol=None, max_iter=None, dtype="float64",
                 client = Client(cluster)
         store = BlockStore(source, shape, dt, chunks, work)
         settings = SolverSettings.resolve(shape, lam=lam, tol=tol,
-                                          max_iter=max_iter, dtype=dtype)
+                                          max_iter=max_iter, dtype=dtype,
+                                          stop="residuals")
         lam = settings.lam
         U, s, Vt, s_path, info = dask_ialm(store, lam, tol=settings.tol,
                                            max_iter=settings.max_iter, seed=seed,

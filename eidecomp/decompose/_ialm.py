@@ -33,12 +33,25 @@ array has W's dtype (float64, or float32 in float32 mode).
 
 import numpy as np
 
-from ..params import MAX_ITER, TOL
+from ..params import (
+    FAST_PHASE,
+    MAX_ITER,
+    PRIMAL_TOL,
+    STRICT_SPLIT,
+    SUPPORT_RTOL,
+    TOL,
+)
 from ._anderson import Anderson, depth_for
-from ._svt import sketch_plan, spectral_norm, svt
+from ._certificate import GapCertificate, duality_gap
+from ._svt import reported_rank, sketch_plan, spectral_norm, svt
 
 __all__ = ["end_step", "ialm", "next_penalty", "next_rank", "split_point"]
 
+GAP_EVERY = 5  # steps between two certificates (each costs about one SVD)
+FAST_WINDOW = 20  # steps over which _fast measures the residuals' fall
+GAP_STALL = 20  # stop (not converged) after this many checks with no better
+                # certificate: near a degenerate optimum the gap of the ALM's
+                # iterates oscillates instead of falling (docs/robust_pca.md)
 GROW_STEPS = 20  # phase 1: mu grows by rho for at most this many steps
 BALANCE = 3.0    # phase 2: mu changes once one residual is BALANCE x the other
 _BALANCE_FACTOR = 2.0
@@ -68,10 +81,11 @@ def next_penalty(mu, history, polishing, *, tol, rho, mu_max):
 
 
 def end_step(history, callback, it, rank, mu, polishing, dY, dS, nY, norm_W,
-             *, tol, rho, mu_max):
+             *, tol, rho, mu_max, on_residuals=True):
     """The end of one ALM step, shared by every engine: the residuals from
     ||Y+ - Y||, ||S+ - S|| and ||Y+||, the history row, the callback, the
-    stopping rule (both residuals below tol) and the penalty schedule.
+    residual stop (both residuals below tol; off with ``on_residuals=False``,
+    where the caller stops on a certificate) and the penalty schedule.
 
     Returns (converged, mu, polishing).
     """
@@ -80,7 +94,7 @@ def end_step(history, callback, it, rank, mu, polishing, dY, dS, nY, norm_W,
     history.append((primal, dual, rank, mu))
     if callback is not None:
         callback(it, primal, dual, rank, mu)
-    if primal < tol and dual < tol:
+    if on_residuals and primal < tol and dual < tol:
         return True, mu, polishing
     mu, polishing = next_penalty(mu, history, polishing, tol=tol, rho=rho,
                                  mu_max=mu_max)
@@ -189,6 +203,48 @@ def _start(W, init):
     return S, Y, float(init[3])
 
 
+def _fast(history):
+    """True while the larger residual still falls by ``params.FAST_PHASE``
+    or more over ``FAST_WINDOW`` steps (the linear phase: the strict stop
+    is near)."""
+    if len(history) <= FAST_WINDOW:
+        return True
+    now = max(history[-1][:2])
+    then = max(history[-1 - FAST_WINDOW][:2])
+    return then >= FAST_PHASE * now
+
+
+def _fits(sv, S, top, mask, dtype):
+    """True when the split so far has the low rank and sparse S of
+    ``params.STRICT_SPLIT``: its L is what the circuit is built from, and
+    the solve goes on to the strict tolerance. The gap stop is for the other
+    splits, whose reported rank and support settle long before their
+    residuals do."""
+    rank, _ = reported_rank(sv, dtype)
+    big = np.abs(S) > SUPPORT_RTOL * top
+    support = float(big[mask > 0].mean() if mask is not None else big.mean())
+    return (rank <= STRICT_SPLIT["max_rank_share"] * min(S.shape)
+            and support <= STRICT_SPLIT["max_support_density"])
+
+
+def _certify(W, lam, sv, Us, Vt, Y, T, mu, observed, blocks):
+    """The duality gap of the step just taken (``_certificate``).
+
+    Two candidate multipliers: Y itself (|Y| <= lam by construction) and
+    clip(mu (T - L), lam), where T is the SVT's argument of the step: before
+    the clip that one lies in the subdifferential of ||.||_* at L, so its
+    spectral norm is at most 1. T is overwritten (the next step forms it
+    again)."""
+    for b in blocks:
+        tb = T[b]
+        if Us.shape[1]:
+            tb -= Us[b] @ Vt
+        tb *= mu
+        np.clip(tb, -lam, lam, out=tb)
+    return duality_gap(W, lam, (Us, Vt), float(np.sum(sv)), (Y, T),
+                       observed=observed)
+
+
 def _accelerate(accel, q, S, Y, mu_was, mu, lam, mask=None):
     """The accelerated point after a plain step from q that left (S, Y);
     S and Y are set from it in place. None once mu has changed (a new
@@ -202,7 +258,8 @@ def _accelerate(accel, q, S, Y, mu_was, mu, lam, mask=None):
 
 
 def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.5,
-         init=None, rng=None, callback=None, accelerate=True):
+         init=None, rng=None, callback=None, accelerate=True, gap_tol=None,
+         primal_tol=PRIMAL_TOL["float64"]):
     """Solve PCP by inexact ALM; arrays in, arrays out.
 
     Parameters
@@ -225,14 +282,25 @@ def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.
     accelerate : bool
         Anderson acceleration in the balancing phase (``_anderson``), with a
         depth that fits ``_anderson.HISTORY_BYTES``.
+    gap_tol : float or None
+        None: stop only when both residuals are below ``tol``. A number: stop
+        also when the primal residual is below ``primal_tol`` and the
+        certified relative duality gap (``_certificate``) at most
+        ``gap_tol``. The gap is checked every ``GAP_EVERY`` steps once the
+        residuals no longer fall fast (``_fast``). The step with the smallest
+        gap is returned; after ``GAP_STALL`` checks without a smaller one the
+        solve stops, not converged.
+    primal_tol : float
+        The primal residual below which the gap is checked.
 
     Returns
     -------
     L, S, Y : ndarray of shape (m, n)
     info : dict
         ``n_iter``, ``converged``, ``history`` (one row ``(primal, dual, rank,
-        mu)`` per iteration), ``mu`` (to warm-start a neighbour), and
-        ``singular_values`` of the returned L.
+        mu)`` per iteration), ``mu`` (to warm-start a neighbour),
+        ``singular_values`` of the returned L, and ``certificate``, the
+        :class:`~._certificate.GapCertificate` of the last step.
     """
     m, n = W.shape
     dtype = W.dtype
@@ -246,8 +314,11 @@ def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.
         return zero, zero.copy(), zero.copy(), {
             "n_iter": 0, "converged": True, "history": [], "mu": 0.0,
             "singular_values": np.zeros(0),
+            "certificate": GapCertificate(gap=0.0, primal=0.0, dual=0.0,
+                                          scale=1.0),
             "acceleration": {"depth": 0, "restarts": 0}}
     S, Y, mu = _start(W, init)
+    top = max(float(W.max()), -float(W.min()))  # max|W| on Omega
     k = min(10, n_small)
     mu_max = mu * _MU_MAX_FACTOR
     T, blocks, work = _workspace(W)
@@ -261,6 +332,8 @@ def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.
     accel = Anderson(depth) if depth else None
     q = None  # the accelerated point S + Y/mu (phase 2 only)
     it = 0
+    cert, checked = None, -GAP_EVERY
+    best, since = None, 0  # the best certified step, and checks since it
     for it in range(1, max_iter + 1):
         inv_mu = 1.0 / mu
         if q is None and polishing and accel is not None:
@@ -279,11 +352,30 @@ def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.
             np.sqrt(Y2), norm_W, tol=tol, rho=rho, mu_max=mu_max)
         if converged:
             break
+        if (gap_tol is not None and history[-1][0] < primal_tol
+                and it - checked >= GAP_EVERY and not _fast(history)
+                and not _fits(s, S, top, mask, dtype)):
+            checked = it
+            cert = _certify(W, lam, s, Us, Vt, Y, T, mu_was, observed, blocks)
+            if best is None or cert.gap < best[0].gap:
+                best, since = (cert, s.copy(), Us.copy(), Vt.copy(), S.copy(),
+                               Y.copy(), it), 0
+            else:
+                since += 1
+            converged = best[0].gap <= gap_tol
+            if converged or since >= GAP_STALL:
+                break
         if q is not None:
             q = _accelerate(accel, q, S, Y, mu_was, mu, lam, mask)
-    del T, work  # the work arrays go before L arrives
+    if cert is None or checked != it:  # the certificate of the last step
+        cert = _certify(W, lam, s, Us, Vt, Y, T, mu_was, observed, blocks)
+    if best is not None and best[0].gap < cert.gap:  # go back to the best step
+        cert, s, Us, Vt, S, Y, _ = best
+        r = len(s)
+    del T, work, best  # the work arrays go before L arrives
     L = (Us @ Vt).astype(dtype, copy=False) if r else np.zeros_like(W)
     return L, S, Y, {"n_iter": it, "converged": converged, "history": history,
                      "mu": mu, "singular_values": np.array(s),
+                     "certificate": cert,
                      "acceleration": {"depth": depth, "restarts":
                                       accel.restarts if accel else 0}}

@@ -57,12 +57,12 @@ def robust_pca_kernel(K, grid, *, lam=None, boundary="periodic", offsets=False,
     F = (G if G is not None else K).shape[0]
     n = F * h * w
     settings = SolverSettings.resolve((n, n), lam=lam, tol=tol,
-                                      max_iter=max_iter)
+                                      max_iter=max_iter, stop="residuals")
     lam, tol = settings.lam, settings.tol
     if boundary == "zero":
         return robust_pca(expand(K, (h, w), "zero"), lam=lam, tol=tol,
                           max_iter=max_iter, rho=rho, progress=progress,
-                          seed=seed)
+                          seed=seed, stop="residuals")
     with blas_threads(G.shape[:2]):  # many small F x F blocks
         L, S, _, info = kernel_ialm(G, lam, tol=tol, max_iter=settings.max_iter,
                                     rho=rho, callback=progress)

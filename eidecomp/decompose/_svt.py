@@ -16,10 +16,10 @@ the smaller dimension a full SVD is used instead.
 
 import numpy as np
 
-from ..params import RANK_RTOL
+from ..params import RANK_RTOL, REPORTED_RANK_RTOL
 
-__all__ = ["leading_triplets", "numerical_rank", "rank_cut", "sketch_plan",
-           "spectral_norm", "svt"]
+__all__ = ["leading_triplets", "numerical_rank", "rank_cut", "reported_rank",
+           "sketch_plan", "spectral_norm", "svt"]
 
 # Below this size a full SVD is as cheap as any partial scheme.
 _SMALL = 64
@@ -53,6 +53,21 @@ def numerical_rank(s, dtype=np.float64):
     if s.size == 0 or not s[0] > 0:
         return 0
     return int(np.count_nonzero(s > rank_cut(s[0], dtype)))
+
+
+def reported_rank(s, dtype=np.float64):
+    """(rank, band) of L from its decreasing singular values ``s``: the
+    values above ``params.REPORTED_RANK_RTOL`` times the largest, and how
+    many lie between that cut and the noise floor of ``rank_cut``.
+
+    >>> reported_rank([1.0, 0.5, 2e-3, 5e-4, 1e-4, 1e-7])
+    (3, 2)
+    """
+    s = np.asarray(s, dtype=float)
+    if s.size == 0 or not s[0] > 0:
+        return 0, 0
+    rank = int(np.count_nonzero(s > REPORTED_RANK_RTOL * s[0]))
+    return rank, max(0, numerical_rank(s, dtype) - rank)
 
 
 def _kept(s, tau, dtype):

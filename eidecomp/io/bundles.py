@@ -375,7 +375,8 @@ def read_decomposition(folder):
                         lam=float(_number(doc, "lam", where)),
                         objective=float(_number(doc, "objective", where)),
                         n_iter=int(_number(doc, "n_iter", where, int)),
-                        converged=bool(require(doc, "converged", bool, where)))
+                        converged=bool(require(doc, "converged", bool, where)),
+                        verdict=read_verdict(doc, where))
     return dec, doc
 
 
@@ -560,6 +561,38 @@ def json_number(value):
     return value
 
 
+def split_fields(dec):
+    """What summary.json and circuit.json record of a split beyond its
+    numbers: the certified gap, the reported support and rank band, and the
+    verdict (one form, read back by :func:`read_verdict`)."""
+    report, verdict = dec.report, dec.verdict
+    return {"duality_gap": json_number(None if report is None
+                                       else report.duality_gap),
+            "rank_band": int(dec.rank_band),
+            "support_density": json_number(dec.support_density),
+            "verdict": None if verdict is None else
+            {k: json_number(v) for k, v in verdict.as_dict().items()}}
+
+
+def read_verdict(doc, where):
+    """The SplitVerdict recorded by :func:`split_fields`, or None."""
+    from ..types import SplitVerdict
+
+    v = doc.get("verdict")
+    if v is None:
+        return None
+    if not isinstance(v, dict):
+        raise InputError(f"{where}: 'verdict' must be an object")
+    fields = SplitVerdict.__dataclass_fields__
+    unknown = sorted(set(v) - set(fields))
+    if unknown:
+        raise InputError(f"{where}: 'verdict' has unknown key {unknown[0]!r}")
+    try:
+        return SplitVerdict(**{**v, "reasons": tuple(v.get("reasons") or ())})
+    except TypeError as exc:
+        raise InputError(f"{where}: 'verdict' is incomplete ({exc})") from None
+
+
 def write_decomposition(out, dec, *, source, parameters, mask=None,
                         force=False, inputs=()):
     """A decomposition folder: low_rank.npy, sparse.npy and summary.json.
@@ -578,7 +611,8 @@ def write_decomposition(out, dec, *, source, parameters, mask=None,
            "sparsity": dec.sparsity, "objective": dec.objective,
            "n_iter": dec.n_iter, "converged": dec.converged,
            "optimality": {k: json_number(v)
-                          for k, v in dec.report.as_dict().items()}}
+                          for k, v in dec.report.as_dict().items()},
+           **split_fields(dec)}
     return write_bundle(out, DECOMPOSITION,
                         {"low_rank.npy": np.asarray(dec.low_rank),
                          "sparse.npy": np.asarray(dec.sparse)},

@@ -1,0 +1,154 @@
+"""Is W low-rank plus sparse at this lam? One verdict, one line.
+
+Robust PCA always returns a split; only some splits are the low-rank plus
+sparse structure the circuit's labels assume (untuned interneurons from L,
+tuned ones from S). The rules (``params.FIT_RULES``, our own, chosen by
+measurement in docs/robust_pca.md, "The verdict"):
+
+* the reported rank is at most a third of min(m, n);
+* S's reported support covers at most 40 % of the observed entries;
+* L's spectrum has an edge: at most max(3, 10 % of the rank) singular values
+  lie between the solver's noise floor and the reported-rank cut.
+
+Planted problems inside the region where PCP recovers them (Candes, Li, Ma,
+Wright 2011, section 4.1) meet all three; unplanted Gaussian matrices,
+planted ones past that region and the natural-statistics matrices of
+benchmarks/hard.py fail at least one.
+
+:func:`settled_lam` reads a lam path for the lam where the rank and the
+support settle: the longest run of consecutive path points (at least
+three) whose reported ranks differ by at most max(1, 2 % of the rank) and
+whose supports by at most 10 % (relative), all meeting the rules; it
+suggests the geometric middle of the run.
+"""
+
+import math
+from dataclasses import replace
+
+from ..params import FIT_RULES
+from ..types import SplitVerdict
+
+__all__ = ["judge_split", "meets_rules", "settled_lam", "verdict_line"]
+
+_RUN_MIN = 3
+_RANK_STEP = 0.02
+_SUPPORT_STEP = 0.10
+
+
+def _reasons(rank, n_small, support, band):
+    share = rank / n_small if n_small else 0.0
+    out = []
+    if share > FIT_RULES["max_rank_share"]:
+        out.append(f"L is not low-rank (rank {rank} of {n_small}, "
+                   f"{100 * share:.0f} % > {100 * FIT_RULES['max_rank_share']:.0f} %)")
+    if support > FIT_RULES["max_support_density"]:
+        out.append(f"S is not sparse ({100 * support:.0f} % of the entries > "
+                   f"{100 * FIT_RULES['max_support_density']:.0f} %)")
+    if band > max(FIT_RULES["min_band"], FIT_RULES["max_band_share"] * rank):
+        out.append(f"L's spectrum has no edge ({band} singular values below "
+                   "the rank cut)")
+    return share, tuple(out)
+
+
+def meets_rules(rank, shape, support, band):
+    """True when a split of this rank, support and band meets every rule."""
+    return not _reasons(rank, min(shape), support, band)[1]
+
+
+def verdict_line(v):
+    """The one sentence every output shows for a verdict ``v``."""
+    head = (f"at lam {v.lam:.4g} the split has rank {v.rank} "
+            f"({100 * v.rank_share:.0f} % of the units) and S on "
+            f"{100 * v.support_density:.0f} % of the entries")
+    if v.fits:
+        return f"W is low-rank plus sparse: {head}."
+    if v.suggested_lam is not None:
+        where = (f"the lam path settles at lam {v.suggested_lam:.4g} "
+                 "(--lam there)")
+    elif v.path_checked:
+        where = "no lam on the path gives a settled low-rank plus sparse split"
+    else:
+        where = "eidecomp.decompose.suggest_lam searches the lam path"
+    return (f"W is not low-rank plus sparse: {head}; "
+            + "; ".join(v.reasons) + f". The untuned and tuned labels then name "
+            "the two parts of this split, not two kinds of interneuron; "
+            f"{where}.")
+
+
+def judge_split(rank, shape, support_density, rank_band, lam, *,
+                suggested_lam=None, path_checked=False):
+    """The verdict on one split.
+
+    Parameters
+    ----------
+    rank : int
+        Reported rank of L.
+    shape : tuple (m, n)
+    support_density : float
+        Reported support of S (fraction of observed entries).
+    rank_band : int
+        Singular values between the noise floor and the rank cut.
+    lam : float
+    suggested_lam : float or None
+        From :func:`settled_lam` on a path, when one was run.
+    path_checked : bool
+
+    Returns
+    -------
+    SplitVerdict
+
+    Examples
+    --------
+    >>> judge_split(5, (100, 100), 0.05, 0, 0.1).fits
+    True
+    >>> v = judge_split(52, (100, 100), 0.5, 30, 0.1)
+    >>> v.fits, len(v.reasons)
+    (False, 3)
+    """
+    share, reasons = _reasons(int(rank), min(shape), float(support_density),
+                              int(rank_band))
+    v = SplitVerdict(fits=not reasons, rank=int(rank), rank_share=share,
+                     support_density=float(support_density),
+                     rank_band=int(rank_band), lam=float(lam), reasons=reasons,
+                     suggested_lam=None if suggested_lam is None
+                     else float(suggested_lam), path_checked=bool(path_checked))
+    return replace(v, line=verdict_line(v))
+
+
+def settled_lam(points, shape):
+    """The lam where a path's rank and support settle, or None.
+
+    ``points`` are :class:`~eidecomp.types.PathPoint` in increasing lam,
+    each with ``support_density`` and ``rank_band`` (as
+    :func:`eidecomp.lambda_path` returns them). See the module docstring for
+    the rule.
+
+    >>> from eidecomp.types import PathPoint
+    >>> pts = [PathPoint(lam=l, rank=r, sparsity=0.1, nuclear_norm=1.0,
+    ...                  l1_norm=1.0, primal_residual=0.0, objective=1.0,
+    ...                  n_iter=1, converged=True, support_density=d)
+    ...        for l, r, d in [(0.01, 0, 1.0), (0.02, 5, 0.10), (0.04, 5, 0.10),
+    ...                        (0.08, 5, 0.095), (0.16, 60, 0.01)]]
+    >>> round(settled_lam(pts, (100, 100)), 4)
+    0.04
+    """
+    def ok(p):
+        return (p.rank > 0 and p.support_density is not None
+                and meets_rules(p.rank, shape, p.support_density, p.rank_band))
+
+    def close(a, b):
+        return (abs(a.rank - b.rank) <= max(1, _RANK_STEP * max(a.rank, b.rank))
+                and abs(a.support_density - b.support_density)
+                <= _SUPPORT_STEP * max(a.support_density, b.support_density))
+
+    best, run = [], []
+    for p in points:
+        if ok(p) and run and close(run[-1], p):
+            run.append(p)
+        else:
+            run = [p] if ok(p) else []
+        if len(run) > len(best):
+            best = list(run)
+    if len(best) < _RUN_MIN:
+        return None
+    return math.sqrt(best[0].lam * best[-1].lam)
