@@ -9,6 +9,12 @@
 * ``unplanted``: numpy ``default_rng(seed).standard_normal(shape)``; the
   seeds of the known hard cases (25 x 25 at lam 0.12, tol 1e-7: seed 2, as in
   tests/test_path_and_estimator.py) are the base, shifted by --seed + trial.
+* ``natural``: lateral matrices from natural-stimulus statistics built from
+  scikit-learn's sample photographs (eidecomp.datasets): Gabor-response
+  covariance (16 orientations on a 6 x 6 lattice, 576 units; 8 on 5 x 5,
+  200 units), partial correlations of 12 x 12 pixel patches (144 units) and
+  a sparse-coding dictionary's lateral weights (256 atoms on 8 x 8
+  patches); at the default lam and stop.
 * ``example``: the project's own example lateral matrix,
   :func:`eidecomp.datasets.example_lateral` at its default seed (what
   examples/decompose_example.py and ``demo_inputs`` use), solved as the
@@ -19,10 +25,16 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from eidecomp.datasets import example_lateral, make_planted
+from eidecomp.datasets import (
+    example_lateral,
+    gabor_covariance,
+    make_planted,
+    patch_partial_correlations,
+    sparse_coding_lateral,
+)
 
 __all__ = ["FULL_GRID", "QUICK_GRID", "SUBSET_GRID", "Case", "example_case",
-           "planted_case", "unplanted_cases"]
+           "natural_cases", "planted_case", "unplanted_cases"]
 
 FULL_GRID = tuple((rr, rs) for rr in (0.05, 0.10, 0.15, 0.20)
                   for rs in (0.05, 0.10, 0.20, 0.30))
@@ -94,3 +106,13 @@ def unplanted_cases(*, quick=False, seed=0, trial=0):
 def example_case():
     W, _ = example_lateral()
     return Case(label="example lateral", W=W, ignore_diagonal=True)
+
+
+def natural_cases(*, quick=False):
+    """The natural-statistics rows (fixed matrices: no seed, no trials)."""
+    yield Case(label="photo pcorr 12x12", W=patch_partial_correlations(12))
+    yield Case(label="gabor cov 8x5x5", W=gabor_covariance(8, 5))
+    if quick:
+        return
+    yield Case(label="sparse coding 256", W=sparse_coding_lateral())
+    yield Case(label="gabor cov 16x6x6", W=gabor_covariance(16, 6))

@@ -382,7 +382,7 @@ def _dense_rows(result):
              + f"  (certified; stop: {o.get('stop', '-')})"),
             ("||Y||_2", _num(o["multiplier_spectral_norm"], ".6f")),
             ("||Y||_max / lam", _num(o["multiplier_max_norm_over_lam"], ".6f")),
-            ("reported rank", f"{s['rank']} (+{s.get('rank_band', 0)} values "
+            ("rank of L", f"{s['rank']} (+{s.get('rank_band', 0)} values "
              "below the rank cut)"),
             ("support of S", _percent(s.get("support_density")))]
 
