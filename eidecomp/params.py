@@ -30,6 +30,7 @@ __all__ = [
     "DTYPES",
     "GAP_TOL",
     "MAX_ITER",
+    "PATH_GAP_TOL",
     "PRIMAL_TOL",
     "FAST_PHASE",
     "STRICT_SPLIT",
@@ -106,6 +107,10 @@ matrices the reported rank and support no longer change beyond a gap of 1e-3,
 and near their degenerate optima the ALM's certificate oscillates between
 5e-5 and 5e-4 instead of falling, so a smaller default would stop there only
 by luck."""
+PATH_GAP_TOL = 1e-3
+"""The certified gap at which a lam path stops each point (the report's path
+and ``suggest_lam``'s): the reported rank and support it shows have settled
+there (docs/robust_pca.md, "The rank")."""
 PRIMAL_TOL = {"float64": 2e-5, "float32": 2e-5}
 """The relative primal residual ||P_Omega(W - L - S)||_F / ||P_Omega W||_F
 below which stop ``"gap"`` checks the gap. Measured with :data:`GAP_TOL`: at

@@ -191,17 +191,18 @@ def _stop_options(config):
     return out
 
 
-def _with_suggestion(W, dec, config, progress):
+def _with_suggestion(W, dec, config, progress, points=None):
     """``dec`` with the lam path's suggestion in its verdict, when the
     verdict says W is not low-rank plus sparse at the lam chosen (the ALM
-    only, and not when a target rank chose lam)."""
+    only, and not when a target rank chose lam); ``points``, the report's
+    path when there is one, saves solving another."""
     from .decompose import suggest_lam
 
     if (dec.verdict is None or dec.verdict.fits or dec.method != "ialm"
             or config.target_rank is not None):
         return dec
     verdict, _ = suggest_lam(W, dec, mask=dec.observed, seed=config.seed,
-                             progress=progress)
+                             progress=progress, points=points)
     with handing_over():
         return dataclasses.replace(dec, verdict=verdict)
 
@@ -410,6 +411,7 @@ def _assemble_dense(config, out, progress, stage_progress, extra_files):
     units = read_unit_table(config.units, W.shape[0], period=config.period,
                             position_unit=config.position_unit,
                             magnification=config.magnification)
+    path = None  # the report's lam path, solved once
     if dec is None:  # every input read and checked: now the work
         if config.dtype == "float32":   # W is kept for the stability and
             W = W.astype(np.float32)    # report: at the split's precision
@@ -419,7 +421,10 @@ def _assemble_dense(config, out, progress, stage_progress, extra_files):
                          solver=config.solver, seed=config.seed,
                          progress=progress, dtype=config.dtype,
                          **_stop_options(config))
-        dec = _with_suggestion(W, dec, config, stage_progress)
+        if config.report:
+            announcer(stage_progress)("report: lambda path")
+            path = report_lam_path(W, progress=stage_progress)
+        dec = _with_suggestion(W, dec, config, stage_progress, points=path)
     circuit = assemble(dec, ei_ratio=ratio, untuned_share=config.untuned_share,
                        alpha=config.alpha, seed=config.seed,
                        progress=stage_progress)
@@ -439,8 +444,9 @@ def _assemble_dense(config, out, progress, stage_progress, extra_files):
         parameters={"period": config.period}, unit_ids=units.ids)
     files = dict(extra_files or {})
     if config.report:
-        tell("report: lambda path")
-        path = report_lam_path(W)
+        if path is None:  # a decomposition folder given: its path here
+            tell("report: lambda path")
+            path = report_lam_path(W, progress=stage_progress)
         files["report.html"], svgs = render_report_files(
             circuit, doc, W, low_rank=np.asarray(dec.low_rank),
             features=units.features, positions=units.positions,
@@ -674,7 +680,8 @@ def run_report(bundle, output, *, force=False, progress=None):
     tell("report: lambda path")
     page, svgs = render_report_files(
         b.circuit, b.doc, W, low_rank=b.low_rank, features=b.features,
-        positions=b.positions, path_points=report_lam_path(W),
+        positions=b.positions,
+        path_points=report_lam_path(W, progress=progress),
         progress=progress, link=f"{figures.name}/")
     tell("report: writing")
     # the page is written while the new figures wait under a temporary name:

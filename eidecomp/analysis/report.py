@@ -19,64 +19,35 @@ from urllib.parse import quote
 import numpy as np
 
 from ..errors import ConvergenceWarning
-from ..params import DEFAULT_PERIOD
+from ..params import DEFAULT_PERIOD, PATH_GAP_TOL
 from ..progress import announcer
 from ..types import TUNED, UNTUNED
 from . import plotting
 from .rules import circuit_rules
 from .tuning import interneuron_pools
 
-__all__ = ["PATH_MAX_UNITS", "PROFILES_TITLE", "REPORT_TITLE", "path_max_iter",
-           "render_report", "render_report_files", "report_lam_path", "svg_name"]
+__all__ = ["PATH_MAX_UNITS", "PROFILES_TITLE", "REPORT_TITLE", "render_report",
+           "render_report_files", "report_lam_path", "svg_name"]
 
 REPORT_TITLE = "eidecomp circuit report"  # also how --force tells a report
 PROFILES_TITLE = "Connection profiles"  # not "rules": simulators' word for wiring
 PATH_MAX_UNITS = 600  # the lam path re-solves robust PCA 8 times
 PATH_LAMS = 8  # from a quarter to four times the default lam
-PATH_TOL = 1e-6  # a figure: rank and sparsity, not a result to reuse
-PATH_STEPS_300 = 100  # ALM steps a lam may take at 300 units (fewer above)
-PATH_MIN_STEPS = 20
 PATH_BREAKDOWN = 0.5  # no larger lam once L holds more than this share of rank
 
 
-def path_max_iter(n):
-    """ALM steps each lam of the report's path may take at ``n`` units.
-
-    The path's cost is its high-lam points, where L is nearly full rank and
-    every step costs a full SVD (~n^3): the cap keeps that work about
-    constant, 100 steps at 300 units and fewer in proportion to (300 / n)^3
-    above, never below 20. A point that stops at its cap is drawn hollow
-    and counted in the caption, not passed off as converged.
-
-    >>> path_max_iter(300), path_max_iter(120), path_max_iter(600)
-    (100, 100, 20)
-    """
-    scaled = PATH_STEPS_300 * (300.0 / max(int(n), 1)) ** 3
-    return int(min(PATH_STEPS_300, max(PATH_MIN_STEPS, round(scaled))))
-
-
-def report_lam_path(W):
+def report_lam_path(W, *, progress=None):
     """The lam path drawn in the report, or None above :data:`PATH_MAX_UNITS`.
 
     Eight lams, log-spaced from a quarter to four times the default
-    1/sqrt(n), each solved from a cold start: on the matrices measured
-    (planted, random sparse and a real connectome, ~300 units) the warm
-    start of :func:`eidecomp.lambda_path` failed at the hard, high-rank
-    points and restarted cold, costing more than cold starts throughout.
-    A figure, not a result: tolerance 1e-6 and :func:`path_max_iter` steps;
-    a point stopped at the cap keeps ``converged=False`` (drawn hollow), so
-    ConvergenceWarning is not shown for it. Once a solve ends with L above
-    half of full rank (converged: the split has broken down, L holds most
-    of W; stopped at the cap: its last iterate already that far), the
-    larger lams, costlier still, are not solved; the page says so.
+    1/sqrt(n), solved by :func:`eidecomp.lambda_path` from one to the next
+    (warm starts), each stopped at the certified duality gap of
+    :data:`eidecomp.params.PATH_GAP_TOL` (the rank and support it
+    draws have settled there; docs/robust_pca.md, "The rank"). Once a
+    converged solve gives L more than half of full rank, the split has broken
+    down (L holds most of W) and the larger lams, costlier still, are not
+    solved; the page says so. ``progress`` names each lam.
 
-    Returns
-    -------
-    list of PathPoint or None
-
-    Examples
-    --------
-    >>> import numpy as np
     >>> W = np.random.default_rng(0).standard_normal((30, 30))
     >>> pts = report_lam_path(W)
     >>> bool(np.isclose(pts[0].lam, 0.25 / np.sqrt(30)))
@@ -86,19 +57,21 @@ def report_lam_path(W):
     """
     from ..decompose import lambda_path
 
-    n = max(np.shape(W))
     if np.shape(W)[0] > PATH_MAX_UNITS:
         return None
-    points = []
     with warnings.catch_warnings():
-        warnings.simplefilter("ignore", ConvergenceWarning)
-        for lam in _path_lams(W):
-            if points and _broken_down(points[-1], W):
-                break
-            pts, _ = lambda_path(W, [float(lam)], tol=PATH_TOL,
-                                 max_iter=path_max_iter(n))
-            points += pts
+        warnings.simplefilter("ignore", ConvergenceWarning)  # drawn hollow
+        points, _ = lambda_path(W, list(_path_lams(W)), gap_tol=PATH_GAP_TOL,
+                                progress=_in_report(progress),
+                                until=lambda p: _broken_down(p, W))
     return points
+
+
+def _in_report(progress):
+    """A stage callback whose stages read "report: ...", or None."""
+    if progress is None:
+        return None
+    return lambda stage, *rest: progress(f"report: {stage}", *rest)
 
 
 def _path_lams(W):
@@ -281,8 +254,8 @@ def _path_note(points, W):
                 "lam path: not computed.")
     stopped = [p for p in points if not p.converged]
     text = (f"lam path: {len(points)} lam from {points[0].lam:.3g} to "
-            f"{points[-1].lam:.3g}, each solved from a cold start to tolerance "
-            f"{PATH_TOL:g}")
+            f"{points[-1].lam:.3g}, each started from its neighbour's solution "
+            f"and stopped at a certified duality gap of {PATH_GAP_TOL:g}")
     grid = _path_lams(W)
     done = len(points)
     if done < len(grid) and np.allclose([p.lam for p in points], grid[:done]):
@@ -293,10 +266,9 @@ def _path_note(points, W):
                  + ("the split has broken down, L holds most of W)"
                     if last.converged else "its last iterate, not converged)"))
     if stopped:
-        text += (f"; {len(stopped)} stopped at the report's cap of "
-                 f"{max(p.n_iter for p in stopped)} steps before converging "
-                 "(hollow markers: the rank and sparsity of the last iterate, "
-                 "not settled)")
+        text += (f"; {len(stopped)} stopped before reaching that gap "
+                 "(hollow markers: the rank and sparsity of the best "
+                 "certified iterate, not settled)")
     return text + "."
 
 

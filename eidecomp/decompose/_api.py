@@ -25,6 +25,7 @@ from ..names import unit_labels
 from ..params import (
     GAP_TOL,
     MAX_ITER,
+    PATH_GAP_TOL,
     PRIMAL_TOL,
     SUPPORT_RTOL,
     SolverSettings,
@@ -495,7 +496,7 @@ def _search_rank(solve, lam, k, max_evals=40):
 
 def lambda_path(W, lams=None, *, n_lams=12, mask=None, ignore_diagonal=False,
                 tol=None, max_iter=MAX_ITER, seed=0, progress=None, stop="gap",
-                gap_tol=None):
+                gap_tol=None, until=None):
     """Solve PCP over a range of lam with warm starts (fast ALM solver).
 
     Parameters
@@ -512,6 +513,9 @@ def lambda_path(W, lams=None, *, n_lams=12, mask=None, ignore_diagonal=False,
         Called as ``progress(stage, 0, nan)`` before each lam (the stage
         names the point and the time so far: :class:`eidecomp.progress.Progress`
         takes it as it is).
+    until : callable or None
+        ``until(point)`` true ends the path after that point (the larger
+        lams are not solved).
 
     Returns
     -------
@@ -567,21 +571,18 @@ def lambda_path(W, lams=None, *, n_lams=12, mask=None, ignore_diagonal=False,
                                 rank_band=dec.rank_band,
                                 duality_gap=r.duality_gap))
         decs.append(dec)
+        if until is not None and until(points[-1]):
+            break
     return points, decs
 
 
-SUGGEST_GAP_TOL = 1e-3
-"""The stop of :func:`suggest_lam`'s path: the reported rank and support
-settle by a certified gap of 1e-3 (docs/robust_pca.md, "The rank")."""
-
-
 def suggest_lam(W, dec=None, *, n_lams=7, mask=None, ignore_diagonal=False,
-                seed=0, progress=None):
+                seed=0, progress=None, points=None):
     """The split's verdict with the lam a coarse lam path suggests.
 
     Runs :func:`lambda_path` over ``n_lams`` values from a quarter to four
     times the default lam, stopped at a certified gap of
-    :data:`SUGGEST_GAP_TOL`, and reads it with
+    :data:`PATH_GAP_TOL`, and reads it with
     :func:`eidecomp.decompose._verdict.settled_lam` (where the rank and the
     support settle, every rule met).
 
@@ -593,6 +594,9 @@ def suggest_lam(W, dec=None, *, n_lams=7, mask=None, ignore_diagonal=False,
         default lam.
     n_lams, mask, ignore_diagonal, seed, progress
         As in :func:`lambda_path`.
+    points : list of PathPoint or None
+        A path already solved (the report's): read instead of solving one;
+        ``dec`` is then required.
 
     Returns
     -------
@@ -610,15 +614,19 @@ def suggest_lam(W, dec=None, *, n_lams=7, mask=None, ignore_diagonal=False,
     >>> verdict.fits, verdict.suggested_lam is not None
     (True, True)
     """
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", ConvergenceWarning)  # a loose path
-        points, decs = lambda_path(W, n_lams=n_lams, mask=mask,
-                                   ignore_diagonal=ignore_diagonal, seed=seed,
-                                   progress=progress, gap_tol=SUGGEST_GAP_TOL)
-    shape = decs[0].shape
-    if dec is None:
-        lam0 = default_lam(shape)
-        dec = min(decs, key=lambda d: abs(math.log(d.lam / lam0)))
+    if points is None:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", ConvergenceWarning)  # a loose path
+            points, decs = lambda_path(W, n_lams=n_lams, mask=mask,
+                                       ignore_diagonal=ignore_diagonal,
+                                       seed=seed, progress=progress,
+                                       gap_tol=PATH_GAP_TOL)
+        if dec is None:
+            lam0 = default_lam(np.shape(W))
+            dec = min(decs, key=lambda d: abs(math.log(d.lam / lam0)))
+    elif dec is None:
+        raise InputError("suggest_lam: a path given without its decomposition")
+    shape = dec.shape
     v = dec.verdict
     return judge_split(v.rank, shape, v.support_density, v.rank_band, v.lam,
                        suggested_lam=settled_lam(points, shape),
