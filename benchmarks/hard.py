@@ -437,8 +437,8 @@ def _natural_table(args):
         ours = _feasible_objective(case.W, dec.low_rank, lam)
         tl_t = tl_obj = None
         try:
-            tl_t, (D, _, _) = _timed(lambda c=case: _tensorly(c, lam,
-                                                             args.tensorly_iter))
+            tl_t, (D, _, _) = _timed(lambda c=case, lam=lam: _tensorly(
+                c, lam, args.tensorly_iter))
             tl_obj = _feasible_objective(case.W, D, lam)
         except ImportError:
             pass

@@ -27,7 +27,6 @@ from ..params import (
     MAX_ITER,
     PATH_GAP_TOL,
     PRIMAL_TOL,
-    SUPPORT_RTOL,
     SolverSettings,
     check_lam,
     default_lam,
@@ -35,13 +34,13 @@ from ..params import (
 )
 from ..progress import announcer
 from ..types import Decomposition, OptimalityReport, PathPoint, handing_over
-from ._convex import SOLVERS, ConvexPCP, convex_bytes, largest_convex, solver_name
 from ._certificate import duality_gap
+from ._convex import SOLVERS, ConvexPCP, convex_bytes, largest_convex, solver_name
 from ._ialm import ialm
 from ._norms import spectral_norm_bound
 from ._svt import numerical_rank, reported_rank
-from ._verdict import judge_split, settled_lam
 from ._threads import blas_threads
+from ._verdict import judge_split, settled_lam, support_density
 
 __all__ = ["default_lam", "lambda_path", "pcp_objective", "robust_pca",
            "suggest_lam"]
@@ -149,26 +148,24 @@ def _report(W, L, S, Y, lam, observed, *, nuclear, dual, n_iter, converged,
         dual_objective=None if certificate is None else certificate.dual)
 
 
-def _support_density(S, W, observed=None):
-    """The reported support of S: the fraction of observed entries with
-    |S_ij| above ``params.SUPPORT_RTOL`` times max|W| (row blocks)."""
+def _max_abs(W, observed=None):
+    """max |W| over the observed entries (row blocks)."""
     rows = max(1, (1 << 22) // max(W.shape[1], 1))
-    top = max(float(np.max(W)), -float(np.min(W))) if W.size else 0.0
-    cut = SUPPORT_RTOL * top
-    count = total = 0
+    top = 0.0
     for s in range(0, W.shape[0], rows):
-        big = np.abs(S[s:s + rows]) > cut
+        block = np.abs(W[s:s + rows])
         if observed is not None:
-            big = big[observed[s:s + rows]]
-        count += int(np.count_nonzero(big))
-        total += big.size
-    return count / total if total else 0.0
+            block = block[observed[s:s + rows]]
+        if block.size:
+            top = max(top, float(block.max()))
+    return top
 
 
 def _judged(dec, W, observed, sv):
     """``dec`` with its reported rank, band, support and verdict."""
     rank, band = reported_rank(sv, dec.low_rank.dtype)
-    support = _support_density(dec.sparse, W, observed)
+    top = _max_abs(W, observed)
+    support = support_density(dec.sparse, top, observed)
     verdict = judge_split(rank, W.shape, support, band, dec.lam)
     with handing_over():
         return dataclasses.replace(dec, rank=rank, rank_band=band,
@@ -522,8 +519,9 @@ def lambda_path(W, lams=None, *, n_lams=12, mask=None, ignore_diagonal=False,
     points : list of PathPoint
         One per lam, in increasing lam: rank, sparsity, ||L||_*, ||S||_1,
         primal residual, iterations and seconds (their sum is the path's
-        cost), the reported support, the rank band and the certified gap. Each solve starts from its neighbour's (warm start), cold
-        when that is slower (:func:`_ialm_decomposition`).
+        cost), the reported support, the rank band and the certified gap.
+        Each solve starts from its neighbour's (warm start), cold when that
+        is slower (:func:`_ialm_decomposition`).
     decompositions : list of Decomposition
 
     Examples

@@ -38,12 +38,12 @@ from ..params import (
     MAX_ITER,
     PRIMAL_TOL,
     STRICT_SPLIT,
-    SUPPORT_RTOL,
     TOL,
 )
 from ._anderson import Anderson, depth_for
 from ._certificate import GapCertificate, duality_gap
 from ._svt import reported_rank, sketch_plan, spectral_norm, svt
+from ._verdict import support_density
 
 __all__ = ["end_step", "ialm", "next_penalty", "next_rank", "split_point"]
 
@@ -81,11 +81,10 @@ def next_penalty(mu, history, polishing, *, tol, rho, mu_max):
 
 
 def end_step(history, callback, it, rank, mu, polishing, dY, dS, nY, norm_W,
-             *, tol, rho, mu_max, on_residuals=True):
+             *, tol, rho, mu_max):
     """The end of one ALM step, shared by every engine: the residuals from
     ||Y+ - Y||, ||S+ - S|| and ||Y+||, the history row, the callback, the
-    residual stop (both residuals below tol; off with ``on_residuals=False``,
-    where the caller stops on a certificate) and the penalty schedule.
+    stopping rule (both residuals below tol) and the penalty schedule.
 
     Returns (converged, mu, polishing).
     """
@@ -94,7 +93,7 @@ def end_step(history, callback, it, rank, mu, polishing, dY, dS, nY, norm_W,
     history.append((primal, dual, rank, mu))
     if callback is not None:
         callback(it, primal, dual, rank, mu)
-    if on_residuals and primal < tol and dual < tol:
+    if primal < tol and dual < tol:
         return True, mu, polishing
     mu, polishing = next_penalty(mu, history, polishing, tol=tol, rho=rho,
                                  mu_max=mu_max)
@@ -221,10 +220,11 @@ def _fits(sv, S, top, mask, dtype):
     splits, whose reported rank and support settle long before their
     residuals do."""
     rank, _ = reported_rank(sv, dtype)
-    big = np.abs(S) > SUPPORT_RTOL * top
-    support = float(big[mask > 0].mean() if mask is not None else big.mean())
-    return (rank <= STRICT_SPLIT["max_rank_share"] * min(S.shape)
-            and support <= STRICT_SPLIT["max_support_density"])
+    if rank > STRICT_SPLIT["max_rank_share"] * min(S.shape):
+        return False
+    observed = None if mask is None else mask > 0
+    return (support_density(S, top, observed)
+            <= STRICT_SPLIT["max_support_density"])
 
 
 def _certify(W, lam, sv, Us, Vt, Y, T, mu, observed, blocks):

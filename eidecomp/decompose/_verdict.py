@@ -25,14 +25,37 @@ suggests the geometric middle of the run.
 import math
 from dataclasses import replace
 
-from ..params import FIT_RULES
+import numpy as np
+
+from ..params import FIT_RULES, SUPPORT_RTOL
 from ..types import SplitVerdict
 
-__all__ = ["judge_split", "meets_rules", "settled_lam", "verdict_line"]
+__all__ = ["judge_split", "meets_rules", "settled_lam", "support_density",
+           "verdict_line"]
 
 _RUN_MIN = 3
 _RANK_STEP = 0.02
 _SUPPORT_STEP = 0.10
+
+
+def support_density(S, top, observed=None):
+    """The reported support of S: the fraction of observed entries with
+    |S_ij| above ``params.SUPPORT_RTOL`` times ``top`` (max|W| on the
+    observed entries), counted in row blocks.
+
+    >>> support_density(np.array([[1.0, 1e-4], [0.0, -0.5]]), 1.0)
+    0.5
+    """
+    rows = max(1, (1 << 22) // max(S.shape[1], 1))
+    cut = SUPPORT_RTOL * top
+    count = total = 0
+    for s in range(0, S.shape[0], rows):
+        big = np.abs(S[s:s + rows]) > cut
+        if observed is not None:
+            big = big[observed[s:s + rows]]
+        count += int(np.count_nonzero(big))
+        total += big.size
+    return count / total if total else 0.0
 
 
 def _reasons(rank, n_small, support, band):
