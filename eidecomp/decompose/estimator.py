@@ -99,6 +99,9 @@ class RobustPCA(TransformerMixin, BaseEstimator):
     random_state : int, numpy Generator, RandomState or None, default=None
         Seeds the solver's randomized SVD; None means seed 0, so that the
         same X gives the same split.
+    stop : {"gap", "residuals"}, default="gap"
+    gap_tol : float or None, default=None
+        The stop rule and its certified gap, as in :func:`eidecomp.robust_pca`.
 
     Attributes
     ----------
@@ -112,6 +115,10 @@ class RobustPCA(TransformerMixin, BaseEstimator):
         The lam used (the default resolved, or the one found for target_rank).
     n_iter_ : int
     converged_ : bool
+    duality_gap_ : float or None
+        The certified relative duality gap of the split.
+    verdict_ : SplitVerdict
+        Whether X is low-rank plus sparse at ``lam_``.
     n_features_in_ : int
     feature_names_in_ : ndarray of str
         Only when X has column names (a pandas DataFrame).
@@ -153,10 +160,13 @@ class RobustPCA(TransformerMixin, BaseEstimator):
     """
 
     def __init__(self, lam=None, *, method="ialm", tol=None, max_iter=None,
-                 target_rank=None, solver="CLARABEL", random_state=None):
+                 target_rank=None, solver="CLARABEL", random_state=None,
+                 stop="gap", gap_tol=None):
         self.lam = lam
         self.method = method
         self.tol = tol
+        self.stop = stop
+        self.gap_tol = gap_tol
         self.max_iter = max_iter
         self.target_rank = target_rank
         self.solver = solver
@@ -179,7 +189,8 @@ class RobustPCA(TransformerMixin, BaseEstimator):
         dec = robust_pca(X, lam=self.lam, method=self.method, tol=self.tol,
                          max_iter=self.max_iter, target_rank=self.target_rank,
                          solver=self.solver, seed=_seed(self.random_state),
-                         mask=mask, ignore_diagonal=ignore_diagonal)
+                         mask=mask, ignore_diagonal=ignore_diagonal,
+                         stop=self.stop, gap_tol=self.gap_tol)
         self.decomposition_ = dec
         self.low_rank_ = dec.low_rank
         self.sparse_ = dec.sparse
@@ -187,6 +198,8 @@ class RobustPCA(TransformerMixin, BaseEstimator):
         self.lam_ = dec.lam
         self.n_iter_ = dec.n_iter
         self.converged_ = dec.converged
+        self.duality_gap_ = dec.report.duality_gap
+        self.verdict_ = dec.verdict
         if dec.rank:
             self.components_ = np.linalg.svd(
                 dec.low_rank, full_matrices=False)[2][:dec.rank]
