@@ -200,8 +200,8 @@ def _patches(size, n, rng):
     rows = np.empty((n, size * size))
     for i, k in enumerate(which):
         g = photos[k]
-        y = rng.integers(g.shape[0] - size)
-        x = rng.integers(g.shape[1] - size)
+        y = rng.integers(g.shape[0] - size + 1)
+        x = rng.integers(g.shape[1] - size + 1)
         rows[i] = g[y:y + size, x:x + size].ravel()
     return rows
 
@@ -250,8 +250,8 @@ def gabor_covariance(n_orientations=16, grid=6, *, spacing=4, size=11,
     for g in photos:
         maps = [np.maximum(fftconvolve(g, f, mode="valid"), 0.0) for f in filters]
         h, w = maps[0].shape
-        for y in range(0, h - span, stride):
-            for x in range(0, w - span, stride):
+        for y in range(0, h - span + 1, stride):
+            for x in range(0, w - span + 1, stride):
                 rows.append(np.concatenate([
                     m[y:y + span:spacing, x:x + span:spacing].ravel()
                     for m in maps]))
@@ -275,6 +275,9 @@ def patch_partial_correlations(size=12, n_patches=40000, *, seed=0):
     >>> W.shape, bool(np.allclose(W, W.T))
     ((16, 16), True)
     """
+    if n_patches <= size * size:
+        raise ValueError(f"{n_patches} patches cannot estimate the inverse "
+                         f"covariance of {size * size} pixels; take more")
     X = _patches(size, n_patches, np.random.default_rng(seed))
     P = np.linalg.inv(np.cov(X, rowvar=False))
     d = np.sqrt(np.diag(P))

@@ -91,14 +91,17 @@ class OptimalityReport:
     solver : str
     status : str
     duality_gap : float or None
-        Certified relative duality gap (``decompose._certificate``): the
-        feasible split (L, P_Omega(W - L)) has an objective at most this
-        fraction above the optimum. None where no multiplier is known.
+        Certified relative duality gap (``decompose._certificate``):
+        (p - d) / p, p the objective of the feasible split
+        (L, P_Omega(W - L)) and d a proved lower bound on the optimum f*, so
+        (p - f*) / p <= gap (and (p - f*) / f* <= gap / (1 - gap)). None
+        where no multiplier is known.
     dual_objective : float or None
         The lower bound on the optimal objective behind the gap.
     stop : str
-        The stop rule that ended the solve (``params.STOP_RULES``, or the
-        convex solver's own).
+        For a converged ALM solve, the test that ended it (``"residuals"``
+        or ``"gap"``); for one that did not converge, the rule in force
+        (``status`` says why it stopped); for a convex program, its solver.
     """
 
     objective: float
@@ -142,6 +145,10 @@ class SplitVerdict:
         path was run or none settled.
     path_checked : bool
         A lam path was run for ``suggested_lam``.
+    n_small : int
+        min(m, n), what the rank is a share of.
+    converged : bool
+        Whether the judged split's solve converged.
     line : str
         The plain sentence every output shows.
     """
@@ -150,11 +157,13 @@ class SplitVerdict:
     rank: int
     rank_share: float
     support_density: float
-    rank_band: int
+    rank_band: int | None
     lam: float
     reasons: tuple = ()
     suggested_lam: float | None = None
     path_checked: bool = False
+    n_small: int = 0
+    converged: bool = True
     line: str = ""
 
     def as_dict(self):
@@ -194,9 +203,10 @@ class Decomposition:
     unit_ids : tuple of str or None
         The units' labels, from a labelled W (a DataFrame whose index and
         columns agree: :func:`eidecomp.names.unit_labels`).
-    rank_band : int
+    rank_band : int or None
         Singular values of L between the noise floor and the reported-rank
-        cut: many of them mean L's spectrum trails off with no edge.
+        cut: many of them mean L's spectrum trails off with no edge (None in
+        float32, whose noise floor is the cut).
     support_density : float or None
         Fraction of observed entries with |S_ij| above
         ``params.SUPPORT_RTOL`` times max|W| (the reported support).
@@ -217,7 +227,7 @@ class Decomposition:
     report: OptimalityReport | None = field(default=None, repr=False)
     observed: np.ndarray | None = field(default=None, repr=False)
     unit_ids: tuple | None = field(default=None, repr=False)
-    rank_band: int = 0
+    rank_band: int | None = 0
     support_density: float | None = None
     verdict: "SplitVerdict | None" = field(default=None, repr=False)
 

@@ -94,10 +94,12 @@ def test_the_worked_example_of_the_certificate():
 
 
 def test_default_stop_is_certified():
-    W = patch_partial_correlations(8, 8000, seed=0)
-    dec = robust_pca(W)
+    # a natural-statistics matrix whose residuals fall slowly: the gap ends
+    # the solve, and the report says which test did
+    dec = robust_pca(gabor_covariance(8, 5))
     assert dec.converged and dec.report.stop == "gap"
     assert dec.report.duality_gap <= GAP_TOL["float64"]
+    W = patch_partial_correlations(8, 8000, seed=0)
     strict = robust_pca(W, stop="residuals")
     assert strict.report.primal_residual <= 1e-8
     assert strict.report.dual_residual <= 1e-8
@@ -194,7 +196,7 @@ def test_decompose_command_states_the_verdict_first(tmp_path, capsys):
     doc = json.loads((tmp_path / "out" / "summary.json").read_text())
     assert doc["verdict"]["fits"] is False and doc["verdict"]["path_checked"]
     assert doc["duality_gap"] <= GAP_TOL["float64"]
-    assert doc["optimality"]["stop"] == "gap"
+    assert doc["optimality"]["stop"] in ("gap", "residuals")
 
 
 def test_gap_tol_needs_the_gap_stop(tmp_path, capsys):
@@ -207,3 +209,41 @@ def test_gap_tol_needs_the_gap_stop(tmp_path, capsys):
     assert code == 2
     assert "gap tolerance needs the stop rule 'gap'" in capsys.readouterr().err
     assert not (tmp_path / "out").exists()
+
+
+def test_a_stop_on_the_residuals_returns_its_own_step():
+    # the residual test ends the solve at its last step: the split, its
+    # certificate and its history are of that step, never of an earlier one
+    W = gabor_covariance(8, 4)
+    dec = robust_pca(W, gap_tol=1e-7, tol=1e-5)
+    rep = dec.report
+    if rep.stop == "residuals":
+        assert rep.primal_residual <= 1e-5 * (1 + 1e-6)
+        assert dec.history[-1][0] < 1e-5 and dec.history[-1][1] < 1e-5
+    else:
+        assert rep.duality_gap <= 1e-7 or not dec.converged
+
+
+def test_gap_tolerance_is_a_fraction_below_one(tmp_path, capsys):
+    from eidecomp.cli import main
+
+    np.save(tmp_path / "w.npy", np.eye(5))
+    assert main(["decompose", str(tmp_path / "w.npy"), "-o",
+                 str(tmp_path / "out"), "--gap-tol", "5"]) == 2
+    assert "below 1" in capsys.readouterr().err
+    with pytest.raises(Exception, match="method 'ialm'"):
+        robust_pca(np.eye(5), method="convex", gap_tol=1e-3)
+
+
+def test_a_folder_read_back_keeps_the_split_fields(tmp_path):
+    from eidecomp.cli import main
+    from eidecomp.io.bundles import read_decomposition
+
+    np.save(tmp_path / "w.npy", gabor_covariance(4, 4))
+    assert main(["decompose", str(tmp_path / "w.npy"), "-o",
+                 str(tmp_path / "out"), "-q"]) == 0
+    dec, doc = read_decomposition(tmp_path / "out")
+    assert dec.rank_band == doc["rank_band"]
+    assert dec.support_density == doc["support_density"]
+    assert dec.report.duality_gap == doc["duality_gap"]
+    assert dec.verdict.line == doc["verdict"]["line"]

@@ -255,7 +255,8 @@ def _path_note(points, W):
     stopped = [p for p in points if not p.converged]
     text = (f"lam path: {len(points)} lam from {points[0].lam:.3g} to "
             f"{points[-1].lam:.3g}, each started from its neighbour's solution "
-            f"and stopped at a certified duality gap of {PATH_GAP_TOL:g}")
+            "(or from scratch where that was faster) and stopped at a "
+            f"certified duality gap of {PATH_GAP_TOL:g}")
     grid = _path_lams(W)
     done = len(points)
     if done < len(grid) and np.allclose([p.lam for p in points], grid[:done]):

@@ -27,6 +27,7 @@ from ..params import (
     MAX_ITER,
     PATH_GAP_TOL,
     PRIMAL_TOL,
+    STOP_RULES,
     SolverSettings,
     check_lam,
     default_lam,
@@ -166,20 +167,22 @@ def _judged(dec, W, observed, sv):
     rank, band = reported_rank(sv, dec.low_rank.dtype)
     top = _max_abs(W, observed)
     support = support_density(dec.sparse, top, observed)
-    verdict = judge_split(rank, W.shape, support, band, dec.lam)
+    verdict = judge_split(rank, W.shape, support, band, dec.lam,
+                          converged=dec.converged)
     with handing_over():
         return dataclasses.replace(dec, rank=rank, rank_band=band,
                                    support_density=support, verdict=verdict)
 
 
 def _primal_tol(gap_tol, dtype):
-    """The primal residual at which the gap is checked: ``params.PRIMAL_TOL``
-    at the default gap, in proportion for a looser one (a path that needs
-    only the rank and the support)."""
+    """The primal residual below which the gap is checked:
+    ``params.PRIMAL_TOL`` at the default gap and below, in proportion for a
+    looser one (a path that needs only the rank and the support), at most
+    1e-3."""
     name = np.dtype(dtype).name
     if gap_tol is None:
         return PRIMAL_TOL[name]
-    return PRIMAL_TOL[name] * max(1.0, gap_tol / GAP_TOL[name])
+    return min(1e-3, PRIMAL_TOL[name] * max(1.0, gap_tol / GAP_TOL[name]))
 
 
 def _ialm_decomposition(W, lam, observed, *, tol, max_iter, rho, seed,
@@ -212,13 +215,14 @@ def _ialm_decomposition(W, lam, observed, *, tol, max_iter, rho, seed,
     hist = info["history"]
     dual = hist[-1][1] if hist else 0.0
     sv = info["singular_values"]
-    stopped = ("converged" if info["converged"] else
-               "stalled" if info["n_iter"] < max_iter else "max_iter")
+    by = info["stopped_by"]
     report = _report(W, L, S, Y, lam, observed, nuclear=float(sv.sum()),
                      dual=float(dual), n_iter=info["n_iter"],
                      converged=info["converged"], solver="ialm",
-                     status=stopped, certificate=info["certificate"],
-                     stop="residuals" if gap_tol is None else "gap")
+                     status="converged" if info["converged"] else by,
+                     certificate=info["certificate"],
+                     stop=by if info["converged"] else
+                     ("residuals" if gap_tol is None else "gap"))
     with handing_over():  # L and S are this solve's own: no copies
         dec = Decomposition(low_rank=L, sparse=S, rank=len(sv), lam=float(lam),
                             objective=report.objective, n_iter=info["n_iter"],
@@ -295,13 +299,16 @@ def _warn_if_stopped(dec):
     if not dec.converged:
         rep = dec.report
         dual, gap = rep.dual_residual, rep.duality_gap
+        stalled = rep.status == "stalled"
         warn_stopped("robust PCA", dec.n_iter, stacklevel=4,
                      detail=f"primal residual {rep.primal_residual:.2e}, "
                      + ("no dual residual" if dual is None
                         else f"dual residual {dual:.2e}")
                      + ("" if gap is None else f", certified gap {gap:.2e}")
-                     + (" (the gap stopped falling)" if rep.status == "stalled"
-                        else ""))
+                     + (": the gap stopped falling" if stalled else ""),
+                     **({"advice": "loosen gap_tol (--gap-tol); the split "
+                         "returned is the best certified step"}
+                        if stalled else {}))
 
 
 def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
@@ -345,8 +352,10 @@ def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
         ALM: both stop when the residuals are below ``tol``. ``"gap"``
         (default) also stops, once the residuals no longer fall fast, when
         the certified relative duality gap is at most ``gap_tol`` and the
-        primal residual at most ``params.PRIMAL_TOL``: ``converged`` then
-        means the objective is proved within ``gap_tol`` of the optimum.
+        primal residual at most ``params.PRIMAL_TOL`` (scaled up with a
+        ``gap_tol`` above the default, to at most 1e-3): ``converged`` then
+        means the feasible split's objective is proved within ``gap_tol``
+        of the optimum, relative to itself.
         ``"residuals"`` is the strict stop alone (docs/robust_pca.md, "The
         stop"). The gap is reported either way.
     gap_tol : float or None
@@ -410,6 +419,10 @@ def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
     if method not in METHODS:
         raise InputError(f"unknown method {method!r}; choose one of "
                          f"{', '.join(METHODS)}")
+    if method == "convex" and (stop != STOP_RULES[0] or gap_tol is not None):
+        raise InputError("the stop rule and gap tolerance are the ALM's "
+                         "(method 'ialm'); a convex program stops at its "
+                         "solver's own tolerance")
     if method == "ialm" and (delta is not None or low_rank_sign is not None):
         raise InputError("stable PCP (delta) and low_rank_sign need "
                          "method='convex'")
@@ -612,6 +625,8 @@ def suggest_lam(W, dec=None, *, n_lams=7, mask=None, ignore_diagonal=False,
     >>> verdict.fits, verdict.suggested_lam is not None
     (True, True)
     """
+    if mask is None and dec is not None and dec.observed is not None:
+        mask = dec.observed
     if points is None:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", ConvergenceWarning)  # a loose path
@@ -624,8 +639,11 @@ def suggest_lam(W, dec=None, *, n_lams=7, mask=None, ignore_diagonal=False,
             dec = min(decs, key=lambda d: abs(math.log(d.lam / lam0)))
     elif dec is None:
         raise InputError("suggest_lam: a path given without its decomposition")
+    if dec.verdict is None:
+        raise InputError("suggest_lam: the decomposition carries no verdict "
+                         "(one read from an older folder); decompose again")
     shape = dec.shape
     v = dec.verdict
     return judge_split(v.rank, shape, v.support_density, v.rank_band, v.lam,
                        suggested_lam=settled_lam(points, shape),
-                       path_checked=True), points
+                       path_checked=True, converged=v.converged), points

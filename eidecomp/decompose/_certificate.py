@@ -13,10 +13,13 @@ s = max(1, ||Y||_2, ||Y||_max / lam), with ||Y||_2 taken from above
 (:func:`._norms.spectral_norm_bound`), so the bound never over-states the
 dual value. A primal iterate L is made feasible by S = P_Omega(W - L). Then
 
-    gap = (f(L, P_Omega(W - L)) - <Y / s, P_Omega W>) / f(L, P_Omega(W - L))
+    gap = (p - d) / p,  p = f(L, P_Omega(W - L)),  d = <Y / s, P_Omega W>
 
-bounds how far, relative to the optimum's own value, that feasible point's
-objective can be from the optimum, whatever the solver did to get there.
+bounds (p - f*) / p, how far that feasible point's objective can be above
+the optimum f* relative to its own value (relative to f* the bound is
+gap / (1 - gap)), whatever the solver did to get there. It certifies the
+feasible split (L, P_Omega(W - L)); the solver's own S differs from
+P_Omega(W - L) by the primal residual.
 Several candidate multipliers may be offered; the best bound is kept.
 
 Arrays in, a small frozen result out; row blocks keep the temporaries to a

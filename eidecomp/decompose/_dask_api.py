@@ -9,6 +9,7 @@ import numpy as np
 
 from ..errors import InputError, warn_stopped
 from ..params import SolverSettings, resolve_dtype
+from ._svt import reported_rank
 
 __all__ = ["DaskDecomposition", "robust_pca_dask"]
 
@@ -158,7 +159,8 @@ def robust_pca_dask(W, *, lam=None, tol=None, max_iter=None, dtype="float64",
         else:
             S = np.load(s_path)
         dec = DaskDecomposition(low_rank_factors=(U, s, Vt), sparse=S,
-                                rank=len(s), lam=lam, n_iter=info["n_iter"],
+                                rank=reported_rank(s, dt)[0], lam=lam,
+                                n_iter=info["n_iter"],
                                 converged=info["converged"],
                                 history=tuple(info["history"]))
     finally:

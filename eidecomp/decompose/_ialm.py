@@ -297,10 +297,13 @@ def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.
     -------
     L, S, Y : ndarray of shape (m, n)
     info : dict
-        ``n_iter``, ``converged``, ``history`` (one row ``(primal, dual, rank,
-        mu)`` per iteration), ``mu`` (to warm-start a neighbour),
-        ``singular_values`` of the returned L, and ``certificate``, the
-        :class:`~._certificate.GapCertificate` of the last step.
+        ``n_iter`` (steps run), ``step`` (the step whose split is returned:
+        the last, or the best certified one under ``gap_tol``), ``history``
+        (one row ``(primal, dual, rank, mu)`` per step up to ``step``),
+        ``converged``, ``stopped_by`` (``"residuals"``, ``"gap"``,
+        ``"stalled"`` or ``"max_iter"``), ``mu`` of the returned step (to
+        warm-start a neighbour), ``singular_values`` of the returned L, and
+        ``certificate``, its :class:`~._certificate.GapCertificate`.
     """
     m, n = W.shape
     dtype = W.dtype
@@ -313,6 +316,7 @@ def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.
         zero = np.zeros_like(W)
         return zero, zero.copy(), zero.copy(), {
             "n_iter": 0, "converged": True, "history": [], "mu": 0.0,
+            "step": 0, "stopped_by": "residuals",
             "singular_values": np.zeros(0),
             "certificate": GapCertificate(gap=0.0, primal=0.0, dual=0.0,
                                           scale=1.0),
@@ -332,7 +336,7 @@ def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.
     accel = Anderson(depth) if depth else None
     q = None  # the accelerated point S + Y/mu (phase 2 only)
     it = 0
-    cert, checked = None, -GAP_EVERY
+    cert, checked, stopped_by = None, -GAP_EVERY, "max_iter"
     best, since = None, 0  # the best certified step, and checks since it
     for it in range(1, max_iter + 1):
         inv_mu = 1.0 / mu
@@ -351,6 +355,7 @@ def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.
             history, callback, it, r, mu, polishing, np.sqrt(dY2), np.sqrt(dS2),
             np.sqrt(Y2), norm_W, tol=tol, rho=rho, mu_max=mu_max)
         if converged:
+            stopped_by = "residuals"
             break
         if (gap_tol is not None and history[-1][0] < primal_tol
                 and it - checked >= GAP_EVERY and not _fast(history)
@@ -359,23 +364,26 @@ def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.
             cert = _certify(W, lam, s, Us, Vt, Y, T, mu_was, observed, blocks)
             if best is None or cert.gap < best[0].gap:
                 best, since = (cert, s.copy(), Us.copy(), Vt.copy(), S.copy(),
-                               Y.copy(), it), 0
+                               Y.copy(), it, mu_was), 0
             else:
                 since += 1
             converged = best[0].gap <= gap_tol
             if converged or since >= GAP_STALL:
+                stopped_by = "gap" if converged else "stalled"
                 break
         if q is not None:
             q = _accelerate(accel, q, S, Y, mu_was, mu, lam, mask)
-    if cert is None or checked != it:  # the certificate of the last step
+    step = it  # the step whose split is returned
+    if stopped_by == "residuals" or best is None or checked != it:
         cert = _certify(W, lam, s, Us, Vt, Y, T, mu_was, observed, blocks)
-    if best is not None and best[0].gap < cert.gap:  # go back to the best step
-        cert, s, Us, Vt, S, Y, _ = best
+    if stopped_by != "residuals" and best is not None and best[0].gap < cert.gap:
+        cert, s, Us, Vt, S, Y, step, mu = best  # go back to the best step
         r = len(s)
     del T, work, best  # the work arrays go before L arrives
     L = (Us @ Vt).astype(dtype, copy=False) if r else np.zeros_like(W)
-    return L, S, Y, {"n_iter": it, "converged": converged, "history": history,
-                     "mu": mu, "singular_values": np.array(s),
-                     "certificate": cert,
+    return L, S, Y, {"n_iter": it, "converged": converged,
+                     "history": history[:step], "step": step,
+                     "stopped_by": stopped_by, "mu": mu,
+                     "singular_values": np.array(s), "certificate": cert,
                      "acceleration": {"depth": depth, "restarts":
                                       accel.restarts if accel else 0}}

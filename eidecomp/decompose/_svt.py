@@ -58,15 +58,22 @@ def numerical_rank(s, dtype=np.float64):
 def reported_rank(s, dtype=np.float64):
     """(rank, band) of L from its decreasing singular values ``s``: the
     values above ``params.REPORTED_RANK_RTOL`` times the largest, and how
-    many lie between that cut and the noise floor of ``rank_cut``.
+    many lie between that cut and the noise floor of ``rank_cut`` (None in
+    float32, whose floor is the cut).
 
     >>> reported_rank([1.0, 0.5, 2e-3, 5e-4, 1e-4, 1e-7])
     (3, 2)
     """
     s = np.asarray(s, dtype=float)
+    if RANK_RTOL[np.dtype(dtype).name] >= REPORTED_RANK_RTOL:
+        band = None  # float32: the noise floor is the cut, no band to count
+    else:
+        band = 0
     if s.size == 0 or not s[0] > 0:
-        return 0, 0
+        return 0, band
     rank = int(np.count_nonzero(s > REPORTED_RANK_RTOL * s[0]))
+    if band is None:
+        return rank, None
     return rank, max(0, numerical_rank(s, dtype) - rank)
 
 

@@ -3,12 +3,10 @@
 Robust PCA always returns a split; only some splits are the low-rank plus
 sparse structure the circuit's labels assume (untuned interneurons from L,
 tuned ones from S). The rules (``params.FIT_RULES``, our own, chosen by
-measurement in docs/robust_pca.md, "The verdict"):
-
-* the reported rank is at most a third of min(m, n);
-* S's reported support covers at most 40 % of the observed entries;
-* L's spectrum has an edge: at most max(3, 10 % of the rank) singular values
-  lie between the solver's noise floor and the reported-rank cut.
+measurement in docs/robust_pca.md, "The verdict") bound the reported rank's
+share of min(m, n), the share of entries in S's reported support, and the
+number of singular values of L between the solver's noise floor and the
+reported-rank cut (an L whose spectrum has no edge).
 
 Planted problems inside the region where PCP recovers them (Candes, Li, Ma,
 Wright 2011, section 4.1) meet all three; unplanted Gaussian matrices,
@@ -16,10 +14,9 @@ planted ones past that region and the natural-statistics matrices of
 benchmarks/hard.py fail at least one.
 
 :func:`settled_lam` reads a lam path for the lam where the rank and the
-support settle: the longest run of consecutive path points (at least
-three) whose reported ranks differ by at most max(1, 2 % of the rank) and
-whose supports by at most 10 % (relative), all meeting the rules; it
-suggests the geometric middle of the run.
+support settle: the longest run of consecutive path points
+(``params.SETTLED``) whose reported ranks and supports change little, all
+meeting the rules; it suggests the geometric middle of the run.
 """
 
 import math
@@ -27,15 +24,11 @@ from dataclasses import replace
 
 import numpy as np
 
-from ..params import FIT_RULES, SUPPORT_RTOL
+from ..params import FIT_RULES, SETTLED, SUPPORT_RTOL
 from ..types import SplitVerdict
 
 __all__ = ["judge_split", "meets_rules", "settled_lam", "support_density",
            "verdict_line"]
-
-_RUN_MIN = 3
-_RANK_STEP = 0.02
-_SUPPORT_STEP = 0.10
 
 
 def support_density(S, top, observed=None):
@@ -60,14 +53,16 @@ def support_density(S, top, observed=None):
 
 def _reasons(rank, n_small, support, band):
     share = rank / n_small if n_small else 0.0
+    cap = FIT_RULES["max_rank_share"]
     out = []
-    if share > FIT_RULES["max_rank_share"]:
-        out.append(f"L is not low-rank (rank {rank} of {n_small}, "
-                   f"{100 * share:.0f} % > {100 * FIT_RULES['max_rank_share']:.0f} %)")
+    if rank > max(1, cap * n_small):  # a rank-1 part is low-rank at any size
+        out.append(f"L is not low-rank (rank {rank} of {n_small}, more than "
+                   f"{100 * cap:.3g} %)")
     if support > FIT_RULES["max_support_density"]:
-        out.append(f"S is not sparse ({100 * support:.0f} % of the entries > "
-                   f"{100 * FIT_RULES['max_support_density']:.0f} %)")
-    if band > max(FIT_RULES["min_band"], FIT_RULES["max_band_share"] * rank):
+        out.append(f"S is not sparse ({100 * support:.1f} % of the entries, "
+                   f"more than {100 * FIT_RULES['max_support_density']:.3g} %)")
+    if band is not None and band > max(FIT_RULES["min_band"],
+                                       FIT_RULES["max_band_share"] * rank):
         out.append(f"L's spectrum has no edge ({band} singular values below "
                    "the rank cut)")
     return share, tuple(out)
@@ -80,9 +75,10 @@ def meets_rules(rank, shape, support, band):
 
 def verdict_line(v):
     """The one sentence every output shows for a verdict ``v``."""
-    head = (f"at lam {v.lam:.4g} the split has rank {v.rank} "
-            f"({100 * v.rank_share:.0f} % of the units) and S on "
-            f"{100 * v.support_density:.0f} % of the entries")
+    head = (f"at lam {v.lam:.4g} the split has rank {v.rank} of "
+            f"{v.n_small} and S on {100 * v.support_density:.0f} % of the "
+            "entries" + ("" if v.converged else
+                         " (its solve did not converge: not settled)"))
     if v.fits:
         return f"W is low-rank plus sparse: {head}."
     if v.suggested_lam is not None:
@@ -99,7 +95,7 @@ def verdict_line(v):
 
 
 def judge_split(rank, shape, support_density, rank_band, lam, *,
-                suggested_lam=None, path_checked=False):
+                suggested_lam=None, path_checked=False, converged=True):
     """The verdict on one split.
 
     Parameters
@@ -109,12 +105,15 @@ def judge_split(rank, shape, support_density, rank_band, lam, *,
     shape : tuple (m, n)
     support_density : float
         Reported support of S (fraction of observed entries).
-    rank_band : int
-        Singular values between the noise floor and the rank cut.
+    rank_band : int or None
+        Singular values between the noise floor and the rank cut (None in
+        float32: the edge rule is then not applied).
     lam : float
     suggested_lam : float or None
         From :func:`settled_lam` on a path, when one was run.
     path_checked : bool
+    converged : bool
+        Whether the split's solve converged (the line says when not).
 
     Returns
     -------
@@ -128,13 +127,19 @@ def judge_split(rank, shape, support_density, rank_band, lam, *,
     >>> v.fits, len(v.reasons)
     (False, 3)
     """
-    share, reasons = _reasons(int(rank), min(shape), float(support_density),
-                              int(rank_band))
+    support_density = float(support_density)
+    if not (rank >= 0 and 0.0 <= support_density <= 1.0 and lam > 0):
+        raise ValueError(f"judge_split: rank {rank!r}, support "
+                         f"{support_density!r} and lam {lam!r} must be a "
+                         "count, a fraction and a positive number")
+    band = None if rank_band is None else int(rank_band)
+    share, reasons = _reasons(int(rank), min(shape), support_density, band)
     v = SplitVerdict(fits=not reasons, rank=int(rank), rank_share=share,
-                     support_density=float(support_density),
-                     rank_band=int(rank_band), lam=float(lam), reasons=reasons,
+                     support_density=support_density, rank_band=band,
+                     lam=float(lam), reasons=reasons,
                      suggested_lam=None if suggested_lam is None
-                     else float(suggested_lam), path_checked=bool(path_checked))
+                     else float(suggested_lam), path_checked=bool(path_checked),
+                     n_small=int(min(shape)), converged=bool(converged))
     return replace(v, line=verdict_line(v))
 
 
@@ -160,9 +165,11 @@ def settled_lam(points, shape):
                 and meets_rules(p.rank, shape, p.support_density, p.rank_band))
 
     def close(a, b):
-        return (abs(a.rank - b.rank) <= max(1, _RANK_STEP * max(a.rank, b.rank))
+        return (abs(a.rank - b.rank)
+                <= max(1, SETTLED["rank_step"] * max(a.rank, b.rank))
                 and abs(a.support_density - b.support_density)
-                <= _SUPPORT_STEP * max(a.support_density, b.support_density))
+                <= SETTLED["support_step"] * max(a.support_density,
+                                                 b.support_density))
 
     best, run = [], []
     for p in points:
@@ -172,6 +179,6 @@ def settled_lam(points, shape):
             run = [p] if ok(p) else []
         if len(run) > len(best):
             best = list(run)
-    if len(best) < _RUN_MIN:
+    if len(best) < SETTLED["min_run"]:
         return None
     return math.sqrt(best[0].lam * best[-1].lam)

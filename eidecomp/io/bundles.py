@@ -376,7 +376,9 @@ def read_decomposition(folder):
                         objective=float(_number(doc, "objective", where)),
                         n_iter=int(_number(doc, "n_iter", where, int)),
                         converged=bool(require(doc, "converged", bool, where)),
-                        verdict=read_verdict(doc, where))
+                        verdict=read_verdict(doc, where),
+                        report=_read_report(doc, where),
+                        **_split_values(doc, where))
     return dec, doc
 
 
@@ -568,29 +570,70 @@ def split_fields(dec):
     report, verdict = dec.report, dec.verdict
     return {"duality_gap": json_number(None if report is None
                                        else report.duality_gap),
-            "rank_band": int(dec.rank_band),
+            "rank_band": dec.rank_band,
             "support_density": json_number(dec.support_density),
             "verdict": None if verdict is None else
             {k: json_number(v) for k, v in verdict.as_dict().items()}}
 
 
+_VERDICT_KEYS = (("fits", bool), ("rank", int), ("rank_share", float),
+                 ("support_density", float), ("rank_band", (int, type(None))),
+                 ("lam", float), ("reasons", list),
+                 ("suggested_lam", (float, type(None))),
+                 ("path_checked", bool), ("n_small", int),
+                 ("converged", bool), ("line", str))
+
+
 def read_verdict(doc, where):
-    """The SplitVerdict recorded by :func:`split_fields`, or None."""
+    """The SplitVerdict recorded by :func:`split_fields`, or None (a summary
+    written before verdicts were), each key checked for its JSON type."""
     from ..types import SplitVerdict
 
-    v = doc.get("verdict")
-    if v is None:
+    if doc.get("verdict") is None:
         return None
-    if not isinstance(v, dict):
-        raise InputError(f"{where}: 'verdict' must be an object")
-    fields = SplitVerdict.__dataclass_fields__
-    unknown = sorted(set(v) - set(fields))
+    v = require(doc, "verdict", dict, where)
+    at = f"{where}: 'verdict'"
+    unknown = sorted(set(v) - {k for k, _ in _VERDICT_KEYS})
     if unknown:
-        raise InputError(f"{where}: 'verdict' has unknown key {unknown[0]!r}")
+        raise InputError(f"{at} has unknown key {unknown[0]!r}")
+    values = {k: require(v, k, kinds, at) for k, kinds in _VERDICT_KEYS}
+    if not all(isinstance(r, str) for r in values["reasons"]):
+        raise InputError(f"{at}: 'reasons' must be a list of strings")
+    if values["fits"] != (not values["reasons"]):
+        raise InputError(f"{at}: 'fits' disagrees with its 'reasons'")
+    values["reasons"] = tuple(values["reasons"])
+    return SplitVerdict(**values)
+
+
+def _read_report(doc, where):
+    """The OptimalityReport of summary.json's "optimality", or None."""
+    from ..types import OptimalityReport
+
+    opt = doc.get("optimality")
+    if opt is None:
+        return None
+    opt = require(doc, "optimality", dict, where)
+    fields = OptimalityReport.__dataclass_fields__
+    unknown = sorted(set(opt) - set(fields))
+    if unknown:
+        raise InputError(f"{where}: 'optimality' has unknown key {unknown[0]!r}")
     try:
-        return SplitVerdict(**{**v, "reasons": tuple(v.get("reasons") or ())})
-    except TypeError as exc:
-        raise InputError(f"{where}: 'verdict' is incomplete ({exc})") from None
+        return OptimalityReport(**opt)
+    except TypeError:
+        missing = sorted(set(fields) - set(opt))
+        raise InputError(f"{where}: 'optimality' lacks {missing[0]!r}") from None
+
+
+def _split_values(doc, where):
+    """rank_band and support_density of a decomposition's summary.json
+    (absent in one written before them: 0 and None)."""
+    band = doc.get("rank_band", 0)
+    if band is not None:
+        band = require(doc, "rank_band", int, where)
+    support = doc.get("support_density")
+    if support is not None:
+        support = float(_number(doc, "support_density", where))
+    return {"rank_band": band, "support_density": support}
 
 
 def write_decomposition(out, dec, *, source, parameters, mask=None,
