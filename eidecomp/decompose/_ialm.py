@@ -47,7 +47,11 @@ from ._verdict import support_density
 
 __all__ = ["end_step", "ialm", "next_penalty", "next_rank", "split_point"]
 
-GAP_EVERY = 5  # steps between two certificates (each costs about one SVD)
+GAP_EVERY = 5  # fewest steps between two certificates (each costs about
+               # a third of an SVD)
+GAP_SPACING = 25  # most steps between two certificates
+SPECTRAL_PROJECTION_MAX = 1000  # up to this smaller side a third candidate
+                                # multiplier projects Y (one full SVD)
 FAST_WINDOW = 20  # steps over which _fast measures the residuals' fall
 GAP_STALL = 20  # stop (not converged) after this many checks with no better
                 # certificate: near a degenerate optimum the gap of the ALM's
@@ -213,6 +217,15 @@ def _fast(history):
     return then >= FAST_PHASE * now
 
 
+def _spacing(it, gap, gap_tol):
+    """Steps to the next certificate: where the gap would reach ``gap_tol``
+    if it kept falling as 1/k (as it does near a degenerate optimum,
+    measured), but at least ``GAP_EVERY`` and at most ``GAP_SPACING`` steps,
+    so that a dip of the oscillating gap is still seen."""
+    ahead = it * (gap / gap_tol - 1.0)
+    return int(min(GAP_SPACING, max(GAP_EVERY, round(ahead))))
+
+
 def _fits(sv, S, top, mask, dtype):
     """True when the split so far has the low rank and sparse S of
     ``params.STRICT_SPLIT``: its L is what the circuit is built from, and
@@ -241,8 +254,24 @@ def _certify(W, lam, sv, Us, Vt, Y, T, mu, observed, blocks):
             tb -= Us[b] @ Vt
         tb *= mu
         np.clip(tb, -lam, lam, out=tb)
-    return duality_gap(W, lam, (Us, Vt), float(np.sum(sv)), (Y, T),
+    candidates = (Y, T)
+    if min(Y.shape) <= SPECTRAL_PROJECTION_MAX:
+        candidates += (_spectral_then_entries(Y, lam, observed),)
+    return duality_gap(W, lam, (Us, Vt), float(np.sum(sv)), candidates,
                        observed=observed)
+
+
+def _spectral_then_entries(Y, lam, observed):
+    """Y with its singular values above 1 brought to 1, then its entries
+    clipped to +-lam (zero off Omega): one round of alternating projection
+    onto the two balls of the dual, whose small remaining excess the
+    certificate's scaling absorbs."""
+    U, sv, Vt = np.linalg.svd(Y, full_matrices=False)
+    Z = (U * np.minimum(sv, 1.0)) @ Vt
+    np.clip(Z, -lam, lam, out=Z)
+    if observed is not None:
+        Z[~observed] = 0.0
+    return Z
 
 
 def _accelerate(accel, q, S, Y, mu_was, mu, lam, mask=None):
@@ -286,8 +315,9 @@ def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.
         None: stop only when both residuals are below ``tol``. A number: stop
         also when the primal residual is below ``primal_tol`` and the
         certified relative duality gap (``_certificate``) at most
-        ``gap_tol``. The gap is checked every ``GAP_EVERY`` steps once the
-        residuals no longer fall fast (``_fast``). The step with the smallest
+        ``gap_tol``. The gap is checked once the residuals no longer fall
+        fast (``_fast``), then every ``GAP_EVERY`` to ``GAP_SPACING`` steps
+        (``_spacing``). The step with the smallest
         gap is returned; after ``GAP_STALL`` checks without a smaller one the
         solve stops, not converged.
     primal_tol : float
@@ -336,7 +366,7 @@ def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.
     accel = Anderson(depth) if depth else None
     q = None  # the accelerated point S + Y/mu (phase 2 only)
     it = 0
-    cert, checked, stopped_by = None, -GAP_EVERY, "max_iter"
+    cert, checked, due, stopped_by = None, -1, 0, "max_iter"
     best, since = None, 0  # the best certified step, and checks since it
     for it in range(1, max_iter + 1):
         inv_mu = 1.0 / mu
@@ -358,7 +388,7 @@ def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.
             stopped_by = "residuals"
             break
         if (gap_tol is not None and history[-1][0] < primal_tol
-                and it - checked >= GAP_EVERY and not _fast(history)
+                and it >= due and not _fast(history)
                 and not _fits(s, S, top, mask, dtype)):
             checked = it
             cert = _certify(W, lam, s, Us, Vt, Y, T, mu_was, observed, blocks)
@@ -367,6 +397,7 @@ def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.
                                Y.copy(), it, mu_was), 0
             else:
                 since += 1
+            due = it + _spacing(it, best[0].gap, gap_tol)
             converged = best[0].gap <= gap_tol
             if converged or since >= GAP_STALL:
                 stopped_by = "gap" if converged else "stalled"

@@ -55,7 +55,7 @@ import numpy as np
 from ..errors import InputError
 from ..params import positive_number
 
-__all__ = ["SpectralNorm", "spectral_norm_bound"]
+__all__ = ["SpectralNorm", "gram_upper", "spectral_norm_bound"]
 
 # Measured on square Gaussian matrices, OPENBLAS_NUM_THREADS=1: the singular
 # values alone cost ~0.35 of a full SVD at every size (0.7, 3.0, 6.8, 13.6 ms
@@ -157,6 +157,31 @@ def _real_matrix(A):
     if A.dtype not in (np.float32, np.float64):
         A = A.astype(np.float64)
     return A
+
+
+def gram_upper(A):
+    """An upper bound on ||A||_2 from the largest eigenvalue of the Gram
+    matrix of A's smaller side (LAPACK's symmetric eigenvalues only, about
+    a third of the singular values' cost at 576 units, measured).
+
+    The computed Gram matrix differs from the exact one by at most
+    gamma_n ||A||_F^2 in norm (Higham 2002, section 3.5, from memory), and
+    the computed eigenvalue from the exact one of the computed matrix by a
+    modest multiple of eps ||G||_2 (Golub & Van Loan 2013, section 8.4,
+    from memory); ``(max(m, n) + 8) eps ||A||_F^2`` covers both, so
+    sqrt(lambda_max + slack) is never below ||A||_2 beyond rounding.
+
+    >>> gram_upper(np.diag([3.0, 2.0, 1.0])) >= 3.0
+    True
+    """
+    A = _real_matrix(A).astype(np.float64, copy=False)
+    if A.size == 0:
+        return 0.0
+    G = A.T @ A if A.shape[0] >= A.shape[1] else A @ A.T
+    top = float(np.linalg.eigvalsh(G)[-1])
+    fro2 = float(np.trace(G))
+    slack = (max(A.shape) + 8) * _EPS * fro2
+    return math.sqrt(max(top, 0.0) + slack) * (1 + 4 * _EPS)
 
 
 def _dense(A, method, n_products=0):
