@@ -37,10 +37,10 @@ from ._norms import gram_upper, spectral_norm_bound
 __all__ = ["GapCertificate", "duality_gap"]
 
 _BLOCK_ELEMENTS = 1 << 18
-GRAM_MAX = 2000  # up to this smaller side ||Y||_2 comes from the Gram matrix
-                 # (eigvalsh: 14 ms at 576 against 52 ms for Lanczos on the
-                 # clustered spectrum of a multiplier, measured); above, from
-                 # _norms.spectral_norm_bound
+GRAM_MAX = 600  # up to this smaller side ||Y||_2 comes from the Gram matrix
+                # (eigvalsh: 14 ms at 576 against 52 ms for Lanczos on the
+                # clustered spectrum of a multiplier, measured); above, from
+                # _norms.spectral_norm_bound, whose cost grows as n^2
 
 
 @dataclass(frozen=True)

@@ -50,8 +50,8 @@ __all__ = ["end_step", "ialm", "next_penalty", "next_rank", "split_point"]
 GAP_EVERY = 5  # fewest steps between two certificates (each costs about
                # a third of an SVD)
 GAP_SPACING = 25  # most steps between two certificates
-SPECTRAL_PROJECTION_MAX = 1000  # up to this smaller side a third candidate
-                                # multiplier projects Y (one full SVD)
+SPECTRAL_PROJECTION_MAX = 600  # up to this smaller side a third candidate
+                               # multiplier projects Y (one full SVD)
 FAST_WINDOW = 20  # steps over which _fast measures the residuals' fall
 GAP_STALL = 20  # stop (not converged) after this many checks with no better
                 # certificate: near a degenerate optimum the gap of the ALM's
@@ -240,14 +240,18 @@ def _fits(sv, S, top, mask, dtype):
             <= STRICT_SPLIT["max_support_density"])
 
 
-def _certify(W, lam, sv, Us, Vt, Y, T, mu, observed, blocks):
+def _certify(W, lam, sv, Us, Vt, Y, T, mu, observed, blocks, *, all_candidates=True):
     """The duality gap of the step just taken (``_certificate``).
 
     Two candidate multipliers: Y itself (|Y| <= lam by construction) and
     clip(mu (T - L), lam), where T is the SVT's argument of the step: before
     the clip that one lies in the subdifferential of ||.||_* at L, so its
     spectral norm is at most 1. T is overwritten (the next step forms it
-    again)."""
+    again). Without ``all_candidates`` (a solve that met the residual test,
+    whose multiplier is already near-feasible), Y alone: one norm bound."""
+    if not all_candidates:
+        return duality_gap(W, lam, (Us, Vt), float(np.sum(sv)), (Y,),
+                           observed=observed)
     for b in blocks:
         tb = T[b]
         if Us.shape[1]:
@@ -406,7 +410,8 @@ def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.
             q = _accelerate(accel, q, S, Y, mu_was, mu, lam, mask)
     step = it  # the step whose split is returned
     if stopped_by == "residuals" or best is None or checked != it:
-        cert = _certify(W, lam, s, Us, Vt, Y, T, mu_was, observed, blocks)
+        cert = _certify(W, lam, s, Us, Vt, Y, T, mu_was, observed, blocks,
+                        all_candidates=stopped_by != "residuals")
     if stopped_by != "residuals" and best is not None and best[0].gap < cert.gap:
         cert, s, Us, Vt, S, Y, step, mu = best  # go back to the best step
         r = len(s)
