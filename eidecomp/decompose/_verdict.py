@@ -56,11 +56,12 @@ def _reasons(rank, n_small, support, band):
     cap = FIT_RULES["max_rank_share"]
     out = []
     if rank > max(1, cap * n_small):  # a rank-1 part is low-rank at any size
-        out.append(f"L is not low-rank (rank {rank} of {n_small}, more than "
-                   f"{100 * cap:.3g} %)")
+        out.append(f"L is not low-rank (its rank is more than {100 * cap:.3g} "
+                   f"% of {n_small})")
     if support > FIT_RULES["max_support_density"]:
-        out.append(f"S is not sparse ({100 * support:.1f} % of the entries, "
-                   f"more than {100 * FIT_RULES['max_support_density']:.3g} %)")
+        out.append(f"S is not sparse (its support is more than "
+                   f"{100 * FIT_RULES['max_support_density']:.3g} % of the "
+                   "entries)")
     if band is not None and band > max(FIT_RULES["min_band"],
                                        FIT_RULES["max_band_share"] * rank):
         out.append(f"L's spectrum has no edge ({band} singular values below "
@@ -76,7 +77,7 @@ def meets_rules(rank, shape, support, band):
 def verdict_line(v):
     """The one sentence every output shows for a verdict ``v``."""
     head = (f"at lam {v.lam:.4g} the split has rank {v.rank} of "
-            f"{v.n_small} and S on {100 * v.support_density:.0f} % of the "
+            f"{v.n_small} and S on {100 * v.support_density:.1f} % of the "
             "entries" + ("" if v.converged else
                          " (its solve did not converge: not settled)"))
     if v.fits:
