@@ -41,7 +41,7 @@ from ._ialm import ialm
 from ._norms import spectral_norm_bound
 from ._svt import numerical_rank, reported_rank
 from ._threads import blas_threads
-from ._verdict import judge_split, settled_lam, support_density
+from ._verdict import judge_split, max_abs, settled_lam, support_density
 
 __all__ = ["default_lam", "lambda_path", "pcp_objective", "robust_pca",
            "suggest_lam"]
@@ -149,24 +149,10 @@ def _report(W, L, S, Y, lam, observed, *, nuclear, dual, n_iter, converged,
         dual_objective=None if certificate is None else certificate.dual)
 
 
-def _max_abs(W, observed=None):
-    """max |W| over the observed entries (row blocks)."""
-    rows = max(1, (1 << 22) // max(W.shape[1], 1))
-    top = 0.0
-    for s in range(0, W.shape[0], rows):
-        block = np.abs(W[s:s + rows])
-        if observed is not None:
-            block = block[observed[s:s + rows]]
-        if block.size:
-            top = max(top, float(block.max()))
-    return top
-
-
 def _judged(dec, W, observed, sv):
     """``dec`` with its reported rank, band, support and verdict."""
     rank, band = reported_rank(sv, dec.low_rank.dtype)
-    top = _max_abs(W, observed)
-    support = support_density(dec.sparse, top, observed)
+    support = support_density(dec.sparse, max_abs(W, observed), observed)
     verdict = judge_split(rank, W.shape, support, band, dec.lam,
                           converged=dec.converged)
     with handing_over():

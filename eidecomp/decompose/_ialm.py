@@ -43,7 +43,7 @@ from ..params import (
 from ._anderson import Anderson, depth_for
 from ._certificate import GapCertificate, duality_gap
 from ._svt import reported_rank, sketch_plan, spectral_norm, svt
-from ._verdict import support_density
+from ._verdict import max_abs, support_density
 
 __all__ = ["end_step", "ialm", "next_penalty", "next_rank", "split_point"]
 
@@ -356,7 +356,7 @@ def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.
                                           scale=1.0),
             "acceleration": {"depth": 0, "restarts": 0}}
     S, Y, mu = _start(W, init)
-    top = max(float(W.max()), -float(W.min()))  # max|W| on Omega
+    top = max_abs(W)  # W is zero off Omega: the max over Omega
     k = min(10, n_small)
     mu_max = mu * _MU_MAX_FACTOR
     T, blocks, work = _workspace(W)

@@ -27,14 +27,32 @@ import numpy as np
 from ..params import FIT_RULES, SETTLED, SUPPORT_RTOL
 from ..types import SplitVerdict
 
-__all__ = ["judge_split", "meets_rules", "settled_lam", "support_density",
-           "verdict_line"]
+__all__ = ["judge_split", "max_abs", "meets_rules", "settled_lam",
+           "support_density", "verdict_line"]
+
+
+def max_abs(W, observed=None):
+    """max |W| over the observed entries, in row blocks: the scale of the
+    reported support's cut.
+
+    >>> max_abs(np.array([[5.0, -2.0], [1.0, 0.0]]), np.array([[0, 1], [1, 1]], bool))
+    2.0
+    """
+    rows = max(1, (1 << 22) // max(W.shape[1], 1))
+    top = 0.0
+    for s in range(0, W.shape[0], rows):
+        block = np.abs(W[s:s + rows])
+        if observed is not None:
+            block = block[observed[s:s + rows]]
+        if block.size:
+            top = max(top, float(block.max()))
+    return top
 
 
 def support_density(S, top, observed=None):
     """The reported support of S: the fraction of observed entries with
-    |S_ij| above ``params.SUPPORT_RTOL`` times ``top`` (max|W| on the
-    observed entries), counted in row blocks.
+    |S_ij| above ``params.SUPPORT_RTOL`` times ``top`` (:func:`max_abs` of
+    W), counted in row blocks.
 
     >>> support_density(np.array([[1.0, 1e-4], [0.0, -0.5]]), 1.0)
     0.5
