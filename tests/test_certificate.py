@@ -247,3 +247,28 @@ def test_a_folder_read_back_keeps_the_split_fields(tmp_path):
     assert dec.support_density == doc["support_density"]
     assert dec.report.duality_gap == doc["duality_gap"]
     assert dec.verdict.line == doc["verdict"]["line"]
+
+
+def test_a_summary_written_before_the_verdict_still_reads(tmp_path):
+    # a decomposition folder of the earlier format: summary.json without
+    # rank_band, support_density, verdict or the gap (its manifest digest
+    # recomputed as the format's own writer does)
+    from eidecomp.cli import main
+    from eidecomp.io.bundles import DECOMPOSITION, read_decomposition, write_bundle
+
+    np.save(tmp_path / "w.npy", gabor_covariance(4, 4))
+    assert main(["decompose", str(tmp_path / "w.npy"), "-o",
+                 str(tmp_path / "out"), "-q"]) == 0
+    dec, doc = read_decomposition(tmp_path / "out")
+    old = {k: v for k, v in doc.items()
+           if k not in ("rank_band", "support_density", "verdict",
+                        "duality_gap", "format", "version", "files",
+                        "eidecomp_version", "sha256")}
+    old["optimality"] = {k: v for k, v in doc["optimality"].items()
+                         if k not in ("duality_gap", "dual_objective", "stop")}
+    write_bundle(tmp_path / "old", DECOMPOSITION,
+                 {"low_rank.npy": np.asarray(dec.low_rank),
+                  "sparse.npy": np.asarray(dec.sparse)}, old)
+    back, _ = read_decomposition(tmp_path / "old")
+    assert back.verdict is None and back.rank_band == 0
+    assert back.report.duality_gap is None

@@ -627,9 +627,9 @@ def _read_report(doc, where):
 def _split_values(doc, where):
     """rank_band and support_density of a decomposition's summary.json
     (absent in one written before them: 0 and None)."""
-    band = doc.get("rank_band", 0)
-    if band is not None:
-        band = require(doc, "rank_band", int, where)
+    band = 0
+    if "rank_band" in doc:
+        band = require(doc, "rank_band", (int, type(None)), where)
     support = doc.get("support_density")
     if support is not None:
         support = float(_number(doc, "support_density", where))
