@@ -81,6 +81,30 @@ def test_gap_bounds_the_distance_with_an_unobserved_diagonal():
     assert (feasible - best) / feasible <= dec.report.duality_gap + 1e-7
 
 
+@pytest.mark.parametrize("diagonal_observed", [True, False])
+def test_a_finish_is_feasible_and_lower_than_where_it_started(diagonal_observed):
+    # _ialm._finish from an early step: the objective it reports is that of
+    # the feasible split (L, P_Omega(W - L)) by numpy's nuclear norm, at
+    # least Clarabel's optimum (weak duality) and below the objective of the
+    # step it started from; its state (S, T) stands in for (S, Y) exactly
+    from eidecomp.decompose._ialm import _apply_mask, _finish, _Workspace, ialm
+
+    W = patch_partial_correlations(5, 4000, seed=1)
+    lam = 0.2
+    obs = None if diagonal_observed else ~np.eye(25, dtype=bool)
+    L0, S0, Y0, info = ialm(W, lam, max_iter=12, observed=obs)
+    ws = _Workspace(*_apply_mask(W, obs), lam, np.random.default_rng(0))
+    p, s, Us, Vt, S, steps = _finish(ws, S0, Y0, info["mu"], 1.5, GAP_TOL["float64"])
+    weight = np.ones(W.shape) if obs is None else obs
+
+    def feasible(L):
+        return np.linalg.norm(L, "nuc") + lam * np.abs((W - L) * weight).sum()
+
+    assert 1 <= steps
+    assert p == pytest.approx(feasible(Us @ Vt), rel=1e-9)
+    assert _clarabel_optimum(W, lam, obs) * (1 - 1e-7) <= p < feasible(L0)
+
+
 def test_the_worked_example_of_the_certificate():
     # one nonzero entry: the optimum is L = 0, S = W, objective lam
     # (an example worked by hand in the docstring of _certificate)
@@ -99,6 +123,8 @@ def test_default_stop_is_certified():
     dec = robust_pca(gabor_covariance(8, 5))
     assert dec.converged and dec.report.stop == "gap"
     assert dec.report.duality_gap <= GAP_TOL["float64"]
+    # the finish leaves the returned split nearly feasible (measured 6e-7)
+    assert dec.report.primal_residual <= 1e-5
     W = patch_partial_correlations(8, 8000, seed=0)
     strict = robust_pca(W, stop="residuals")
     assert strict.report.primal_residual <= 1e-8
