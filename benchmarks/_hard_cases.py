@@ -116,3 +116,4 @@ def natural_cases(*, quick=False):
         return
     yield Case(label="sparse coding 256", W=sparse_coding_lateral())
     yield Case(label="gabor cov 16x6x6", W=gabor_covariance(16, 6))
+    yield Case(label="gabor cov 16x8x8", W=gabor_covariance(16, 8))

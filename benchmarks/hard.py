@@ -418,7 +418,7 @@ def _path_table(args):
 
 # --- table 4: natural statistics ----------------------------------------------
 
-NATURAL_MAX_S = {576: 20.0}  # the issue's bound on a 576-unit matrix
+NATURAL_MAX_S = {576: 20.0}  # the bound we hold a 576-unit matrix to
 
 
 def _feasible_objective(W, L, lam):
@@ -427,11 +427,13 @@ def _feasible_objective(W, L, lam):
     return float(np.linalg.norm(L, "nuc") + lam * np.abs(W - L).sum())
 
 
-def _time_to_objective(W, target, n_max):
+def _time_to_objective(W, target, n_steps):
     """Seconds of the solve that first reaches a feasible objective <= target:
     robust_pca(W, stop="residuals", max_iter=k) for the smallest such k,
-    found by bisection on k (each k timed from scratch); None if n_max
-    steps do not reach it."""
+    found by bisection on k (each k timed from scratch), starting from
+    ``n_steps`` and doubling it at most twice (the default stop ends with a
+    finish that the strict solve cut at k steps does not take); None if
+    4 n_steps steps do not reach it."""
     lam = 1.0 / np.sqrt(max(W.shape))
 
     def run(k):
@@ -440,10 +442,13 @@ def _time_to_objective(W, target, n_max):
             t, dec = _timed(lambda: robust_pca(W, stop="residuals", max_iter=k))
         return t, _feasible_objective(W, dec.low_rank, lam) <= target
 
-    lo, hi = 0, n_max
+    lo, hi = 0, n_steps
     t_hi, ok = run(hi)
-    if not ok:
-        return None
+    while not ok:
+        if hi >= 4 * n_steps:
+            return None
+        lo, hi = hi, 2 * hi
+        t_hi, ok = run(hi)
     while hi - lo > max(2, hi // 20):  # to 5 % of the steps
         mid = (lo + hi) // 2
         t_mid, ok = run(mid)
