@@ -27,13 +27,25 @@ lateral weights -(Phi^T Phi - I) of a sparse-coding dictionary learned on
 them (scikit-learn's ``MiniBatchDictionaryLearning``; the lateral form is the
 locally competitive algorithm's, Rozell et al. 2008, Neural Comput 20(10),
 from memory). They need scikit-learn and scipy, imported inside.
+
+``signed_connectome`` reads a C. elegans chemical connectome from the
+registry package ``cect`` (open data it ships: the readers' cached
+datasets) and signs each synapse by its presynaptic neuron's transmitter,
+a matrix that already obeys Dale's law. It needs ``cect`` (``pip install
+cect``), imported inside.
 """
 
 import numpy as np
 
 __all__ = ["demo_inputs", "example_lateral", "gabor_covariance", "make_planted",
            "make_planted_circuit", "patch_partial_correlations",
-           "sparse_coding_lateral"]
+           "signed_connectome", "sparse_coding_lateral"]
+
+CONNECTOMES = ("Cook2019HermReader", "VarshneyDataReader", "White_whole",
+               "WitvlietDataReader8")  # cect readers whose cached chemical
+                                       # synapses signed_connectome reads
+TRANSMITTER_SOURCE = "Wang2024HermReader"  # the cect reader whose "GABA"
+                                           # synapses mark inhibitory neurons
 
 
 def make_planted(n, *, rank=None, corruption=0.05, magnitude=1.0, seed=0,
@@ -315,3 +327,64 @@ def sparse_coding_lateral(n_atoms=256, size=8, n_patches=20000, *, alpha=1.0,
     W = -(Phi.T @ Phi)
     np.fill_diagonal(W, 0.0)
     return W
+
+
+def _cect_dataset(reader):
+    try:
+        from cect.ConnectomeDataset import (
+            get_cache_filename,
+            load_connectome_dataset_file,
+        )
+    except ImportError as exc:
+        raise ImportError("signed_connectome needs the registry package cect "
+                          "(pip install cect)") from exc
+    return load_connectome_dataset_file(get_cache_filename(reader))
+
+
+def signed_connectome(reader="Cook2019HermReader"):
+    """A signed chemical connectome W[post, pre] of C. elegans neurons.
+
+    The synapse counts of ``reader``'s chemical synapses (cect's
+    "Generic_CS" class, as the reader's cached dataset holds them), among
+    the neurons that make or receive one, each column signed by its
+    presynaptic neuron: negative for a neuron that makes GABA synapses in
+    cect's ``TRANSMITTER_SOURCE`` dataset, positive otherwise (a common
+    simplification, from memory: glutamate, inhibitory at some C. elegans
+    synapses, counts as excitatory here). Every column therefore has one
+    sign: W obeys Dale's law.
+
+    Parameters
+    ----------
+    reader : str
+        One of ``CONNECTOMES`` (any cect reader with a cached
+        "Generic_CS" class works).
+
+    Returns
+    -------
+    W : ndarray (N, N), float64
+    names : list of str
+        The neurons, in W's order.
+
+    Examples
+    --------
+    >>> W, names = signed_connectome()          # doctest: +SKIP
+    >>> W.shape, int((W.min(axis=0) < 0).sum()) # doctest: +SKIP
+    ((302, 302), 35)
+    """
+    from cect.Cells import is_any_neuron
+
+    data = _cect_dataset(reader)
+    if "Generic_CS" not in data.connections:
+        raise ValueError(f"cect's {reader} has no chemical synapses "
+                         "('Generic_CS')")
+    source = _cect_dataset(TRANSMITTER_SOURCE)
+    gaba = source.connections["GABA"].sum(axis=1) > 0  # [pre, post] in cect
+    inhibitory = {n for n, g in zip(source.nodes, gaba, strict=True) if g}
+    keep = [i for i, n in enumerate(data.nodes) if is_any_neuron(n)]
+    C = np.asarray(data.connections["Generic_CS"], dtype=float)[
+        np.ix_(keep, keep)]
+    used = (C.sum(axis=0) + C.sum(axis=1)) > 0
+    C = C[np.ix_(used, used)]
+    names = [data.nodes[i] for i, u in zip(keep, used, strict=True) if u]
+    sign = np.array([-1.0 if n in inhibitory else 1.0 for n in names])
+    return np.ascontiguousarray((C * sign[:, None]).T), names
