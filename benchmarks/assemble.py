@@ -47,9 +47,13 @@ The children run with OPENBLAS_NUM_THREADS (and OMP_, MKL_NUM_THREADS and a
 threadpoolctl limit) set to --threads, 2 by default, whatever the caller's
 environment says; the header prints the value and the BLAS the child found.
 
+--rows real runs the real rows of benchmarks/_real_rows.py instead (in
+this process, with this process's BLAS threads: set OPENBLAS_NUM_THREADS);
+--rows planted,real runs both.
+
 Usage: python benchmarks/assemble.py [--sizes 200,400,800] [--seeds 0,1,2]
        [--big 2000,5000,10000 | --big 0] [--timeout 1800] [--threads 2]
-       [--no-baselines-above N]
+       [--no-baselines-above N] [--rows planted|real|planted,real]
 """
 
 import argparse
@@ -394,6 +398,8 @@ def _parser():
                     help="BLAS threads of each child (OPENBLAS_NUM_THREADS)")
     ap.add_argument("--no-baselines-above", type=int, default=None,
                     metavar="N", help="skip the baselines on rows above N")
+    ap.add_argument("--rows", default="planted",
+                    help="planted, real (benchmarks/_real_rows.py), or both")
     ap.add_argument("--child", help=argparse.SUPPRESS)
     return ap
 
@@ -405,6 +411,14 @@ def main(argv=None):
         print("RESULT " + json.dumps(child(n, seed, bool(base), args.threads)),
               flush=True)
         return 0
+    groups = args.rows.split(",")
+    failed = 0
+    if "real" in groups:
+        from _real_rows import real_table
+
+        failed = real_table()
+        if "planted" not in groups:
+            return 1 if failed else 0
     rows = _rows_of(args)
     print(f"children: OPENBLAS_NUM_THREADS={args.threads} (threadpoolctl "
           f"limit {args.threads}), timeout {args.timeout:g} s per row, "
