@@ -367,9 +367,9 @@ def signed_connectome(reader="Cook2019HermReader"):
 
     Examples
     --------
-    >>> W, names = signed_connectome()          # doctest: +SKIP
-    >>> W.shape, int((W.min(axis=0) < 0).sum()) # doctest: +SKIP
-    ((302, 302), 35)
+    >>> W, names = signed_connectome()
+    >>> W.shape, int((W.min(axis=0) < 0).sum())  # neurons, inhibitory ones
+    ((302, 302), 33)
     """
     from cect.Cells import is_any_neuron
 
