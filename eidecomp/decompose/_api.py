@@ -35,7 +35,7 @@ from ..params import (
 )
 from ..progress import announcer
 from ..types import Decomposition, OptimalityReport, PathPoint, handing_over
-from ._certificate import duality_gap
+from ._certificate import duality_gap, row_blocks, sum_abs
 from ._convex import SOLVERS, ConvexPCP, convex_bytes, largest_convex, solver_name
 from ._ialm import ialm
 from ._norms import spectral_norm_bound
@@ -71,39 +71,26 @@ def _check_matrix(W, name="W", dtype=np.float64):
     # no copy when W already has the working dtype: the solvers never
     # write into it, and at 20,000 units a copy is 3.2 GB
     W = np.ascontiguousarray(W, dtype=dtype)
-    rows = max(1, (1 << 22) // max(W.shape[1], 1))
-    for start in range(0, W.shape[0], rows):
-        bad = ~np.isfinite(W[start:start + rows])
+    for b in row_blocks(W.shape):
+        bad = ~np.isfinite(W[b])
         if bad.any():
             n_bad = int((~np.isfinite(W)).sum())
             i, j = np.argwhere(bad)[0]
             raise InputError(f"{name} has {n_bad} non-finite value(s) "
-                             f"(NaN or Inf), first at row {start + i}, column {j}")
+                             f"(NaN or Inf), first at row {b.start + i}, column {j}")
     check_range(W, name, base=0, dtype=dtype)
     return W
 
 
-def _sum_abs(A, observed=None):
-    """sum |A| (over ``observed``) in row blocks, without a full temporary."""
-    rows = max(1, (1 << 22) // max(A.shape[1], 1))
-    total = 0.0
-    for s in range(0, A.shape[0], rows):
-        block = np.abs(A[s:s + rows])
-        total += float(block[observed[s:s + rows]].sum() if observed is not None
-                       else block.sum())
-    return total
-
-
 def _residual_norm(W, L, S, observed=None):
     """(||W - L - S||_F, ||W||_F) over ``observed``, in row blocks."""
-    rows = max(1, (1 << 22) // max(W.shape[1], 1))
     r2 = w2 = 0.0
-    for s in range(0, W.shape[0], rows):
-        R = W[s:s + rows] - L[s:s + rows]
-        R -= S[s:s + rows]
-        Wb = W[s:s + rows]
+    for b in row_blocks(W.shape):
+        R = W[b] - L[b]
+        R -= S[b]
+        Wb = W[b]
         if observed is not None:
-            R, Wb = R[observed[s:s + rows]], Wb[observed[s:s + rows]]
+            R, Wb = R[observed[b]], Wb[observed[b]]
         r2 += float(np.vdot(R, R))
         w2 += float(np.vdot(Wb, Wb))
     return np.sqrt(r2), np.sqrt(w2)
@@ -132,7 +119,7 @@ def _check_observed(observed, shape, ignore_diagonal):
 
 def _report(W, L, S, Y, lam, observed, *, nuclear, dual, n_iter, converged,
             solver, status, certificate=None, stop="residuals"):
-    l1 = _sum_abs(S, observed)
+    l1 = sum_abs(S, observed)
     norm_R, norm_W = _residual_norm(W, L, S, observed)
     primal = norm_R / norm_W if norm_W else 0.0
     spec = maxn = None

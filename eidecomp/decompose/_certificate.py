@@ -45,12 +45,14 @@ import numpy as np
 
 from ._norms import gram_eigh, gram_upper, spectral_norm_bound
 
-__all__ = ["GapCertificate", "duality_gap"]
+__all__ = ["GapCertificate", "duality_gap", "relative_gap", "row_blocks",
+           "sum_abs"]
 
 PROJECTION_GAIN = 0.1  # rounds of alternating projection stop once one
                        # closes less than this share of the remaining gap
 
-_BLOCK_ELEMENTS = 1 << 18
+BLOCK_ELEMENTS = 1 << 18  # elements per row block of the elementwise passes
+                          # (the ALM's, the certificate's, the verdict's)
 GRAM_MAX = 600  # up to this smaller side ||Y||_2 comes from the Gram matrix
                 # (eigvalsh: 14 ms at 576 against 52 ms for Lanczos on the
                 # clustered spectrum of a multiplier, measured); above, from
@@ -91,8 +93,10 @@ class GapCertificate:
                 "dual_objective": self.dual, "dual_scale": self.scale}
 
 
-def _blocks(shape):
-    rows = max(1, min(shape[0], _BLOCK_ELEMENTS // max(shape[1], 1)))
+def row_blocks(shape):
+    """Row slices of at most ``BLOCK_ELEMENTS`` elements covering an array
+    of this shape: the blocks every elementwise pass of the split walks."""
+    rows = max(1, min(shape[0], BLOCK_ELEMENTS // max(shape[1], 1)))
     return [slice(i, min(i + rows, shape[0])) for i in range(0, shape[0], rows)]
 
 
@@ -105,14 +109,31 @@ def _low_rank_block(L, b):
     return L[b]
 
 
+def _abs_sum(R, observed, b):
+    """sum |R| over the observed entries of rows ``b`` (R is those rows)."""
+    np.abs(R, out=R)
+    return float(R[observed[b]].sum() if observed is not None else R.sum())
+
+
+def sum_abs(A, observed=None):
+    """||P_Omega A||_1 in row blocks, without a full temporary."""
+    return sum(_abs_sum(np.array(A[b]), observed, b) for b in row_blocks(A.shape))
+
+
 def feasible_l1(W, L, observed=None):
     """||P_Omega(W - L)||_1 in row blocks (L an array or factors)."""
-    total = 0.0
-    for b in _blocks(W.shape):
-        R = np.abs(W[b] - _low_rank_block(L, b))
-        total += float(R[observed[b]].sum() if observed is not None
-                       else R.sum())
-    return total
+    return sum(_abs_sum(W[b] - _low_rank_block(L, b), observed, b)
+               for b in row_blocks(W.shape))
+
+
+def relative_gap(primal, dual):
+    """(primal - dual) / primal, at least 0; 0 when the primal value is 0."""
+    return 0.0 if primal <= 0 else max(0.0, (primal - dual) / primal)
+
+
+def _scale(spec, top, lam):
+    """s = max(1, ||Y||_2 bound, ||Y||_max / lam): Y / s is dual feasible."""
+    return max(1.0, spec, top / lam)
 
 
 def _zero_off(Y, observed):
@@ -121,7 +142,7 @@ def _zero_off(Y, observed):
 
 def _inner(W, Y):
     total = 0.0
-    for b in _blocks(W.shape):
+    for b in row_blocks(W.shape):
         total += float(np.vdot(Y[b], W[b]))  # Y is zero off Omega
     return total
 
@@ -136,7 +157,7 @@ def _dual_value(W, Y, lam, observed):
         spec = gram_upper(Y)
     else:
         spec = spectral_norm_bound(Y).upper
-    s = max(1.0, spec, top / lam)
+    s = _scale(spec, top, lam)
     return _inner(W, Y) / s, s
 
 
@@ -161,7 +182,7 @@ def _projected(W, Y, lam, observed, primal, best, rounds):
     for i in range(rounds + 1):
         upper, s, V = gram_eigh(Z)
         top = float(np.abs(Z).max()) if Z.size else 0.0
-        scale = max(1.0, upper, top / lam)
+        scale = _scale(upper, top, lam)
         value = _inner(W, Z) / scale
         gain = value - best[0]
         if gain > 0:
@@ -227,5 +248,5 @@ def duality_gap(W, lam, L, nuclear, candidates, observed=None, rounds=0):
     value, scale = best
     if not math.isfinite(value):
         value = 0.0
-    gap = 0.0 if primal <= 0 else max(0.0, (primal - value) / primal)
-    return GapCertificate(gap=gap, primal=primal, dual=value, scale=scale)
+    return GapCertificate(gap=relative_gap(primal, value), primal=primal,
+                          dual=value, scale=scale)

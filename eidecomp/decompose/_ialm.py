@@ -52,7 +52,13 @@ from ..params import (
     TOL,
 )
 from ._anderson import Anderson, depth_for
-from ._certificate import GapCertificate, duality_gap
+from ._certificate import (
+    GapCertificate,
+    duality_gap,
+    relative_gap,
+    row_blocks,
+    sum_abs,
+)
 from ._svt import reported_rank, sketch_plan, spectral_norm, svt
 from ._verdict import max_abs, support_density
 
@@ -76,7 +82,6 @@ GROW_STEPS = 20  # phase 1: mu grows by rho for at most this many steps
 BALANCE = 3.0    # phase 2: mu changes once one residual is BALANCE x the other
 _BALANCE_FACTOR = 2.0
 _MU_MAX_FACTOR = 1e10  # mu never exceeds this multiple of its start
-_BLOCK_ELEMENTS = 1 << 18  # elements per row block of the elementwise passes
 
 
 def next_penalty(mu, history, polishing, *, tol, rho, mu_max):
@@ -291,8 +296,8 @@ class _Workspace:
     def __init__(self, W, mask, lam, rng):
         m, n = W.shape
         self.W, self.mask, self.lam, self.rng = W, mask, lam, rng
-        rows = max(1, min(m, _BLOCK_ELEMENTS // n))
-        self.blocks = [slice(i, min(i + rows, m)) for i in range(0, m, rows)]
+        self.blocks = row_blocks(W.shape)
+        rows = self.blocks[0].stop
         self.work = tuple(np.empty((rows, n), W.dtype) for _ in range(3))
         self.T = np.empty_like(W)
         self.k, self.V, self.r, self.steps = min(10, m, n), None, 0, 0
@@ -314,16 +319,6 @@ class _Workspace:
         sums = _update_s_y(W, S, Y, Us, Vt, self.r, mu, self.lam * inv_mu,
                            self.mask, self.blocks, self.work)
         return (s, Us, Vt, *sums)
-
-    def l1(self, S):
-        """||P_Omega S||_1, block by block."""
-        total = 0.0
-        for b in self.blocks:
-            Sb = np.abs(S[b])
-            if self.mask is not None:
-                Sb *= self.mask[b]
-            total += float(Sb.sum())
-        return total
 
 
 class _Bound:
@@ -352,9 +347,7 @@ class _Bound:
     def gap(self):
         if self.split is None or not math.isfinite(self.dual):
             return math.inf
-        if self.primal <= 0:
-            return 0.0
-        return max(0.0, (self.primal - self.dual) / self.primal)
+        return relative_gap(self.primal, self.dual)
 
     def certificate(self):
         return GapCertificate(gap=self.gap(), primal=self.primal,
@@ -541,7 +534,8 @@ def ialm(W, lam, *, observed=None, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.
             bound.offer_primal(cert.primal, s, Us, Vt, S, it)
             if (bound.gap() <= gap_tol and not bound.finished) or (
                     bound.gap() > gap_tol and _worth_finishing(
-                        bound, float(np.sum(s)) + lam * ws.l1(S), gap_tol)):
+                        bound, float(np.sum(s)) + lam * sum_abs(S, observed),
+                        gap_tol)):
                 done = _finish(ws, S, Y, mu_was, rho, gap_tol)
                 extra += done[-1]
                 bound.offer_primal(*done[:5], it, copy=False, finished=True)

@@ -26,6 +26,7 @@ import numpy as np
 
 from ..params import FIT_RULES, SETTLED, SUPPORT_RTOL
 from ..types import SplitVerdict
+from ._certificate import row_blocks
 
 __all__ = ["judge_split", "max_abs", "meets_rules", "settled_lam",
            "support_density", "verdict_line"]
@@ -38,12 +39,11 @@ def max_abs(W, observed=None):
     >>> max_abs(np.array([[5.0, -2.0], [1.0, 0.0]]), np.array([[0, 1], [1, 1]], bool))
     2.0
     """
-    rows = max(1, (1 << 22) // max(W.shape[1], 1))
     top = 0.0
-    for s in range(0, W.shape[0], rows):
-        block = np.abs(W[s:s + rows])
+    for b in row_blocks(W.shape):
+        block = np.abs(W[b])
         if observed is not None:
-            block = block[observed[s:s + rows]]
+            block = block[observed[b]]
         if block.size:
             top = max(top, float(block.max()))
     return top
@@ -57,13 +57,12 @@ def support_density(S, top, observed=None):
     >>> support_density(np.array([[1.0, 1e-4], [0.0, -0.5]]), 1.0)
     0.5
     """
-    rows = max(1, (1 << 22) // max(S.shape[1], 1))
     cut = SUPPORT_RTOL * top
     count = total = 0
-    for s in range(0, S.shape[0], rows):
-        big = np.abs(S[s:s + rows]) > cut
+    for b in row_blocks(S.shape):
+        big = np.abs(S[b]) > cut
         if observed is not None:
-            big = big[observed[s:s + rows]]
+            big = big[observed[b]]
         count += int(np.count_nonzero(big))
         total += big.size
     return count / total if total else 0.0
