@@ -14,8 +14,10 @@ from ._version import __version__
 from .errors import ConvergenceWarning, InputError, SolverError, WriteError
 from .params import (
     AGREEMENT_RTOL,
+    DEFAULT_EE_SUPPORT,
     DEFAULT_EI_RATIO,
     DEFAULT_PERIOD,
+    EE_SUPPORTS,
     GAP_TOL,
     MAX_ITER,
     STOP_RULES,
@@ -218,6 +220,11 @@ def _get_parser():
         p.add_argument("--alpha", type=_nonnegative_float,
                        help="weight of ||J_EE||_1 (default 0.02 times the 95th "
                        "percentile of W's positive entries)")
+        p.add_argument("--ee-support", choices=EE_SUPPORTS,
+                       default=DEFAULT_EE_SUPPORT,
+                       help="where J_EE may carry weight: 'positive' (default:"
+                       " only where W > 0, no autapse where W has none) or "
+                       "'any' (unconstrained; inhibition may cancel it)")
         p.add_argument("--units", metavar="CSV",
                        help="unit table: a 'feature' column in degrees, "
                        "optional id, x, y; one row per unit of W (default: "
@@ -429,11 +436,23 @@ def _decompose(args):
     return 0
 
 
+def _convergence_cell(baseline):
+    """'' for an exact baseline; an iterative one's convergence and KKT
+    residual (BaselineResult.converged, kkt_residual)."""
+    if baseline.get("converged") is None:
+        return ""
+    return (f"  {'converged' if baseline['converged'] else 'NOT converged'}, "
+            f"KKT {baseline.get('kkt_residual', float('nan')):.1e}")
+
+
 def _circuit_table(result):
+    from .types import excitation_line
+
     m = result.meta
     c, met = m["counts"], m["metrics"]
     verdict = _verdict_line(m.get("decomposition", {}))
-    lines = [] if verdict is None else [verdict]
+    lines = [met["comparison"]] if met.get("comparison") else []
+    lines += [] if verdict is None else [verdict]
     lines += [
         f"circuit: {c['excitatory']} E, {c['untuned']} untuned I, "
         f"{c['tuned']} tuned I  ({met['share_rule']})",
@@ -443,7 +462,8 @@ def _circuit_table(result):
     ]
     for b in m["baselines"]:
         lines.append(f"{b['name']:<18} {b['n_inhibitory']:>6} "
-                     f"{b['relative_error']:>11.4f} {b['ee_density']:>13.4f}")
+                     f"{b['relative_error']:>11.4f} {b['ee_density']:>13.4f}"
+                     + _convergence_cell(b))
     st = m["stability"]
     ratio = st.get("max_stable_tau_ratio")
     if st.get("circuit_spectral_abscissa_equal_taus") is None:
@@ -455,6 +475,7 @@ def _circuit_table(result):
     else:
         lines.append("stable up to tau_I/tau_E: "
                      + ("beyond 100" if ratio is None else f"{ratio:.3g}"))
+    lines.append(excitation_line(met))
     if met.get("restarted"):
         lines.append(f"interneurons started again after losing their inputs "
                      f"or targets: {met['restarted']}")
@@ -495,7 +516,8 @@ def _assemble(args):
     dtype = "float32" if args.float32 else "float64"
     config = AssembleConfig(
         input=args.matrix, output=args.output, ei_ratio=args.ei_ratio,
-        untuned_share=args.untuned_share, alpha=args.alpha, units=args.units,
+        untuned_share=args.untuned_share, alpha=args.alpha,
+        ee_support=args.ee_support, units=args.units,
         period=args.period, position_unit=args.position_unit,
         magnification=args.magnification, report=args.report,
         kernel=getattr(args, "kernel", None), grid=getattr(args, "grid", None),

@@ -28,6 +28,8 @@ __all__ = [
     "CONNECTION_RTOL",
     "DEFAULT_EI_RATIO",
     "DTYPES",
+    "EE_SUPPORTS",
+    "DEFAULT_EE_SUPPORT",
     "GAP_TOL",
     "MAX_ITER",
     "PATH_GAP_TOL",
@@ -309,6 +311,16 @@ for an interneuron's input J_IE[t, j] it is J_IE[t, j] max_i J_EI[i, t],
 and for its output J_EI[i, t] it is J_EI[i, t] max_j J_IE[t, j], which the
 balance of the two factors leaves unchanged. An interneuron is active when
 it keeps at least one input and one target; the rule keeps both or neither."""
+
+
+EE_SUPPORTS = ("positive", "any")
+"""Where an assembled circuit's J_EE may carry weight (docs/assembly.md,
+"Where excitation goes"): "positive", only where W_ij > 0 (and observed), so
+no E to E synapse is made that inhibition must cancel and no autapse where
+W's diagonal is zero, negative or unobserved; "any", the unconstrained
+construction J_EE = max(W + J_EI J_IE - alpha, 0), which may place
+excitation where W has none and cancel it by inhibition."""
+DEFAULT_EE_SUPPORT = "positive"
 
 
 # --- time constants -------------------------------------------------------------

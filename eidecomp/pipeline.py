@@ -26,7 +26,14 @@ from .io.bundles import (
     TILED,
     check_bundle_output,
 )
-from .params import DEFAULT_EI_RATIO, DEFAULT_PERIOD, TAU_E_MS, TAU_I_MS, EIRatio
+from .params import (
+    DEFAULT_EE_SUPPORT,
+    DEFAULT_EI_RATIO,
+    DEFAULT_PERIOD,
+    TAU_E_MS,
+    TAU_I_MS,
+    EIRatio,
+)
 from .progress import announcer
 from .types import handing_over
 
@@ -346,6 +353,7 @@ class AssembleConfig(MatrixOptions):
     ei_ratio: str = DEFAULT_EI_RATIO
     untuned_share: str = "auto"
     alpha: float | None = None
+    ee_support: str = DEFAULT_EE_SUPPORT
     units: str | None = None
     period: float = DEFAULT_PERIOD
     position_unit: str = "um"
@@ -426,7 +434,8 @@ def _assemble_dense(config, out, progress, stage_progress, extra_files):
             path = report_lam_path(W, progress=stage_progress)
         dec = _with_suggestion(W, dec, config, stage_progress, points=path)
     circuit = assemble(dec, ei_ratio=ratio, untuned_share=config.untuned_share,
-                       alpha=config.alpha, seed=config.seed,
+                       alpha=config.alpha, ee_support=config.ee_support,
+                       seed=config.seed,
                        progress=stage_progress)
     tell = announcer(stage_progress)
     pools = interneuron_pools(circuit, units.features, config.period)

@@ -23,6 +23,7 @@ __all__ = [
     "Circuit",
     "Decomposition",
     "KernelDecomposition",
+    "excitation_line",
     "OptimalityReport",
     "PathPoint",
     "Population",
@@ -381,13 +382,21 @@ class Population:
 
 @dataclass(frozen=True)
 class BaselineResult:
-    """One reference construction, scored like the circuit."""
+    """One reference construction, scored like the circuit.
+
+    ``converged`` and ``kkt_residual`` are set for an iterative baseline
+    (the plain factorisation): whether its solver met its tolerance, and
+    its projected-gradient (KKT) residual relative to the gradient's scale;
+    None for the exact constructions.
+    """
 
     name: str
     description: str
     n_inhibitory: int
     relative_error: float
     ee_density: float
+    converged: bool | None = None
+    kkt_residual: float | None = None
 
 
 @dataclass(frozen=True)
@@ -421,6 +430,17 @@ class AssemblyReport:
         Positive entries of W that J_EE leaves out, of all positive
         entries, and the largest of them (in W's units): what the l1 weight
         alpha cost.
+    ee_support : str
+        Where J_EE was allowed weight (``params.EE_SUPPORTS``).
+    autapses : int
+        Self-connections in J_EE where W's diagonal is not positive.
+    cancelling_share : float
+        Share of J_EE's total weight on entries where W_ij <= 0: excitation
+        that inhibition must cancel (0 under ee_support "positive").
+    comparison : str
+        Which construction reproduces W best at no more J_EE density than
+        this circuit, and what the split adds (the first line of the
+        command's summary and of the report); empty without baselines.
     """
 
     relative_error: float
@@ -434,6 +454,10 @@ class AssemblyReport:
     restarted: int = 0
     floored: int = 0
     dropped: tuple = (0, 0, 0.0)
+    ee_support: str = "any"
+    autapses: int = 0
+    cancelling_share: float = 0.0
+    comparison: str = ""
 
     def as_dict(self):
         out = {k: getattr(self, k) for k in self.__dataclass_fields__}
@@ -442,6 +466,30 @@ class AssemblyReport:
         out["notes"] = list(self.notes)
         out["dropped"] = list(self.dropped)
         return out
+
+
+def excitation_line(metrics):
+    """One line on where J_EE sits, from a circuit's metrics (circuit.json,
+    or AssemblyReport.as_dict()), for the command's summary and the report.
+    A manifest without them (an older bundle, or a tiled circuit, whose
+    kernel assembler does not audit them) says so.
+
+    >>> for part in excitation_line({"ee_support": "positive", "autapses": 0,
+    ...                              "cancelling_share": 0.0}).split("; "):
+    ...     print(part)
+    excitation: J_EE only where W > 0 (ee_support positive)
+    autapses W lacks: 0
+    J_EE weight where W <= 0: 0.0 %
+    """
+    if "cancelling_share" not in metrics:
+        return ("excitation: not audited here (no autapse count or "
+                "cancelling share recorded)")
+    where = ("only where W > 0" if metrics.get("ee_support") == "positive"
+             else "anywhere, cancelled by inhibition where W <= 0")
+    return (f"excitation: J_EE {where} (ee_support "
+            f"{metrics.get('ee_support', 'any')}); autapses W lacks: "
+            f"{metrics.get('autapses', 0)}; J_EE weight where W <= 0: "
+            f"{100 * metrics['cancelling_share']:.1f} %")
 
 
 @dataclass(frozen=True)

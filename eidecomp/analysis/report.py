@@ -21,7 +21,7 @@ import numpy as np
 from ..errors import ConvergenceWarning
 from ..params import DEFAULT_PERIOD, PATH_GAP_TOL
 from ..progress import announcer
-from ..types import TUNED, UNTUNED
+from ..types import TUNED, UNTUNED, excitation_line
 from . import plotting
 from .rules import circuit_rules
 from .tuning import interneuron_pools
@@ -323,6 +323,8 @@ def _sections(meta, rules, med, have_units):
         f"<title>{REPORT_TITLE}</title>", f"<style>{_CSS}</style>",
         "</head><body>", "<h1>Circuit report</h1>",
         f"<p class='caution'>{html.escape(CAUTION)}</p>",
+        *([f"<p><b>{html.escape(met['comparison'])}</b></p>"]
+          if met.get("comparison") else []),
         *_verdict_para(meta.get("decomposition", {})),
         "<h2>Inputs and parameters</h2>",
         _table(["item", "value"], [
@@ -341,6 +343,7 @@ def _sections(meta, rules, med, have_units):
         f"<p>{c.get('excitatory', 0)} excitatory, {c.get('untuned', 0)} untuned "
         f"and {c.get('tuned', 0)} tuned inhibitory units; refinement converged: "
         f"{'yes' if met.get('converged') else 'NO'}.</p>",
+        f"<p>{html.escape(excitation_line(met))}.</p>",
         _table(["construction", "interneurons", "relative error",
                 "J_EE density"], assembly),
         _notes_list(met.get("notes", ())),

@@ -32,7 +32,13 @@ from scipy import sparse
 from ..errors import InputError, warn_stopped
 from ..limits import check_fits, dense_input
 from ..names import unit_labels
-from ..params import CONNECTION_RTOL, DEFAULT_EI_RATIO, EIRatio
+from ..params import (
+    CONNECTION_RTOL,
+    DEFAULT_EE_SUPPORT,
+    DEFAULT_EI_RATIO,
+    EE_SUPPORTS,
+    EIRatio,
+)
 from ..progress import announcer
 from ..types import (
     AssemblyReport,
@@ -41,19 +47,34 @@ from ..types import (
     Decomposition,
     handing_over,
 )
-from ._baselines import NMF_MAX_UNITS, _prune_to_density
+from ._baselines import NMF_MAX_UNITS, _prune_to_density, plain_factorisation
 from ._baselines import baselines as score_baselines
 from ._counts import inhibitory_count, split_counts
 from ._nmf import EXACT_SVD_MAX, Factored, hals, leading_svd, nndsvd
-from ._split_hals import SPARSE_MIN_UNITS, hals_split, paths, sweep_split, tuned_parts
-from ._support import apply_floor, greedy_start, inactive, restart
+from ._split_hals import (
+    SPARSE_MIN_UNITS,
+    hals_split,
+    objective_split,
+    paths,
+    sweep_split,
+    tuned_parts,
+)
+from ._support import (
+    apply_floor,
+    greedy_start,
+    inactive,
+    restart,
+    swap_search,
+)
 
-__all__ = ["assemble", "assembly_bytes"]
+__all__ = ["assemble", "assembly_bytes", "excitation_audit"]
 
 ALPHA_DEFAULT = 0.02   # l1 weight on J_EE, times ALPHA_QUANTILE of W's
 ALPHA_QUANTILE = 0.95  # positive entries (default_alpha)
 TUNED_L1 = 0.005       # l1 weight on the tuned factors, times max(-S) / max|W|
 SUPPORT_RTOL = 1e-6    # factor entries below this x their column max are zero
+SWAP_MAX_UNITS = EXACT_SVD_MAX  # the tuned swap search runs up to this N
+SWAP_SWEEPS = 50       # (each of its trials forms M - A B, N x N)
 RESTART_ROUNDS = 3     # new starts for emptied interneurons, then refinement
 RESTART_RTOL = 1e-3    # a new start needs a piece of unexplained inhibition
                        # whose largest path is this x max|W| (less is noise)
@@ -166,6 +187,35 @@ def _notes(W, n_i, ratio, A, B, n_u):
             f"connection floor ({CONNECTION_RTOL:g} max|W|)",)
 
 
+def _allowed(W, observed, ee_support):
+    """Where J_EE may carry weight (params.EE_SUPPORTS): W > 0 on the
+    observed entries, or None (anywhere)."""
+    if ee_support == "any":
+        return None
+    allowed = W > 0
+    if observed is not None:
+        allowed &= observed
+    return allowed
+
+
+def excitation_audit(W, J_EE):
+    """(autapses, cancelling share) of J_EE against W: self-connections
+    where W's diagonal is not positive (zero: none in W), and the share of
+    J_EE's total weight on entries where W_ij <= 0, which inhibition must
+    cancel to reproduce W (0.0 for an empty J_EE).
+
+    >>> W = np.array([[0.0, 1.0], [-1.0, 0.0]])
+    >>> excitation_audit(W, np.array([[0.5, 1.0], [0.5, 0.0]]))
+    (1, 0.5)
+    """
+    W, J_EE = np.asarray(W), np.asarray(J_EE)
+    autapses = int(np.count_nonzero(np.diag(J_EE)[np.diag(W) <= 0]))
+    total = float(J_EE.sum())
+    if total <= 0:
+        return autapses, 0.0
+    return autapses, float(J_EE[W <= 0].sum()) / total
+
+
 def _dropped(W, J_EE, unit=1.0):
     """(left out, all, largest left out, times ``unit``) of W's positive
     entries."""
@@ -183,9 +233,16 @@ def _residual(W, J_EE, A, B, n_u, parts=None):
     return R
 
 
+def _penalty(alpha, J_EE):
+    """The l1 term: a scalar weight, or one weight per entry."""
+    if np.ndim(alpha):
+        return float(np.vdot(alpha, J_EE))
+    return alpha * float(J_EE.sum())
+
+
 def _objective(W, J_EE, A, B, alpha, n_u, parts=None):
     R = _residual(W, J_EE, A, B, n_u, parts)
-    return 0.5 * float(np.vdot(R, R)) + alpha * float(J_EE.sum())
+    return 0.5 * float(np.vdot(R, R)) + _penalty(alpha, J_EE)
 
 
 def _excitation(W, A, B, n_u, alpha, ee_support, parts=None, out=None):
@@ -220,7 +277,7 @@ def _descend(W, A, B, n_u, masks, alpha, ee_support, max_iter, tol,
         J_EE += W                        # its loss is 0.5 ||W - J_EE + A B||^2
         loss = cache.pop("loss", None)
         history.append(_objective(W, J_EE, A, B, alpha, n_u, parts)
-                       if loss is None else loss + alpha * float(J_EE.sum()))
+                       if loss is None else loss + _penalty(alpha, J_EE))
         if progress is not None:
             progress(stage, len(history) - start, history[-1])
         converged = (len(history) - start > 1
@@ -239,11 +296,13 @@ def _owed(W, J_EE, A, B, n_u):
     return R
 
 
-def _fit(W, A, B, n_u, masks, alpha, max_iter, tol, history, progress):
+def _fit(W, A, B, n_u, masks, alpha, allowed, max_iter, tol, history,
+         progress):
     """Steps 4-5 once, then the connection floor: J_EE, sweeps, converged,
-    weights floored."""
-    J_EE, it1, ok1 = _descend(W, A, B, n_u, masks, alpha, None, max_iter, tol,
-                              history, progress, "refinement")
+    weights floored. ``allowed``: where J_EE may carry weight (None:
+    anywhere)."""
+    J_EE, it1, ok1 = _descend(W, A, B, n_u, masks, alpha, allowed, max_iter,
+                              tol, history, progress, "refinement")
     support = J_EE > 0
     del J_EE
     J_EE, it2, ok2 = _descend(W, A, B, n_u, masks, 0.0, support, max_iter,
@@ -251,8 +310,8 @@ def _fit(W, A, B, n_u, masks, alpha, max_iter, tol, history, progress):
     return J_EE, it1 + it2, ok1 and ok2, apply_floor(J_EE, A, B)
 
 
-def _refine(W, A, B, mask_a, mask_b, alpha, n_u, max_iter, tol, history,
-            progress, tell):
+def _refine(W, A, B, mask_a, mask_b, alpha, allowed, n_u, max_iter, tol,
+            history, progress, tell):
     """Steps 4-5 with the connection floor; new starts for interneurons that
     end without input or target while inhibition is left unexplained (at
     most RESTART_ROUNDS times). Returns J_EE, sweeps, converged and the
@@ -260,8 +319,8 @@ def _refine(W, A, B, mask_a, mask_b, alpha, n_u, max_iter, tol, history,
     masks = (mask_a, mask_b)
 
     def fit():
-        return _fit(W, A, B, n_u, masks, alpha, max_iter, tol, history,
-                    progress)
+        return _fit(W, A, B, n_u, masks, alpha, allowed, max_iter, tol,
+                    history, progress)
 
     J_EE, n_iter, converged, floored = fit()
     restarted = 0
@@ -344,6 +403,13 @@ def _first_factorisations(L, S, unit, n_u, n_t, start, seed, max_iter, tell):
         restarted += len(started)
         A_t, B_t, _ = hals_split(M_sp, A_t, B_t, 0, l1=l1, max_iter=max_iter,
                                  tol=1e-6)
+    if max(M_t.shape) <= SWAP_MAX_UNITS and A_t.shape[1] > 1:
+        tell("tuned factorisation: swaps")
+        A_t, B_t, _ = swap_search(
+            M_t, A_t, B_t,
+            lambda a, b: hals_split(M_sp, a, b, 0, l1=l1,
+                                    max_iter=SWAP_SWEEPS, tol=1e-6)[:2],
+            lambda a, b: objective_split(M_sp, a, b, 0, l1), l1=l1)
     mask_t_a, mask_t_b = _support(A_t, 0), _support(B_t, 1)
     A_t *= mask_t_a
     B_t *= mask_t_b
@@ -352,16 +418,38 @@ def _first_factorisations(L, S, unit, n_u, n_t, start, seed, max_iter, tell):
             np.vstack([np.ones_like(B_u, bool), mask_t_b]), restarted)
 
 
-def _scored_baselines(W, n_i, J_EE, A, B, n_u, err, dens, max_iter):
-    """The four baselines, and this circuit pruned to nmf's density when it
-    is denser (a comparison at equal density)."""
-    base = score_baselines(W, n_i, circuit_error=err, circuit_density=dens,
-                           max_iter=max_iter)
-    nmf = next((b for b in base if b.name == "nmf"), None)
-    if nmf is None:
+def _no_split(W, plain, alpha, allowed, max_iter, tol):
+    """The baseline with no robust PCA: this assembler's refinement, support
+    rule and connection floor, started from the plain factorisation of
+    max(-W, 0) (all interneurons dense: without the split none is tuned)."""
+    A, B = np.asfortranarray(plain[0]), np.array(plain[1])
+    n_i = A.shape[1]
+    ones_a, ones_b = np.ones_like(A, bool), np.ones_like(B, bool)
+    J_EE, _, converged, _ = _refine(W, A, B, ones_a, ones_b, alpha, allowed,
+                                    n_i, max_iter, tol, [], None,
+                                    lambda _: None)
+    err = float(np.linalg.norm(_residual(W, J_EE, A, B, n_i))
+                / max(np.linalg.norm(W), 1e-300))
+    return BaselineResult(
+        "no-split", "this assembler's refinement and excitation rule from a "
+        "plain NMF start, no robust PCA", n_i, err,
+        float(np.count_nonzero(J_EE) / J_EE.size), converged, None), J_EE
+
+
+def _scored_baselines(W, n_i, J_EE, A, B, n_u, err, dens, seed, refit):
+    """The baselines, this circuit pruned to nmf's density when it is
+    denser (a comparison at equal density), and the no-split baseline
+    (``refit``: (alpha, allowed, max_iter, tol) of this assembly)."""
+    if max(W.shape) > NMF_MAX_UNITS:
+        base = score_baselines(W, n_i, circuit_error=err,
+                               circuit_density=dens, seed=seed)
         return base, (f"baseline (d), a plain nonnegative factorisation, was "
                       f"not scored above {NMF_MAX_UNITS} units (its dense "
                       "factorisation costs about N^3 / 2 per sweep)",)
+    plain = plain_factorisation(np.maximum(-W, 0.0), n_i, seed)
+    base = score_baselines(W, n_i, circuit_error=err, circuit_density=dens,
+                           seed=seed, plain=plain)
+    nmf = next(b for b in base if b.name == "nmf")
     if dens > nmf.ee_density:
         J = _prune_to_density(J_EE, nmf.ee_density)
         pruned = J - paths(A, B, n_u)
@@ -370,7 +458,32 @@ def _scored_baselines(W, n_i, J_EE, A, B, n_u, err, dens, max_iter):
             n_i, float(np.linalg.norm(W - pruned)
                        / max(np.linalg.norm(W), 1e-300)),
             float(np.count_nonzero(J) / J.size)),)
+    if W.min() < 0:
+        base += (_no_split(W, plain, *refit)[0],)
     return base, _against_nmf(base, err, dens)
+
+
+def comparison_line(err, dens, baselines):
+    """The first line of the summary and of the report: which construction
+    reproduces W best among those at no more J_EE density than this circuit
+    (the plain factorisation pruned to it, the no-split refinement when it
+    is no denser), and what the split adds."""
+    rivals = [b for b in baselines
+              if b.name in ("nmf@density", "no-split")
+              and b.ee_density <= dens * (1 + 1e-9)]
+    if not rivals:
+        return (f"this circuit: relative error {err:.3g} at J_EE density "
+                f"{dens:.3g} (no baseline scored at equal density)")
+    best = min(rivals, key=lambda b: b.relative_error)
+    if best.relative_error < err - LOSS_MARGIN:
+        return (f"baseline {best.name} reproduces W better than this circuit "
+                f"at no more J_EE density: relative error "
+                f"{best.relative_error:.3g} against {err:.3g}; the "
+                "low-rank/sparse split does not pay here")
+    return (f"this circuit reproduces W at least as well as the best baseline "
+            f"at equal J_EE density ({best.name}): relative error {err:.3g} "
+            f"against {best.relative_error:.3g}; the split's untuned and "
+            "tuned labels cost no accuracy")
 
 
 def _against_nmf(base, err, dens):
@@ -398,9 +511,10 @@ def _against_nmf(base, err, dens):
             "hypothesis (its interneurons are neither untuned nor tuned)",)
 
 
-def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha=None,
-             max_iter=500, tol=1e-6, seed=0, baselines=True,
-             decompose_kwargs=None, progress=None, max_bytes=None):
+def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto",
+             alpha=None, ee_support=DEFAULT_EE_SUPPORT, max_iter=500, tol=1e-6,
+             seed=0, baselines=True, decompose_kwargs=None, progress=None,
+             max_bytes=None):
     """Assemble a Dale's-law circuit that reproduces W as closely as it can.
 
     Parameters
@@ -419,6 +533,12 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha
     alpha : float or None
         Weight of ||J_EE||_1; None means :func:`default_alpha` (0.02 times
         the 95th percentile of W's positive entries).
+    ee_support : {"positive", "any"}
+        Where J_EE may carry weight (``params.EE_SUPPORTS``): "positive"
+        (default), only where W_ij > 0, so no excitation is made that
+        inhibition must cancel and no autapse where W has none; "any", the
+        unconstrained construction. The report states the autapses and the
+        share of J_EE's weight where W <= 0 either way.
     max_iter : int
         Sweeps of the joint refinement (and of each debiasing pass).
     tol : float
@@ -455,6 +575,9 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha
     True
     """
     ratio = EIRatio.parse(ei_ratio)
+    if ee_support not in EE_SUPPORTS:
+        raise InputError(f"ee_support must be one of {', '.join(EE_SUPPORTS)},"
+                         f" got {ee_support!r}")
     ids, W_or_dec = _labelled(W_or_dec)
     W, L, S, dec, own = _split(W_or_dec, seed, decompose_kwargs)
     if W.ndim != 2 or W.shape[0] != W.shape[1]:
@@ -496,28 +619,37 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto", alpha
         J_EE, n_iter, converged, counts = W.copy(), 0, True, (0, 0)
     else:
         J_EE, n_iter, converged, counts = _refine(
-            W, A, B, mask_a, mask_b, alpha / unit, n_u, max_iter, tol, history,
-            progress, tell)
+            W, A, B, mask_a, mask_b, alpha / unit,
+            _allowed(W, dec.observed, ee_support), n_u, max_iter, tol,
+            history, progress, tell)
     if not converged:
         warn_stopped("circuit refinement", max_iter, unit="sweeps",
                      advice="raise max_iter")
     err = float(np.linalg.norm(_residual(W, J_EE, A, B, n_u))
                 / max(np.linalg.norm(W), 1e-300))
     dens = float(np.count_nonzero(J_EE) / J_EE.size)
+    audit = excitation_audit(W, J_EE)
     base, base_notes = (), ()
     if baselines:
         tell("baselines")
-        base, base_notes = _scored_baselines(W, n_i, J_EE, A, B, n_u, err, dens,
-                                             max_iter)
+        base, base_notes = _scored_baselines(
+            W, n_i, J_EE, A, B, n_u, err, dens, seed,
+            (alpha / unit, _allowed(W, dec.observed, ee_support), max_iter,
+             tol))
     report = AssemblyReport(relative_error=err, ee_density=dens,
                             share_rule=rule, baselines=base, n_iter=n_iter,
                             converged=converged, history=tuple(history),
                             notes=_notes(W, n_i, ratio, A, B, n_u) + base_notes,
                             restarted=int(first_starts + counts[0]),
                             floored=int(counts[1]),
-                            dropped=_dropped(W, J_EE, unit))
+                            dropped=_dropped(W, J_EE, unit),
+                            ee_support=ee_support,
+                            autapses=audit[0], cancelling_share=audit[1],
+                            comparison=(comparison_line(err, dens, base)
+                                        if baselines else ""))
     params = {"ei_ratio": ratio.text, "untuned_share": untuned_share,
-              "alpha": alpha, "max_iter": max_iter, "tol": tol, "seed": seed,
+              "alpha": alpha, "ee_support": ee_support, "max_iter": max_iter,
+              "tol": tol, "seed": seed,
               "n_inhibitory": n_i, "lam": dec.lam, "rank": dec.rank,
               "decomposition_converged": dec.converged}
     root = np.sqrt(unit)

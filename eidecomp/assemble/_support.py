@@ -10,7 +10,7 @@ import numpy as np
 
 from ..params import CONNECTION_RTOL
 
-__all__ = ["apply_floor", "greedy_start", "inactive", "restart"]
+__all__ = ["apply_floor", "greedy_start", "inactive", "restart", "swap_search"]
 
 _POWER_STEPS = 10  # alternating steps of a new start's rank-one fit
 
@@ -101,3 +101,60 @@ def greedy_start(M, k, l1, floor):
     A, B = np.zeros((M.shape[0], k)), np.zeros((k, M.shape[1]))
     restart(M, A, B, range(k), l1=l1, floor=floor)
     return A, B
+
+
+SWAP_PIECES = 3      # rank-one pieces of the unexplained part tried per round
+SWAP_CANDIDATES = 4  # interneurons, cheapest to lose first, tried per piece
+SWAP_SWEEPS = 50     # HALS sweeps that settle a trial
+SWAP_GAIN = 1e-6     # a trial is kept when it lowers the objective by this
+                     # share of it
+
+
+def _loss_of_each(R, A, B):
+    """What removing each component alone would add to 0.5 ||R||^2, with R
+    = M - A B: <R, a_k b_k^T> + 0.5 ||a_k||^2 ||b_k||^2."""
+    cross = np.einsum("ik,ik->k", A, R @ B.T)
+    return cross + 0.5 * (A * A).sum(axis=0) * (B * B).sum(axis=1)
+
+
+def swap_search(M, A, B, fit, objective, *, l1=0.0, max_rounds=None):
+    """Escape a local optimum of a nonnegative factorisation M ~ A B (our
+    rule, docs/assembly.md "Tuned pools"): each round takes the largest
+    rank-one piece of the unexplained part max(M - A B, 0), puts it in the
+    place of a component that is cheap to lose, lets ``fit(A, B)`` (a few
+    HALS sweeps, returning new A, B) settle, and keeps the trial when
+    ``objective(A, B)`` fell. A merged pair of pools, which HALS alone keeps
+    for ever, is split this way. Rounds end when no trial of SWAP_PIECES
+    pieces x SWAP_CANDIDATES components helps, or after ``max_rounds``
+    (default: the number of components). M is dense; A, B are not changed.
+
+    Returns A, B and the number of swaps kept.
+    """
+    k = A.shape[1]
+    best = objective(A, B)
+    kept = 0
+    for _ in range(k if max_rounds is None else max_rounds):
+        R = M - A @ B
+        loss = _loss_of_each(R, A, B)
+        np.maximum(R, 0.0, out=R)
+        norms = np.einsum("ij,ij->j", R, R)
+        trial = None
+        for col in np.argsort(norms)[::-1][:SWAP_PIECES]:
+            a, b = _rank_one(R, l1, int(col))
+            if not (a.any() and b.any()):
+                continue
+            for t in np.argsort(loss)[:SWAP_CANDIDATES]:
+                A2, B2 = A.copy(), B.copy()
+                A2[:, t], B2[t] = a, b
+                A2, B2 = fit(A2, B2)
+                value = objective(A2, B2)
+                if value < best - SWAP_GAIN * abs(best):
+                    trial = A2, B2, value
+                    break
+            if trial is not None:
+                break
+        if trial is None:
+            break
+        A, B, best = trial
+        kept += 1
+    return A, B, kept
