@@ -49,11 +49,14 @@ environment says; the header prints the value and the BLAS the child found.
 
 --rows real runs the real rows of benchmarks/_real_rows.py instead (in
 this process, with this process's BLAS threads: set OPENBLAS_NUM_THREADS);
---rows planted,real runs both.
+--rows planted,real runs both; --rows real --held-out runs other members of
+the real rows' families, for re-checking the targets on matrices the work
+was not tuned on.
 
 Usage: python benchmarks/assemble.py [--sizes 200,400,800] [--seeds 0,1,2]
        [--big 2000,5000,10000 | --big 0] [--timeout 1800] [--threads 2]
        [--no-baselines-above N] [--rows planted|real|planted,real]
+       [--held-out]
 """
 
 import argparse
@@ -400,6 +403,10 @@ def _parser():
                     metavar="N", help="skip the baselines on rows above N")
     ap.add_argument("--rows", default="planted",
                     help="planted, real (benchmarks/_real_rows.py), or both")
+    ap.add_argument("--held-out", action="store_true",
+                    help="with --rows real: other members of the same "
+                    "families (other connectomes, image statistics, planted "
+                    "sizes and seeds)")
     ap.add_argument("--child", help=argparse.SUPPRESS)
     return ap
 
@@ -416,7 +423,7 @@ def main(argv=None):
     if "real" in groups:
         from _real_rows import real_table
 
-        failed = real_table()
+        failed = real_table(held_out=args.held_out)
         if "planted" not in groups:
             return 1 if failed else 0
     rows = _rows_of(args)

@@ -24,6 +24,7 @@ from .params import (
     TAU_E_MS,
     TAU_I_MS,
     TOL,
+    excitation_line,
     resolve_tol,
 )
 
@@ -436,26 +437,35 @@ def _decompose(args):
     return 0
 
 
+def _active(meta, kind):
+    """'n' interneurons of a kind, or 'k active of n' when some are silent
+    (no input or no target: circuit.json's interneurons list)."""
+    n = meta["counts"][kind]
+    silent = sum(1 for p in meta.get("interneurons", ())
+                 if p.get("kind") == kind
+                 and (p.get("n_inputs") == 0 or p.get("n_targets") == 0))
+    return f"{n - silent} active of {n}" if silent else f"{n}"
+
+
 def _convergence_cell(baseline):
     """'' for an exact baseline; an iterative one's convergence and KKT
     residual (BaselineResult.converged, kkt_residual)."""
     if baseline.get("converged") is None:
         return ""
-    return (f"  {'converged' if baseline['converged'] else 'NOT converged'}, "
-            f"KKT {baseline.get('kkt_residual', float('nan')):.1e}")
+    kkt = baseline.get("kkt_residual")
+    return (f"  {'converged' if baseline['converged'] else 'NOT converged'}"
+            + ("" if kkt is None else f", KKT {kkt:.1e}"))
 
 
 def _circuit_table(result):
-    from .types import excitation_line
-
     m = result.meta
     c, met = m["counts"], m["metrics"]
     verdict = _verdict_line(m.get("decomposition", {}))
     lines = [met["comparison"]] if met.get("comparison") else []
     lines += [] if verdict is None else [verdict]
     lines += [
-        f"circuit: {c['excitatory']} E, {c['untuned']} untuned I, "
-        f"{c['tuned']} tuned I  ({met['share_rule']})",
+        f"circuit: {c['excitatory']} E, {_active(m, 'untuned')} untuned I, "
+        f"{_active(m, 'tuned')} tuned I  ({met['share_rule']})",
         f"{'construction':<18} {'n_I':>6} {'rel. error':>11} {'J_EE density':>13}",
         f"{'this circuit':<18} {c['untuned'] + c['tuned']:>6} "
         f"{met['relative_error']:>11.4f} {met['ee_density']:>13.4f}",
@@ -475,6 +485,8 @@ def _circuit_table(result):
     else:
         lines.append("stable up to tau_I/tau_E: "
                      + ("beyond 100" if ratio is None else f"{ratio:.3g}"))
+    if st.get("why"):
+        lines.append(f"stability: {st['why']}")
     lines.append(excitation_line(met))
     if met.get("restarted"):
         lines.append(f"interneurons started again after losing their inputs "

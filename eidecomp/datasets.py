@@ -13,8 +13,9 @@ ground truth for tests and benchmarks, not a model of any real circuit.
 
 ``example_lateral`` is invented data for the demo only, a scenario of our own:
 a ring of orientation-tuned model units whose lateral weights mix broad
-inhibition (rank 3), sparse like-to-like excitation and sparse
-feature-specific suppression, with optional dense measurement noise (PCP
+inhibition (rank 3), sparse like-to-like excitation stronger than it, and
+feature-specific suppression from 27 small pools of like units onto units
+of the orthogonal orientation, with optional dense measurement noise (PCP
 spreads dense noise over many tiny singular values; stable PCP, with
 ``delta``, is the program for noisy data).
 
@@ -104,12 +105,26 @@ def example_lateral(n=120, *, noise=0.0, seed=7):
     d = np.deg2rad(theta[:, None] - theta[None, :]) * 2.0   # period 180 deg
     broad = -0.04 * (1.0 + 0.5 * np.cos(d))                 # rank 3
     like = (np.cos(d) > 0.85) & (rng.random((n, n)) < 0.3)
-    excite = np.where(like, rng.uniform(0.05, 0.15, (n, n)), 0.0)
-    unlike = (np.cos(d) < -0.7) & (rng.random((n, n)) < 0.1)
-    suppress = np.where(unlike, -rng.uniform(0.2, 0.4, (n, n)), 0.0)
+    excite = np.where(like, rng.uniform(0.08, 0.15, (n, n)), 0.0)
+    suppress = np.zeros((n, n))
+    for centre in np.linspace(0.0, 180.0, _SUPPRESSORS, endpoint=False):
+        near = _nearest(theta, centre + rng.uniform(-2.0, 2.0), _POOL)
+        far = _nearest(theta, centre + 75.0, _POOL)
+        suppress[np.ix_(far, near)] -= np.outer(
+            rng.uniform(0.3, 0.5, _POOL), rng.uniform(0.3, 0.5, _POOL))
     W = broad + excite + suppress + noise * rng.standard_normal((n, n))
     np.fill_diagonal(W, 0.0)
     return W, theta
+
+
+_SUPPRESSORS = 27  # feature-specific suppression: pools of the example ...
+_POOL = 5          # ... units each, silencing as many orthogonal ones
+
+
+def _nearest(theta, centre, k):
+    """The k units whose orientation is nearest ``centre`` (period 180)."""
+    gap = np.abs((theta - centre + 90.0) % 180.0 - 90.0)
+    return np.argsort(gap, kind="stable")[:k]
 
 
 def _ring_distance(i, j, n):

@@ -473,12 +473,16 @@ def _method_name(n):
             else "ARPACK (scipy.sparse.linalg.eigs, which='LR')")
 
 
-def stability_summary(circuit, W):
+def stability_summary(circuit, W, *, tau_ratio=None):
     """What circuit.json records of stability: the spectral abscissa of the
-    original network (-I + W) and of the circuit at equal time constants,
-    and the largest stable tau_I / tau_E over :data:`STABILITY_SCAN`
-    (None: stable over the whole range), at any size: dense eigenvalues up
-    to :data:`DENSE_MAX_UNITS` units, ARPACK on the Jacobian operator above.
+    original network (-I + W), of the circuit's W_eff (-I + W_eff) and of
+    the circuit at equal time constants, and the largest stable tau_I /
+    tau_E over :data:`STABILITY_SCAN` (None: stable over the whole range),
+    at any size: dense eigenvalues up to :data:`DENSE_MAX_UNITS` units,
+    ARPACK on the Jacobian operator above. With ``tau_ratio`` (the
+    default tau_I / tau_E the commands use), ``why`` is one line on a
+    stable W whose circuit is unstable there (:func:`instability_line`),
+    else None.
 
     >>> import numpy as np
     >>> from eidecomp.types import Circuit
@@ -494,14 +498,52 @@ def stability_summary(circuit, W):
     known = {1.0: circuit_abscissa(circuit)}  # equal taus: on the scan's grid
     ratio = _stable_ratio(circuit, lo, hi, n_grid, 1e-3, "auto", 0, known)
     a_circ = known[1.0]
+    a_eff = spectral_abscissa(circuit.effective_weights()) - 1.0
     n_total = circuit.n_excitatory + circuit.n_inhibitory
     return {"original_spectral_abscissa": a_orig,
+            "effective_spectral_abscissa": a_eff,
             "circuit_spectral_abscissa_equal_taus": a_circ,
             "max_stable_tau_ratio": None if math.isinf(ratio) else ratio,
             "eigenvalue_method": _method_name(n_total),
+            "why": None if tau_ratio is None else instability_line(
+                a_orig, a_eff, ratio, tau_ratio, circuit),
             "note": f"tau_I / tau_E checked at {n_grid} ratios over "
                     f"[{lo:g}, {hi:g}], the crossing then narrowed to 0.1 %; "
                     "null means stable over the whole range"}
+
+
+def instability_line(a_orig, a_eff, max_ratio, tau_ratio, circuit):
+    """One line on why a circuit is unstable at ``tau_ratio`` though W is
+    stable, with the largest stable ratio; None when there is nothing to
+    explain. Two causes, told apart by W_eff:
+
+    * W_eff itself unstable: the circuit's misfit moved W's rightmost
+      eigenvalue across 1 (no time constant helps; more interneurons, a
+      closer fit, may);
+    * W_eff stable: the interneurons are too slow for the excitation they
+      hold. For one E and one I unit, stability at tau_I / tau_E = r needs
+      an excitatory gain below 1 + 1 / r (the linear term of the
+      characteristic polynomial tau_E tau_I s^2 + (tau_E + tau_I -
+      J_EE tau_I) s + (1 - J_EE + J_EI J_IE); common practice for
+      inhibition-stabilised networks); the line gives J_EE's Perron root
+      beside that bound.
+    """
+    if not (a_orig < 0) or max_ratio >= tau_ratio:
+        return None
+    margin = -a_orig
+    if a_eff >= 0:
+        return (f"W is stable (margin {margin:.2g}) but the circuit is "
+                f"stable at no tau_I/tau_E: its error moves W_eff's rightmost "
+                f"eigenvalue to {1 + a_eff:.4g} (W's: {1 - margin:.4g}); a "
+                "closer fit (more interneurons) is needed, no time constant "
+                "helps")
+    rho = float(np.max(np.abs(np.linalg.eigvals(circuit.J_EE)))) \
+        if circuit.n_excitatory <= DENSE_MAX_UNITS else float("nan")
+    return (f"W and W_eff are stable but the circuit is stable only up to "
+            f"tau_I/tau_E = {max_ratio:.3g} (default {tau_ratio:.3g}): its "
+            f"excitation J_EE has Perron root {rho:.3g}, and interneurons "
+            f"this slow hold a gain below about {1 + 1 / tau_ratio:.3g} "
+            "(one E and one I unit)")
 
 
 def random_drive(n, seed=0):

@@ -30,6 +30,7 @@ __all__ = [
     "DTYPES",
     "EE_SUPPORTS",
     "DEFAULT_EE_SUPPORT",
+    "excitation_line",
     "GAP_TOL",
     "MAX_ITER",
     "PATH_GAP_TOL",
@@ -321,6 +322,30 @@ W's diagonal is zero, negative or unobserved; "any", the unconstrained
 construction J_EE = max(W + J_EI J_IE - alpha, 0), which may place
 excitation where W has none and cancel it by inhibition."""
 DEFAULT_EE_SUPPORT = "positive"
+
+
+def excitation_line(metrics):
+    """One line on where J_EE sits, from a circuit's metrics (circuit.json,
+    or AssemblyReport.as_dict()), for the command's summary and the report.
+    A manifest without them (an older bundle, or a tiled circuit, whose
+    kernel assembler does not audit them) says so.
+
+    >>> for part in excitation_line({"ee_support": "positive", "autapses": 0,
+    ...                              "cancelling_share": 0.0}).split("; "):
+    ...     print(part)
+    excitation: J_EE only where W > 0 (ee_support positive)
+    autapses W lacks: 0
+    J_EE weight where W <= 0: 0.0 %
+    """
+    if "cancelling_share" not in metrics:
+        return ("excitation: not audited here (no autapse count or "
+                "cancelling share recorded)")
+    where = ("only where W > 0" if metrics.get("ee_support") == "positive"
+             else "anywhere, cancelled by inhibition where W <= 0")
+    return (f"excitation: J_EE {where} (ee_support "
+            f"{metrics.get('ee_support', 'any')}); autapses W lacks: "
+            f"{metrics.get('autapses', 0)}; J_EE weight where W <= 0: "
+            f"{100 * metrics['cancelling_share']:.1f} %")
 
 
 # --- time constants -------------------------------------------------------------

@@ -440,7 +440,8 @@ def _assemble_dense(config, out, progress, stage_progress, extra_files):
     tell = announcer(stage_progress)
     pools = interneuron_pools(circuit, units.features, config.period)
     tell("stability")
-    stability = dynamics.stability_summary(circuit, W)
+    stability = dynamics.stability_summary(circuit, W,
+                                           tau_ratio=TAU_I_MS / TAU_E_MS)
     doc = bundles.circuit_doc(
         circuit, source={**source, "shape": list(W.shape), "units": units.path,
                          "position_unit": config.position_unit,

@@ -23,7 +23,6 @@ __all__ = [
     "Circuit",
     "Decomposition",
     "KernelDecomposition",
-    "excitation_line",
     "OptimalityReport",
     "PathPoint",
     "Population",
@@ -466,30 +465,6 @@ class AssemblyReport:
         out["notes"] = list(self.notes)
         out["dropped"] = list(self.dropped)
         return out
-
-
-def excitation_line(metrics):
-    """One line on where J_EE sits, from a circuit's metrics (circuit.json,
-    or AssemblyReport.as_dict()), for the command's summary and the report.
-    A manifest without them (an older bundle, or a tiled circuit, whose
-    kernel assembler does not audit them) says so.
-
-    >>> for part in excitation_line({"ee_support": "positive", "autapses": 0,
-    ...                              "cancelling_share": 0.0}).split("; "):
-    ...     print(part)
-    excitation: J_EE only where W > 0 (ee_support positive)
-    autapses W lacks: 0
-    J_EE weight where W <= 0: 0.0 %
-    """
-    if "cancelling_share" not in metrics:
-        return ("excitation: not audited here (no autapse count or "
-                "cancelling share recorded)")
-    where = ("only where W > 0" if metrics.get("ee_support") == "positive"
-             else "anywhere, cancelled by inhibition where W <= 0")
-    return (f"excitation: J_EE {where} (ee_support "
-            f"{metrics.get('ee_support', 'any')}); autapses W lacks: "
-            f"{metrics.get('autapses', 0)}; J_EE weight where W <= 0: "
-            f"{100 * metrics['cancelling_share']:.1f} %")
 
 
 @dataclass(frozen=True)

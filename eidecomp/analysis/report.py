@@ -19,9 +19,9 @@ from urllib.parse import quote
 import numpy as np
 
 from ..errors import ConvergenceWarning
-from ..params import DEFAULT_PERIOD, PATH_GAP_TOL
+from ..params import DEFAULT_PERIOD, PATH_GAP_TOL, excitation_line
 from ..progress import announcer
-from ..types import TUNED, UNTUNED, excitation_line
+from ..types import TUNED, UNTUNED
 from . import plotting
 from .rules import circuit_rules
 from .tuning import interneuron_pools
@@ -280,9 +280,10 @@ def _stability_text(st):
         limit = "beyond 100"
     else:
         limit = _fmt(st.get("max_stable_tau_ratio"), ".3g")
+    why = f". {st['why']}" if st.get("why") else ""
     return (f"spectral abscissa of -I + W: "
             f"{_fmt(st.get('original_spectral_abscissa'), '.3g')}; largest "
-            f"stable tau_I/tau_E: {limit}")
+            f"stable tau_I/tau_E: {limit}{why}")
 
 
 def _verdict_para(decomposition):

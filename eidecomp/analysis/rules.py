@@ -235,15 +235,25 @@ CLASSES = ("E->E", "E->I_untuned", "I_untuned->E", "E->I_tuned",
            "I_tuned->E", "W positive", "W negative")
 
 
+def active_interneurons(circuit):
+    """(untuned, tuned) boolean masks of the interneurons with at least one
+    input and one target: a silent interneuron is no connection of either
+    class and counts in no probability or profile."""
+    active = circuit.J_EI.any(axis=0) & circuit.J_IE.any(axis=1)
+    return active[:circuit.n_untuned], active[circuit.n_untuned:]
+
+
 def connection_classes(circuit, W):
     """{class: (J[post, pre], post kind, pre kind)}: the circuit's five
-    blocks and the positive and negative sides of the original W."""
+    blocks (active interneurons only, :func:`active_interneurons`) and the
+    positive and negative sides of the original W."""
     W = np.asarray(W, dtype=float)
+    u, t = active_interneurons(circuit)
     return {"E->E": (circuit.J_EE, "E", "E"),
-            "E->I_untuned": (circuit.J_UE, "U", "E"),
-            "I_untuned->E": (circuit.J_EU, "E", "U"),
-            "E->I_tuned": (circuit.J_TE, "T", "E"),
-            "I_tuned->E": (circuit.J_ET, "E", "T"),
+            "E->I_untuned": (circuit.J_UE[u], "U", "E"),
+            "I_untuned->E": (circuit.J_EU[:, u], "E", "U"),
+            "E->I_tuned": (circuit.J_TE[t], "T", "E"),
+            "I_tuned->E": (circuit.J_ET[:, t], "E", "T"),
             "W positive": (np.maximum(W, 0.0), "E", "E"),
             "W negative": (np.maximum(-W, 0.0), "E", "E")}
 
@@ -259,7 +269,14 @@ def circuit_rules(circuit, W, *, features=None, positions=None, period=DEFAULT_P
     from .tuning import pool_features
 
     f_i, p_i = pool_features(circuit, features, positions, period)
-    nu = circuit.n_untuned
+    u, t = active_interneurons(circuit)
+    if f_i is not None:
+        f_i = np.concatenate([f_i[:circuit.n_untuned][u],
+                              f_i[circuit.n_untuned:][t]])
+    if p_i is not None:
+        p_i = np.concatenate([p_i[:circuit.n_untuned][u],
+                              p_i[circuit.n_untuned:][t]])
+    nu = int(u.sum())
 
     def prop(kind, values_e, values_i):
         if values_e is None:

@@ -47,7 +47,12 @@ from ..types import (
     Decomposition,
     handing_over,
 )
-from ._baselines import NMF_MAX_UNITS, _prune_to_density, plain_factorisation
+from ._baselines import (
+    NMF_MAX_UNITS,
+    _prune_to_density,
+    nmf_scored,
+    plain_factorisation,
+)
 from ._baselines import baselines as score_baselines
 from ._counts import inhibitory_count, split_counts
 from ._nmf import EXACT_SVD_MAX, Factored, hals, leading_svd, nndsvd
@@ -179,12 +184,15 @@ def _notes(W, n_i, ratio, A, B, n_u):
     if not silent.size:
         return ()
     n_ut, n_tt = int((silent < n_u).sum()), int((silent >= n_u).sum())
-    return (f"W supports {n_i - silent.size} active interneurons of the {n_i} "
-            f"asked ({n_ut} untuned and {n_tt} tuned left silent): after "
-            f"{RESTART_ROUNDS} rounds of new starts, no piece of unexplained "
-            f"inhibition with a path of {RESTART_RTOL:g} max|W| or more was "
-            "left for them to carry, and their weights fell below the "
-            f"connection floor ({CONNECTION_RTOL:g} max|W|)",)
+    return (f"{n_i - silent.size} of the {n_i} interneurons asked are "
+            f"active; {n_ut} untuned and {n_tt} tuned were left silent (no "
+            f"input or no target): after {RESTART_ROUNDS} rounds of new "
+            "starts, no piece of unexplained inhibition with a path of "
+            f"{RESTART_RTOL:g} max|W| or more was left for them, and their "
+            f"weights fell below the connection floor ({CONNECTION_RTOL:g} "
+            "max|W|). They count in no headline, probability or profile; "
+            "W_eff is the same without them, so this does not show that W "
+            "needs fewer",)
 
 
 def _allowed(W, observed, ee_support):
@@ -440,7 +448,7 @@ def _scored_baselines(W, n_i, J_EE, A, B, n_u, err, dens, seed, refit):
     """The baselines, this circuit pruned to nmf's density when it is
     denser (a comparison at equal density), and the no-split baseline
     (``refit``: (alpha, allowed, max_iter, tol) of this assembly)."""
-    if max(W.shape) > NMF_MAX_UNITS:
+    if not nmf_scored(max(W.shape)):
         base = score_baselines(W, n_i, circuit_error=err,
                                circuit_density=dens, seed=seed)
         return base, (f"baseline (d), a plain nonnegative factorisation, was "

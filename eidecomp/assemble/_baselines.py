@@ -141,9 +141,10 @@ def kkt_residual(M, A, B):
 
 def plain_factorisation(M, k, seed=0):
     """(A, B, converged, KKT residual) of M >= 0 ~ A B with k components:
-    scikit-learn's NMF, solver "cd", init "nndsvda", tol NMF_TOL, at most
-    NMF_MAX_ITER sweeps. Converged means it stopped before NMF_MAX_ITER
-    and its KKT residual is at most NMF_KKT_TOL."""
+    scikit-learn's NMF, solver "cd", init "nndsvda" (a seeded random start
+    where NNDSVD is undefined), tol NMF_TOL, at most NMF_MAX_ITER sweeps.
+    Converged means it stopped before NMF_MAX_ITER and its KKT residual is
+    at most NMF_KKT_TOL."""
     import warnings
 
     from sklearn.decomposition import NMF
@@ -152,14 +153,25 @@ def plain_factorisation(M, k, seed=0):
     if k == 0 or not M.any():
         A, B = np.zeros((M.shape[0], k)), np.zeros((k, M.shape[1]))
         return A, B, True, 0.0
-    model = NMF(n_components=k, solver="cd", init="nndsvda", tol=NMF_TOL,
-                max_iter=NMF_MAX_ITER, random_state=seed)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", SkConvergence)
-        A = model.fit_transform(M)
+    def fit(init):
+        model = NMF(n_components=k, solver="cd", init=init, tol=NMF_TOL,
+                    max_iter=NMF_MAX_ITER, random_state=seed)
+        with warnings.catch_warnings(), np.errstate(divide="raise", invalid="raise"):
+            warnings.simplefilter("ignore", SkConvergence)
+            return model.fit_transform(M), model
+
+    try:
+        A, model = fit("nndsvda")
+    except FloatingPointError:  # NNDSVD divides by a zero norm when M has
+        A, model = fit("random")  # fewer nonzero singular values than k
     B = model.components_
     kkt = kkt_residual(M, A, B)
     return A, B, model.n_iter_ < NMF_MAX_ITER and kkt <= NMF_KKT_TOL, kkt
+
+
+def nmf_scored(n):
+    """Whether baseline (d) is scored for n units (n <= NMF_MAX_UNITS)."""
+    return n <= NMF_MAX_UNITS
 
 
 def baselines(W, n_i, *, circuit_error=None, circuit_density=None, seed=0,
@@ -185,7 +197,7 @@ def baselines(W, n_i, *, circuit_error=None, circuit_density=None, seed=0,
         out.append(BaselineResult("global@error", "global, pruned to the "
                                   "circuit's error", 1, float(circuit_error),
                                   float(dens)))
-    if max(W.shape) > NMF_MAX_UNITS:
+    if not nmf_scored(max(W.shape)):
         return tuple(out)
     Jp = np.maximum(W, 0)
     A, B, converged, kkt = (plain_factorisation(np.maximum(-W, 0), n_i, seed)
