@@ -24,7 +24,9 @@ from .params import (
     TAU_E_MS,
     TAU_I_MS,
     TOL,
+    active_text,
     excitation_line,
+    labels_caveat,
     resolve_tol,
 )
 
@@ -437,16 +439,6 @@ def _decompose(args):
     return 0
 
 
-def _active(meta, kind):
-    """'n' interneurons of a kind, or 'k active of n' when some are silent
-    (no input or no target: circuit.json's interneurons list)."""
-    n = meta["counts"][kind]
-    silent = sum(1 for p in meta.get("interneurons", ())
-                 if p.get("kind") == kind
-                 and (p.get("n_inputs") == 0 or p.get("n_targets") == 0))
-    return f"{n - silent} active of {n}" if silent else f"{n}"
-
-
 def _convergence_cell(baseline):
     """'' for an exact baseline; an iterative one's convergence and KKT
     residual (BaselineResult.converged, kkt_residual)."""
@@ -464,8 +456,9 @@ def _circuit_table(result):
     lines = [met["comparison"]] if met.get("comparison") else []
     lines += [] if verdict is None else [verdict]
     lines += [
-        f"circuit: {c['excitatory']} E, {_active(m, 'untuned')} untuned I, "
-        f"{_active(m, 'tuned')} tuned I  ({met['share_rule']})",
+        f"circuit: {c['excitatory']} E, {active_text(m, 'untuned')} untuned I, "
+        f"{active_text(m, 'tuned')} tuned I  ({met['share_rule']})"
+        + labels_caveat(m, "; ", ""),
         f"{'construction':<18} {'n_I':>6} {'rel. error':>11} {'J_EE density':>13}",
         f"{'this circuit':<18} {c['untuned'] + c['tuned']:>6} "
         f"{met['relative_error']:>11.4f} {met['ee_density']:>13.4f}",

@@ -30,7 +30,9 @@ __all__ = [
     "DTYPES",
     "EE_SUPPORTS",
     "DEFAULT_EE_SUPPORT",
+    "active_text",
     "excitation_line",
+    "labels_caveat",
     "GAP_TOL",
     "MAX_ITER",
     "PATH_GAP_TOL",
@@ -347,6 +349,33 @@ def excitation_line(metrics):
             f"{metrics.get('autapses', 0)}; J_EE weight where W <= 0: "
             f"{100 * metrics['cancelling_share']:.1f} %")
 
+
+
+def active_text(meta, kind):
+    """A headline count of interneurons of ``kind`` ("untuned", "tuned")
+    from circuit.json: 'n', or 'k active of n' when some are silent (no
+    input or no target, its interneurons list), which count as neither.
+
+    >>> active_text({"counts": {"tuned": 3}, "interneurons": [
+    ...     {"kind": "tuned", "n_inputs": 0, "n_targets": 2}]}, "tuned")
+    '2 active of 3'
+    """
+    n = meta.get("counts", {}).get(kind, 0)
+    silent = sum(1 for p in meta.get("interneurons", ())
+                 if p.get("kind") == kind
+                 and (p.get("n_inputs") == 0 or p.get("n_targets") == 0))
+    return f"{n - silent} active of {n}" if silent else f"{n}"
+
+
+def labels_caveat(meta, before, after):
+    """Beside the untuned/tuned counts, when the split's verdict
+    (circuit.json decomposition.verdict) says W is not low-rank plus
+    sparse; '' otherwise."""
+    v = meta.get("decomposition", {}).get("verdict")
+    if not v or v.get("fits", True):
+        return ""
+    return (f"{before}W is not low-rank plus sparse here, so 'untuned' and "
+            f"'tuned' only name the two parts of this split{after}")
 
 # --- time constants -------------------------------------------------------------
 

@@ -15,23 +15,31 @@ long step is never silent; on the way out, error or not, it ends the live
 line.
 """
 
+import logging
 import math
 import sys
 import threading
 import time
 
-__all__ = ["FIRST_AFTER", "LIVE_EVERY", "LOG_EVERY", "Progress", "announcer"]
+__all__ = ["FIRST_AFTER", "LIVE_EVERY", "LOGGER", "LOG_EVERY", "Progress",
+           "announcer"]
 
 FIRST_AFTER = 1.0   # seconds of work before the first line
 LIVE_EVERY = 0.5    # seconds between rewrites of the live line (a terminal)
 LOG_EVERY = 3.0     # seconds between plain lines (not a terminal)
 
 
+LOGGER = logging.getLogger("eidecomp")
+"""Where a stage is announced when no callback is given: a Python user sees
+the assembler's and the pipeline's stages with
+``logging.basicConfig(level=logging.INFO)``."""
+
+
 def announcer(progress):
     """The function that announces a stage by name to a stage callback
     (``progress(stage, step, objective)``, e.g. :meth:`Progress.stage`) as
-    its start (step 0, no objective); it does nothing when ``progress`` is
-    None.
+    its start (step 0, no objective); when ``progress`` is None, to the
+    ``eidecomp`` logger at level INFO (:data:`LOGGER`).
 
     >>> seen = []
     >>> announcer(lambda *args: seen.append(args))("stability")
@@ -40,7 +48,7 @@ def announcer(progress):
     >>> announcer(None)("stability")
     """
     if progress is None:
-        return lambda stage: None
+        return lambda stage: LOGGER.info("stage: %s", stage)
     return lambda stage: progress(stage, 0, math.nan)
 
 

@@ -98,7 +98,7 @@ def test_an_assembly_that_will_not_fit_is_refused_before_it_starts():
 
     W, _, _ = make_planted_circuit(60, n_untuned=2, n_tuned=13, pool=4, seed=0)
     need = asm.assembly_bytes(60, 15)
-    assert need == int(6.1 * 60 * 60 * 8) + 2 * 60 * 15 * 9
+    assert need == int(6.1 * 60 * 60 * 8) + 2 * 60 * 15 * (4 * 8 + 1)
     with pytest.raises(InputError, match="assembling 60 excitatory units and "
                                          "15 interneurons needs about"):
         assemble(W, max_bytes=need - 1, baselines=False)

@@ -19,7 +19,13 @@ from urllib.parse import quote
 import numpy as np
 
 from ..errors import ConvergenceWarning
-from ..params import DEFAULT_PERIOD, PATH_GAP_TOL, excitation_line
+from ..params import (
+    DEFAULT_PERIOD,
+    PATH_GAP_TOL,
+    active_text,
+    excitation_line,
+    labels_caveat,
+)
 from ..progress import announcer
 from ..types import TUNED, UNTUNED
 from . import plotting
@@ -341,8 +347,9 @@ def _sections(meta, rules, med, have_units):
              _fmt(meta.get("decomposition", {}).get("duality_gap"), ".2e")],
             ["eidecomp", meta.get("eidecomp_version", "-")]]),
         "<h2>Assembly against the baselines</h2>",
-        f"<p>{c.get('excitatory', 0)} excitatory, {c.get('untuned', 0)} untuned "
-        f"and {c.get('tuned', 0)} tuned inhibitory units; refinement converged: "
+        f"<p>{c.get('excitatory', 0)} excitatory, {active_text(meta, UNTUNED)} "
+        f"untuned and {active_text(meta, TUNED)} tuned inhibitory units"
+        f"{labels_caveat(meta, ' (', ')')}; refinement converged: "
         f"{'yes' if met.get('converged') else 'NO'}.</p>",
         f"<p>{html.escape(excitation_line(met))}.</p>",
         _table(["construction", "interneurons", "relative error",

@@ -134,7 +134,8 @@ def swap_search(M, A, B, fit, objective, *, l1=0.0, max_rounds=None):
     best = objective(A, B)
     kept = 0
     for _ in range(k if max_rounds is None else max_rounds):
-        R = M - A @ B
+        R = A @ B                    # one N x N array: R = M - A B
+        np.subtract(M, R, out=R)
         loss = _loss_of_each(R, A, B)
         np.maximum(R, 0.0, out=R)
         norms = np.einsum("ij,ij->j", R, R)
