@@ -97,10 +97,6 @@ def _nmf_time(W, n_components):
     return t
 
 
-def _dale(W):
-    return not ((W > 0).any(axis=0) & (W < 0).any(axis=0)).any()
-
-
 def _f1(a, b):
     both = np.count_nonzero(a & b)
     return 2 * both / max(np.count_nonzero(a) + np.count_nonzero(b), 1)
@@ -108,6 +104,7 @@ def _f1(a, b):
 
 def _row(label, W, truth):
     from eidecomp import assemble
+    from eidecomp.assemble import dale_columns
     from eidecomp.dynamics import circuit_abscissa, spectral_abscissa
     from eidecomp.params import TAU_E_MS, TAU_I_MS
 
@@ -124,7 +121,7 @@ def _row(label, W, truth):
             "dens": rep.ee_density, "nmf_d": base.get("nmf@density"),
             "no_split": base.get("no-split"), "autapses": rep.autapses,
             "cancel": rep.cancelling_share, "w_stable": w_stable,
-            "c_stable": c_stable, "silent": silent, "dale": _dale(W),
+            "c_stable": c_stable, "silent": silent, "dale": dale_columns(W)[0],
             "first": rep.comparison,
             "f1": None if truth is None else _f1(c.J_EE > 0, truth.J_EE > 0)}
 

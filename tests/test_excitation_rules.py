@@ -222,3 +222,9 @@ def test_a_real_connectome_gets_no_invented_synapse():
         c = assemble(W, ei_ratio="4:1", baselines=False)
     assert not (c.J_EE[W <= 0] > 0).any()
     assert c.report.autapses == 0
+    # recognised as a Dale's-law matrix: its inhibitory neurons are the
+    # columns cect's GABA classes signed negative (counted here by numpy)
+    k = int((W < 0).any(axis=0).sum())
+    assert not ((W < 0).any(axis=0) & (W > 0).any(axis=0)).any()
+    (note,) = [x for x in c.report.notes if "obeys Dale's law" in x]
+    assert f"with {k} inhibitory neurons of {W.shape[0]}" in note

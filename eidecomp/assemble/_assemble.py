@@ -72,7 +72,7 @@ from ._support import (
     swap_search,
 )
 
-__all__ = ["assemble", "assembly_bytes", "excitation_audit"]
+__all__ = ["assemble", "assembly_bytes", "dale_columns", "excitation_audit"]
 
 ALPHA_DEFAULT = 0.02   # l1 weight on J_EE, times ALPHA_QUANTILE of W's
 ALPHA_QUANTILE = 0.95  # positive entries (default_alpha)
@@ -175,6 +175,55 @@ def _fill_dead(A, B, scale, rng):
 def _support(F, axis):
     peak = F.max(axis=axis, keepdims=True)
     return F > SUPPORT_RTOL * np.where(peak > 0, peak, np.inf)
+
+
+def dale_columns(W):
+    """(obeys, inhibitory): whether every column of W is one sign (zero
+    entries aside), as in a connectome signed by each neuron's transmitter,
+    and the mask of its columns with a negative entry.
+
+    >>> dale_columns(np.array([[0.0, -1.0], [2.0, -3.0]]))
+    (True, array([False,  True]))
+    """
+    W = np.asarray(W)
+    neg, pos = (W < 0).any(axis=0), (W > 0).any(axis=0)
+    return bool(not (neg & pos).any()), neg
+
+
+def _dale_note(W):
+    """What the report says of a W that already obeys Dale's law."""
+    obeys, inhibitory = dale_columns(W)
+    k = int(inhibitory.sum())
+    if not obeys or not k:
+        return ()
+    n = W.shape[0]
+    return (f"W already obeys Dale's law: every column is one sign, with {k} "
+            f"inhibitory neurons of {n} (E:I {(n - k) / k:.3g}:1). This "
+            "circuit still treats all of W's units as excitatory and adds "
+            "interneurons; building it from W's own inhibitory neurons "
+            "(which needs inhibitory-to-inhibitory synapses) is not done yet. "
+            "Read W itself as the Dale's-law circuit",)
+
+
+DIAGONAL_SHARE = 0.5   # the diagonal note: this share of the squared error
+
+
+def _diagonal_note(W, R, observed):
+    """A note when W's diagonal is all zero and observed, and at least
+    DIAGONAL_SHARE of the squared error sits there: the interneurons'
+    self-inhibition (a unit driving an interneuron that inhibits it), which
+    a zero-by-convention diagonal does not forbid."""
+    if observed is not None or np.diag(W).any():
+        return ()
+    total = float(np.vdot(R, R))
+    share = float(np.sum(np.diag(R) ** 2)) / total if total > 0 else 0.0
+    if share < DIAGONAL_SHARE:
+        return ()
+    return (f"{100 * share:.0f} % of the squared error is on the diagonal, "
+            "which W leaves at zero: the interneurons' loops give each unit "
+            "some self-inhibition. If W's zero diagonal is a convention (no "
+            "self-connection modelled), decompose with --ignore-diagonal "
+            "(mask the diagonal) and it is not fitted",)
 
 
 def _notes(W, n_i, ratio, A, B, n_u):
@@ -667,8 +716,10 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto",
     if not converged:
         warn_stopped("circuit refinement", max_iter, unit="sweeps",
                      advice="raise max_iter")
-    err = float(np.linalg.norm(_residual(W, J_EE, A, B, n_u))
-                / max(np.linalg.norm(W), 1e-300))
+    R = _residual(W, J_EE, A, B, n_u)
+    err = float(np.linalg.norm(R) / max(np.linalg.norm(W), 1e-300))
+    diagonal = _diagonal_note(W, R, dec.observed)
+    del R
     dens = float(np.count_nonzero(J_EE) / J_EE.size)
     audit = excitation_audit(W, J_EE)
     base, base_notes = (), ()
@@ -681,7 +732,8 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto",
     report = AssemblyReport(relative_error=err, ee_density=dens,
                             share_rule=rule, baselines=base, n_iter=n_iter,
                             converged=converged, history=tuple(history),
-                            notes=_notes(W, n_i, ratio, A, B, n_u) + base_notes,
+                            notes=(_dale_note(W) + _notes(W, n_i, ratio, A, B, n_u)
+                                   + diagonal + base_notes),
                             restarted=int(first_starts + counts[0]),
                             floored=int(counts[1]),
                             dropped=_dropped(W, J_EE, unit),
