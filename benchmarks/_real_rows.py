@@ -20,7 +20,8 @@ generalises.
 Per row: N, n_I, the assembly's time and NMF's, their ratio, the relative
 error ||W - W_eff||_F / ||W||_F, the two baselines at the circuit's J_EE
 density (the plain factorisation ``nmf@density`` and the refinement with
-no robust PCA ``no-split``; "*" marks one that did not converge), autapses
+no robust PCA ``no-split``, pruned to the circuit's density when denser;
+"*" marks one that did not converge), autapses
 (J_EE's nonzero diagonal where W's diagonal is not positive), the
 cancelling share (J_EE's weight where W <= 0, over J_EE's weight), whether
 W's linear rate dynamics are stable (spectral abscissa of -I + W below 0)
@@ -119,7 +120,8 @@ def _row(label, W, truth):
     return {"label": label, "n": W.shape[0], "n_i": c.n_inhibitory, "t": t,
             "nmf": _nmf_time(W, c.n_inhibitory), "err": rep.relative_error,
             "dens": rep.ee_density, "nmf_d": base.get("nmf@density"),
-            "no_split": base.get("no-split"), "autapses": rep.autapses,
+            "no_split": base.get("no-split@density", base.get("no-split")),
+            "autapses": rep.autapses,
             "cancel": rep.cancelling_share, "w_stable": w_stable,
             "c_stable": c_stable, "silent": silent, "dale": dale_columns(W)[0],
             "first": rep.comparison,
