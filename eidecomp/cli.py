@@ -511,6 +511,8 @@ def _tiled_line(result):
             f"{m['metrics']['relative_error']:.4f}; expanded it is "
             f"{sum(m['counts'].values())} units "
             f"(~{m['memory_estimate_expanded_bytes'] / 2**20:.0f} MiB dense)\n"
+            "excitation: J_EE anywhere (the kernel assembler has no support "
+            "rule yet: ee_support any)\n"
             f"written to {result.output}")
 
 

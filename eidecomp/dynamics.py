@@ -532,18 +532,22 @@ def instability_line(a_orig, a_eff, max_ratio, tau_ratio, circuit):
         return None
     margin = -a_orig
     if a_eff >= 0:
-        return (f"W is stable (margin {margin:.2g}) but the circuit is "
-                f"stable at no tau_I/tau_E: its error moves W_eff's rightmost "
-                f"eigenvalue to {1 + a_eff:.4g} (W's: {1 - margin:.4g}); a "
-                "closer fit (more interneurons) is needed, no time constant "
-                "helps")
-    rho = float(np.max(np.abs(np.linalg.eigvals(circuit.J_EE)))) \
-        if circuit.n_excitatory <= DENSE_MAX_UNITS else float("nan")
-    return (f"W and W_eff are stable but the circuit is stable only up to "
-            f"tau_I/tau_E = {max_ratio:.3g} (default {tau_ratio:.3g}): its "
-            f"excitation J_EE has Perron root {rho:.3g}, and interneurons "
-            f"this slow hold a gain below about {1 + 1 / tau_ratio:.3g} "
-            "(one E and one I unit)")
+        return (f"W is stable (margin {margin:.2g}) but W_eff is not: the "
+                f"circuit's error moves the rightmost eigenvalue to "
+                f"{1 + a_eff:.4g} (W's: {1 - margin:.4g}), so the circuit is "
+                "unstable however fast its interneurons; a closer fit (more "
+                "interneurons) is needed")
+    limit = 1 + 1 / tau_ratio
+    rho = (float(np.max(np.abs(np.linalg.eigvals(circuit.J_EE))))
+           if circuit.n_excitatory <= DENSE_MAX_UNITS else None)
+    head = (f"W and W_eff are stable but the circuit is stable only up to "
+            f"tau_I/tau_E = {max_ratio:.3g} (default {tau_ratio:.3g})")
+    if rho is not None and rho > limit:
+        return (f"{head}: its excitation J_EE has Perron root {rho:.3g}, more "
+                f"than interneurons this slow hold (a gain below about "
+                f"{limit:.3g} for one E and one I unit)")
+    return (f"{head}: its interneurons are too slow for the loops of "
+            "excitation and inhibition they close")
 
 
 def random_drive(n, seed=0):

@@ -339,11 +339,11 @@ def excitation_line(metrics):
     autapses W lacks: 0
     J_EE weight where W <= 0: 0.0 %
     """
-    if "cancelling_share" not in metrics:
+    if metrics.get("cancelling_share") is None:
         return ("excitation: not audited here (no autapse count or "
                 "cancelling share recorded)")
     where = ("only where W > 0" if metrics.get("ee_support") == "positive"
-             else "anywhere, cancelled by inhibition where W <= 0")
+             else "anywhere")
     return (f"excitation: J_EE {where} (ee_support "
             f"{metrics.get('ee_support', 'any')}); autapses W lacks: "
             f"{metrics.get('autapses', 0)}; J_EE weight where W <= 0: "

@@ -479,9 +479,12 @@ def _assemble_tiled(config, out, progress):
     from .kernels import dense_bytes, full_grid
     from .limits import check_fits
 
+    # ee_support is accepted and recorded as "any": the kernel assembler
+    # has no support rule yet (tiled.json says so, and so does the summary)
     refuse_inapplicable(config, ("output", "kernel", "grid", "expand", "key",
-                                 "ei_ratio", "untuned_share", "alpha", "lam",
-                                 "tol", "seed", "force"), "a kernel (--kernel)")
+                                 "ei_ratio", "untuned_share", "alpha",
+                                 "ee_support", "lam", "tol", "seed", "force"),
+                        "a kernel (--kernel)")
     ratio = EIRatio.parse(config.ei_ratio)
     kind = CIRCUIT if config.expand else TILED
     inputs = _inputs(config.kernel)

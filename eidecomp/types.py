@@ -429,13 +429,14 @@ class AssemblyReport:
         Positive entries of W that J_EE leaves out, of all positive
         entries, and the largest of them (in W's units): what the l1 weight
         alpha cost.
-    ee_support : str
+    ee_support : str or None
         Where J_EE was allowed weight (``params.EE_SUPPORTS``).
-    autapses : int
+    autapses : int or None
         Self-connections in J_EE where W's diagonal is not positive.
-    cancelling_share : float
+    cancelling_share : float or None
         Share of J_EE's total weight on entries where W_ij <= 0: excitation
-        that inhibition must cancel (0 under ee_support "positive").
+        that inhibition must cancel (0 under ee_support "positive"). None
+        (with the two above): not audited.
     comparison : str
         Which construction reproduces W best at no more J_EE density than
         this circuit, and what the split adds (the first line of the
@@ -453,9 +454,9 @@ class AssemblyReport:
     restarted: int = 0
     floored: int = 0
     dropped: tuple = (0, 0, 0.0)
-    ee_support: str = "any"
-    autapses: int = 0
-    cancelling_share: float = 0.0
+    ee_support: str | None = None
+    autapses: int | None = None
+    cancelling_share: float | None = None
     comparison: str = ""
 
     def as_dict(self):

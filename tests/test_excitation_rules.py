@@ -207,8 +207,7 @@ def test_the_stability_line_names_a_misfit_scipy():
     W = np.array([[0.9]])
     s = stability_summary(c, W, tau_ratio=0.5)
     assert scipy.linalg.eigvals(c.effective_weights()).real.max() > 1
-    assert s["why"].startswith("W is stable (margin 0.1) but the circuit is "
-                               "stable at no tau_I/tau_E")
+    assert s["why"].startswith("W is stable (margin 0.1) but W_eff is not")
     assert instability_line(-0.1, -0.5, 2.0, 0.5, c) is None  # stable there
 
 

@@ -139,7 +139,7 @@ def kkt_residual(M, A, B):
     return max(out)
 
 
-def plain_factorisation(M, k, seed=0):
+def plain_factorisation(M, k, seed=0, max_iter=None):
     """(A, B, converged, KKT residual) of M >= 0 ~ A B with k components:
     scikit-learn's NMF, solver "cd", init "nndsvda" (a seeded random start
     where NNDSVD is undefined), tol NMF_TOL, at most NMF_MAX_ITER sweeps.
@@ -155,17 +155,23 @@ def plain_factorisation(M, k, seed=0):
     if k == 0 or not M.any():
         A, B = np.zeros((M.shape[0], k)), np.zeros((k, M.shape[1]))
         return A, B, True, 0.0
-    def fit(init):
+    def fit_plain(init):
         model = NMF(n_components=k, solver="cd", init=init, tol=NMF_TOL,
-                    max_iter=NMF_MAX_ITER, random_state=seed)
-        with warnings.catch_warnings(), np.errstate(divide="raise", invalid="raise"):
+                    max_iter=NMF_MAX_ITER if max_iter is None else max_iter,
+                    random_state=seed)
+        with warnings.catch_warnings():
             warnings.simplefilter("ignore", SkConvergence)
             return model.fit_transform(M), model
+
+    def fit(init):
+        with np.errstate(divide="raise", invalid="raise"):
+            return fit_plain(init)
 
     try:
         A, model = fit("nndsvda")
     except FloatingPointError:  # NNDSVD divides by a zero norm when M has
-        A, model = fit("random")  # fewer nonzero singular values than k
+        with np.errstate(divide="ignore", invalid="ignore"):  # fewer nonzero
+            A, model = fit_plain("random")            # singular values than k
     B = model.components_
     kkt = kkt_residual(M, A, B)
     return A, B, kkt <= NMF_KKT_TOL, kkt
@@ -177,14 +183,15 @@ def nmf_scored(n):
 
 
 def baselines(W, n_i, *, circuit_error=None, circuit_density=None, seed=0,
-              plain=None):
+              plain=None, max_iter=None):
     """Score the four reference constructions on W ((d) only up to
     :data:`NMF_MAX_UNITS` units).
 
     Returns a tuple of BaselineResult; with ``circuit_error`` and
     ``circuit_density``, two more rows score (b) and (d) at the circuit's
     error and density. ``plain``: (d)'s factorisation when the caller has
-    it (:func:`plain_factorisation` of max(-W, 0) with ``n_i``).
+    it (:func:`plain_factorisation` of max(-W, 0) with ``n_i``);
+    ``max_iter``: (d)'s sweeps (default NMF_MAX_ITER).
     """
     exact, dens = _exact_rows(W, circuit_error)
     if exact["global"][0] > 1e-9:
@@ -202,7 +209,8 @@ def baselines(W, n_i, *, circuit_error=None, circuit_density=None, seed=0,
     if not nmf_scored(max(W.shape)):
         return tuple(out)
     Jp = np.maximum(W, 0)
-    A, B, converged, kkt = (plain_factorisation(np.maximum(-W, 0), n_i, seed)
+    A, B, converged, kkt = (plain_factorisation(np.maximum(-W, 0), n_i, seed,
+                                                max_iter)
                             if plain is None else plain)
     out.append(BaselineResult("nmf", f"nonnegative factorisation "
                               f"(scikit-learn NMF), {n_i} interneurons, no "

@@ -105,7 +105,6 @@ def greedy_start(M, k, l1, floor):
 
 SWAP_PIECES = 3      # rank-one pieces of the unexplained part tried per round
 SWAP_CANDIDATES = 4  # interneurons, cheapest to lose first, tried per piece
-SWAP_SWEEPS = 50     # HALS sweeps that settle a trial
 SWAP_GAIN = 1e-6     # a trial is kept when it lowers the objective by this
                      # share of it
 

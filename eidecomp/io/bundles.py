@@ -738,7 +738,7 @@ def tiled_doc(tiled, dec, *, source, expanded_bytes):
                         "ee_density": float(np.count_nonzero(tiled.J_EE)
                                             / tiled.J_EE.size),
                         "share_rule": f"per site: {mu} untuned, {mt} tuned",
-                        "converged": True},
+                        "converged": True, "ee_support": "any"},
             "baselines": [], "interneurons": [],
             "decomposition": {"lam": dec.lam, "rank": dec.rank,
                               "converged": dec.converged, "n_iter": dec.n_iter},
