@@ -634,6 +634,10 @@ def comparison_line(err, dens, baselines):
                 f"circuit {at}: relative error {theirs.relative_error:.3g} "
                 f"against {ours.relative_error:.3g}{caveat}; the "
                 "low-rank/sparse split does not pay here")
+    if ours.relative_error <= theirs.relative_error:
+        return (f"this circuit reproduces W best {at}: relative error "
+                f"{ours.relative_error:.3g} against {theirs.relative_error:.3g}"
+                f" for the closest baseline, {theirs.name}{caveat}")
     return (f"no scored baseline reproduces W better than this circuit by "
             f"more than {LOSS_MARGIN:g} {at} (closest: {theirs.name}, "
             f"relative error {theirs.relative_error:.3g} against "
