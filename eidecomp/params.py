@@ -31,6 +31,7 @@ __all__ = [
     "EE_SUPPORTS",
     "DEFAULT_EE_SUPPORT",
     "active_text",
+    "silent_pool",
     "excitation_line",
     "labels_caveat",
     "GAP_TOL",
@@ -351,6 +352,13 @@ def excitation_line(metrics):
 
 
 
+def silent_pool(pool):
+    """Whether an interneuron of circuit.json's interneurons list is silent
+    (no input or no target): the count circuit.json's metrics and the
+    headlines read."""
+    return pool.get("n_inputs") == 0 or pool.get("n_targets") == 0
+
+
 def active_text(meta, kind):
     """A headline count of interneurons of ``kind`` ("untuned", "tuned")
     from circuit.json: 'n', or 'k active of n' when some are silent (no
@@ -362,8 +370,7 @@ def active_text(meta, kind):
     """
     n = meta.get("counts", {}).get(kind, 0)
     silent = sum(1 for p in meta.get("interneurons", ())
-                 if p.get("kind") == kind
-                 and (p.get("n_inputs") == 0 or p.get("n_targets") == 0))
+                 if p.get("kind") == kind and silent_pool(p))
     return f"{n - silent} active of {n}" if silent else f"{n}"
 
 

@@ -27,6 +27,7 @@ __all__ = [
     "PathPoint",
     "Population",
     "SplitVerdict",
+    "active_interneurons",
 ]
 
 
@@ -466,6 +467,18 @@ class AssemblyReport:
         out["notes"] = list(self.notes)
         out["dropped"] = list(self.dropped)
         return out
+
+
+def active_interneurons(J_EI, J_IE):
+    """Which interneurons are active: at least one target (a nonzero column
+    of J_EI) and at least one input (a nonzero row of J_IE). The one rule
+    for silent interneurons, after the connection floor
+    (params.CONNECTION_RTOL) has zeroed what carries nothing.
+
+    >>> active_interneurons(np.array([[1.0, 0.0]]), np.array([[1.0], [2.0]]))
+    array([ True, False])
+    """
+    return np.asarray(J_EI).any(axis=0) & np.asarray(J_IE).any(axis=1)
 
 
 @dataclass(frozen=True)

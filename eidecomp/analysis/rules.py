@@ -29,6 +29,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..params import DEFAULT_PERIOD
+from ..types import active_interneurons
 from .circular import circular_difference
 
 __all__ = ["CLASSES", "DETERMINED", "NOT_DETERMINED", "NO_DECAY", "NO_FIT",
@@ -235,20 +236,20 @@ CLASSES = ("E->E", "E->I_untuned", "I_untuned->E", "E->I_tuned",
            "I_tuned->E", "W positive", "W negative")
 
 
-def active_interneurons(circuit):
-    """(untuned, tuned) boolean masks of the interneurons with at least one
-    input and one target: a silent interneuron is no connection of either
-    class and counts in no probability or profile."""
-    active = circuit.J_EI.any(axis=0) & circuit.J_IE.any(axis=1)
+def active_by_kind(circuit):
+    """(untuned, tuned) boolean masks of the active interneurons
+    (types.active_interneurons): a silent interneuron is no connection of
+    either class and counts in no probability or profile."""
+    active = active_interneurons(circuit.J_EI, circuit.J_IE)
     return active[:circuit.n_untuned], active[circuit.n_untuned:]
 
 
 def connection_classes(circuit, W):
     """{class: (J[post, pre], post kind, pre kind)}: the circuit's five
-    blocks (active interneurons only, :func:`active_interneurons`) and the
+    blocks (active interneurons only, :func:`active_by_kind`) and the
     positive and negative sides of the original W."""
     W = np.asarray(W, dtype=float)
-    u, t = active_interneurons(circuit)
+    u, t = active_by_kind(circuit)
     return {"E->E": (circuit.J_EE, "E", "E"),
             "E->I_untuned": (circuit.J_UE[u], "U", "E"),
             "I_untuned->E": (circuit.J_EU[:, u], "E", "U"),
@@ -269,7 +270,7 @@ def circuit_rules(circuit, W, *, features=None, positions=None, period=DEFAULT_P
     from .tuning import pool_features
 
     f_i, p_i = pool_features(circuit, features, positions, period)
-    u, t = active_interneurons(circuit)
+    u, t = active_by_kind(circuit)
     if f_i is not None:
         f_i = np.concatenate([f_i[:circuit.n_untuned][u],
                               f_i[circuit.n_untuned:][t]])

@@ -9,6 +9,7 @@ scale), and changes them in place.
 import numpy as np
 
 from ..params import CONNECTION_RTOL
+from ..types import active_interneurons
 
 __all__ = ["apply_floor", "greedy_start", "inactive", "restart", "swap_search"]
 
@@ -37,8 +38,9 @@ def apply_floor(J_EE, A, B, floor=CONNECTION_RTOL):
 
 
 def inactive(A, B):
-    """Indices of the interneurons with no input or no target."""
-    return np.flatnonzero(~A.any(axis=0) | ~B.any(axis=1))
+    """Indices of the interneurons with no input or no target
+    (types.active_interneurons)."""
+    return np.flatnonzero(~active_interneurons(A, B))
 
 
 def _rank_one(R, l1, col):

@@ -44,7 +44,7 @@ import numpy as np
 
 from .._version import __version__
 from ..errors import InputError
-from ..params import DEFAULT_PERIOD
+from ..params import DEFAULT_PERIOD, silent_pool
 from ..types import (
     BLOCK_NAMES,
     EXCITATORY,
@@ -693,8 +693,7 @@ def circuit_doc(circuit, *, source, decomposition, stability, pools,
     report = circuit.report
     metrics = {k: v for k, v in report.as_dict().items()
                if k not in ("history", "baselines")}
-    metrics["silent_interneurons"] = sum(
-        1 for p in pools if p["n_inputs"] == 0 or p["n_targets"] == 0)
+    metrics["silent_interneurons"] = sum(1 for p in pools if silent_pool(p))
     params = {k: json_number(v) if isinstance(v, float) else v
               for k, v in circuit.params.items()}
     return {"input": source,
