@@ -26,6 +26,7 @@ from .params import (
     TOL,
     active_text,
     excitation_line,
+    guard_line,
     labels_caveat,
     resolve_tol,
 )
@@ -228,6 +229,11 @@ def _get_parser():
                        help="where J_EE may carry weight: 'positive' (default:"
                        " only where W > 0, no autapse where W has none) or "
                        "'any' (unconstrained; inhibition may cancel it)")
+        p.add_argument("--no-stability-guard", action="store_true",
+                       help="keep the closest fit even when W is stable and "
+                       "the circuit is not at the default time constants "
+                       "(default: refit it stable and report the error "
+                       "this costs)")
         p.add_argument("--units", metavar="CSV",
                        help="unit table: a 'feature' column in degrees, "
                        "optional id, x, y; one row per unit of W (default: "
@@ -480,6 +486,8 @@ def _circuit_table(result):
                      + ("beyond 100" if ratio is None else f"{ratio:.3g}"))
     if st.get("why"):
         lines.append(f"stability: {st['why']}")
+    if guard_line(met):
+        lines.append(guard_line(met))
     lines.append(excitation_line(met))
     if met.get("restarted"):
         lines.append(f"interneurons started again after losing their inputs "
@@ -524,7 +532,8 @@ def _assemble(args):
     config = AssembleConfig(
         input=args.matrix, output=args.output, ei_ratio=args.ei_ratio,
         untuned_share=args.untuned_share, alpha=args.alpha,
-        ee_support=args.ee_support, units=args.units,
+        ee_support=args.ee_support,
+        no_stability_guard=args.no_stability_guard, units=args.units,
         period=args.period, position_unit=args.position_unit,
         magnification=args.magnification, report=args.report,
         kernel=getattr(args, "kernel", None), grid=getattr(args, "grid", None),

@@ -33,6 +33,7 @@ __all__ = [
     "active_text",
     "silent_pool",
     "excitation_line",
+    "guard_line",
     "labels_caveat",
     "GAP_TOL",
     "MAX_ITER",
@@ -47,6 +48,7 @@ __all__ = [
     "TOL",
     "RANK_RTOL",
     "REPORTED_RANK_RTOL",
+    "STABILITY_MARGIN",
     "SUPPORT_RTOL",
     "FIT_RULES",
     "EIRatio",
@@ -351,6 +353,35 @@ def excitation_line(metrics):
             f"{100 * metrics['cancelling_share']:.1f} %")
 
 
+def guard_line(metrics):
+    """One line on the stability guard from a circuit's metrics
+    (circuit.json, or AssemblyReport.as_dict()), for the command's summary
+    and the report; '' when it did not change the circuit.
+
+    >>> line = guard_line({"guard": {"error_before": 0.118, "error_after": 0.18,
+    ...     "abscissa_before": 0.17, "abscissa_after": -1e-05, "stable": True,
+    ...     "evaluations": 330}})
+    >>> line[:60]
+    'stability guard: relative error 0.118 -> 0.18 to make the ci'
+    >>> line[60:]
+    'rcuit stable at tau_I/tau_E 0.5 (rightmost eigenvalue 0.17 -> -1e-05 per ms)'
+
+    """
+    g = metrics.get("guard")
+    if not g:
+        return ""
+    ratio = f"{TAU_I_MS / TAU_E_MS:.3g}"
+    if not g.get("stable"):
+        return (f"stability guard: could not make the circuit stable at "
+                f"tau_I/tau_E {ratio} (rightmost eigenvalue "
+                f"{g['abscissa_before']:.3g} -> {g['abscissa_after']:.3g} per "
+                f"ms; relative error {g['error_before']:.3g} -> "
+                f"{g['error_after']:.3g})")
+    return (f"stability guard: relative error {g['error_before']:.3g} -> "
+            f"{g['error_after']:.3g} to make the circuit stable at "
+            f"tau_I/tau_E {ratio} (rightmost eigenvalue "
+            f"{g['abscissa_before']:.3g} -> {g['abscissa_after']:.3g} per ms)")
+
 
 def silent_pool(pool):
     """Whether an interneuron of circuit.json's interneurons list is silent
@@ -391,6 +422,12 @@ TAU_E_MS = 10.0
 TAU_I_MS = 5.0
 """Time constant of the interneurons, ms: faster than E cells (common
 practice)."""
+
+STABILITY_MARGIN = 0.01
+"""The stability guard (docs/assembly.md, "Stability guard") keeps the
+circuit's rightmost eigenvalue at least half of W's own margin left of 0,
+and never more than this many 1 / tau_E (our choice: the error the guard
+costs grows with the margin it keeps)."""
 
 DEFAULT_PERIOD = 180.0
 """Period of the units' features, degrees: orientation (360 for direction)."""

@@ -354,6 +354,7 @@ class AssembleConfig(MatrixOptions):
     untuned_share: str = "auto"
     alpha: float | None = None
     ee_support: str = DEFAULT_EE_SUPPORT
+    no_stability_guard: bool = False
     units: str | None = None
     period: float = DEFAULT_PERIOD
     position_unit: str = "um"
@@ -435,6 +436,7 @@ def _assemble_dense(config, out, progress, stage_progress, extra_files):
         dec = _with_suggestion(W, dec, config, stage_progress, points=path)
     circuit = assemble(dec, ei_ratio=ratio, untuned_share=config.untuned_share,
                        alpha=config.alpha, ee_support=config.ee_support,
+                       stability_guard=not config.no_stability_guard,
                        seed=config.seed,
                        progress=stage_progress)
     tell = announcer(stage_progress)

@@ -400,6 +400,21 @@ class BaselineResult:
 
 
 @dataclass(frozen=True)
+class GuardResult:
+    """What the stability guard did (docs/assembly.md, "Stability guard"):
+    the relative error and the circuit's spectral abscissa (per ms, at the
+    default time constants) before and after, whether it ended stable, and
+    its objective evaluations."""
+
+    error_before: float
+    error_after: float
+    abscissa_before: float
+    abscissa_after: float
+    stable: bool
+    evaluations: int
+
+
+@dataclass(frozen=True)
 class AssemblyReport:
     """What an assembly achieved and what it gave up.
 
@@ -442,6 +457,10 @@ class AssemblyReport:
         Which construction reproduces W best at no more J_EE density than
         this circuit, and what the split adds (the first line of the
         command's summary and of the report); empty without baselines.
+    guard : GuardResult or None
+        What the stability guard changed; None when it did not run (W not
+        stable, the circuit already stable, the guard switched off or the
+        circuit too large for it).
     """
 
     relative_error: float
@@ -459,6 +478,7 @@ class AssemblyReport:
     autapses: int | None = None
     cancelling_share: float | None = None
     comparison: str = ""
+    guard: GuardResult | None = None
 
     def as_dict(self):
         out = {k: getattr(self, k) for k in self.__dataclass_fields__}
@@ -466,6 +486,7 @@ class AssemblyReport:
         out["history"] = list(self.history)
         out["notes"] = list(self.notes)
         out["dropped"] = list(self.dropped)
+        out["guard"] = None if self.guard is None else self.guard.__dict__.copy()
         return out
 
 

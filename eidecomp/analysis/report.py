@@ -24,6 +24,7 @@ from ..params import (
     PATH_GAP_TOL,
     active_text,
     excitation_line,
+    guard_line,
     labels_caveat,
 )
 from ..progress import announcer
@@ -352,6 +353,7 @@ def _sections(meta, rules, med, have_units):
         f"{labels_caveat(meta, ' (', ')')}; refinement converged: "
         f"{'yes' if met.get('converged') else 'NO'}.</p>",
         f"<p>{html.escape(excitation_line(met))}.</p>",
+        (f"<p>{html.escape(guard_line(met))}.</p>" if guard_line(met) else ""),
         _table(["construction", "interneurons", "relative error",
                 "J_EE density"], assembly),
         _notes_list(met.get("notes", ())),

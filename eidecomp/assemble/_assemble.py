@@ -23,7 +23,11 @@
    started again on the largest nonnegative rank-one piece of the
    inhibition still unexplained, and steps 4-6 repeat (at most
    RESTART_ROUNDS times); when nothing worth an interneuron is left, the
-   report says how many W supports.
+   report says how many W supports;
+7. the stability guard (_stability.py): when W is stable and the circuit
+   is not at the default time constants, all blocks are refitted under a
+   penalty on the circuit's rightmost eigenvalues until it is, and the
+   report states the error this cost.
 """
 
 import numpy as np
@@ -67,6 +71,7 @@ from ._split_hals import (
     sweep_split,
     tuned_parts,
 )
+from ._stability import guarded
 from ._support import (
     apply_floor,
     greedy_start,
@@ -667,9 +672,9 @@ def _against_nmf(base, err, dens):
 
 
 def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto",
-             alpha=None, ee_support=DEFAULT_EE_SUPPORT, max_iter=500, tol=1e-6,
-             seed=0, baselines=True, decompose_kwargs=None, progress=None,
-             max_bytes=None):
+             alpha=None, ee_support=DEFAULT_EE_SUPPORT, stability_guard=True,
+             max_iter=500, tol=1e-6, seed=0, baselines=True,
+             decompose_kwargs=None, progress=None, max_bytes=None):
     """Assemble a Dale's-law circuit that reproduces W as closely as it can.
 
     Parameters
@@ -694,6 +699,13 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto",
         inhibition must cancel and no autapse where W has none; "any", the
         unconstrained construction. The report states the autapses and the
         share of J_EE's weight where W <= 0 either way.
+    stability_guard : bool
+        When W's linear rate dynamics are stable and the refined circuit's
+        are not at the default time constants (params.TAU_E_MS,
+        TAU_I_MS), refit under a stability penalty until they are, and
+        report the error this cost (docs/assembly.md, "Stability guard";
+        up to GUARD_MAX_UNITS units in all). False keeps the closest fit
+        whatever its stability.
     max_iter : int
         Sweeps of the joint refinement (and of each debiasing pass).
     tol : float
@@ -783,10 +795,8 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto",
                      advice="raise max_iter")
     R = _residual(W, J_EE, A, B, n_u)
     err = float(np.linalg.norm(R) / max(np.linalg.norm(W), 1e-300))
-    diagonal = _diagonal_note(W, R, dec.observed, zero)
     del R
     dens = float(np.count_nonzero(J_EE) / J_EE.size)
-    audit = excitation_audit(W, J_EE, zero)
     base, base_notes = (), ()
     if baselines:
         tell("baselines")
@@ -794,6 +804,22 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto",
             W, n_i, J_EE, A, B, n_u, err, dens, seed,
             (alpha / unit, _allowed(W, dec.observed, ee_support, zero), max_iter,
              tol))
+    comparison = comparison_line(err, dens, base) if baselines else ""
+    guard = None
+    if stability_guard and not no_inhibition:
+        J_EE, A, B, guard = guarded(W, J_EE, A, B, mask_a, mask_b, unit=unit,
+                                    tell=tell)
+    if guard is not None:
+        err = guard.error_after
+        dens = float(np.count_nonzero(J_EE) / J_EE.size)
+        if comparison:
+            comparison += (f"; compared before the stability guard, which "
+                           f"then raised this circuit's error to {err:.3g} "
+                           "(the baselines are not held to stability)")
+    R = _residual(W, J_EE, A, B, n_u)
+    diagonal = _diagonal_note(W, R, dec.observed, zero)
+    del R
+    audit = excitation_audit(W, J_EE, zero)
     report = AssemblyReport(relative_error=err, ee_density=dens,
                             share_rule=rule, baselines=base, n_iter=n_iter,
                             converged=converged, history=tuple(history),
@@ -805,10 +831,10 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto",
                             dropped=_dropped(W, J_EE, unit),
                             ee_support=ee_support,
                             autapses=audit[0], cancelling_share=audit[1],
-                            comparison=(comparison_line(err, dens, base)
-                                        if baselines else ""))
+                            comparison=comparison, guard=guard)
     params = {"ei_ratio": ratio.text, "untuned_share": untuned_share,
-              "alpha": alpha, "ee_support": ee_support, "max_iter": max_iter,
+              "alpha": alpha, "ee_support": ee_support,
+              "stability_guard": bool(stability_guard), "max_iter": max_iter,
               "tol": tol, "seed": seed,
               "n_inhibitory": n_i, "lam": dec.lam, "rank": dec.rank,
               "decomposition_converged": dec.converged}

@@ -1,0 +1,179 @@
+"""The stability guard: a stable W gives a circuit stable at the default
+time constants (docs/assembly.md, "Stability guard"; a rule of this
+project).
+
+The refinement fits W_eff = J_EE - J_EI J_IE to W and knows nothing of
+time. Where W sits close to the edge of stability (partial correlations of
+photograph patches: the rightmost eigenvalue of W at 0.9998), the fit's
+error moves the rightmost eigenvalue of W_eff past 1, and the inflated
+excitation that inhibition balances (J_EE's Perron root near 5) makes the
+loops through slow interneurons grow. The guard then solves
+
+    min  0.5 ||W - J_EE + J_EI J_IE||_F^2 / ||W||_F^2
+         + mu / 2 sum_k max(Re lambda_k + m, 0)^2,     all blocks >= 0,
+
+over the same supports (J_EE where it is nonzero, the tuned pools as
+fitted), where lambda_k are the eigenvalues of the circuit's Jacobian
+T^-1 (-I + W_full) at tau_E = params.TAU_E_MS and tau_I = params.TAU_I_MS,
+and m is the margin it must keep (half of W's own, at most
+STABILITY_MARGIN / tau_E). It starts from the refined circuit and raises mu
+through GUARD_PENALTIES until the rightmost eigenvalue is left of 0, with
+scipy's L-BFGS-B; the gradient of Re lambda_k is the first-order
+perturbation formula Re(u_k^H T^-1 dW_full v_k) / (u_k^H v_k), with u_k and
+v_k the left and right eigenvectors (Wilkinson 1965, The Algebraic
+Eigenvalue Problem, ch. 2; from memory). The guard trades error for
+stability, and the report states both before and after.
+
+Every evaluation solves a dense eigenproblem with left and right vectors,
+so the guard runs up to GUARD_MAX_UNITS units (E and I); above, the report
+says it did not run and why the circuit is unstable.
+"""
+
+import numpy as np
+from scipy import linalg
+from scipy.optimize import minimize
+
+from ..params import STABILITY_MARGIN, TAU_E_MS, TAU_I_MS
+from ..types import GuardResult
+from ._support import apply_floor
+
+GUARD_MAX_UNITS = 400
+"""Largest circuit (E units and interneurons) the guard runs on: each
+evaluation is a dense eigenproblem with both eigenvector sets (about 40 ms
+at 175 units, 0.2 s at 400, on one core)."""
+
+GUARD_PENALTIES = (1e2, 1e4, 1e6)
+"""The penalty weights mu, tried in turn until the circuit is stable."""
+
+GUARD_MAX_ITER = 2000
+"""L-BFGS-B iterations at each penalty weight."""
+
+
+def _taus(n, n_i, tau_e, tau_i):
+    return np.r_[np.full(n, float(tau_e)), np.full(n_i, float(tau_i))]
+
+
+def full_signed(J_EE, A, B, unit=1.0):
+    """The circuit's signed matrix W_full[post, pre] in W's units, from the
+    blocks in units of max|W| (J_EE times ``unit``, A and B times its
+    square root, as the assembler scales them back)."""
+    n, n_i = A.shape
+    root = np.sqrt(unit)
+    M = np.zeros((n + n_i, n + n_i))
+    M[:n, :n] = J_EE * unit
+    M[:n, n:] = -A * root
+    M[n:, :n] = B * root
+    return M
+
+
+def abscissa(J_EE, A, B, unit=1.0, tau_e=TAU_E_MS, tau_i=TAU_I_MS):
+    """The rightmost real part of the eigenvalues of T^-1 (-I + W_full),
+    per ms (dense).
+
+    >>> abscissa(np.zeros((1, 1)), np.ones((1, 1)), np.ones((1, 1)),
+    ...          tau_e=1.0, tau_i=1.0)
+    -1.0
+    """
+    M = full_signed(J_EE, A, B, unit)
+    tau = _taus(*A.shape, tau_e, tau_i)
+    J = (M - np.eye(M.shape[0])) / tau[:, None]
+    return float(np.linalg.eigvals(J).real.max())
+
+
+def penalty_gradient(M, tau, margin):
+    """(penalty, gradient, abscissa) of 0.5 sum_k max(Re lambda_k + margin,
+    0)^2 over the eigenvalues of T^-1 (-I + M), the gradient taken with
+    respect to M by first-order perturbation (module docstring)."""
+    J = (M - np.eye(M.shape[0])) / tau[:, None]
+    lam, left, right = linalg.eig(J, left=True, right=True)
+    excess = lam.real + margin
+    G = np.zeros_like(M)
+    for k in np.flatnonzero(excess > 0):
+        u, v = left[:, k], right[:, k]
+        G += excess[k] * np.real(np.outer(np.conj(u) / tau, v)
+                                 / (np.conj(u) @ v))
+    hit = np.maximum(excess, 0.0)
+    return 0.5 * float(hit @ hit), G, float(lam.real.max())
+
+
+def guard(W, J_EE, A, B, mask_a, mask_b, *, unit, margin,
+          tau_e=TAU_E_MS, tau_i=TAU_I_MS):
+    """Run the guard on the refined blocks (units of max|W|; W likewise),
+    J_EE kept on its support and A, B on ``mask_a``, ``mask_b``. Returns
+    new (J_EE, A, B) and a :class:`GuardResult`; the inputs are not
+    changed."""
+    n, n_i = A.shape
+    tau = _taus(n, n_i, tau_e, tau_i)
+    root = np.sqrt(unit)
+    where = (np.flatnonzero(J_EE > 0), np.flatnonzero(mask_a),
+             np.flatnonzero(mask_b))
+    sizes = np.cumsum([w.size for w in where])
+    norm = max(float(np.vdot(W, W)), 1e-300)
+
+    def blocks(x):
+        out = (np.zeros((n, n)), np.zeros((n, n_i)), np.zeros((n_i, n)))
+        for block, w, lo, hi in zip(out, where, (0, *sizes[:2]), sizes, strict=True):
+            block.flat[w] = x[lo:hi]
+        return out
+
+    count = [0]
+
+    def value_and_gradient(x, mu):
+        count[0] += 1
+        E, Af, Bf = blocks(x)
+        R = W - E + Af @ Bf
+        p, G, _ = penalty_gradient(full_signed(E, Af, Bf, unit), tau, margin)
+        gE = -R / norm + mu * unit * G[:n, :n]
+        gA = R @ Bf.T / norm - mu * root * G[:n, n:]
+        gB = Af.T @ R / norm + mu * root * G[n:, :n]
+        grad = np.concatenate([g.flat[w] for g, w
+                               in zip((gE, gA, gB), where, strict=True)])
+        return 0.5 * float(np.vdot(R, R)) / norm + mu * p, grad
+
+    x = np.concatenate([blk.flat[w] for blk, w
+                        in zip((J_EE, A, B), where, strict=True)])
+    before = abscissa(J_EE, A, B, unit, tau_e, tau_i)
+    for mu in GUARD_PENALTIES:
+        x = minimize(value_and_gradient, x, args=(mu,), jac=True,
+                     method="L-BFGS-B", bounds=[(0.0, None)] * x.size,
+                     options={"maxiter": GUARD_MAX_ITER, "ftol": 1e-12}).x
+        E, Af, Bf = blocks(x)
+        apply_floor(E, Af, Bf)          # as the refinement ends
+        after = abscissa(E, Af, Bf, unit, tau_e, tau_i)
+        if after < 0:
+            break
+    nw = np.sqrt(norm)
+    result = GuardResult(
+        error_before=float(np.linalg.norm(W - J_EE + A @ B) / nw),
+        error_after=float(np.linalg.norm(W - E + Af @ Bf) / nw),
+        abscissa_before=before, abscissa_after=after, stable=after < 0,
+        evaluations=count[0])
+    return E, Af, Bf, result
+
+
+def guard_margin(tau_e=TAU_E_MS):
+    """The margin m (per ms) the guard's penalty keeps: STABILITY_MARGIN /
+    tau_E, so that the soft penalty leaves the rightmost eigenvalue left of
+    0.
+
+    >>> guard_margin(tau_e=10.0)
+    0.001
+    """
+    return STABILITY_MARGIN / tau_e
+
+
+def guarded(W, J_EE, A, B, mask_a, mask_b, *, unit, tell=None):
+    """The guard where it applies: W (units of max|W|, times ``unit`` in
+    its own) stable, the refined circuit not stable at the default time
+    constants, and at most GUARD_MAX_UNITS units in all. Returns (J_EE, A,
+    B, GuardResult or None), the blocks unchanged with None."""
+    n, n_i = A.shape
+    if n + n_i > GUARD_MAX_UNITS or not B.any():
+        return J_EE, A, B, None
+    w_abscissa = unit * float(np.linalg.eigvals(W).real.max()) - 1.0
+    if not w_abscissa < 0 or abscissa(J_EE, A, B, unit) < 0:
+        return J_EE, A, B, None
+    if tell is not None:
+        tell("stability guard")
+    return guard(W, J_EE, A, B, mask_a, mask_b, unit=unit,
+                 margin=guard_margin())

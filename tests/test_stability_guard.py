@@ -1,0 +1,116 @@
+"""The stability guard (docs/assembly.md, "Stability guard"; issue 27), each
+check against a reference outside the project:
+
+* scipy.linalg.eigvals: the eigenvalues of the circuit's Jacobian
+  T^-1 (-I + W_full) at the default time constants, computed here, decide
+  stability; W's own, the same way;
+* finite differences of scipy.linalg.eigvals: the guard's gradient of the
+  rightmost eigenvalues is the first-order perturbation formula (Wilkinson
+  1965, The Algebraic Eigenvalue Problem, ch. 2; from memory);
+* scikit-learn's sample photographs (shipped with scikit-learn, through
+  eidecomp.datasets.patch_partial_correlations): partial correlations of
+  6x6 and 8x8 patches are stable W (rightmost eigenvalue 0.9992 and
+  0.9996) whose closest circuit is not stable.
+"""
+
+import warnings
+from importlib import import_module
+
+import numpy as np
+import pytest
+import scipy.linalg
+
+from eidecomp import assemble
+from eidecomp.datasets import make_planted_circuit, patch_partial_correlations
+from eidecomp.params import TAU_E_MS, TAU_I_MS, guard_line
+
+_stab = import_module("eidecomp.assemble._stability")
+
+
+def _jacobian_abscissa(c):
+    """The rightmost real part of T^-1 (-I + W_full) by scipy."""
+    M = c.signed_weights()
+    n = c.n_excitatory
+    tau = np.r_[np.full(n, TAU_E_MS), np.full(c.n_inhibitory, TAU_I_MS)]
+    J = (M - np.eye(M.shape[0])) / tau[:, None]
+    return float(scipy.linalg.eigvals(J).real.max())
+
+
+def _assembled(W, **kw):
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        return assemble(W, ei_ratio="4:1", baselines=False, **kw)
+
+
+@pytest.fixture(scope="module", params=[6, 8])
+def photo(request):
+    W = patch_partial_correlations(request.param)
+    return W, _assembled(W, stability_guard=False), _assembled(W)
+
+
+def test_photograph_matrices_are_stable_and_their_closest_circuit_is_not(photo):
+    W, free, _ = photo
+    assert scipy.linalg.eigvals(W).real.max() < 1.0
+    assert _jacobian_abscissa(free) > 0
+    assert free.report.guard is None
+
+
+def test_the_guard_makes_the_circuit_stable_and_reports_its_cost(photo):
+    W, free, guarded = photo
+    g = guarded.report.guard
+    assert g is not None and g.stable
+    assert _jacobian_abscissa(guarded) < 0
+    assert g.abscissa_after == pytest.approx(_jacobian_abscissa(guarded),
+                                             abs=1e-9)
+    assert g.abscissa_before == pytest.approx(_jacobian_abscissa(free),
+                                              abs=1e-9)
+    err = np.linalg.norm(W - guarded.effective_weights()) / np.linalg.norm(W)
+    assert guarded.report.relative_error == pytest.approx(err, rel=1e-9)
+    assert g.error_after == pytest.approx(err, rel=1e-9)
+    assert g.error_before == pytest.approx(free.report.relative_error,
+                                           rel=1e-9)
+    assert g.error_after >= g.error_before   # stability is paid for
+    assert "stability guard: relative error" in guard_line(
+        guarded.report.as_dict())
+
+
+def test_the_guard_keeps_the_excitation_rules(photo):
+    W, free, guarded = photo
+    assert not guarded.J_EE[W <= 0].any()            # J_EE only where W > 0
+    assert not np.diag(guarded.J_EE).any()           # W's diagonal is 0
+    assert not (guarded.J_EE > 0)[free.J_EE == 0].any()  # no new E -> E
+    assert (guarded.n_untuned, guarded.n_tuned) == (free.n_untuned,
+                                                    free.n_tuned)
+
+
+def test_a_stable_circuit_is_left_alone():
+    W, _, _ = make_planted_circuit(60, n_untuned=2, n_tuned=13, pool=4, seed=3)
+    with_guard, without = _assembled(W), _assembled(W, stability_guard=False)
+    assert with_guard.report.guard is None
+    assert guard_line(with_guard.report.as_dict()) == ""
+    np.testing.assert_array_equal(with_guard.J_EE, without.J_EE)
+    np.testing.assert_array_equal(with_guard.J_EI, without.J_EI)
+
+
+def test_penalty_gradient_matches_finite_differences_of_scipy_eigvals():
+    rng = np.random.default_rng(0)
+    n = 12
+    M = rng.normal(0.0, 0.5, (n, n))
+    tau = np.r_[np.full(8, TAU_E_MS), np.full(4, TAU_I_MS)]
+    margin = 0.5                                     # several terms active
+
+    def penalty(M):
+        lam = scipy.linalg.eigvals((M - np.eye(n)) / tau[:, None])
+        hit = np.maximum(lam.real + margin, 0.0)
+        return 0.5 * float(hit @ hit)
+
+    p, G, top = _stab.penalty_gradient(M, tau, margin)
+    assert p == pytest.approx(penalty(M), rel=1e-10)
+    assert top == pytest.approx(
+        scipy.linalg.eigvals((M - np.eye(n)) / tau[:, None]).real.max())
+    h = 1e-6
+    for i, j in rng.integers(0, n, (10, 2)):
+        E = np.zeros((n, n))
+        E[i, j] = h
+        fd = (penalty(M + E) - penalty(M - E)) / (2 * h)
+        assert G[i, j] == pytest.approx(fd, rel=1e-4, abs=1e-9)
