@@ -12,7 +12,10 @@ patches and Gabor-bank covariances, and planted circuits of other sizes
 and seeds.
 
 Each is assembled in this process at its defaults (``assemble(W,
-ei_ratio="4:1")``: the split, the circuit and the baselines), and
+ei_ratio="4:1")``: the split, the circuit and the baselines, and the
+stability guard where W is stable; a connectome, which already obeys
+Dale's law, becomes the circuit of its own neurons, its inhibitory neurons
+divided to meet 4:1), and
 scikit-learn's NMF (solver "cd", the circuit's interneuron count, tol 1e-4,
 init "nndsvda") is timed on max(-W, 0), the factorisation the assembly
 generalises.
@@ -108,6 +111,7 @@ def _row(label, W, truth):
     from eidecomp.assemble import dale_columns
     from eidecomp.dynamics import circuit_abscissa, spectral_abscissa
     from eidecomp.params import TAU_E_MS, TAU_I_MS
+    from eidecomp.types import active_interneurons
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
@@ -115,7 +119,7 @@ def _row(label, W, truth):
     rep = c.report
     w_stable = spectral_abscissa(W) - 1.0 < 0
     c_stable = circuit_abscissa(c, tau_e=TAU_E_MS, tau_i=TAU_I_MS) < 0
-    silent = int(np.count_nonzero(~c.J_EI.any(axis=0) | ~c.J_IE.any(axis=1)))
+    silent = int(np.count_nonzero(~active_interneurons(c.J_EI, c.J_IE, c.J_II)))
     base = {b.name: b for b in rep.baselines}
     return {"label": label, "n": W.shape[0], "n_i": c.n_inhibitory, "t": t,
             "nmf": _nmf_time(W, c.n_inhibitory), "err": rep.relative_error,

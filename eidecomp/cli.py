@@ -215,9 +215,10 @@ def _get_parser():
         p.add_argument("-o", "--output", required=True, metavar="CIRCUIT",
                        help="bundle folder to write (must not exist, unless "
                        "--force)")
-        p.add_argument("--ei-ratio", default=DEFAULT_EI_RATIO, metavar="E:I",
-                       help="excitatory units per interneuron, e.g. "
-                       f"{DEFAULT_EI_RATIO} (default) or 9:2")
+        p.add_argument("--ei-ratio", metavar="E:I",
+                       help="excitatory units per interneuron, e.g. 9:2 "
+                       f"(default {DEFAULT_EI_RATIO}; for a W that already "
+                       "obeys Dale's law, W's own)")
         p.add_argument("--untuned-share", default="auto", metavar="auto|F",
                        help="fraction of interneurons that are untuned; 'auto' "
                        "(default) takes the rank of the low-rank part")
@@ -229,6 +230,11 @@ def _get_parser():
                        help="where J_EE may carry weight: 'positive' (default:"
                        " only where W > 0, no autapse where W has none) or "
                        "'any' (unconstrained; inhibition may cancel it)")
+        p.add_argument("--no-own-neurons", action="store_true",
+                       help="assemble a W that already obeys Dale's law (every "
+                       "column one sign) like any W: all units excitatory, "
+                       "interneurons added (default: its own inhibitory "
+                       "neurons are the interneurons)")
         p.add_argument("--no-stability-guard", action="store_true",
                        help="keep the closest fit even when W is stable and "
                        "the circuit is not at the default time constants "
@@ -533,7 +539,8 @@ def _assemble(args):
         input=args.matrix, output=args.output, ei_ratio=args.ei_ratio,
         untuned_share=args.untuned_share, alpha=args.alpha,
         ee_support=args.ee_support,
-        no_stability_guard=args.no_stability_guard, units=args.units,
+        no_stability_guard=args.no_stability_guard,
+        no_own_neurons=args.no_own_neurons, units=args.units,
         period=args.period, position_unit=args.position_unit,
         magnification=args.magnification, report=args.report,
         kernel=getattr(args, "kernel", None), grid=getattr(args, "grid", None),

@@ -36,6 +36,7 @@ import numpy as np
 from scipy.integrate import solve_ivp
 
 from .errors import InputError
+from .types import BLOCK_NAMES, II_BLOCK_NAMES
 
 __all__ = ["DENSE_MAX_UNITS", "DIVERGED", "MAX_EVALUATIONS", "METHODS", "MODELS",
            "circuit_abscissa", "compare_with_original", "effective_from_full",
@@ -119,13 +120,18 @@ def _operand(M):
 
 
 def _circuit_blocks(circuit):
-    return _operand(circuit.J_EE), _operand(circuit.J_EI), _operand(circuit.J_IE)
+    blocks = (_operand(circuit.J_EE), _operand(circuit.J_EI),
+              _operand(circuit.J_IE))
+    if circuit.J_II.any():                 # a circuit of W's own neurons
+        blocks += (_operand(circuit.J_II),)
+    return blocks
 
 
 def _operator(blocks, tau_e, tau_i):
     from scipy.sparse.linalg import LinearOperator
 
-    EE, EI, IE = blocks
+    EE, EI, IE = blocks[:3]
+    II = blocks[3] if len(blocks) > 3 else None
     n, m = EE.shape[0], EI.shape[1]
     _taus(1, 1, tau_e, tau_i)  # checks both
 
@@ -134,7 +140,10 @@ def _operator(blocks, tau_e, tau_i):
         ye = EE @ xe - xe
         if m:
             ye = ye - EI @ xi
-        return np.concatenate([ye / tau_e, (IE @ xe - xi) / tau_i])
+        yi = IE @ xe - xi
+        if II is not None:
+            yi = yi - II @ xi
+        return np.concatenate([ye / tau_e, yi / tau_i])
 
     return LinearOperator((n + m, n + m), matvec=apply, matmat=apply, dtype=float)
 
@@ -391,8 +400,9 @@ def simulate(W_full, h, *, n_e=None, tau_e=1.0, tau_i=1.0, t_max=None,
     ----------
     W_full : ndarray (n, n)
         Signed full matrix; for the original network pass W and n_e=None.
-    h : ndarray (n_e,)
-        External drive of the E units (interneurons get none).
+    h : ndarray (n_e,) or (n,)
+        External drive of the E units (interneurons get none), or of every
+        unit (Circuit.full_drive).
     n_e : int or None
         Number of E units (the first n_e); None means all units are E.
     tau_e, tau_i : float
@@ -419,8 +429,12 @@ def simulate(W_full, h, *, n_e=None, tau_e=1.0, tau_i=1.0, t_max=None,
     W_full = np.asarray(W_full, dtype=float)
     n = W_full.shape[0]
     n_e = n if n_e is None else int(n_e)
+    h = np.asarray(h, dtype=float)
     H = np.zeros(n)
-    H[:n_e] = h
+    if h.shape == (n,):
+        H[:] = h
+    else:
+        H[:n_e] = h
     tau = _taus(n, n_e, tau_e, tau_i)
     if nonlinearity not in ("linear", "relu"):
         raise InputError(f"unknown nonlinearity {nonlinearity!r}")
@@ -498,7 +512,7 @@ def stability_summary(circuit, W, *, tau_ratio=None):
     known = {1.0: circuit_abscissa(circuit)}  # equal taus: on the scan's grid
     ratio = _stable_ratio(circuit, lo, hi, n_grid, 1e-3, "auto", 0, known)
     a_circ = known[1.0]
-    a_eff = spectral_abscissa(circuit.effective_weights()) - 1.0
+    a_eff = spectral_abscissa(circuit.reconstruction()) - 1.0
     n_total = circuit.n_excitatory + circuit.n_inhibitory
     return {"original_spectral_abscissa": a_orig,
             "effective_spectral_abscissa": a_eff,
@@ -586,7 +600,8 @@ def _stable_gain(a):
 
 def scaled_circuit(circuit, gain):
     """The circuit whose W_eff is ``gain`` W_eff: J_EE times g, J_EI and
-    J_IE each times sqrt(g) (all nonnegative: Dale's law kept).
+    J_IE each times sqrt(g) (all nonnegative: Dale's law kept); a circuit of
+    W's own neurons, whose full matrix is W, has every block times g.
 
     >>> import numpy as np
     >>> from eidecomp.types import Circuit
@@ -602,6 +617,10 @@ def scaled_circuit(circuit, gain):
         raise InputError(f"the gain must be a positive number, got {gain!r}")
     if gain == 1.0:
         return circuit
+    if circuit.own_neurons:
+        return dataclasses.replace(circuit, **{
+            name: gain * getattr(circuit, name)
+            for name in (*BLOCK_NAMES, *II_BLOCK_NAMES)})
     root = math.sqrt(gain)
     return dataclasses.replace(
         circuit, J_EE=gain * circuit.J_EE, J_EU=root * circuit.J_EU,
@@ -658,8 +677,8 @@ def _rate_of_change(W_full, H, tau, r, n_e, relu):
 def _bounded_run(circuit, W, h, tau_e, tau_i, t_ms):
     """Threshold-linear runs of both networks: the final rates compared."""
     n_e, W_full = circuit.n_excitatory, circuit.signed_weights()
-    H = np.r_[h, np.zeros(circuit.n_inhibitory)]
-    _, r = simulate(W_full, h, n_e=n_e, tau_e=tau_e, tau_i=tau_i, t_max=t_ms,
+    H = circuit.full_drive(h)
+    _, r = simulate(W_full, H, n_e=n_e, tau_e=tau_e, tau_i=tau_i, t_max=t_ms,
                     nonlinearity="relu", t_eval=(t_ms,))
     _, r0 = simulate(W, h, tau_e=tau_e, t_max=t_ms, nonlinearity="relu",
                      t_eval=(t_ms,))
@@ -668,31 +687,33 @@ def _bounded_run(circuit, W, h, tau_e, tau_i, t_ms):
         raise InputError(f"the rates diverged (past {DIVERGED:.0e}) within "
                          f"{t_ms:g} ms; lower --gain or --duration")
     tau = _taus(len(H), n_e, tau_e, tau_i)
-    return {"circuit_vs_original": _relative(rates[:n_e], orig),
+    return {"circuit_vs_original": _relative(circuit.w_rates(rates), orig),
             "circuit_rate_of_change": _rate_of_change(W_full, H, tau, rates,
                                                       n_e, True),
             "original_rate_of_change": _rate_of_change(
-                W, h, np.full(n_e, float(tau_e)), orig, n_e, True)}
+                W, h, np.full(len(h), float(tau_e)), orig, len(h), True)}
 
 
 def _linear_run(circuit, W, h, tau_e, tau_i, t_ms, run):
     """Linear runs of both networks against the fixed points of W_eff, W."""
     n_e, W_full = circuit.n_excitatory, circuit.signed_weights()
+    H = circuit.full_drive(h)
     if run is None:
-        _, r = simulate(W_full, h, n_e=n_e, tau_e=tau_e, tau_i=tau_i, t_max=t_ms,
+        _, r = simulate(W_full, H, n_e=n_e, tau_e=tau_e, tau_i=tau_i, t_max=t_ms,
                         t_eval=(t_ms,))
         _, r0 = simulate(W, h, tau_e=tau_e, t_max=t_ms, t_eval=(t_ms,))
         rates, orig = r[:, -1], r0[:, -1]
     else:
         tau = _taus(W_full.shape[0], n_e, tau_e, tau_i)
-        rates = run(W_full, np.r_[h, np.zeros(circuit.n_inhibitory)], tau, t_ms)
-        orig = run(W, h, np.full(n_e, float(tau_e)), t_ms)
-    fp_eff = fixed_point(circuit.effective_weights(), h)
+        rates = run(W_full, H, tau, t_ms)
+        orig = run(W, h, np.full(len(h), float(tau_e)), t_ms)
+    rates = circuit.w_rates(rates)       # W's units, in W's order
+    fp_eff = fixed_point(circuit.reconstruction(), h)
     fp_W = fixed_point(W, h)
-    return {"circuit_vs_fixed_point_W_eff": _relative(rates[:n_e], fp_eff),
-            "circuit_vs_fixed_point_W": _relative(rates[:n_e], fp_W),
+    return {"circuit_vs_fixed_point_W_eff": _relative(rates, fp_eff),
+            "circuit_vs_fixed_point_W": _relative(rates, fp_W),
             "original_vs_fixed_point_W": _relative(orig, fp_W),
-            "circuit_vs_original": _relative(rates[:n_e], orig)}
+            "circuit_vs_original": _relative(rates, orig)}
 
 
 def compare_with_original(circuit, W, h, *, tau_e, tau_i, run=None, gain=1.0,
@@ -768,4 +789,4 @@ def compare_with_original(circuit, W, h, *, tau_e, tau_i, run=None, gain=1.0,
             "tau_i_ms": tau_i, "t_ms": t_ms,
             "original_growth_rate": a_orig, "circuit_growth_rate": a_circ,
             "largest_stable_gain": g_star, **errors,
-            "reconstruction_error": _relative(circuit.effective_weights(), W)}
+            "reconstruction_error": _relative(circuit.reconstruction(), W)}

@@ -387,7 +387,9 @@ def silent_pool(pool):
     """Whether an interneuron of circuit.json's interneurons list is silent
     (no input or no target): the count circuit.json's metrics and the
     headlines read."""
-    return pool.get("n_inputs") == 0 or pool.get("n_targets") == 0
+    inputs = pool.get("n_inputs", 1) + pool.get("n_inhibitory_inputs", 0)
+    targets = pool.get("n_targets", 1) + pool.get("n_inhibitory_targets", 0)
+    return inputs == 0 or targets == 0
 
 
 def active_text(meta, kind):

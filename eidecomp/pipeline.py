@@ -350,11 +350,12 @@ class AssembleConfig(MatrixOptions):
     written by ``eidecomp decompose``.
     """
 
-    ei_ratio: str = DEFAULT_EI_RATIO
+    ei_ratio: str | None = None     # DEFAULT_EI_RATIO, or W's own (Dale)
     untuned_share: str = "auto"
     alpha: float | None = None
     ee_support: str = DEFAULT_EE_SUPPORT
     no_stability_guard: bool = False
+    no_own_neurons: bool = False
     units: str | None = None
     period: float = DEFAULT_PERIOD
     position_unit: str = "um"
@@ -402,6 +403,22 @@ def _check_square(W, name):
                          "needs a square matrix (decompose takes any shape)")
 
 
+def _e_unit_rows(units, circuit):
+    """The unit table's rows of the circuit's E units, in their order: all
+    of them, except for a circuit of W's own neurons, whose interneurons
+    are W units too (circuit.json's w_index names every unit's row)."""
+    if not circuit.own_neurons or units.path is None:
+        return units
+    e = circuit.e_units()
+
+    def rows(a):
+        return None if a is None else np.asarray(a)[e]
+
+    return dataclasses.replace(
+        units, features=rows(units.features), positions=rows(units.positions),
+        ids=None if units.ids is None else [units.ids[i] for i in e])
+
+
 def _assemble_dense(config, out, progress, stage_progress, extra_files):
     from .analysis import interneuron_pools
     from .analysis.report import render_report_files, report_lam_path
@@ -411,12 +428,13 @@ def _assemble_dense(config, out, progress, stage_progress, extra_files):
     refuse_inapplicable(config, set(f.name for f in dataclasses.fields(config))
                         - {"grid", "expand"}, "a matrix")
     _check_split_options(config)
-    ratio = EIRatio.parse(config.ei_ratio)  # bad options fail before any work
+    ratio = (None if config.ei_ratio is None   # bad options fail before any work
+             else EIRatio.parse(config.ei_ratio))
     inputs = _inputs(config.input, config.mask, config.units)
     check_bundle_output(out, CIRCUIT, force=config.force, inputs=inputs)
     W, dec, observed, source = _read_split_input(config)
     _check_square(W, config.input)
-    inhibitory_count(W.shape[0], ratio)
+    inhibitory_count(W.shape[0], DEFAULT_EI_RATIO if ratio is None else ratio)
     units = read_unit_table(config.units, W.shape[0], period=config.period,
                             position_unit=config.position_unit,
                             magnification=config.magnification)
@@ -437,9 +455,11 @@ def _assemble_dense(config, out, progress, stage_progress, extra_files):
     circuit = assemble(dec, ei_ratio=ratio, untuned_share=config.untuned_share,
                        alpha=config.alpha, ee_support=config.ee_support,
                        stability_guard=not config.no_stability_guard,
+                       own_neurons=not config.no_own_neurons,
                        seed=config.seed,
                        progress=stage_progress)
     tell = announcer(stage_progress)
+    units = _e_unit_rows(units, circuit)
     pools = interneuron_pools(circuit, units.features, config.period)
     tell("stability")
     stability = dynamics.stability_summary(circuit, W,
@@ -487,7 +507,7 @@ def _assemble_tiled(config, out, progress):
                                  "ei_ratio", "untuned_share", "alpha",
                                  "ee_support", "lam", "tol", "seed", "force"),
                         "a kernel (--kernel)")
-    ratio = EIRatio.parse(config.ei_ratio)
+    ratio = EIRatio.parse(config.ei_ratio or DEFAULT_EI_RATIO)
     kind = CIRCUIT if config.expand else TILED
     inputs = _inputs(config.kernel)
     check_bundle_output(out, kind, force=config.force, inputs=inputs)
@@ -575,7 +595,7 @@ def run_export(bundle, fmt, output, *, force=False, tau_e=TAU_E_MS,
     h = None
     if "drive" in spec.options:        # the same drive as simulate's
         h, _ = _read_drive("random" if drive is None else drive,
-                           b.circuit.n_excitatory, seed)
+                           b.circuit.n_w_units, seed)
     data = render(fmt, b.circuit, features=b.features, positions=b.positions,
                   unit_ids=b.unit_ids,  # names: data, never code
                   tau_e=tau_e, tau_i=tau_i, raw_csv=raw_csv, drive=h,
@@ -653,7 +673,7 @@ def run_simulate(bundle, *, simulator="internal", drive="random", tau_e=TAU_E_MS
 
         require_module(module)
     b = bundles.read_circuit_bundle(bundle)
-    h, source = _read_drive(drive, b.circuit.n_excitatory, seed)
+    h, source = _read_drive(drive, b.circuit.n_w_units, seed)
     try:
         result = dynamics.compare_with_original(
             b.circuit, b.original_weights(), h, tau_e=tau_e, tau_i=tau_i,

@@ -13,6 +13,7 @@ import numpy as np
 __all__ = [
     "BLOCKS",
     "BLOCK_NAMES",
+    "II_BLOCK_NAMES",
     "EXCITATORY",
     "POPULATION_NAMES",
     "TUNED",
@@ -351,9 +352,15 @@ class Block:
 
 BLOCKS = (Block("J_EE", EXCITATORY, EXCITATORY), Block("J_EU", EXCITATORY, UNTUNED),
           Block("J_UE", UNTUNED, EXCITATORY), Block("J_ET", EXCITATORY, TUNED),
-          Block("J_TE", TUNED, EXCITATORY))
-"""The one table of blocks (name, post, pre), in the order bundles store them."""
-BLOCK_NAMES = tuple(b.name for b in BLOCKS)
+          Block("J_TE", TUNED, EXCITATORY),
+          Block("J_UU", UNTUNED, UNTUNED), Block("J_UT", UNTUNED, TUNED),
+          Block("J_TU", TUNED, UNTUNED), Block("J_TT", TUNED, TUNED))
+"""The one table of blocks (name, post, pre), in the order bundles store them:
+the five every circuit has (:data:`BLOCK_NAMES`), then the four
+inhibitory-to-inhibitory ones (:data:`II_BLOCK_NAMES`), zero unless the
+circuit was built from a W's own inhibitory neurons."""
+BLOCK_NAMES = tuple(b.name for b in BLOCKS[:5])
+II_BLOCK_NAMES = tuple(b.name for b in BLOCKS[5:])
 
 
 @dataclass(frozen=True)
@@ -490,16 +497,22 @@ class AssemblyReport:
         return out
 
 
-def active_interneurons(J_EI, J_IE):
+def active_interneurons(J_EI, J_IE, J_II=None):
     """Which interneurons are active: at least one target (a nonzero column
-    of J_EI) and at least one input (a nonzero row of J_IE). The one rule
-    for silent interneurons, after the connection floor
-    (params.CONNECTION_RTOL) has zeroed what carries nothing.
+    of J_EI, or of J_II in a circuit of W's own neurons) and at least one
+    input (a nonzero row of J_IE, or of J_II). The one rule for silent
+    interneurons, after the connection floor (params.CONNECTION_RTOL) has
+    zeroed what carries nothing.
 
     >>> active_interneurons(np.array([[1.0, 0.0]]), np.array([[1.0], [2.0]]))
     array([ True, False])
     """
-    return np.asarray(J_EI).any(axis=0) & np.asarray(J_IE).any(axis=1)
+    target = np.asarray(J_EI).any(axis=0)
+    source = np.asarray(J_IE).any(axis=1)
+    if J_II is not None:
+        target |= np.asarray(J_II).any(axis=0)
+        source |= np.asarray(J_II).any(axis=1)
+    return target & source
 
 
 @dataclass(frozen=True)
@@ -518,11 +531,28 @@ class Circuit:
     ``J_UE``      (n_u, N)    E -> untuned I excitation
     ``J_ET``      (N, n_t)    tuned I -> E inhibition (magnitude)
     ``J_TE``      (n_t, N)    E -> tuned I excitation
+    ``J_UU``      (n_u, n_u)  untuned I -> untuned I inhibition
+    ``J_UT``      (n_u, n_t)  tuned I -> untuned I inhibition
+    ``J_TU``      (n_t, n_u)  untuned I -> tuned I inhibition
+    ``J_TT``      (n_t, n_t)  tuned I -> tuned I inhibition
     ============  ==========  =====================================
 
+    The four inhibitory-to-inhibitory blocks are zero (None given) unless
+    the circuit is made of a W's own neurons.
+
     Units are ordered E, then untuned, then tuned, in every full matrix.
-    ``unit_ids`` names the E units (W's units), from a labelled W; the
-    exports write them unless given others.
+    ``w_index`` maps them to W's units:
+
+    * None (an assembled circuit): the E units are W's units in W's order
+      and the interneurons are added; the circuit reproduces W through
+      W_eff (:meth:`reconstruction`);
+    * a tuple of ints, one per unit of the full matrix (a circuit of W's own
+      neurons, when W already obeys Dale's law): the W unit each one is;
+      an interneuron divided in two to meet a ratio (docs/assembly.md)
+      appears twice. The circuit reproduces W as its full matrix.
+
+    ``unit_ids`` names the E units, from a labelled W; the exports write
+    them unless given others.
 
     Examples
     --------
@@ -544,6 +574,11 @@ class Circuit:
     params: dict = field(default_factory=dict, repr=False)
     report: AssemblyReport | None = field(default=None, repr=False)
     unit_ids: tuple | None = field(default=None, repr=False)
+    J_UU: np.ndarray | None = field(default=None, repr=False)
+    J_UT: np.ndarray | None = field(default=None, repr=False)
+    J_TU: np.ndarray | None = field(default=None, repr=False)
+    J_TT: np.ndarray | None = field(default=None, repr=False)
+    w_index: tuple | None = field(default=None, repr=False)
 
     def __post_init__(self):
         if self.unit_ids is not None:
@@ -552,7 +587,13 @@ class Circuit:
                 raise ValueError(f"{len(ids)} unit ids for "
                                  f"{np.shape(self.J_EE)[0]} excitatory units")
             object.__setattr__(self, "unit_ids", ids)
-        for name in BLOCK_NAMES:
+        n_u, n_t = np.shape(self.J_EU)[1], np.shape(self.J_ET)[1]
+        shapes = {"J_UU": (n_u, n_u), "J_UT": (n_u, n_t),
+                  "J_TU": (n_t, n_u), "J_TT": (n_t, n_t)}
+        for name in II_BLOCK_NAMES:
+            if getattr(self, name) is None:
+                object.__setattr__(self, name, np.zeros(shapes[name]))
+        for name in BLOCK_NAMES + II_BLOCK_NAMES:
             a = np.asarray(getattr(self, name), dtype=float)
             if a.ndim != 2:
                 raise ValueError(f"{name} must be 2-D")
@@ -562,13 +603,20 @@ class Circuit:
                 raise ValueError(f"{name} has negative entries; blocks hold "
                                  "magnitudes and Dale's law gives the signs")
             object.__setattr__(self, name, a)
-        _freeze(self, *BLOCK_NAMES)
+        _freeze(self, *BLOCK_NAMES, *II_BLOCK_NAMES)
         size = self.sizes
         for b in BLOCKS:
             shape = (size[b.post], size[b.pre])
             if getattr(self, b.name).shape != shape:
                 raise ValueError(f"{b.name} has shape "
                                  f"{getattr(self, b.name).shape}, expected {shape}")
+        if self.w_index is not None:
+            index = tuple(int(i) for i in self.w_index)
+            total = self.n_excitatory + self.n_inhibitory
+            if len(index) != total or min(index, default=0) < 0:
+                raise ValueError(f"w_index must give one W unit (>= 0) for each "
+                                 f"of the {total} units, got {len(index)}")
+            object.__setattr__(self, "w_index", index)
 
     def named(self, unit_ids=None):
         """The E units' ids a writer uses: ``unit_ids`` when given, else the
@@ -621,20 +669,107 @@ class Circuit:
         """All E-to-inhibitory weights, untuned rows first."""
         return np.vstack([self.J_UE, self.J_TE])
 
+    @property
+    def J_II(self):
+        """All inhibitory-to-inhibitory magnitudes, untuned first."""
+        return np.block([[self.J_UU, self.J_UT], [self.J_TU, self.J_TT]])
+
+    @property
+    def n_w_units(self):
+        """How many units W has: the E units of an assembled circuit, every
+        distinct unit of ``w_index`` for a circuit of W's own neurons."""
+        if self.w_index is None:
+            return self.n_excitatory
+        return max(self.w_index, default=-1) + 1
+
+    @property
+    def own_neurons(self):
+        """Whether the circuit is made of W's own neurons (``w_index``)."""
+        return self.w_index is not None
+
     def signed_weights(self):
         """The full (N + n_I) square signed matrix W_full[post, pre].
 
-        E columns are >= 0 and inhibitory columns <= 0 (Dale's law); there
-        are no inhibitory-to-inhibitory synapses.
+        E columns are >= 0 and inhibitory columns <= 0 (Dale's law).
         """
         n, ni = self.n_excitatory, self.n_inhibitory
         full = np.zeros((n + ni, n + ni))
         full[:n, :n] = self.J_EE
         full[:n, n:] = -self.J_EI
         full[n:, :n] = self.J_IE
+        full[n:, n:] -= self.J_II   # no -0.0 where J_II is 0
         return full
 
     def effective_weights(self):
         """E-to-E coupling at the interneurons' steady state (linear
-        interneurons driven only by E): J_EE - J_EU J_UE - J_ET J_TE."""
-        return self.J_EE - self.J_EU @ self.J_UE - self.J_ET @ self.J_TE
+        interneurons driven only by E): J_EE - J_EI (I + J_II)^-1 J_IE, which
+        is J_EE - J_EU J_UE - J_ET J_TE without inhibitory-to-inhibitory
+        synapses."""
+        if not self.J_II.any():
+            return self.J_EE - self.J_EU @ self.J_UE - self.J_ET @ self.J_TE
+        return self.J_EE - self.J_EI @ np.linalg.solve(
+            np.eye(self.n_inhibitory) + self.J_II, self.J_IE)
+
+    def _first_of_each(self):
+        """The first unit of the full matrix that is each W unit."""
+        index = np.asarray(self.w_index)
+        first = np.full(index.max() + 1 if index.size else 0, -1)
+        for k in range(index.size - 1, -1, -1):
+            first[index[k]] = k
+        return first
+
+    def e_units(self):
+        """The W units the E units are, in order (all of W's units for an
+        assembled circuit).
+
+        >>> import numpy as np
+        >>> c = Circuit(J_EE=np.zeros((1, 1)), J_EU=np.zeros((1, 1)),
+        ...             J_UE=np.zeros((1, 1)), J_ET=np.zeros((1, 0)),
+        ...             J_TE=np.zeros((0, 1)), w_index=(1, 0))
+        >>> c.e_units()
+        array([1])
+        """
+        if self.w_index is None:
+            return np.arange(self.n_excitatory)
+        return np.asarray(self.w_index[:self.n_excitatory])
+
+    def reconstruction(self):
+        """The circuit's counterpart of W, in W's units and order: W_eff for
+        an assembled circuit; for one of W's own neurons, the full signed
+        matrix with each W unit's inputs read from its first copy and its
+        outputs summed over its copies (an interneuron divided in two).
+
+        >>> import numpy as np
+        >>> c = Circuit(J_EE=np.zeros((1, 1)), J_EU=np.full((1, 1), 2.0),
+        ...             J_UE=np.ones((1, 1)), J_ET=np.zeros((1, 0)),
+        ...             J_TE=np.zeros((0, 1)), w_index=(1, 0))
+        >>> c.reconstruction()
+        array([[ 0.,  1.],
+               [-2.,  0.]])
+        """
+        if self.w_index is None:
+            return self.effective_weights()
+        full = self.signed_weights()
+        first = self._first_of_each()
+        out = np.zeros((first.size, first.size))
+        for k, w in enumerate(self.w_index):   # outputs summed over copies
+            out[:, w] += full[first, k]
+        return out
+
+    def full_drive(self, h):
+        """The drive of every unit of the full matrix from a drive ``h`` of
+        W's units: h on the E units and 0 on added interneurons, or each
+        unit's own for a circuit of W's neurons."""
+        h = np.asarray(h, dtype=float)
+        if self.w_index is None:
+            return np.r_[h, np.zeros(self.n_inhibitory)]
+        return h[np.asarray(self.w_index)]
+
+    def w_rates(self, rates):
+        """W's units' rates from the rates of the full matrix's units: the E
+        units' for an assembled circuit (W's units are its E units), each W
+        unit's first copy for a circuit of W's neurons."""
+        rates = np.asarray(rates)
+        if self.w_index is None:
+            return rates[:self.n_excitatory]
+        return rates[self._first_of_each()]

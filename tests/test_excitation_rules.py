@@ -216,9 +216,12 @@ def test_a_real_connectome_gets_no_invented_synapse():
     from eidecomp.datasets import signed_connectome
 
     W, _ = signed_connectome("WitvlietDataReader8")
+    # the assembler's own rule on a real matrix: asked to treat every unit
+    # as excitatory (by default W's own neurons are the circuit, which
+    # tests/test_own_neurons.py checks)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        c = assemble(W, ei_ratio="4:1", baselines=False)
+        c = assemble(W, ei_ratio="4:1", baselines=False, own_neurons=False)
     assert not (c.J_EE[W <= 0] > 0).any()
     assert c.report.autapses == 0
     # recognised as a Dale's-law matrix: its inhibitory neurons are the

@@ -179,9 +179,21 @@ def test_circuits_obey_dale_and_the_counts(W, ratio, share):
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ConvergenceWarning)
         c = assemble(W, ei_ratio=ratio, untuned_share=share, baselines=False)
-    assert (c.n_excitatory, c.n_inhibitory) == (n, n_i)
-    for block in (c.J_EE, c.J_EU, c.J_UE, c.J_ET, c.J_TE):
+    for block in (c.J_EE, c.J_EU, c.J_UE, c.J_ET, c.J_TE, c.J_II):
         assert np.isfinite(block).all() and (block >= 0).all()
+    if c.own_neurons:
+        # W already obeys Dale's law (docs/assembly.md): its inhibitory
+        # neurons are the interneurons, divided to meet the ratio, and the
+        # circuit's full matrix is W itself
+        inhibitory = (W < 0).any(axis=0)
+        assert not ((W > 0).any(axis=0) & inhibitory).any()
+        n_e = int((~inhibitory).sum())
+        assert (c.n_excitatory, c.n_inhibitory) == (n_e, round(n_e / ratio))
+        np.testing.assert_array_equal(c.reconstruction(), W)
+        signed = c.signed_weights()
+        assert (signed[:, :n_e] >= 0).all() and (signed[:, n_e:] <= 0).all()
+        return
+    assert (c.n_excitatory, c.n_inhibitory) == (n, n_i)
     signed = c.signed_weights()
     assert (signed[:, :n] >= 0).all() and (signed[:, n:] <= 0).all()
     # the reported error is the definition's, ||W - (J_EE - J_EI J_IE)|| / ||W||
@@ -207,7 +219,9 @@ def test_scaling_w_scales_the_decomposition_and_circuit(W, exponent):
     assert close(scaled.low_rank, c * base.low_rank, 1e-6)
     assert close(scaled.sparse, c * base.sparse, 1e-6)
     # the circuit from the same decomposition, scaled: every step of the
-    # assembly is homogeneous (it works in units of max |W|)
+    # assembly is homogeneous (it works in units of max |W|), except the
+    # stability guard, since stability itself depends on W's scale (switched
+    # off here; tests/test_stability_guard.py checks it)
     from dataclasses import replace
 
     dec_c = replace(base, low_rank=c * base.low_rank, sparse=c * base.sparse)
@@ -216,9 +230,14 @@ def test_scaling_w_scales_the_decomposition_and_circuit(W, exponent):
         # (test_assemble.py::test_a_stopped_refinement_says_so checks the
         # warning itself)
         warnings.simplefilter("ignore", ConvergenceWarning)
-        a = assemble(base, baselines=False, ei_ratio=2)
-        b = assemble(dec_c, baselines=False, ei_ratio=2)
+        a = assemble(base, baselines=False, ei_ratio=2, stability_guard=False)
+        b = assemble(dec_c, baselines=False, ei_ratio=2, stability_guard=False)
+    assert a.own_neurons == b.own_neurons
     assert close(b.J_EE, c * a.J_EE, 1e-9)
+    if a.own_neurons:   # W's own neurons: the full matrix is W, every block
+        for name in ("J_EI", "J_IE", "J_II"):           # scales with it
+            assert close(getattr(b, name), c * getattr(a, name), 1e-9)
+        return
     assert close(b.J_EI @ b.J_IE, c * (a.J_EI @ a.J_IE), 1e-9)
     assert close(b.J_EI, np.sqrt(c) * a.J_EI, 1e-9)
 

@@ -197,7 +197,8 @@ def _figures(circuit, meta, W, L, path_points, rules, cv, tell, svg=False):
     """(title, base64 PNG, SVG bytes or None) of every figure of the report."""
     from ..graph import population_graph
 
-    W_eff = circuit.effective_weights()
+    W_eff = circuit.reconstruction()    # W_eff, or W_full of W's own neurons
+    eff = "W_full" if circuit.own_neurons else "W_eff"
     figs = []
 
     def fig(title, draw):
@@ -205,7 +206,7 @@ def _figures(circuit, meta, W, L, path_points, rules, cv, tell, svg=False):
         figs.append((title, *_rendered(draw, title if svg else None,
                                        **_LAYOUT.get(title, {}))))
 
-    for name, M in (("W", W), ("W_eff", W_eff), ("residual W - W_eff", W - W_eff)):
+    for name, M in (("W", W), (eff, W_eff), (f"residual W - {eff}", W - W_eff)):
         fig(f"matrix {name}", lambda ax, M=M, name=name:
             plotting.plot_matrix(ax, M, name))
     if L is not None:

@@ -240,15 +240,17 @@ def active_by_kind(circuit):
     """(untuned, tuned) boolean masks of the active interneurons
     (types.active_interneurons): a silent interneuron is no connection of
     either class and counts in no probability or profile."""
-    active = active_interneurons(circuit.J_EI, circuit.J_IE)
+    active = active_interneurons(circuit.J_EI, circuit.J_IE, circuit.J_II)
     return active[:circuit.n_untuned], active[circuit.n_untuned:]
 
 
 def connection_classes(circuit, W):
     """{class: (J[post, pre], post kind, pre kind)}: the circuit's five
     blocks (active interneurons only, :func:`active_by_kind`) and the
-    positive and negative sides of the original W."""
-    W = np.asarray(W, dtype=float)
+    positive and negative sides of the original W among the E units (all of
+    W's units, except in a circuit of W's own neurons)."""
+    e = circuit.e_units()
+    W = np.asarray(W, dtype=float)[np.ix_(e, e)]
     u, t = active_by_kind(circuit)
     return {"E->E": (circuit.J_EE, "E", "E"),
             "E->I_untuned": (circuit.J_UE[u], "U", "E"),

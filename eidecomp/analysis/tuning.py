@@ -25,10 +25,12 @@ def interneuron_pools(circuit, features=None, period=DEFAULT_PERIOD, rtol=0.0):
     these counts are the ones circuit.json and the command line give;
     ``rtol`` > 0 also drops weights below that fraction of the row's or
     column's largest. Returns a list of dicts with keys ``kind``,
-    ``index`` (within its population), ``n_inputs``, ``n_targets`` and
+    ``index`` (within its population), ``n_inputs``, ``n_targets``,
+    ``n_inhibitory_inputs`` and ``n_inhibitory_targets`` (other
+    interneurons, in a circuit of W's own neurons; else 0) and
     ``circular_variance`` (None without features).
     """
-    J_IE, J_EI = circuit.J_IE, circuit.J_EI
+    J_IE, J_EI, J_II = circuit.J_IE, circuit.J_EI, circuit.J_II
     kinds = [UNTUNED] * circuit.n_untuned + [TUNED] * circuit.n_tuned
     index = list(range(circuit.n_untuned)) + list(range(circuit.n_tuned))
     peak_in = J_IE.max(axis=1, initial=0.0)
@@ -45,6 +47,8 @@ def interneuron_pools(circuit, features=None, period=DEFAULT_PERIOD, rtol=0.0):
             if peak_in[k] > 0 else 0,
             "n_targets": int(np.count_nonzero(J_EI[:, k] > rtol * peak_out[k]))
             if peak_out[k] > 0 else 0,
+            "n_inhibitory_inputs": int(np.count_nonzero(J_II[k])),
+            "n_inhibitory_targets": int(np.count_nonzero(J_II[:, k])),
             "circular_variance": None if cv[k] is None or np.isnan(cv[k])
             else float(cv[k]),
             "selectivity_index": None if osi[k] is None or np.isnan(osi[k])

@@ -30,6 +30,8 @@
    report states the error this cost.
 """
 
+import dataclasses
+
 import numpy as np
 from scipy import sparse
 
@@ -62,6 +64,7 @@ from ._baselines import (
 )
 from ._baselines import baselines as score_baselines
 from ._counts import inhibitory_count, split_counts
+from ._dale import own_circuit, own_report, why_not_own
 from ._nmf import EXACT_SVD_MAX, Factored, hals, leading_svd, nndsvd
 from ._split_hals import (
     SPARSE_MIN_UNITS,
@@ -200,19 +203,20 @@ def dale_columns(W, zero=0.0):
     return bool(not (neg & pos).any()), neg
 
 
-def _dale_note(W, zero):
-    """What the report says of a W that already obeys Dale's law."""
+def _dale_note(W, zero, why):
+    """What the report says of a W that already obeys Dale's law and was
+    assembled like any W, and ``why`` (the option that asked it, or what
+    W's own neurons could not honour)."""
     obeys, inhibitory = dale_columns(W, zero)
     k = int(inhibitory.sum())
     if not obeys or not k:
         return ()
     n = W.shape[0]
     return (f"W already obeys Dale's law: every column is one sign, with {k} "
-            f"inhibitory neurons of {n} (E:I {(n - k) / k:.3g}:1). This "
-            "circuit still treats all of W's units as excitatory and adds "
-            "interneurons; building it from W's own inhibitory neurons "
-            "(which needs inhibitory-to-inhibitory synapses) is not done yet. "
-            "Read W itself as the Dale's-law circuit",)
+            f"inhibitory neurons of {n} (E:I {(n - k) / k:.3g}:1). Its own "
+            f"inhibitory neurons are not the interneurons here ({why}): this "
+            "circuit treats all of W's units as excitatory and adds "
+            "interneurons",)
 
 
 DIAGONAL_SHARE = 0.5   # the diagonal note: this share of the squared error
@@ -327,21 +331,25 @@ def _objective(W, J_EE, A, B, alpha, n_u, parts=None):
     return 0.5 * float(np.vdot(R, R)) + _penalty(alpha, J_EE)
 
 
-def _excitation(W, A, B, n_u, alpha, ee_support, parts=None, out=None):
+def _excitation(W, A, B, n_u, alpha, ee_support, parts=None, out=None,
+                cap=None):
     """J_EE = max(W + A B - alpha, 0) on ``ee_support`` (None: everywhere),
-    the exact minimiser given the paths; written into ``out`` when given
+    at most ``cap`` where given, the exact minimiser given the paths (each
+    entry a box-constrained 1-D quadratic); written into ``out`` when given
     (at most one N x N array either way)."""
     J = paths(A, B, n_u, parts, out=out)
     J += W
     J -= alpha
     np.maximum(J, 0.0, out=J)
+    if cap is not None:
+        np.minimum(J, cap, out=J)
     if ee_support is not None:  # a buffered ufunc: no float copy of the mask
         J *= ee_support
     return J
 
 
 def _descend(W, A, B, n_u, masks, alpha, ee_support, max_iter, tol,
-             history, progress=None, stage=""):
+             history, progress=None, stage="", cap=None):
     """Block coordinate descent on J_EE and (A, B), the first ``n_u``
     components dense and the others sparse; returns J_EE, n, ok."""
     converged = False
@@ -351,7 +359,8 @@ def _descend(W, A, B, n_u, masks, alpha, ee_support, max_iter, tol,
     cache = {}                           # colourings and Grams, sweep to sweep
     J_EE = None
     while not converged and len(history) - start < max_iter:
-        J_EE = _excitation(W, A, B, n_u, alpha, ee_support, parts, out=J_EE)
+        J_EE = _excitation(W, A, B, n_u, alpha, ee_support, parts, out=J_EE,
+                           cap=cap)
         J_EE -= W                        # the sweep fits J_EE - W ~ A B
         parts = sweep_split(J_EE, A, B, n_u, mask_a=masks[0],
                             mask_b=masks[1], A_sp=parts[0], B_sp=parts[1],
@@ -365,7 +374,8 @@ def _descend(W, A, B, n_u, masks, alpha, ee_support, max_iter, tol,
         converged = (len(history) - start > 1
                      and history[-2] - history[-1] <= tol * scale)
     it = len(history) - start
-    return _excitation(W, A, B, n_u, alpha, ee_support, parts, out=J_EE), it, \
+    return _excitation(W, A, B, n_u, alpha, ee_support, parts, out=J_EE,
+                       cap=cap), it, \
         converged
 
 
@@ -379,21 +389,21 @@ def _owed(W, J_EE, A, B, n_u):
 
 
 def _fit(W, A, B, n_u, masks, alpha, allowed, max_iter, tol, history,
-         progress):
+         progress, cap=None):
     """Steps 4-5 once, then the connection floor: J_EE, sweeps, converged,
     weights floored. ``allowed``: where J_EE may carry weight (None:
     anywhere)."""
     J_EE, it1, ok1 = _descend(W, A, B, n_u, masks, alpha, allowed, max_iter,
-                              tol, history, progress, "refinement")
+                              tol, history, progress, "refinement", cap)
     support = J_EE > 0
     del J_EE
     J_EE, it2, ok2 = _descend(W, A, B, n_u, masks, 0.0, support, max_iter,
-                              tol, history, progress, "debiasing")
+                              tol, history, progress, "debiasing", cap)
     return J_EE, it1 + it2, ok1 and ok2, apply_floor(J_EE, A, B)
 
 
 def _refine(W, A, B, mask_a, mask_b, alpha, allowed, n_u, max_iter, tol,
-            history, progress, tell):
+            history, progress, tell, cap=None):
     """Steps 4-5 with the connection floor; new starts for interneurons that
     end without input or target while inhibition is left unexplained (at
     most RESTART_ROUNDS times). Returns J_EE, sweeps, converged and the
@@ -402,7 +412,7 @@ def _refine(W, A, B, mask_a, mask_b, alpha, allowed, n_u, max_iter, tol,
 
     def fit():
         return _fit(W, A, B, n_u, masks, alpha, allowed, max_iter, tol,
-                    history, progress)
+                    history, progress, cap)
 
     J_EE, n_iter, converged, floored = fit()
     restarted = 0
@@ -671,9 +681,30 @@ def _against_nmf(base, err, dens):
             "hypothesis (its interneurons are neither untuned nor tuned)",)
 
 
-def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto",
+def _own_neurons(W, L, S, dec, inhibitory, ratio, zero, ids, ee_support,
+                 stability_guard):
+    """The circuit of W's own neurons (_dale.py), for a W whose every column
+    is one sign."""
+    blocks, index, n_u, text, notes = own_circuit(W, L, S, inhibitory, ratio,
+                                                  zero)
+    e = np.flatnonzero(~inhibitory)
+    with handing_over():                # every block is a new array of ours
+        circuit = Circuit(**blocks, w_index=index,
+                          unit_ids=None if ids is None
+                          else tuple(ids[i] for i in e))
+    report = own_report(W, circuit.reconstruction(), circuit.J_EE,
+                        W[np.ix_(e, e)], notes, zero)
+    params = {"ei_ratio": text, "untuned_share": "auto", "alpha": None,
+              "ee_support": ee_support,
+              "stability_guard": bool(stability_guard), "own_neurons": True,
+              "n_inhibitory": circuit.n_inhibitory, "lam": dec.lam,
+              "rank": dec.rank, "decomposition_converged": dec.converged}
+    return dataclasses.replace(circuit, report=report, params=params)
+
+
+def assemble(W_or_dec, *, ei_ratio=None, untuned_share="auto",
              alpha=None, ee_support=DEFAULT_EE_SUPPORT, stability_guard=True,
-             max_iter=500, tol=1e-6, seed=0, baselines=True,
+             own_neurons=True, max_iter=500, tol=1e-6, seed=0, baselines=True,
              decompose_kwargs=None, progress=None, max_bytes=None):
     """Assemble a Dale's-law circuit that reproduces W as closely as it can.
 
@@ -684,9 +715,11 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto",
         An array is decomposed with ``robust_pca`` at its defaults; a
         scipy.sparse matrix is densified; a pandas DataFrame's index (the
         same labels as its columns) becomes the circuit's ``unit_ids``.
-    ei_ratio : EIRatio, str or float
+    ei_ratio : EIRatio, str, float or None
         Excitatory units per interneuron: 4, "4:1", "9:2"
-        (:class:`eidecomp.params.EIRatio`); stored as its text.
+        (:class:`eidecomp.params.EIRatio`); stored as its text. None: 4:1
+        (params.DEFAULT_EI_RATIO), or W's own for a W that already obeys
+        Dale's law.
     untuned_share : "auto" or float in [0, 1]
         Fraction of the interneurons that are untuned; "auto" takes the rank
         of the low-rank part.
@@ -706,6 +739,15 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto",
         report the error this cost (docs/assembly.md, "Stability guard";
         up to GUARD_MAX_UNITS units in all). False keeps the closest fit
         whatever its stability.
+    own_neurons : bool
+        When every column of W is one sign (a signed connectome), some
+        negative and some not (an E unit is needed), build the
+        circuit from W's own neurons: its inhibitory neurons are the
+        interneurons (untuned or tuned by the split), its full matrix is W,
+        with the inhibitory-to-inhibitory synapses W has; a ratio asking
+        more interneurons divides the neurons with the most targets, one
+        asking fewer is refused (docs/assembly.md, "A W that already obeys
+        Dale's law"). False assembles it like any W.
     max_iter : int
         Sweeps of the joint refinement (and of each debiasing pass).
     tol : float
@@ -741,7 +783,7 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto",
     >>> bool((c.signed_weights()[:, 60:] <= 0).all())
     True
     """
-    ratio = EIRatio.parse(ei_ratio)
+    ratio = None if ei_ratio is None else EIRatio.parse(ei_ratio)
     if ee_support not in EE_SUPPORTS:
         raise InputError(f"ee_support must be one of {', '.join(EE_SUPPORTS)},"
                          f" got {ee_support!r}")
@@ -750,6 +792,20 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto",
     if W.ndim != 2 or W.shape[0] != W.shape[1]:
         raise InputError(f"W must be square to build a circuit, got {W.shape}")
     n = W.shape[0]
+    zero = _zero_level(own)
+    scale = float(np.abs(W).max()) if W.size else 0.0
+    why = "own_neurons=False, --no-own-neurons"
+    if own_neurons:
+        obeys, inhibitory = dale_columns(W, zero * scale)
+        if obeys and inhibitory.any():
+            why = ("every column is inhibitory, so W has no excitatory unit"
+                   if inhibitory.all()
+                   else why_not_own(W, inhibitory, ratio, untuned_share))
+            if why is None:
+                return _own_neurons(W, L, S, dec, inhibitory, ratio,
+                                    zero * scale, ids, ee_support,
+                                    stability_guard)
+    ratio = EIRatio.parse(DEFAULT_EI_RATIO) if ratio is None else ratio
     n_i = inhibitory_count(n, ratio)
     check_fits(assembly_bytes(n, n_i),
                f"assembling {n} excitatory units and {n_i} interneurons",
@@ -760,13 +816,11 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto",
     # Work in units of max|W| and scale back at the end: every step is then
     # homogeneous, so c W gives c J_EE and sqrt(c) J_EI, sqrt(c) J_IE (the
     # inhibitory paths J_EI J_IE scale by c), whatever c.
-    scale = float(np.abs(W).max()) if W.size else 0.0
     unit = scale if scale > 0 else 1.0
     no_inhibition = bool(W.min() >= 0)
     alpha = default_alpha(W) if alpha is None else float(alpha)
     if not np.isfinite(alpha) or alpha < 0:
         raise InputError(f"alpha must be a nonnegative number, got {alpha!r}")
-    zero = _zero_level(own)
     if own:                             # L + S: ours to scale in place
         W /= unit
     else:
@@ -807,8 +861,18 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto",
     comparison = comparison_line(err, dens, base) if baselines else ""
     guard = None
     if stability_guard and not no_inhibition:
+        def capped_start():
+            """The refinement again from the fitted factors (copies), J_EE
+            at most W's positive side: the guard's start."""
+            A0, B0 = np.array(A, order="F"), B.copy()
+            J0, _, _, _ = _refine(
+                W, A0, B0, mask_a, mask_b, alpha / unit,
+                _allowed(W, dec.observed, ee_support, zero), n_u, max_iter,
+                tol, [], None, tell, cap=np.maximum(W, 0.0))
+            return J0, A0, B0
+
         J_EE, A, B, guard = guarded(W, J_EE, A, B, mask_a, mask_b, unit=unit,
-                                    tell=tell)
+                                    start=capped_start, tell=tell)
     if guard is not None:
         err = guard.error_after
         dens = float(np.count_nonzero(J_EE) / J_EE.size)
@@ -823,7 +887,7 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto",
     report = AssemblyReport(relative_error=err, ee_density=dens,
                             share_rule=rule, baselines=base, n_iter=n_iter,
                             converged=converged, history=tuple(history),
-                            notes=(_dale_note(W, zero)
+                            notes=(_dale_note(W, zero, why)
                                    + _notes(W, n_i, ratio, A, B, n_u)
                                    + diagonal + base_notes),
                             restarted=int(first_starts + counts[0]),
@@ -834,7 +898,8 @@ def assemble(W_or_dec, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto",
                             comparison=comparison, guard=guard)
     params = {"ei_ratio": ratio.text, "untuned_share": untuned_share,
               "alpha": alpha, "ee_support": ee_support,
-              "stability_guard": bool(stability_guard), "max_iter": max_iter,
+              "stability_guard": bool(stability_guard), "own_neurons": False,
+              "max_iter": max_iter,
               "tol": tol, "seed": seed,
               "n_inhibitory": n_i, "lam": dec.lam, "rank": dec.rank,
               "decomposition_converged": dec.converged}

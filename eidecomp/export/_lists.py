@@ -27,12 +27,14 @@ def connection_list(circuit):
 
 
 def drive_vector(circuit, h):
-    """External drive of every unit: h on the E units, 0 on interneurons."""
+    """External drive of every unit from a drive ``h`` of W's units
+    (Circuit.full_drive): h on the E units and 0 on added interneurons, or
+    each unit's own for a circuit of W's neurons."""
     h = np.asarray(h, dtype=float)
-    if h.shape != (circuit.n_excitatory,):
-        raise ValueError(f"drive h must have shape ({circuit.n_excitatory},), "
+    if h.shape != (circuit.n_w_units,):
+        raise ValueError(f"drive h must have shape ({circuit.n_w_units},), "
                          f"got {h.shape}")
-    return np.r_[h, np.zeros(circuit.n_inhibitory)]
+    return circuit.full_drive(h)
 
 
 def population_taus(circuit, tau_e=TAU_E_MS, tau_i=TAU_I_MS):

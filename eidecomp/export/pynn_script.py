@@ -267,7 +267,7 @@ def pynn_files(circuit, h=None, *, tau_e=TAU_E_MS, tau_i=TAU_I_MS,
         raise ValueError(f"background_sd and background_hz must be >= 0, got "
                          f"{background_sd!r} and {background_hz!r}")
     ids = unit_id_list(circuit.named(unit_ids), circuit.n_excitatory)
-    h = np.zeros(circuit.n_excitatory) if h is None else h
+    h = np.zeros(circuit.n_w_units) if h is None else h
     H = drive_vector(circuit, h)
     pops = circuit.populations
     sizes = np.array([p.size for p in pops])

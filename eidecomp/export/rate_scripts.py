@@ -119,7 +119,7 @@ def rate_script_files(circuit, engine, h=None, *, tau_e=TAU_E_MS,
     if engine not in ENGINES:
         raise ValueError(f"unknown engine {engine!r}")
     ids = unit_id_list(circuit.named(unit_ids), circuit.n_excitatory)
-    h = np.zeros(circuit.n_excitatory) if h is None else h
+    h = np.zeros(circuit.n_w_units) if h is None else h
     H = drive_vector(circuit, h)
     pre, post, w = connection_list(circuit)
     data = {"n": np.array(H.size), "pre": pre, "post": post, "weight": w,

@@ -48,6 +48,7 @@ from ..params import DEFAULT_PERIOD, silent_pool
 from ..types import (
     BLOCK_NAMES,
     EXCITATORY,
+    II_BLOCK_NAMES,
     POPULATION_NAMES,
     TUNED,
     UNTUNED,
@@ -270,8 +271,11 @@ def write_bundle(out, kind, files, doc, *, force=False, inputs=()):
 
 
 def circuit_files(circuit):
-    """The block files of a circuit bundle (name -> array)."""
-    return {f"{b}.npy": np.asarray(getattr(circuit, b)) for b in BLOCK_NAMES}
+    """The block files of a circuit bundle (name -> array): the five every
+    circuit has, and the inhibitory-to-inhibitory ones of a circuit that has
+    any (one of W's own neurons)."""
+    names = BLOCK_NAMES + (II_BLOCK_NAMES if circuit.J_II.any() else ())
+    return {f"{b}.npy": np.asarray(getattr(circuit, b)) for b in names}
 
 
 # --- reading ----------------------------------------------------------------------
@@ -512,11 +516,26 @@ class CircuitBundle:
         return float(self.doc["parameters"].get("period") or DEFAULT_PERIOD)
 
     def original_weights(self):
-        """W = L + S, the matrix the circuit was built from; W_eff when the
-        bundle does not hold its split."""
+        """W = L + S, the matrix the circuit was built from; the circuit's
+        reconstruction of it (W_eff, or the full matrix of a circuit of W's
+        own neurons) when the bundle does not hold its split."""
         if self.low_rank is not None and self.sparse is not None:
             return self.low_rank + self.sparse
-        return self.circuit.effective_weights()
+        return self.circuit.reconstruction()
+
+
+def _w_index(doc, where):
+    """circuit.json's w_index (the W unit of each unit of a circuit of W's
+    own neurons): a list of nonnegative ints, or absent or null."""
+    index = doc.get("w_index")
+    if index is None:
+        return None
+    if not (isinstance(index, list) and all(
+            isinstance(i, int) and not isinstance(i, bool) and i >= 0
+            for i in index)):
+        raise InputError(f"{where}: 'w_index' must be a list of nonnegative "
+                         "integers (the W unit of each unit) or null")
+    return tuple(index)
 
 
 def read_circuit_bundle(folder):
@@ -525,9 +544,11 @@ def read_circuit_bundle(folder):
     doc = read_bundle(folder, CIRCUIT)
     where = folder / CIRCUIT.manifest
     params = require(doc, "parameters", dict, where)
-    blocks = {b: _array(folder, doc, f"{b}.npy", ndim=2) for b in BLOCK_NAMES}
+    blocks = {b: _array(folder, doc, f"{b}.npy", ndim=2)
+              for b in BLOCK_NAMES + II_BLOCK_NAMES}
     try:
-        circuit = Circuit(**blocks, params=params)
+        circuit = Circuit(**blocks, params=params,
+                          w_index=_w_index(doc, where))
     except ValueError as exc:
         raise InputError(f"{folder}: {exc}") from None
     _check_circuit_doc(doc, where, circuit.n_excitatory)
@@ -535,10 +556,10 @@ def read_circuit_bundle(folder):
     if doc.get("unit_ids") is not None:   # checked above: one per E unit
         with handing_over():              # the blocks just read, now named
             circuit = dataclasses.replace(circuit, unit_ids=doc["unit_ids"])
-    n = circuit.n_excitatory
+    n, n_w = circuit.n_excitatory, circuit.n_w_units
     extra = {name: _array(folder, doc, f"{name}.npy")
              for name in ("low_rank", "sparse", "features", "positions")}
-    expected = {"low_rank": (n, n), "sparse": (n, n), "features": (n,),
+    expected = {"low_rank": (n_w, n_w), "sparse": (n_w, n_w), "features": (n,),
                 "positions": (n, 2)}
     for name, arr in extra.items():
         if arr is not None and arr.shape != expected[name]:
@@ -707,6 +728,8 @@ def circuit_doc(circuit, *, source, decomposition, stability, pools,
             "stability": {k: json_number(v) for k, v in stability.items()},
             "interneurons": pools,
             "unit_ids": unit_ids,
+            "w_index": (None if circuit.w_index is None
+                        else list(circuit.w_index)),
             "hypothesis": "a model circuit consistent with W, not a measurement"}
 
 
