@@ -110,14 +110,14 @@ def _row(label, W, truth):
     from eidecomp import assemble
     from eidecomp.assemble import dale_columns
     from eidecomp.dynamics import circuit_abscissa, spectral_abscissa
-    from eidecomp.params import TAU_E_MS, TAU_I_MS
+    from eidecomp.params import MARGINAL_ABSCISSA, TAU_E_MS, TAU_I_MS
     from eidecomp.types import active_interneurons
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         t, c = _timed(lambda: assemble(W, ei_ratio="4:1"))
     rep = c.report
-    w_stable = spectral_abscissa(W) - 1.0 < 0
+    w_stable = spectral_abscissa(W) - 1.0 < -MARGINAL_ABSCISSA
     c_stable = circuit_abscissa(c, tau_e=TAU_E_MS, tau_i=TAU_I_MS) < 0
     silent = int(np.count_nonzero(~active_interneurons(c.J_EI, c.J_IE, c.J_II)))
     base = {b.name: b for b in rep.baselines}

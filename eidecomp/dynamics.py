@@ -393,7 +393,7 @@ MAX_EVALUATIONS = 1_000_000  # right-hand sides one run may evaluate
 
 def simulate(W_full, h, *, n_e=None, tau_e=1.0, tau_i=1.0, t_max=None,
              nonlinearity="linear", r0=None, rtol=1e-10, atol=1e-12,
-             t_eval=None, max_evaluations=MAX_EVALUATIONS):
+             t_eval=None, max_evaluations=MAX_EVALUATIONS, rectified=None):
     """Integrate tau dr/dt = -r + f(W_full r + H) with solve_ivp (LSODA).
 
     Parameters
@@ -410,7 +410,11 @@ def simulate(W_full, h, *, n_e=None, tau_e=1.0, tau_i=1.0, t_max=None,
         End time; None integrates for 40 times the slowest decay time of
         the linearisation (rates within e^-40 of the fixed point).
     nonlinearity : "linear" or "relu"
-        f for the E units; interneurons are always linear.
+        f for the E units; interneurons are linear (unless ``rectified``).
+    rectified : int or None
+        With "relu", how many leading units are rectified (None: the E
+        units; all of them for a circuit of W's own neurons, whose
+        interneurons are W's units as well).
     t_eval : sequence of float or None
         Times to return; None returns every step the integrator took
         (memory grows with the steps: callers that need the end state pass
@@ -439,6 +443,7 @@ def simulate(W_full, h, *, n_e=None, tau_e=1.0, tau_i=1.0, t_max=None,
     if nonlinearity not in ("linear", "relu"):
         raise InputError(f"unknown nonlinearity {nonlinearity!r}")
     relu = nonlinearity == "relu"
+    n_rect = n_e if rectified is None else int(rectified)
     if t_max is None:
         a = spectral_abscissa((W_full - np.eye(n)) / tau[:, None])
         if not a < 0:
@@ -457,7 +462,7 @@ def simulate(W_full, h, *, n_e=None, tau_e=1.0, tau_i=1.0, t_max=None,
                 f"unstable circuit); lower --gain or --duration")
         drive = W_full @ r + H
         if relu:
-            drive[:n_e] = np.maximum(drive[:n_e], 0.0)
+            drive[:n_rect] = np.maximum(drive[:n_rect], 0.0)
         return (drive - r) / tau
 
     r0 = np.zeros(n) if r0 is None else np.asarray(r0, float)
@@ -496,7 +501,8 @@ def stability_summary(circuit, W, *, tau_ratio=None):
     ARPACK on the Jacobian operator above. With ``tau_ratio`` (the
     default tau_I / tau_E the commands use), ``why`` is one line on a
     stable W whose circuit is unstable there (:func:`instability_line`),
-    else None.
+    else None. A circuit of W's own neurons gets no scan: its stability at
+    the default ratio is recorded instead (``own_neurons``).
 
     >>> import numpy as np
     >>> from eidecomp.types import Circuit
@@ -509,6 +515,8 @@ def stability_summary(circuit, W, *, tau_ratio=None):
     """
     lo, hi, n_grid = STABILITY_SCAN
     a_orig = spectral_abscissa(np.asarray(W, dtype=float)) - 1.0
+    if circuit.own_neurons:
+        return _own_stability(circuit, W, a_orig, tau_ratio)
     known = {1.0: circuit_abscissa(circuit)}  # equal taus: on the scan's grid
     ratio = _stable_ratio(circuit, lo, hi, n_grid, 1e-3, "auto", 0, known)
     a_circ = known[1.0]
@@ -524,6 +532,35 @@ def stability_summary(circuit, W, *, tau_ratio=None):
             "note": f"tau_I / tau_E checked at {n_grid} ratios over "
                     f"[{lo:g}, {hi:g}], the crossing then narrowed to 0.1 %; "
                     "null means stable over the whole range"}
+
+
+def _own_stability(circuit, W, a_orig, tau_ratio):
+    """The stability summary of a circuit of W's own neurons: at equal time
+    constants its dynamics are W's; its inhibitory-to-inhibitory loops make
+    stability depend on tau_I / tau_E in both directions, so no largest
+    stable ratio is scanned, and the default ratio is checked directly."""
+    a_circ = circuit_abscissa(circuit)
+    n_total = circuit.n_excitatory + circuit.n_inhibitory
+    out = {"original_spectral_abscissa": a_orig,
+           "effective_spectral_abscissa": a_orig,
+           "circuit_spectral_abscissa_equal_taus": a_circ,
+           "eigenvalue_method": _method_name(n_total),
+           "own_neurons": True, "why": None,
+           "note": "a circuit of W's own neurons: at tau_I = tau_E its "
+                   "dynamics are W's; no largest stable tau_I / tau_E is "
+                   "scanned, since its inhibitory-to-inhibitory loops can be "
+                   "unstable for fast interneurons as well as slow ones"}
+    if tau_ratio is not None:
+        a_default = circuit_abscissa(circuit, tau_e=1.0, tau_i=tau_ratio)
+        out["circuit_spectral_abscissa_default_taus"] = a_default
+        if a_orig < 0 and not a_default < 0:
+            out["why"] = (f"W is stable, and so is this circuit of its own "
+                          f"neurons at tau_I = tau_E, but not at tau_I/tau_E "
+                          f"= {tau_ratio:.3g} (growth {a_default:.3g} per "
+                          "tau_E): the interneurons' loops need their own "
+                          "time constant; simulate with --tau-i equal to "
+                          "--tau-e")
+    return out
 
 
 def instability_line(a_orig, a_eff, max_ratio, tau_ratio, circuit):
@@ -649,6 +686,11 @@ def _refuse_unstable(circuit, a_orig, a_circ, g_star, tau_e, tau_i):
         raise InputError(f"the original network is unstable (growth rate "
                          f"{a_orig:.3g} per ms); its fixed point is never "
                          f"reached: {_gain_advice(g_star)}")
+    if not a_circ < 0 and circuit.own_neurons:
+        raise InputError(f"the circuit is unstable at tau_I/tau_E = "
+                         f"{tau_i / tau_e:g}; its units are W's own neurons, "
+                         "whose dynamics at equal time constants are W's "
+                         f"(stable): give --tau-i {tau_e:g}")
     if not a_circ < 0:
         lo, hi, n_grid = STABILITY_SCAN
         limit = max_stable_tau_ratio(circuit, lo=lo, hi=hi, n_grid=n_grid)
@@ -678,8 +720,10 @@ def _bounded_run(circuit, W, h, tau_e, tau_i, t_ms):
     """Threshold-linear runs of both networks: the final rates compared."""
     n_e, W_full = circuit.n_excitatory, circuit.signed_weights()
     H = circuit.full_drive(h)
+    # W's own neurons are all rectified, as in the original network
+    n_rect = W_full.shape[0] if circuit.own_neurons else n_e
     _, r = simulate(W_full, H, n_e=n_e, tau_e=tau_e, tau_i=tau_i, t_max=t_ms,
-                    nonlinearity="relu", t_eval=(t_ms,))
+                    nonlinearity="relu", t_eval=(t_ms,), rectified=n_rect)
     _, r0 = simulate(W, h, tau_e=tau_e, t_max=t_ms, nonlinearity="relu",
                      t_eval=(t_ms,))
     rates, orig = r[:, -1], r0[:, -1]
@@ -689,7 +733,7 @@ def _bounded_run(circuit, W, h, tau_e, tau_i, t_ms):
     tau = _taus(len(H), n_e, tau_e, tau_i)
     return {"circuit_vs_original": _relative(circuit.w_rates(rates), orig),
             "circuit_rate_of_change": _rate_of_change(W_full, H, tau, rates,
-                                                      n_e, True),
+                                                      n_rect, True),
             "original_rate_of_change": _rate_of_change(
                 W, h, np.full(len(h), float(tau_e)), orig, len(h), True)}
 

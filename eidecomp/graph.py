@@ -47,6 +47,8 @@ def neuron_graph(circuit, *, features=None, x=None, y=None, unit_ids=None,
     ``features``, ``x``, ``y`` and ``unit_ids`` (the unit table's names,
     kept as string data; by default the circuit's own) become attributes of
     the excitatory nodes.
+    A circuit of W's own neurons gives every node ``w_unit``, its row of W
+    (and of the unit table).
     ``interneurons`` is ``(features, positions)`` of the interneurons,
     untuned first (each may be None), as
     :func:`eidecomp.analysis.pool_features` derives them from their input
@@ -69,10 +71,13 @@ def neuron_graph(circuit, *, features=None, x=None, y=None, unit_ids=None,
     G = nx.DiGraph(convention="edges run pre -> post; weights are "
                    "nonnegative, the sign is the synapse kind")
     extras = {"feature": features, "x": x, "y": y}
+    offset = 0
     for pop in circuit.populations:
         for i in range(pop.size):
             attrs = {"population": pop.name, "kind": pop.kind,
                      "sign": pop.sign, "index": i}
+            if circuit.own_neurons:     # the row of W (and of the unit table)
+                attrs["w_unit"] = int(circuit.w_index[offset + i])
             if pop.kind == EXCITATORY:
                 for key, values in extras.items():
                     if values is not None:
@@ -82,6 +87,7 @@ def neuron_graph(circuit, *, features=None, x=None, y=None, unit_ids=None,
             else:
                 attrs.update(_derived(interneurons, circuit, pop.kind, i))
             G.add_node(node_name(pop.kind, i), **attrs)
+        offset += pop.size
     for b in BLOCKS:
         J = getattr(circuit, b.name)
         synapse = synapse_kind(b)

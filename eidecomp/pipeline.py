@@ -434,7 +434,8 @@ def _assemble_dense(config, out, progress, stage_progress, extra_files):
     check_bundle_output(out, CIRCUIT, force=config.force, inputs=inputs)
     W, dec, observed, source = _read_split_input(config)
     _check_square(W, config.input)
-    inhibitory_count(W.shape[0], DEFAULT_EI_RATIO if ratio is None else ratio)
+    if ratio is not None:   # None: 4:1, or W's own (checked by assemble)
+        inhibitory_count(W.shape[0], ratio)
     units = read_unit_table(config.units, W.shape[0], period=config.period,
                             position_unit=config.position_unit,
                             magnification=config.magnification)
@@ -638,8 +639,8 @@ def _read_drive(spec, n, seed):
         return dynamics.random_drive(n, seed)
     h = read_matrix(spec, square=False, what="drive").ravel()
     if h.size != n:
-        raise InputError(f"{spec}: drive has {h.size} values, the circuit has "
-                         f"{n} excitatory units")
+        raise InputError(f"{spec}: drive has {h.size} values; it needs one "
+                         f"per unit of W, {n}")
     return h, str(spec)
 
 

@@ -616,6 +616,11 @@ class Circuit:
             if len(index) != total or min(index, default=0) < 0:
                 raise ValueError(f"w_index must give one W unit (>= 0) for each "
                                  f"of the {total} units, got {len(index)}")
+            e = index[:self.n_excitatory]
+            if (set(index) != set(range(max(index, default=-1) + 1))
+                    or len(set(e)) != len(e) or set(e) & set(index[len(e):])):
+                raise ValueError("w_index must name every W unit at least once, "
+                                 "each E unit once, and no unit as both E and I")
             object.__setattr__(self, "w_index", index)
 
     def named(self, unit_ids=None):

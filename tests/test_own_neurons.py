@@ -207,3 +207,109 @@ def test_simulators_run_the_circuit_to_ws_fixed_point(engine):
     E = c.n_excitatory
     assert np.linalg.norm(full_rates[:E] - target[c.e_units()]) \
         < 1e-6 * np.linalg.norm(target)
+
+
+# --- small hand-made Dale matrices (worked by hand, eigenvalues by numpy) ---
+
+UNSTABLE_WHEN_FAST = np.array([[0.498, -0.005, -0.227, -3.379],
+                               [0.0, -0.07, -2.726, -0.679],
+                               [1.234, -0.617, -0.986, -1.713],
+                               [1.769, -1.315, -2.721, -0.004]])
+"""One E unit and three interneurons: W is stable (numpy's eigenvalues),
+so is the circuit at tau_I = tau_E, where its dynamics are W's, but its
+inhibitory loops grow at tau_I/tau_E = 0.5."""
+
+
+def _abscissa(c, tau_i):
+    M = c.signed_weights()
+    tau = np.r_[np.full(c.n_excitatory, 10.0), np.full(c.n_inhibitory, tau_i)]
+    return np.linalg.eigvals((M - np.eye(len(M))) / tau[:, None]).real.max()
+
+
+def test_stability_of_own_neurons_is_checked_where_it_is_used(tmp_path, capsys):
+    from eidecomp.cli import main
+    from eidecomp.dynamics import stability_summary
+
+    W = UNSTABLE_WHEN_FAST
+    assert np.linalg.eigvals(W).real.max() < 1
+    c = assemble(W)
+    assert c.own_neurons
+    assert _abscissa(c, 10.0) < 0 < _abscissa(c, 5.0)
+    s = stability_summary(c, W, tau_ratio=0.5)
+    assert s["circuit_spectral_abscissa_equal_taus"] < 0
+    assert s["circuit_spectral_abscissa_default_taus"] > 0
+    assert "--tau-i equal to --tau-e" in s["why"]
+    np.save(tmp_path / "w.npy", W)
+    assert main(["run", str(tmp_path / "w.npy"), "-o", str(tmp_path / "c"),
+                 "-q"]) == 0
+    out = capsys.readouterr().out
+    assert "unstable at every" not in out
+    assert "stable at tau_I = tau_E, unstable at the default" in out
+    # the advice the refusal gives works as printed
+    assert main(["simulate", str(tmp_path / "c"), "-q"]) == 2
+    assert "give --tau-i 10" in capsys.readouterr().err
+    assert main(["simulate", str(tmp_path / "c"), "--tau-i", "10", "-q"]) == 0
+
+
+def test_threshold_linear_rectifies_ws_own_interneurons_too():
+    # the original network rectifies every unit; so must the circuit of its
+    # own neurons, which is then the same network (reference: the same run
+    # of W itself by eidecomp.dynamics.simulate, checked elsewhere against
+    # solve_ivp's own tests)
+    W = np.array([[0.0, -1.0, 0.0], [0.5, 0.0, -2.0], [0.5, 0.0, 0.0]])
+    c = assemble(W)
+    out = compare_with_original(c, W, np.array([1.0, 0.2, 1.0]), tau_e=10.0,
+                                tau_i=10.0, model="threshold-linear")
+    assert out["circuit_vs_original"] < 1e-6
+
+
+def test_options_own_neurons_cannot_honour_fall_back_with_a_note():
+    W, _ = signed_connectome("WitvlietDataReader8")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        for kwargs, said in (({"alpha": 0.5}, "alpha or ee_support"),
+                             ({"ee_support": "any"}, "alpha or ee_support"),
+                             ({"untuned_share": 0.5}, "untuned share"),
+                             ({"decompose_kwargs": {"ignore_diagonal": True}},
+                              "entries left out")):
+            c = assemble(W, baselines=False, **kwargs)
+            assert not c.own_neurons, kwargs
+            assert any(said in note for note in c.report.notes), kwargs
+
+
+def test_division_counts_the_targets_w_has_not_solver_noise(tmp_path, capsys):
+    from eidecomp.cli import main
+
+    # 4 E units, 2 interneurons with one target each: 4:2 and 4:3 are out of
+    # reach by division (2 targets), 4:2 is W's own
+    W = np.zeros((6, 6))
+    W[:4, :4] = 0.2 * (np.ones((4, 4)) - np.eye(4))
+    W[4, 0] = W[5, 1] = 0.5
+    W[0, 4] = W[1, 5] = -0.7
+    np.save(tmp_path / "w.npy", W)
+    assert main(["run", str(tmp_path / "w.npy"), "-o", str(tmp_path / "c"),
+                 "-q", "--ei-ratio", "4:3"]) == 0
+    assert "only 2 targets" in capsys.readouterr().out
+    assert main(["run", str(tmp_path / "w.npy"), "-o", str(tmp_path / "d"),
+                 "-q"]) == 0
+    assert "this circuit is W itself" in capsys.readouterr().out
+
+
+def test_the_smallest_dale_w_on_the_command_line(tmp_path):
+    from eidecomp.cli import main
+
+    np.save(tmp_path / "w.npy", np.array([[0.0, -1.0], [1.0, 0.0]]))
+    assert main(["run", str(tmp_path / "w.npy"), "-o", str(tmp_path / "c"),
+                 "-q"]) == 0
+
+
+def test_w_index_must_name_each_unit_consistently():
+    from eidecomp.types import Circuit
+
+    blocks = dict(J_EE=np.zeros((1, 1)), J_EU=np.zeros((1, 1)),
+                  J_UE=np.zeros((1, 1)), J_ET=np.zeros((1, 0)),
+                  J_TE=np.zeros((0, 1)))
+    Circuit(**blocks, w_index=(1, 0))
+    for bad in ((0, 2), (0, 0), (0,)):
+        with pytest.raises(ValueError):
+            Circuit(**blocks, w_index=bad)

@@ -282,6 +282,11 @@ def _path_note(points, W):
 
 
 def _stability_text(st):
+    if st.get("own_neurons"):
+        why = f". {st['why']}" if st.get("why") else ""
+        return (f"spectral abscissa of -I + W: "
+                f"{_fmt(st.get('original_spectral_abscissa'), '.3g')}; "
+                f"{st.get('note', '')}{why}")
     if st.get("circuit_spectral_abscissa_equal_taus") is None:
         limit = "not computed"
     elif st.get("max_stable_tau_ratio") is None:

@@ -248,17 +248,21 @@ def connection_classes(circuit, W):
     """{class: (J[post, pre], post kind, pre kind)}: the circuit's five
     blocks (active interneurons only, :func:`active_by_kind`) and the
     positive and negative sides of the original W among the E units (all of
-    W's units, except in a circuit of W's own neurons)."""
+    W's units; for a circuit of W's own neurons, its E units, among which W
+    has no negative side: its inhibition is the I -> E classes)."""
     e = circuit.e_units()
     W = np.asarray(W, dtype=float)[np.ix_(e, e)]
     u, t = active_by_kind(circuit)
-    return {"E->E": (circuit.J_EE, "E", "E"),
-            "E->I_untuned": (circuit.J_UE[u], "U", "E"),
-            "I_untuned->E": (circuit.J_EU[:, u], "E", "U"),
-            "E->I_tuned": (circuit.J_TE[t], "T", "E"),
-            "I_tuned->E": (circuit.J_ET[:, t], "E", "T"),
-            "W positive": (np.maximum(W, 0.0), "E", "E"),
-            "W negative": (np.maximum(-W, 0.0), "E", "E")}
+    out = {"E->E": (circuit.J_EE, "E", "E"),
+           "E->I_untuned": (circuit.J_UE[u], "U", "E"),
+           "I_untuned->E": (circuit.J_EU[:, u], "E", "U"),
+           "E->I_tuned": (circuit.J_TE[t], "T", "E"),
+           "I_tuned->E": (circuit.J_ET[:, t], "E", "T"),
+           "W positive": (np.maximum(W, 0.0), "E", "E"),
+           "W negative": (np.maximum(-W, 0.0), "E", "E")}
+    if circuit.own_neurons:   # W's inhibition is its own neurons' (I -> E)
+        del out["W negative"]
+    return out
 
 
 def circuit_rules(circuit, W, *, features=None, positions=None, period=DEFAULT_PERIOD,

@@ -799,8 +799,15 @@ def assemble(W_or_dec, *, ei_ratio=None, untuned_share="auto",
         obeys, inhibitory = dale_columns(W, zero * scale)
         if obeys and inhibitory.any():
             why = ("every column is inhibitory, so W has no excitatory unit"
-                   if inhibitory.all()
-                   else why_not_own(W, inhibitory, ratio, untuned_share))
+                   if inhibitory.all() else
+                   "W was split with entries left out (a mask or "
+                   "--ignore-diagonal), so it is not known everywhere"
+                   if dec.observed is not None else
+                   "alpha or ee_support 'any' was given, options of the "
+                   "construction that adds interneurons"
+                   if alpha is not None or ee_support != DEFAULT_EE_SUPPORT
+                   else why_not_own(np.where(np.abs(W) > zero * scale, W, 0.0),
+                                    inhibitory, ratio, untuned_share))
             if why is None:
                 return _own_neurons(W, L, S, dec, inhibitory, ratio,
                                     zero * scale, ids, ee_support,
@@ -877,9 +884,9 @@ def assemble(W_or_dec, *, ei_ratio=None, untuned_share="auto",
         err = guard.error_after
         dens = float(np.count_nonzero(J_EE) / J_EE.size)
         if comparison:
-            comparison += (f"; compared before the stability guard, which "
-                           f"then raised this circuit's error to {err:.3g} "
-                           "(the baselines are not held to stability)")
+            comparison += (f"; compared before the stability guard, after "
+                           f"which this circuit's error is {err:.3g} (the "
+                           "baselines are not held to stability)")
     R = _residual(W, J_EE, A, B, n_u)
     diagonal = _diagonal_note(W, R, dec.observed, zero)
     del R

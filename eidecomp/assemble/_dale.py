@@ -11,7 +11,8 @@ neuron is untuned when the low-rank part L carries most of its inhibition
 tuned otherwise (our rule).
 
 An explicit E:I ratio that asks more interneurons than W has is met by
-dividing W's inhibitory neurons with the most targets (our rule): the
+dividing W's inhibitory neurons with the most targets, those W drives
+first (our rule): the
 copies of a neuron take the same inputs and share its targets (in W's
 order, in contiguous near-equal runs), so each has part of its output and
 the circuit still reproduces W exactly. Options the own neurons cannot
@@ -88,12 +89,16 @@ def why_not_own(W, inhibitory, ratio, untuned_share):
 def _copies(W, inhibitory_units, n_extra):
     """{W unit: number of copies} after ``n_extra`` divisions: one more
     copy at a time for the inhibitory neuron with the most targets per copy
-    (ties: the lower W index), never more copies than targets
-    (:func:`why_not_own` has checked that there are enough)."""
+    among those with fewer copies than targets, a neuron W gives input to
+    before one it gives none (whose copies would all be silent), ties to
+    the lower W index (:func:`why_not_own` has checked that there are
+    targets enough)."""
     targets = {int(j): int(np.count_nonzero(W[:, j])) for j in inhibitory_units}
+    driven = {j: bool(W[j].any()) for j in targets}
     copies = dict.fromkeys(targets, 1)
     for _ in range(n_extra):
-        j = max(targets, key=lambda u: (targets[u] / copies[u], -u))
+        j = max((u for u in targets if copies[u] < targets[u]),
+                key=lambda u: (driven[u], targets[u] / copies[u], -u))
         copies[j] += 1
     return copies
 

@@ -26,8 +26,9 @@ Eigenvalue Problem, ch. 2; from memory). The guard trades error for
 stability, and the report states both before and after.
 
 Every evaluation solves a dense eigenproblem with left and right vectors,
-so the guard runs up to GUARD_MAX_UNITS units (E and I); above, the report
-says it did not run and why the circuit is unstable.
+so the guard runs up to GUARD_MAX_UNITS units (E and I); above, it does not
+run, and the stability line says why the circuit is unstable
+(dynamics.instability_line).
 """
 
 import dataclasses
@@ -36,7 +37,7 @@ import numpy as np
 from scipy import linalg
 from scipy.optimize import minimize
 
-from ..params import STABILITY_MARGIN, TAU_E_MS, TAU_I_MS
+from ..params import MARGINAL_ABSCISSA, STABILITY_MARGIN, TAU_E_MS, TAU_I_MS
 from ..types import GuardResult
 from ._support import apply_floor
 
@@ -169,8 +170,9 @@ def guarded(W, J_EE, A, B, mask_a, mask_b, *, unit, start, tell=None):
     """The guard where it applies: W (units of max|W|, times ``unit`` in
     its own) stable, the refined circuit not stable at the default time
     constants, and at most GUARD_MAX_UNITS units in all. It runs from two
-    starts and keeps the stable end with the smaller error (either, when
-    neither is stable): the refined circuit itself, and ``start()``, the
+    starts and keeps the stable end with the smaller error (neither stable:
+    the refined circuit is kept, and the result says so): the refined
+    circuit itself, and ``start()``, the
     refinement with J_EE at most W's positive side, whose loops through the
     interneurons are weaker (the refined circuit ends closer where it is
     nearly stable; the capped start ends stable where it is far from it:
@@ -182,7 +184,7 @@ def guarded(W, J_EE, A, B, mask_a, mask_b, *, unit, start, tell=None):
         return J_EE, A, B, None
     w_abscissa = unit * float(np.linalg.eigvals(W).real.max()) - 1.0
     before = abscissa(J_EE, A, B, unit)
-    if not w_abscissa < 0 or before < 0:
+    if not w_abscissa < -MARGINAL_ABSCISSA or before < 0:
         return J_EE, A, B, None
     error = float(np.linalg.norm(W - J_EE + A @ B)
                   / max(np.linalg.norm(W), 1e-300))
@@ -194,10 +196,13 @@ def guarded(W, J_EE, A, B, mask_a, mask_b, *, unit, start, tell=None):
         out = guard(W, *blocks(), mask_a, mask_b, unit=unit,
                     margin=guard_margin())
         evaluations += out[3].evaluations
-        key = (not out[3].stable, out[3].error_after)
-        if best is None or key < best[0]:
-            best = key, out
-    J, Af, Bf, result = best[1]
+        if out[3].stable and (best is None
+                              or out[3].error_after < best[3].error_after):
+            best = out
+    if best is None:      # neither start ended stable: the closest fit stays
+        return J_EE, A, B, GuardResult(error, error, before, before, False,
+                                       evaluations)
+    J, Af, Bf, result = best
     return J, Af, Bf, dataclasses.replace(
         result, error_before=error, abscissa_before=before,
         evaluations=evaluations)
