@@ -28,6 +28,7 @@ from .params import (
     excitation_line,
     guard_line,
     labels_caveat,
+    own_stability_line,
     resolve_tol,
 )
 
@@ -484,7 +485,7 @@ def _circuit_table(result):
     if st.get("circuit_spectral_abscissa_equal_taus") is None:
         lines.append(f"stability: {st['note']}")
     elif st.get("own_neurons"):
-        lines.append(_own_stability_line(st))
+        lines.append(own_stability_line(st))
     elif ratio == 0.0:
         lines.append("stability: unstable at every tau_I/tau_E (spectral "
                      "abscissa of -I + W is "
@@ -516,18 +517,6 @@ def _circuit_table(result):
         lines.append("refinement converged: NO")
     lines.append(f"written to {result.output}")
     return "\n".join(lines)
-
-
-def _own_stability_line(st):
-    """Stability of a circuit of W's own neurons: at equal time constants
-    (W's own dynamics) and at the default ratio."""
-    def said(a):
-        return "stable" if a is not None and a < 0 else "unstable"
-
-    equal = said(st.get("circuit_spectral_abscissa_equal_taus"))
-    default = said(st.get("circuit_spectral_abscissa_default_taus"))
-    return (f"stability (W's own neurons): {equal} at tau_I = tau_E, "
-            f"{default} at the default tau_I/tau_E {TAU_I_MS / TAU_E_MS:g}")
 
 
 def _tiled_line(result):

@@ -34,6 +34,7 @@ __all__ = [
     "silent_pool",
     "excitation_line",
     "guard_line",
+    "own_stability_line",
     "labels_caveat",
     "GAP_TOL",
     "MAX_ITER",
@@ -380,6 +381,26 @@ def guard_line(metrics):
             f"{g['error_after']:.3g} in making the circuit stable at "
             f"tau_I/tau_E {ratio} (rightmost eigenvalue "
             f"{g['abscissa_before']:.3g} -> {g['abscissa_after']:.3g} per ms)")
+
+
+def own_stability_line(stability):
+    """Stability of a circuit of W's own neurons (circuit.json's stability
+    section), at equal time constants (W's own dynamics) and at the
+    default ratio, for the command's summary and the report.
+
+    >>> print(own_stability_line({"circuit_spectral_abscissa_equal_taus": -0.1,
+    ...                           "circuit_spectral_abscissa_default_taus": 0.2}))
+    ... # doctest: +NORMALIZE_WHITESPACE
+    stability (W's own neurons): stable at tau_I = tau_E, unstable at the
+    default tau_I/tau_E 0.5
+    """
+    def said(a):
+        return "stable" if a is not None and a < 0 else "unstable"
+
+    equal = said(stability.get("circuit_spectral_abscissa_equal_taus"))
+    default = said(stability.get("circuit_spectral_abscissa_default_taus"))
+    return (f"stability (W's own neurons): {equal} at tau_I = tau_E, "
+            f"{default} at the default tau_I/tau_E {TAU_I_MS / TAU_E_MS:g}")
 
 
 def silent_pool(pool):

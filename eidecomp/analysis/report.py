@@ -26,6 +26,7 @@ from ..params import (
     excitation_line,
     guard_line,
     labels_caveat,
+    own_stability_line,
 )
 from ..progress import announcer
 from ..types import TUNED, UNTUNED
@@ -286,7 +287,7 @@ def _stability_text(st):
         why = f". {st['why']}" if st.get("why") else ""
         return (f"spectral abscissa of -I + W: "
                 f"{_fmt(st.get('original_spectral_abscissa'), '.3g')}; "
-                f"{st.get('note', '')}{why}")
+                f"{own_stability_line(st)}{why}")
     if st.get("circuit_spectral_abscissa_equal_taus") is None:
         limit = "not computed"
     elif st.get("max_stable_tau_ratio") is None:

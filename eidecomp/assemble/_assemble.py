@@ -64,7 +64,7 @@ from ._baselines import (
 )
 from ._baselines import baselines as score_baselines
 from ._counts import inhibitory_count, split_counts
-from ._dale import own_circuit, own_report, why_not_own
+from ._dale import dale_head, own_circuit, own_report, why_not_own
 from ._nmf import EXACT_SVD_MAX, Factored, hals, leading_svd, nndsvd
 from ._split_hals import (
     DENSE_TUNED_SHARE,
@@ -213,8 +213,7 @@ def _dale_note(W, zero, why):
     if not obeys or not k:
         return ()
     n = W.shape[0]
-    return (f"W already obeys Dale's law: every column is one sign, with {k} "
-            f"inhibitory neurons of {n} (E:I {(n - k) / k:.3g}:1). Its own "
+    return (f"{dale_head(n, k)} Its own "
             f"inhibitory neurons are not the interneurons here ({why}): this "
             "circuit treats all of W's units as excitatory and adds "
             "interneurons",)

@@ -34,6 +34,17 @@ OWN_RULE = ("W's own inhibitory neurons: untuned where the low-rank part "
             "part does")
 
 
+def dale_head(n, n_i):
+    """The sentence every note on a W that obeys Dale's law starts with.
+
+    >>> dale_head(302, 33)[-47:]
+    'with 33 inhibitory neurons of 302 (E:I 269:33).'
+    """
+    ratio = own_ratio(n - n_i, n_i).text if n > n_i else f"0:{n_i}"
+    return (f"W already obeys Dale's law: every column is one sign, with "
+            f"{n_i} inhibitory neurons of {n} (E:I {ratio}).")
+
+
 def own_ratio(n_e, n_i):
     """W's own E:I ratio, as an EIRatio ("269:33")."""
     return EIRatio.parse(f"{n_e}:{n_i}")
@@ -149,9 +160,7 @@ def own_circuit(W, L, S, inhibitory, ratio, zero):
         blocks[name] = block.copy() if pre == "E" else -block
     for block in blocks.values():
         np.maximum(block, 0.0, out=block)   # 0 where -0.0 came from a sign flip
-    notes = [f"W already obeys Dale's law: every column is one sign, with "
-             f"{n_own} inhibitory neurons of {n} (E:I "
-             f"{own_ratio(n_e, n_own).text}). They are the circuit's "
+    notes = [f"{dale_head(n, n_own)} They are the circuit's "
              f"interneurons ({int(untuned.sum())} untuned, "
              f"{int((~untuned).sum())} tuned by the split), with the "
              f"{int(np.count_nonzero(W[np.ix_(inh, inh)]))} inhibitory-to-"
