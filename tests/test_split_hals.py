@@ -187,3 +187,58 @@ def test_converged_factors_meet_the_kkt_conditions(as_sparse):
     assert gB[B == 0].min() >= -1e-5 * scale
     direct = 0.5 * np.linalg.norm(M - A @ B) ** 2 + l1 * (A.sum() + B.sum())
     assert objective_split(Mx, A, B, 0, l1) == pytest.approx(direct, rel=1e-10)
+
+
+def _dense_pools(seed, m=60, k=12, n_u=2):
+    """Tuned components whose pools hold every unit, as interneurons started
+    again on a dense residual do: the case the cost model sends to the
+    dense sweep."""
+    rng = np.random.default_rng(seed)
+    M = rng.random((m, m))
+    return M, rng.random((m, k)), rng.random((k, m)), n_u
+
+
+def test_the_cost_model_sends_dense_pools_to_plain_hals():
+    """With ``by_cost`` a sweep over dense tuned pools is plain HALS in
+    index order (the reference sweep written out here, no l1: the dense
+    sweep weighs every component alike), and one over ring pools keeps the
+    class order of the sparse path."""
+    M, A0, B0, n_u = _dense_pools(3)
+    assert split.dense_pays(A0, B0, n_u)
+    A1, B1, A2, B2 = A0.copy(), B0.copy(), A0.copy(), B0.copy()
+    order = np.arange(A0.shape[1])
+    for _ in range(5):
+        sweep_split(M, A2, B2, n_u, by_cost=True)
+        _reference_sweep(M, A1, B1, n_u, 0.0, None, None, order, order)
+    assert np.abs(A1 - A2).max() <= 1e-12
+    assert np.abs(B1 - B2).max() <= 1e-12
+
+
+def _ring_pools(seed, m=600, k=150, n_u=2):
+    """Tuned pools of 8 neighbours on a ring, as planted sheets have."""
+    rng = np.random.default_rng(seed)
+    A, B = np.zeros((m, k)), np.zeros((k, m))
+    A[:, :n_u], B[:n_u] = rng.random((m, n_u)), rng.random((n_u, m))
+    for t in range(n_u, k):
+        A[(4 * t + np.arange(8)) % m, t] = rng.uniform(0.5, 1.5, 8)
+        B[t, (4 * t + 300 + np.arange(8)) % m] = rng.uniform(0.5, 1.5, 8)
+    return A, B, n_u
+
+
+def test_the_cost_model_keeps_ring_pools_sparse():
+    rng = np.random.default_rng(4)
+    A, B, n_u = _ring_pools(4)
+    m, k = A.shape
+    assert not split.dense_pays(A, B, n_u)
+    A[:, n_u:] = rng.random((m, k - n_u))       # the same sizes, pools dense
+    assert split.dense_pays(A, B, n_u)
+
+
+@pytest.mark.parametrize("dense", [False, True])
+def test_paths_is_the_product_numpy(dense):
+    """A B from paths, on either of its routes (sparse tuned product added
+    to the untuned one, or one BLAS call for dense tuned parts), against
+    numpy's product."""
+    A, B, n_u = _dense_pools(6)[1:] if dense else _ring_pools(6)
+    assert split.dense_pays(A, B, n_u) == dense   # the route under test
+    np.testing.assert_allclose(paths(A, B, n_u), A @ B, rtol=0, atol=1e-12)

@@ -67,7 +67,6 @@ from ._counts import inhibitory_count, split_counts
 from ._dale import dale_head, own_circuit, own_report, why_not_own
 from ._nmf import EXACT_SVD_MAX, Factored, hals, leading_svd, nndsvd
 from ._split_hals import (
-    DENSE_TUNED_SHARE,
     SPARSE_MIN_UNITS,
     hals_split,
     objective_split,
@@ -362,7 +361,7 @@ def _descend(W, A, B, n_u, masks, alpha, ee_support, max_iter, tol,
         J_EE = _excitation(W, A, B, n_u, alpha, ee_support, parts, out=J_EE,
                            cap=cap)
         J_EE -= W                        # the sweep fits J_EE - W ~ A B
-        parts = sweep_split(J_EE, A, B, n_u, dense_share=DENSE_TUNED_SHARE,
+        parts = sweep_split(J_EE, A, B, n_u, by_cost=True,
                             mask_a=masks[0],
                             mask_b=masks[1], A_sp=parts[0], B_sp=parts[1],
                             cache=cache)
@@ -458,7 +457,7 @@ def _tuned_fit(M_t, M_sp, A_t, B_t, l1, max_iter, tell):
     the swap search (up to SWAP_MAX_UNITS). Returns A_t, B_t and the number
     of pools started again."""
     A_t, B_t, _ = hals_split(M_sp, A_t, B_t, 0, l1=l1, max_iter=max_iter,
-                             tol=1e-6, dense_share=DENSE_TUNED_SHARE)
+                             tol=1e-6, by_cost=True)
     restarted = 0
     for _ in range(RESTART_ROUNDS):  # the l1 term can empty a pool: start it
         dead = inactive(A_t, B_t)    # again on the largest piece left
@@ -468,14 +467,14 @@ def _tuned_fit(M_t, M_sp, A_t, B_t, l1, max_iter, tell):
             break
         restarted += len(started)
         A_t, B_t, _ = hals_split(M_sp, A_t, B_t, 0, l1=l1, max_iter=max_iter,
-                                 tol=1e-6, dense_share=DENSE_TUNED_SHARE)
+                                 tol=1e-6, by_cost=True)
     if max(M_t.shape) <= SWAP_MAX_UNITS and A_t.shape[1] > 1:
         tell("tuned factorisation: swaps")
         A_t, B_t, _ = swap_search(
             M_t, A_t, B_t,
             lambda a, b: hals_split(M_sp, a, b, 0, l1=l1,
                                     max_iter=SWAP_SWEEPS, tol=1e-6,
-                                    dense_share=DENSE_TUNED_SHARE)[:2],
+                                    by_cost=True)[:2],
             lambda a, b: objective_split(M_sp, a, b, 0, l1), l1=l1)
     return A_t, B_t, restarted
 

@@ -88,6 +88,7 @@ class Factored:
     def __init__(self, P, Q):
         self.P, self.Q = np.asarray(P, dtype=float), np.asarray(Q, dtype=float)
         self.shape = (self.P.shape[0], self.Q.shape[1])
+        self._norm2 = None
 
     def times_t(self, B):
         """M B^T."""
@@ -98,8 +99,10 @@ class Factored:
         return (A.T @ self.P) @ self.Q
 
     def norm2(self):
-        """||M||_F^2 = trace(P^T P Q Q^T)."""
-        return float(np.vdot(self.P.T @ self.P, self.Q @ self.Q.T))
+        """||M||_F^2 = trace(P^T P Q Q^T), computed once."""
+        if self._norm2 is None:
+            self._norm2 = float(np.vdot(self.P.T @ self.P, self.Q @ self.Q.T))
+        return self._norm2
 
 
 def _times_t(M, B):

@@ -23,21 +23,29 @@ from scipy import sparse
 from ._nmf import _DEAD_RTOL, sweep
 
 SPARSE_MIN_UNITS = 500
-"""Below this many units a sweep takes the dense path (_nmf.sweep), whose
-iterates are the same to rounding: scipy.sparse's fixed cost per call
-(tens of microseconds) is more than the dense products there."""
+"""Below this many units a sweep takes the dense path (_nmf.sweep), the same
+exact updates in index order: scipy.sparse's fixed cost per call (tens of
+microseconds) is more than the dense products there."""
 
-DENSE_TUNED_SHARE = 0.25
-"""The assembler's sweeps also take the dense path when the tuned factors
-hold at least this share of nonzero entries: interneurons started again on a dense
-residual (the lateral weights of a 512-atom sparse-coding dictionary) have
-pools of up to every unit, and the sparse path's colour classes then hold
-one component each (500 debiasing sweeps at 512 units: 139 s on the
-sparse path, 99 s on the dense one, OPENBLAS_NUM_THREADS=1)."""
+SWEEP_COST_NS = {"multiply-add": 0.15, "pair": 50.0, "class": 100_000.0,
+                 "untuned": 60_000.0, "entry": 0.5}
+"""The assembler's cost model of one sweep, in nanoseconds per unit of
+work, measured on the project's 2-core machine (OPENBLAS_NUM_THREADS=2)
+from sweeps timed on both paths at the same factors (planted sheets of 800
+and 2,000 units, the lateral weights of a 512-atom sparse-coding
+dictionary; 978 sweeps, the path with the smaller sum the faster one in
+every case): a multiply-add of the dense sweep's BLAS products (m n k of
+them); an (entry, overlapping component) pair of the sparse path's tuned
+updates; a colour class (its numpy calls); an untuned component of the
+sparse path (its scipy.sparse products); a (row, nonzero) of the products
+of M with the sparse factors. Only the comparison of the two sums is used,
+and it is lopsided where it matters (planted sheets: the sparse path 3x to
+15x cheaper; dense restarted pools: the dense one 2x to 30x cheaper), so
+the constants need only their order of magnitude on another machine."""
 
-__all__ = ["DENSE_TUNED_SHARE", "SPARSE_MIN_UNITS", "colouring", "hals_split",
-           "objective_split", "paths", "sweep_split", "tuned_parts",
-           "update_order"]
+__all__ = ["SPARSE_MIN_UNITS", "SWEEP_COST_NS", "colouring", "dense_pays",
+           "hals_split", "objective_split", "paths", "sweep_split",
+           "tuned_parts", "update_order"]
 
 
 
@@ -263,7 +271,7 @@ def tuned_parts(A, B, n_u):
 
 
 def sweep_split(M, A, B, n_u, *, l1=0.0, mask_a=None, mask_b=None, B_sp=None,
-                A_sp=None, cache=None, dense_share=None):
+                A_sp=None, cache=None, by_cost=False):
     """One HALS sweep in place over dense untuned (first ``n_u``) and sparse
     tuned components, minimising 0.5 ||M - A B||_F^2 + l1 (sum of the tuned
     factors): every column of A, then every row of B, each the exact
@@ -276,6 +284,11 @@ def sweep_split(M, A, B, n_u, *, l1=0.0, mask_a=None, mask_b=None, B_sp=None,
     colourings used). ``A_sp``, ``B_sp``
     are the tuned parts when the caller has them (the previous sweep returns
     them); ``cache`` (a dict) keeps the colourings from sweep to sweep.
+    Below SPARSE_MIN_UNITS units, and with ``by_cost`` wherever
+    :func:`dense_pays`, the sweep is the dense one (:func:`_nmf.sweep`):
+    the same exact updates, the tuned components in index order instead
+    of class order (so the iterates differ; not with an l1 weight and
+    untuned components: it would weigh them too).
     Returns the tuned parts (A_sp, B_sp) after the sweep.
 
     Examples
@@ -293,11 +306,10 @@ def sweep_split(M, A, B, n_u, *, l1=0.0, mask_a=None, mask_b=None, B_sp=None,
     if A.shape[1] == 0:
         return tuned_parts(A, B, n_u)
     cache = {} if cache is None else cache
-    if (max(A.shape[0], B.shape[1]) < SPARSE_MIN_UNITS
-            or (dense_share is not None
-                and _dense_share(A, B, n_u) >= dense_share)) \
-            and not (n_u and l1):
-        # small: the dense sweep is the same computation at less overhead
+    if not (n_u and l1) and (
+            max(A.shape[0], B.shape[1]) < SPARSE_MIN_UNITS
+            or (by_cost and dense_pays(A, B, n_u, (A_sp, B_sp)))):
+        # the dense sweep is the same computation at less overhead
         cache["loss"] = sweep(M.toarray() if _is_sparse(M) else M, A, B,
                               l1_a=l1, l1_b=l1, mask_a=mask_a, mask_b=mask_b)
         cache.pop("a", None), cache.pop("b", None)
@@ -325,12 +337,42 @@ def sweep_split(M, A, B, n_u, *, l1=0.0, mask_a=None, mask_b=None, B_sp=None,
     return A_sp, B_sp
 
 
-def _dense_share(A, B, n_u):
-    """The share of nonzero entries in the tuned factors."""
-    size = A[:, n_u:].size + B[n_u:].size
-    if not size:
-        return 0.0
-    return (np.count_nonzero(A[:, n_u:]) + np.count_nonzero(B[n_u:])) / size
+def dense_pays(A, B, n_u, parts=(None, None)):
+    """Whether a dense sweep over A (m x k), B (k x n) costs less than the
+    sparse path by :data:`SWEEP_COST_NS`: m n k multiply-adds against the
+    untuned products, the (entry, overlapping component) pairs of the
+    tuned updates, a bound on the colour classes (the largest overlap
+    degree, itself included) and the products with the sparse factors.
+    ``parts``: the tuned parts (A_sp, B_sp) when the caller has them.
+
+    >>> rng = np.random.default_rng(0)
+    >>> A = rng.random((600, 150)); B = rng.random((150, 600))
+    >>> dense_pays(A, B, 0)                       # every pool is every unit
+    True
+    >>> A[:, 1:] *= np.arange(600)[:, None] // 4 == np.arange(149)  # 4 each
+    >>> B[1:] *= np.arange(600)[None, :] // 4 == np.arange(149)[:, None]
+    >>> dense_pays(A, B, 1)
+    False
+    """
+    m, k = A.shape
+    n = B.shape[1]
+    if k == n_u:
+        return True                      # no tuned part: the same products
+    A_sp = sparse.csc_matrix(A[:, n_u:]) if parts[0] is None else parts[0]
+    B_sp = sparse.csr_matrix(B[n_u:]) if parts[1] is None else parts[1]
+    pattern = [X.astype(bool).astype(np.float64) for X in (A_sp, B_sp)]
+    deg_b = np.diff(sparse.csr_matrix(pattern[1] @ pattern[1].T).indptr)
+    deg_a = np.diff(sparse.csr_matrix(pattern[0].T @ pattern[0]).indptr)
+    pairs = float(np.diff(A_sp.indptr) @ deg_b
+                  + np.diff(B_sp.indptr) @ deg_a)
+    ns = SWEEP_COST_NS
+    dense = ns["multiply-add"] * m * n * k
+    sparse_cost = (ns["multiply-add"] * m * n * n_u + ns["untuned"] * n_u
+                   + ns["pair"] * pairs
+                   + ns["class"] * (deg_a.max(initial=0)
+                                    + deg_b.max(initial=0))
+                   + ns["entry"] * (m * B_sp.nnz + n * A_sp.nnz))
+    return bool(dense < sparse_cost)
 
 
 def update_order(colour):
@@ -373,11 +415,19 @@ def _balance(A, B, n_u, l1, parts):
 
 def paths(A, B, n_u, parts=None, out=None):
     """A B as a dense array: the untuned part by BLAS, the tuned part as a
-    scipy.sparse product added in place (``parts``: the tuned parts, when
-    the caller has them; ``out``: an array to write into)."""
+    scipy.sparse product added in place, or all of it by BLAS when the
+    tuned parts are dense enough that it costs less (SWEEP_COST_NS: a
+    multiply-add of BLAS against a product of two nonzeros); ``parts``: the
+    tuned parts, when the caller has them; ``out``: an array to write
+    into."""
     A_sp, B_sp = tuned_parts(A, B, n_u) if parts is None else parts
     if out is None:
         out = np.empty((A.shape[0], B.shape[1]))
+    ns = SWEEP_COST_NS
+    products = float(np.diff(A_sp.indptr) @ np.diff(B_sp.indptr))
+    if ns["multiply-add"] * A.shape[0] * B.shape[1] * A_sp.shape[1] \
+            < ns["pair"] * products:     # dense tuned parts: one BLAS call
+        return np.matmul(A, B, out=out)
     P = np.matmul(A[:, :n_u], B[:n_u], out=out)
     T = (A_sp @ B_sp).tocoo()
     P[T.row, T.col] += T.data
@@ -404,12 +454,12 @@ def objective_split(M, A, B, n_u, l1=0.0, m_norm2=None, parts=None):
 
 
 def hals_split(M, A, B, n_u, *, l1=0.0, mask_a=None, mask_b=None,
-               max_iter=500, tol=1e-7, scale=None, dense_share=None):
+               max_iter=500, tol=1e-7, scale=None, by_cost=False):
     """:func:`eidecomp.assemble._nmf.hals` with dense untuned and sparse
     tuned components (l1 on the tuned ones only); M dense or scipy.sparse.
     It stops when a sweep lowers the objective by less than ``tol`` times
-    ``scale`` (by default the objective at the start); ``dense_share`` as
-    in :func:`sweep_split`.
+    ``scale`` (by default the objective at the start); ``by_cost`` as in
+    :func:`sweep_split`.
     Returns A, B (copies) and the same ``info``."""
     A = np.array(A, dtype=float, copy=True, order="F")  # columns contiguous
     B = np.array(B, dtype=float, copy=True)
@@ -421,7 +471,7 @@ def hals_split(M, A, B, n_u, *, l1=0.0, mask_a=None, mask_b=None,
     while not converged and len(history) <= max_iter:
         parts = sweep_split(M, A, B, n_u, l1=l1, mask_a=mask_a, mask_b=mask_b,
                             A_sp=parts[0], B_sp=parts[1], cache=cache,
-                            dense_share=dense_share)
+                            by_cost=by_cost)
         loss = cache.pop("loss", None)
         history.append(objective_split(M, A, B, n_u, l1, m2, parts)
                        if loss is None
