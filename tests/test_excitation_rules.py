@@ -155,14 +155,39 @@ def test_the_swap_search_beats_scikit_learns_nmf_on_merged_pools():
     assert after <= objective(P, model.components_)
 
 
+def test_a_pool_fitted_twice_is_a_swap_candidate_scipy():
+    """Ring pools of 8 inputs and 8 targets, one of them fitted by two
+    components that divide its inputs and share its targets: those two
+    share the most of their pools (cosines written out with
+    scipy.spatial.distance.cosine, a brute-force loop over the pairs) and
+    come first among the shared-pool candidates."""
+    from scipy.spatial.distance import cosine
+
+    m, k = 80, 10
+    A, B = np.zeros((m, k)), np.zeros((k, m))
+    for t in range(k - 1):
+        A[4 * t + np.arange(8), t] = 1.0
+        B[t, (4 * t + 40 + np.arange(8)) % m] = 1.0
+    A[[4, 5, 6, 7], 1], A[[8, 9, 10, 11], 1] = 1.0, 0.0   # pool 1: half its
+    A[[8, 9, 10, 11], 9], B[9] = 1.0, B[1]               # inputs, twice
+    twins = sup._twins(A, B)
+    reference = [max(1 - min(cosine(A[:, i], A[:, j]),
+                             cosine(B[i], B[j])) for j in range(k) if j != i)
+                 for i in range(k)]
+    np.testing.assert_allclose(twins, reference, atol=1e-12)
+    assert set(np.argsort(-twins, kind="stable")[:2]) == {1, 9}
+
+
 def test_baseline_d_is_scikit_learns_nmf_with_its_kkt_residual():
     rng = np.random.default_rng(2)
     M = rng.random((40, 6)) @ rng.random((6, 40))
     bl = import_module("eidecomp.assemble._baselines")
-    A, B, converged, kkt = bl.plain_factorisation(M, 6)
+    A, B, converged, kkt, sweeps = bl.plain_factorisation(M, 6)
+    # the chunks are one scikit-learn run: the same product as NMF run
+    # continuously for as many sweeps with its own stop switched off
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        model = NMF(6, solver="cd", init="nndsvda", tol=1e-4, max_iter=5000,
+        model = NMF(6, solver="cd", init="nndsvda", tol=0.0, max_iter=sweeps,
                     random_state=0)
         P = model.fit_transform(M)
     np.testing.assert_allclose(A @ B, P @ model.components_, atol=1e-12)
@@ -172,6 +197,30 @@ def test_baseline_d_is_scikit_learns_nmf_with_its_kkt_residual():
     pg = np.where(A > 0, gA, np.minimum(gA, 0))
     assert kkt >= np.linalg.norm(pg) / np.linalg.norm(M @ B.T) - 1e-15
     assert converged == (kkt <= bl.NMF_KKT_TOL)
+
+
+def test_baseline_d_stops_where_its_error_stalls_scikit_learn():
+    """The measured stop: on a matrix with no exact factorisation the chunks
+    end once the error falls by less than NMF_STALL of itself over one (the
+    error one chunk earlier, from scikit-learn's NMF run continuously for
+    that many sweeps), with the KKT residual at most NMF_KKT_TOL."""
+    bl = import_module("eidecomp.assemble._baselines")
+    M = np.random.default_rng(5).random((60, 60))
+    fit = bl.plain_factorisation(M, 8)
+    assert fit.sweeps < bl.NMF_MAX_ITER and fit.converged
+
+    def error(sweeps):
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            model = NMF(8, solver="cd", init="nndsvda", tol=0.0,
+                        max_iter=sweeps, random_state=0)
+            P = model.fit_transform(M)
+        return np.linalg.norm(M - P @ model.components_)
+
+    last, before = error(fit.sweeps), error(fit.sweeps - bl.NMF_CHUNK)
+    assert last == pytest.approx(np.linalg.norm(M - fit.A @ fit.B), rel=1e-12)
+    assert before - last <= bl.NMF_STALL * before
+    assert fit.kkt <= bl.NMF_KKT_TOL
 
 
 def _two_unit_circuit(j_ee, j_ei, j_ie):

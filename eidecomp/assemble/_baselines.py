@@ -5,18 +5,21 @@
 (c) dropping the negative weights: no interneurons;
 (d) a plain nonnegative factorisation of the negative side of W with the
     circuit's n_I, without the low-rank/sparse split: scikit-learn's NMF
-    (coordinate descent, NNDSVDa start, tolerance NMF_TOL, up to
-    NMF_MAX_ITER sweeps), with its convergence and KKT residual reported.
+    (coordinate descent, NNDSVDa start, in chunks of NMF_CHUNK sweeps until
+    the measured stop of :func:`plain_factorisation`, up to NMF_MAX_ITER
+    sweeps), with its convergence and KKT residual reported.
 (b) and (d) are also scored at the circuit's operating point: (b) with its
 smallest excitatory weights pruned until its error equals the circuit's, and
 (d) with J_EE pruned to the circuit's density.
 """
 
+from typing import NamedTuple
+
 import numpy as np
 
 from ..types import BaselineResult
 
-__all__ = ["baselines", "kkt_residual", "plain_factorisation"]
+__all__ = ["PlainFit", "baselines", "kkt_residual", "plain_factorisation"]
 
 
 def _rel(W, W_eff):
@@ -115,9 +118,26 @@ with N / 4 components costs about N^3 / 2 per sweep (hours at 10,000
 units), and the report says so."""
 
 
-NMF_TOL = 1e-4        # scikit-learn's own default tolerance
 NMF_MAX_ITER = 5000   # sweeps; a baseline stopped here says so
 NMF_KKT_TOL = 1e-3    # a relative KKT residual above this is not converged
+NMF_CHUNK = 100       # sweeps between two checks of the measured stop
+NMF_STALL = 1e-4      # ... which needs the error to fall by less than this
+                      # share of itself over a chunk (its KKT residual at
+                      # most NMF_KKT_TOL too): on the lateral weights of a
+                      # 512-atom sparse-coding dictionary (128 components)
+                      # scikit-learn's own stop (tol 1e-4) is not met in
+                      # 5,000 sweeps, 45 s, while the error is within 0.02 %
+                      # of its 3,000-sweep value after 1,800
+
+
+class PlainFit(NamedTuple):
+    """Baseline (d)'s factorisation M ~ A B and how it stopped."""
+
+    A: np.ndarray
+    B: np.ndarray
+    converged: bool
+    kkt: float
+    sweeps: int
 
 
 def kkt_residual(M, A, B):
@@ -140,13 +160,19 @@ def kkt_residual(M, A, B):
 
 
 def plain_factorisation(M, k, seed=0, max_iter=None):
-    """(A, B, converged, KKT residual) of M >= 0 ~ A B with k components:
-    scikit-learn's NMF, solver "cd", init "nndsvda" (a seeded random start
-    where NNDSVD is undefined), tol NMF_TOL, at most NMF_MAX_ITER sweeps.
-    Converged means its KKT residual is at most NMF_KKT_TOL, the measured
-    criterion: on an exactly factorisable M (a connectome's inhibitory
-    columns) scikit-learn's own stop, relative to its first sweep's
-    progress, is never met though the residual is at rounding level."""
+    """Baseline (d)'s factorisation M >= 0 ~ A B with k components, a
+    :class:`PlainFit`: scikit-learn's NMF, solver "cd", init "nndsvda" (a
+    seeded random start where NNDSVD is undefined), run NMF_CHUNK sweeps at
+    a time, each chunk started from the last (init "custom": the same
+    iterates as one run, scikit-learn's own stop switched off), until the
+    measured stop: its KKT residual (:func:`kkt_residual`) at most
+    NMF_KKT_TOL and ||M - A B||_F lowered by less than NMF_STALL of itself
+    over the chunk; at most ``max_iter`` sweeps (default NMF_MAX_ITER).
+    Converged means the KKT residual is at most NMF_KKT_TOL. On an exactly
+    factorisable M (a connectome's inhibitory columns) the error falls
+    linearly to rounding level before it stalls; scikit-learn's own stop,
+    relative to its first sweep's progress, is never met there, and on
+    natural-statistics matrices not within 5,000 sweeps."""
     import warnings
 
     from sklearn.decomposition import NMF
@@ -154,27 +180,39 @@ def plain_factorisation(M, k, seed=0, max_iter=None):
 
     if k == 0 or not M.any():
         A, B = np.zeros((M.shape[0], k)), np.zeros((k, M.shape[1]))
-        return A, B, True, 0.0
-    def fit_plain(init):
-        model = NMF(n_components=k, solver="cd", init=init, tol=NMF_TOL,
-                    max_iter=NMF_MAX_ITER if max_iter is None else max_iter,
-                    random_state=seed)
+        return PlainFit(A, B, True, 0.0, 0)
+    budget = NMF_MAX_ITER if max_iter is None else max_iter
+
+    def fit_plain(init, sweeps, start=None):
+        model = NMF(n_components=k, solver="cd", init=init, tol=0.0,
+                    max_iter=sweeps, random_state=seed)
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", SkConvergence)
-            return model.fit_transform(M), model
+            if start is None:
+                return model.fit_transform(M), model
+            return model.fit_transform(M, W=start[0], H=start[1]), model
 
-    def fit(init):
+    def first(init):
         with np.errstate(divide="raise", invalid="raise"):
-            return fit_plain(init)
+            return fit_plain(init, min(NMF_CHUNK, budget))
 
     try:
-        A, model = fit("nndsvda")
+        A, model = first("nndsvda")
     except FloatingPointError:  # NNDSVD divides by a zero norm when M has
         with np.errstate(divide="ignore", invalid="ignore"):  # fewer nonzero
-            A, model = fit_plain("random")            # singular values than k
-    B = model.components_
+            A, model = fit_plain("random", min(NMF_CHUNK, budget))
+    B, sweeps = model.components_, model.n_iter_  # singular values than k
+    error = float(np.linalg.norm(M - A @ B))
     kkt = kkt_residual(M, A, B)
-    return A, B, kkt <= NMF_KKT_TOL, kkt
+    while sweeps < budget and not kkt == 0.0:
+        A, model = fit_plain("custom", min(NMF_CHUNK, budget - sweeps),
+                             (A, B))
+        B, sweeps = model.components_, sweeps + model.n_iter_
+        before, error = error, float(np.linalg.norm(M - A @ B))
+        kkt = kkt_residual(M, A, B)
+        if kkt <= NMF_KKT_TOL and before - error <= NMF_STALL * before:
+            break
+    return PlainFit(A, B, kkt <= NMF_KKT_TOL, kkt, int(sweeps))
 
 
 def nmf_scored(n):
@@ -209,9 +247,9 @@ def baselines(W, n_i, *, circuit_error=None, circuit_density=None, seed=0,
     if not nmf_scored(max(W.shape)):
         return tuple(out)
     Jp = np.maximum(W, 0)
-    A, B, converged, kkt = (plain_factorisation(np.maximum(-W, 0), n_i, seed,
-                                                max_iter)
-                            if plain is None else plain)
+    A, B, converged, kkt, _ = (plain_factorisation(np.maximum(-W, 0), n_i,
+                                                   seed, max_iter)
+                               if plain is None else plain)
     out.append(BaselineResult("nmf", f"nonnegative factorisation "
                               f"(scikit-learn NMF), {n_i} interneurons, no "
                               "split", n_i, _rel(W, Jp - A @ B), _density(Jp),

@@ -106,9 +106,27 @@ def greedy_start(M, k, l1, floor):
 
 
 SWAP_PIECES = 3      # rank-one pieces of the unexplained part tried per round
-SWAP_CANDIDATES = 4  # interneurons, cheapest to lose first, tried per piece
+SWAP_CANDIDATES = 4  # interneurons tried per piece: this many cheapest to
+                     # lose, and this many sharing most of their pool
 SWAP_GAIN = 1e-6     # a trial is kept when it lowers the objective by this
                      # share of it
+
+
+def _twins(A, B):
+    """For each component, how much of its inputs or of its targets another
+    one shares: the largest max(cos(a_k, a_l), cos(b_k, b_l)) over l != k
+    (1 for two components with the same targets, 0 for disjoint pools). A
+    planted pool fitted by two components (its inputs divided between them,
+    its targets shared) is the other half of two pools merged into one, and
+    one of the two is what a swap should replace; removing it alone costs
+    more than removing a weak component, so the loss ranks it late."""
+    def cosines(X):
+        norms = np.linalg.norm(X, axis=0)
+        X = X / np.where(norms > 0, norms, 1.0)
+        return X.T @ X
+    both = np.maximum(cosines(A), cosines(B.T))
+    np.fill_diagonal(both, 0.0)
+    return both.max(axis=1, initial=0.0)
 
 
 def _loss_of_each(R, A, B):
@@ -122,11 +140,13 @@ def swap_search(M, A, B, fit, objective, *, l1=0.0, max_rounds=None):
     """Escape a local optimum of a nonnegative factorisation M ~ A B (our
     rule, docs/assembly.md "Tuned pools"): each round takes the largest
     rank-one piece of the unexplained part max(M - A B, 0), puts it in the
-    place of a component that is cheap to lose, lets ``fit(A, B)`` (a few
-    HALS sweeps, returning new A, B) settle, and keeps the trial when
-    ``objective(A, B)`` fell. A merged pair of pools, which HALS alone keeps
-    for ever, is split this way. Rounds end when no trial of SWAP_PIECES
-    pieces x SWAP_CANDIDATES components helps, or after ``max_rounds``
+    place of a component that is cheap to lose or that shares most of its
+    pool with another (:func:`_twins`: one pool fitted twice), lets
+    ``fit(A, B)`` (a few HALS sweeps, returning new A, B) settle, and keeps
+    the trial when ``objective(A, B)`` fell. A merged pair of pools, which
+    HALS alone keeps for ever, is split this way. Rounds end when no trial
+    of SWAP_PIECES pieces x 2 SWAP_CANDIDATES components helps, or after
+    ``max_rounds``
     (default: the number of components). M is dense; A, B are not changed.
 
     Returns A, B and the number of swaps kept.
@@ -140,12 +160,15 @@ def swap_search(M, A, B, fit, objective, *, l1=0.0, max_rounds=None):
         loss = _loss_of_each(R, A, B)
         np.maximum(R, 0.0, out=R)
         norms = np.einsum("ij,ij->j", R, R)
+        twins = np.argsort(-_twins(A, B), kind="stable")[:SWAP_CANDIDATES]
+        cheap = np.argsort(loss, kind="stable")[:SWAP_CANDIDATES]
+        candidates = list(dict.fromkeys([*cheap.tolist(), *twins.tolist()]))
         trial = None
         for col in np.argsort(norms)[::-1][:SWAP_PIECES]:
             a, b = _rank_one(R, l1, int(col))
             if not (a.any() and b.any()):
                 continue
-            for t in np.argsort(loss)[:SWAP_CANDIDATES]:
+            for t in candidates:
                 A2, B2 = A.copy(), B.copy()
                 A2[:, t], B2[t] = a, b
                 A2, B2 = fit(A2, B2)
