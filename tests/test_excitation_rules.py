@@ -155,6 +155,51 @@ def test_the_swap_search_beats_scikit_learns_nmf_on_merged_pools():
     assert after <= objective(P, model.components_)
 
 
+def test_a_widened_pool_is_divided_to_cover_the_one_left_out(monkeypatch):
+    """Ring pools (40 of 8 inputs and 8 targets, 160 units) under uniform
+    noise, fitted from a start that leaves pool 10 out, fits pool 20 with
+    two components and widens pools 9 and 11 over pool 10: HALS keeps it,
+    and the residual there is too small against the noise to seed a piece,
+    so swaps of pieces alone keep nothing. Dividing a wide component
+    (_split_trials) does, and ends below scikit-learn's NMF (cd, NNDSVD and
+    NNDSVDa starts, tol 1e-6) on the same matrix and rank, the reference
+    objective."""
+    rng = np.random.default_rng(0)
+    m, k, l1 = 160, 40, 1e-3
+    A0, B0 = np.zeros((m, k)), np.zeros((k, m))
+    for t in range(k):
+        A0[(4 * t + np.arange(8)) % m, t] = rng.uniform(0.5, 1.5, 8)
+        B0[t, (4 * t + 80 + np.arange(8)) % m] = rng.uniform(0.5, 1.5, 8)
+    M = A0 @ B0 + 0.1 * np.random.default_rng(1).random((m, m))
+    A, B = A0.copy(), B0.copy()
+    A[:, 10], B[10] = A0[:, 20] * (np.arange(m) % 8 < 4), B0[20]
+    A[:, 20] *= np.arange(m) % 8 >= 4
+    A[40 + np.arange(4), 9], A[44 + np.arange(4), 11] = 0.5, 0.5
+    B[9, 120 + np.arange(4)], B[11, 124 + np.arange(4)] = 0.5, 0.5
+    A, B, _ = sh.hals_split(M, A, B, 0, l1=l1, max_iter=2000, tol=1e-9)
+
+    def fit(a, b):
+        return sh.hals_split(M, a, b, 0, l1=l1, max_iter=50, tol=1e-6)[:2]
+
+    def objective(a, b):
+        return 0.5 * float(np.linalg.norm(M - a @ b) ** 2)
+
+    A2, B2, kept = sup.swap_search(M, A, B, fit, objective, l1=l1)
+    after = objective(A2, B2)
+    with monkeypatch.context() as patch:
+        patch.setattr(sup, "_split_trials", lambda *args: None)
+        pieces_only = sup.swap_search(M, A, B, fit, objective, l1=l1)
+    assert pieces_only[2] == 0 and kept >= 1
+    assert after < objective(A, B)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        for init in ("nndsvd", "nndsvda"):
+            model = NMF(k, solver="cd", init=init, tol=1e-6, max_iter=3000,
+                        random_state=0)
+            P = model.fit_transform(M)
+            assert after < objective(P, model.components_)
+
+
 def test_a_pool_fitted_twice_is_a_swap_candidate_scipy():
     """Ring pools of 8 inputs and 8 targets, one of them fitted by two
     components that divide its inputs and share its targets: those two

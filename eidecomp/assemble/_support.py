@@ -10,6 +10,7 @@ import numpy as np
 
 from ..params import CONNECTION_RTOL
 from ..types import active_interneurons
+from ._nmf import nndsvd
 
 __all__ = ["apply_floor", "greedy_start", "inactive", "restart", "swap_search"]
 
@@ -108,6 +109,11 @@ def greedy_start(M, k, l1, floor):
 SWAP_PIECES = 3      # rank-one pieces of the unexplained part tried per round
 SWAP_CANDIDATES = 4  # interneurons tried per piece: this many cheapest to
                      # lose, and this many sharing most of their pool
+SWAP_SHARED = 0.7   # a component shares most of its pool with another when
+                    # their inputs' or targets' cosine is at least this
+                    # (two pools of 8 overlapping in 4, as planted
+                    # neighbours do: 0.5); only such a component's place is
+                    # offered to a divided one
 SWAP_GAIN = 1e-6     # a trial is kept when it lowers the objective by this
                      # share of it
 
@@ -129,6 +135,55 @@ def _twins(A, B):
     return both.max(axis=1, initial=0.0)
 
 
+def _halves(M, A, B, w):
+    """Component ``w`` as two: the NNDSVD (Boutsidis & Gallopoulos 2008) of
+    what it fits, max(M - A B + a_w b_w^T, 0) on its own rows and columns,
+    with two components. Returns (a1, b1), (a2, b2), or None when the
+    second is empty."""
+    rows, cols = np.flatnonzero(A[:, w]), np.flatnonzero(B[w])
+    if rows.size < 2 or cols.size < 2:
+        return None
+    X = M[np.ix_(rows, cols)] - A[rows] @ B[:, cols] \
+        + np.outer(A[rows, w], B[w, cols])
+    np.maximum(X, 0.0, out=X)
+    P, Q = nndsvd(X, 2)
+    if not (P[:, 1].any() and Q[1].any()):
+        return None
+    halves = []
+    for j in range(2):
+        a, b = np.zeros(A.shape[0]), np.zeros(B.shape[1])
+        a[rows], b[cols] = P[:, j], Q[j]
+        halves.append((a, b))
+    return halves
+
+
+def _split_trials(M, A, B, candidates, fit, objective, best):
+    """The other half of a swap: a wide component (SWAP_PIECES of them, the
+    most inputs times targets first) divided in two (:func:`_halves`), the
+    second half in the place of a candidate (the swap search passes the
+    components that share most of a pool with another: the pool fitted
+    twice is where one comes free). Where a pool was left
+    uncovered and its neighbours widened to cover it, its residual is too
+    small to seed a piece; dividing a widened neighbour starts it again.
+    Returns the first trial (A, B, objective) that lowers the objective by
+    SWAP_GAIN of it, or None."""
+    width = np.count_nonzero(A, axis=0) * np.count_nonzero(B, axis=1)
+    for w in np.argsort(-width, kind="stable")[:SWAP_PIECES]:
+        halves = _halves(M, A, B, int(w))
+        if halves is None:
+            continue
+        for t in candidates:
+            if t == w:
+                continue
+            A2, B2 = A.copy(), B.copy()
+            (A2[:, w], B2[w]), (A2[:, t], B2[t]) = halves
+            A2, B2 = fit(A2, B2)
+            value = objective(A2, B2)
+            if value < best - SWAP_GAIN * abs(best):
+                return A2, B2, value
+    return None
+
+
 def _loss_of_each(R, A, B):
     """What removing each component alone would add to 0.5 ||R||^2, with R
     = M - A B: <R, a_k b_k^T> + 0.5 ||a_k||^2 ||b_k||^2."""
@@ -143,9 +198,12 @@ def swap_search(M, A, B, fit, objective, *, l1=0.0, max_rounds=None):
     place of a component that is cheap to lose or that shares most of its
     pool with another (:func:`_twins`: one pool fitted twice), lets
     ``fit(A, B)`` (a few HALS sweeps, returning new A, B) settle, and keeps
-    the trial when ``objective(A, B)`` fell. A merged pair of pools, which
-    HALS alone keeps for ever, is split this way. Rounds end when no trial
-    of SWAP_PIECES pieces x 2 SWAP_CANDIDATES components helps, or after
+    the trial when ``objective(A, B)`` fell; when no piece helps, it tries
+    dividing a wide component in two instead (:func:`_split_trials`). A
+    merged pair of pools, which HALS alone keeps for ever, is split this
+    way. Rounds end when no trial helps (SWAP_PIECES pieces x 2
+    SWAP_CANDIDATES components, then SWAP_PIECES divided components x
+    SWAP_CANDIDATES sharing a pool), or after
     ``max_rounds``
     (default: the number of components). M is dense; A, B are not changed.
 
@@ -160,7 +218,8 @@ def swap_search(M, A, B, fit, objective, *, l1=0.0, max_rounds=None):
         loss = _loss_of_each(R, A, B)
         np.maximum(R, 0.0, out=R)
         norms = np.einsum("ij,ij->j", R, R)
-        twins = np.argsort(-_twins(A, B), kind="stable")[:SWAP_CANDIDATES]
+        shares = _twins(A, B)
+        twins = np.argsort(-shares, kind="stable")[:SWAP_CANDIDATES]
         cheap = np.argsort(loss, kind="stable")[:SWAP_CANDIDATES]
         candidates = list(dict.fromkeys([*cheap.tolist(), *twins.tolist()]))
         trial = None
@@ -178,6 +237,10 @@ def swap_search(M, A, B, fit, objective, *, l1=0.0, max_rounds=None):
                     break
             if trial is not None:
                 break
+        shared = twins[shares[twins] >= SWAP_SHARED]
+        if trial is None and shared.size:   # the other half of a merged pair
+            trial = _split_trials(M, A, B, shared.tolist(), fit, objective,
+                                  best)
         if trial is None:
             break
         A, B, best = trial
