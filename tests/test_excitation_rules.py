@@ -161,7 +161,7 @@ def test_a_widened_pool_is_divided_to_cover_the_one_left_out(monkeypatch):
     two components and widens pools 9 and 11 over pool 10: HALS keeps it,
     and the residual there is too small against the noise to seed a piece,
     so swaps of pieces alone keep nothing. Dividing a wide component
-    (_split_trials) does, and ends below scikit-learn's NMF (cd, NNDSVD and
+    (_division_trials) does, and ends below scikit-learn's NMF (cd, NNDSVD and
     NNDSVDa starts, tol 1e-6) on the same matrix and rank, the reference
     objective."""
     rng = np.random.default_rng(0)
@@ -187,7 +187,7 @@ def test_a_widened_pool_is_divided_to_cover_the_one_left_out(monkeypatch):
     A2, B2, kept = sup.swap_search(M, A, B, fit, objective, l1=l1)
     after = objective(A2, B2)
     with monkeypatch.context() as patch:
-        patch.setattr(sup, "_split_trials", lambda *args: None)
+        patch.setattr(sup, "_division_trials", lambda *args: None)
         pieces_only = sup.swap_search(M, A, B, fit, objective, l1=l1)
     assert pieces_only[2] == 0 and kept >= 1
     assert after < objective(A, B)

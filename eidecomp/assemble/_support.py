@@ -157,7 +157,7 @@ def _halves(M, A, B, w):
     return halves
 
 
-def _split_trials(M, A, B, candidates, fit, objective, best):
+def _division_trials(M, A, B, candidates, fit, objective, best):
     """The other half of a swap: a wide component (SWAP_PIECES of them, the
     most inputs times targets first) divided in two (:func:`_halves`), the
     second half in the place of a candidate (the swap search passes the
@@ -199,7 +199,7 @@ def swap_search(M, A, B, fit, objective, *, l1=0.0, max_rounds=None):
     pool with another (:func:`_twins`: one pool fitted twice), lets
     ``fit(A, B)`` (a few HALS sweeps, returning new A, B) settle, and keeps
     the trial when ``objective(A, B)`` fell; when no piece helps, it tries
-    dividing a wide component in two instead (:func:`_split_trials`). A
+    dividing a wide component in two instead (:func:`_division_trials`). A
     merged pair of pools, which HALS alone keeps for ever, is split this
     way. Rounds end when no trial helps (SWAP_PIECES pieces x 2
     SWAP_CANDIDATES components, then SWAP_PIECES divided components x
@@ -239,7 +239,7 @@ def swap_search(M, A, B, fit, objective, *, l1=0.0, max_rounds=None):
                 break
         shared = twins[shares[twins] >= SWAP_SHARED]
         if trial is None and shared.size:   # the other half of a merged pair
-            trial = _split_trials(M, A, B, shared.tolist(), fit, objective,
+            trial = _division_trials(M, A, B, shared.tolist(), fit, objective,
                                   best)
         if trial is None:
             break
