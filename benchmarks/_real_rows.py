@@ -8,8 +8,10 @@ sparse-coding dictionary's lateral weights), the demo's example matrix, and
 two planted circuits (eidecomp.datasets.make_planted_circuit, 400 and 500
 units, exactly 4:1). ``--held-out`` runs other members of the same
 families instead: two other connectomes, partial correlations of 10x10
-patches, Gabor-bank covariances and a 512-atom sparse-coding dictionary's
-lateral weights, and planted circuits of other sizes and seeds.
+and 18x18 patches (the second a circuit of 405 units, where the
+stability guard runs from one start), Gabor-bank covariances and a
+512-atom sparse-coding dictionary's lateral weights, and planted circuits
+of other sizes and seeds.
 
 Each is assembled in this process at its defaults (``assemble(W,
 ei_ratio="4:1")``: the split, the circuit and the baselines, and the
@@ -75,6 +77,7 @@ def real_cases(held_out=False):
         print(f"(connectome rows skipped: {exc})")
     if held_out:
         yield "photo pcorr 10x10", D.patch_partial_correlations(10), None
+        yield "photo pcorr 18x18", D.patch_partial_correlations(18), None
         yield "gabor cov 8 x 5x5", D.gabor_covariance(8, 5), None
         yield "sparse coding 512", D.sparse_coding_lateral(512), None
         planted = ((300, 5), (600, 2))

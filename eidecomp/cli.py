@@ -240,7 +240,8 @@ def _get_parser():
                        help="keep the closest fit even when W is stable and "
                        "the circuit is not at the default time constants "
                        "(default: refit it stable and report the error "
-                       "this costs)")
+                       "this costs, on circuits small enough for the "
+                       "guard's dense eigenproblems: docs/assembly.md)")
         p.add_argument("--units", metavar="CSV",
                        help="unit table: a 'feature' column in degrees, "
                        "optional id, x, y; one row per unit of W (default: "

@@ -581,6 +581,22 @@ def instability_line(a_orig, a_eff, max_ratio, tau_ratio, circuit):
     """
     if not (a_orig < 0) or max_ratio >= tau_ratio:
         return None
+    return _unstable_because(a_orig, a_eff, max_ratio, tau_ratio,
+                             circuit) + _guard_not_run(circuit)
+
+
+def _guard_not_run(circuit):
+    """The clause that says the stability guard did not run on a circuit
+    too large for it (AssemblyReport.guard_limit), else ""."""
+    limit = getattr(getattr(circuit, "report", None), "guard_limit", None)
+    if limit is None:
+        return ""
+    n = circuit.n_excitatory + circuit.n_inhibitory
+    return (f"; the stability guard runs on circuits of up to {limit} units "
+            f"and this one has {n}, so it did not run")
+
+
+def _unstable_because(a_orig, a_eff, max_ratio, tau_ratio, circuit):
     margin = -a_orig
     if a_eff >= 0:
         return (f"W is stable (margin {margin:.2g}) but W_eff is not: the "

@@ -452,10 +452,11 @@ eigenvalue at 1 to rounding (the lateral weights -(Phi^T Phi - I) of an
 overcomplete dictionary) is marginal, not stable."""
 
 STABILITY_MARGIN = 0.01
-"""The stability guard (docs/assembly.md, "Stability guard") keeps the
-circuit's rightmost eigenvalue at least half of W's own margin left of 0,
-and never more than this many 1 / tau_E (our choice: the error the guard
-costs grows with the margin it keeps)."""
+"""The margin, in 1 / tau_E, that the stability guard's penalty holds the
+circuit's eigenvalues to the left of 0 (docs/assembly.md, "Stability
+guard"; our choice). The penalty is soft, so the rightmost eigenvalue ends
+between -margin and 0 rather than past it; the error the guard costs grows
+with the margin."""
 
 DEFAULT_PERIOD = 180.0
 """Period of the units' features, degrees: orientation (360 for direction)."""

@@ -468,6 +468,9 @@ class AssemblyReport:
         What the stability guard changed; None when it did not run (W not
         stable, the circuit already stable, the guard switched off or the
         circuit too large for it).
+    guard_limit : int or None
+        The largest circuit the guard runs on, when this one is larger and
+        the guard was on (so it did not run); None otherwise.
     """
 
     relative_error: float
@@ -486,6 +489,7 @@ class AssemblyReport:
     cancelling_share: float | None = None
     comparison: str = ""
     guard: GuardResult | None = None
+    guard_limit: int | None = None
 
     def as_dict(self):
         out = {k: getattr(self, k) for k in self.__dataclass_fields__}

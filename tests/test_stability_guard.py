@@ -114,3 +114,47 @@ def test_penalty_gradient_matches_finite_differences_of_scipy_eigvals():
         E[i, j] = h
         fd = (penalty(M + E) - penalty(M - E)) / (2 * h)
         assert G[i, j] == pytest.approx(fd, rel=1e-4, abs=1e-9)
+
+
+def test_a_larger_circuit_runs_from_the_capped_start_alone(monkeypatch):
+    """Above GUARD_REFINED_START_MAX_UNITS only the capped start runs
+    (docs/assembly.md, "Stability guard"); the circuit still ends stable by
+    scipy's eigenvalues. 6x6 patches (45 units) stand in for a large
+    circuit by lowering the limit below their size."""
+    W = patch_partial_correlations(6)
+
+    def starts(**kw):
+        told = []
+        c = _assembled(W, progress=lambda stage, *a: told.append(stage), **kw)
+        return c, [s for s in told if s.startswith("stability guard")]
+
+    both, told_both = starts()
+    assert len(told_both) == 2
+    monkeypatch.setattr(_stab, "GUARD_REFINED_START_MAX_UNITS", 40)
+    capped, told = starts()
+    assert told == ["stability guard from J_EE at most W's positive side"]
+    assert _jacobian_abscissa(capped) < 0
+    assert capped.report.guard.stable
+    # the capped start alone can only be as good as the better of two
+    assert (capped.report.relative_error
+            >= both.report.relative_error - 1e-12)
+
+
+def test_a_circuit_too_large_for_the_guard_says_so(monkeypatch):
+    """Above GUARD_MAX_UNITS the guard does not run; the stability line
+    names the limit and the circuit's size. Stability is judged by scipy's
+    eigenvalues; 6x6 patches (45 units) stand in for a large circuit."""
+    from eidecomp.dynamics import stability_summary
+
+    W = patch_partial_correlations(6)
+    monkeypatch.setattr(_stab, "GUARD_MAX_UNITS", 40)
+    c = _assembled(W)
+    assert c.report.guard is None and c.report.guard_limit == 40
+    assert _jacobian_abscissa(c) > 0           # left unstable, as W's fit is
+    why = stability_summary(c, W, tau_ratio=TAU_I_MS / TAU_E_MS)["why"]
+    assert why.endswith("the stability guard runs on circuits of up to 40 "
+                        "units and this one has 45, so it did not run")
+    off = _assembled(W, stability_guard=False)
+    assert off.report.guard_limit is None      # off: nothing to explain
+    monkeypatch.undo()                         # within the limit: it runs
+    assert _assembled(W).report.guard is not None

@@ -56,6 +56,7 @@ from ..types import (
     Decomposition,
     handing_over,
 )
+from . import _stability
 from ._baselines import (
     NMF_MAX_UNITS,
     _prune_to_density,
@@ -570,6 +571,13 @@ def _no_split(W, plain, alpha, allowed, max_iter, tol, density=None):
     return rows
 
 
+def _guard_limit(guard_on, n_total):
+    """The stability guard's size limit when it was on and the circuit is
+    larger (so it did not run), else None (AssemblyReport.guard_limit)."""
+    limit = _stability.GUARD_MAX_UNITS
+    return limit if guard_on and n_total > limit else None
+
+
 def _scored_baselines(W, n_i, J_EE, A, B, n_u, err, dens, seed, refit):
     """The baselines, this circuit pruned to nmf's density when it is
     denser (a comparison at equal density), and the no-split baseline
@@ -903,7 +911,10 @@ def assemble(W_or_dec, *, ei_ratio=None, untuned_share="auto",
                             dropped=_dropped(W, J_EE, unit),
                             ee_support=ee_support,
                             autapses=audit[0], cancelling_share=audit[1],
-                            comparison=comparison, guard=guard)
+                            comparison=comparison, guard=guard,
+                            guard_limit=_guard_limit(stability_guard
+                                                     and not no_inhibition,
+                                                     n + n_i))
     params = {"ei_ratio": ratio.text, "untuned_share": untuned_share,
               "alpha": alpha, "ee_support": ee_support,
               "stability_guard": bool(stability_guard), "own_neurons": False,

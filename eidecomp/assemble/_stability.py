@@ -41,10 +41,21 @@ from ..params import MARGINAL_ABSCISSA, STABILITY_MARGIN, TAU_E_MS, TAU_I_MS
 from ..types import GuardResult
 from ._support import apply_floor
 
-GUARD_MAX_UNITS = 400
+GUARD_MAX_UNITS = 700
 """Largest circuit (E units and interneurons) the guard runs on: each
-evaluation is a dense eigenproblem with both eigenvector sets (about 40 ms
-at 175 units, 0.2 s at 400, on one core)."""
+evaluation is a dense eigenproblem with both eigenvector sets (0.13 s at
+500 units and 0.3 s at 661 on one core, more threads no faster), and the
+guard takes hundreds of them: about 3 minutes at 661 units, on partial
+correlations of 23x23 photograph patches (docs/assembly.md)."""
+
+GUARD_REFINED_START_MAX_UNITS = 200
+"""Largest circuit (E units and interneurons) on which the guard also runs
+from the refined circuit itself; larger ones run from the capped start
+alone. Measured on partial correlations of photograph patches, 4:1
+(docs/assembly.md, "Stability guard"): the refined start ended stable with
+the smaller error on 6x6 to 10x10 patches (45 to 125 units), lost at 12x12
+(180 units) and did not end stable from 14x14 (245 units) on, where it
+cost half the guard's time."""
 
 GUARD_PENALTIES = (1e2, 1e4, 1e6)
 """The penalty weights mu, tried in turn until the circuit is stable."""
@@ -91,11 +102,10 @@ def penalty_gradient(M, tau, margin):
     J = (M - np.eye(M.shape[0])) / tau[:, None]
     lam, left, right = linalg.eig(J, left=True, right=True)
     excess = lam.real + margin
-    G = np.zeros_like(M)
-    for k in np.flatnonzero(excess > 0):
-        u, v = left[:, k], right[:, k]
-        G += excess[k] * np.real(np.outer(np.conj(u) / tau, v)
-                                 / (np.conj(u) @ v))
+    k = np.flatnonzero(excess > 0)
+    u, v = np.conj(left[:, k]), right[:, k]
+    weight = excess[k] / np.einsum("ik,ik->k", u, v)   # excess_k / u_k^H v_k
+    G = np.real((u / tau[:, None] * weight) @ v.T)       # sum over k, one product
     hit = np.maximum(excess, 0.0)
     return 0.5 * float(hit @ hit), G, float(lam.real.max())
 
@@ -172,7 +182,8 @@ def guarded(W, J_EE, A, B, mask_a, mask_b, *, unit, start, tell=None):
     constants, and at most GUARD_MAX_UNITS units in all. It runs from two
     starts and keeps the stable end with the smaller error (neither stable:
     the refined circuit is kept, and the result says so): the refined
-    circuit itself, and ``start()``, the
+    circuit itself (up to GUARD_REFINED_START_MAX_UNITS units), and
+    ``start()``, the
     refinement with J_EE at most W's positive side, whose loops through the
     interneurons are weaker (the refined circuit ends closer where it is
     nearly stable; the capped start ends stable where it is far from it:
@@ -189,8 +200,11 @@ def guarded(W, J_EE, A, B, mask_a, mask_b, *, unit, start, tell=None):
     error = float(np.linalg.norm(W - J_EE + A @ B)
                   / max(np.linalg.norm(W), 1e-300))
     best, evaluations = None, 0
-    for name, blocks in (("from the refined circuit", lambda: (J_EE, A, B)),
-                         ("from J_EE at most W's positive side", start)):
+    starts = (("from the refined circuit", lambda: (J_EE, A, B)),
+              ("from J_EE at most W's positive side", start))
+    if n + n_i > GUARD_REFINED_START_MAX_UNITS:
+        starts = starts[1:]
+    for name, blocks in starts:
         if tell is not None:
             tell(f"stability guard {name}")
         out = guard(W, *blocks(), mask_a, mask_b, unit=unit,
