@@ -7,11 +7,13 @@ written (a full disk: nothing is left half-written), 130 on an interrupt.
 
 import argparse
 import math
+import os
 import sys
 import warnings
 
 from ._version import __version__
 from .errors import ConvergenceWarning, InputError, SolverError, WriteError
+from .io.staging import FORCE_RULE
 from .params import (
     AGREEMENT_RTOL,
     DEFAULT_EE_SUPPORT,
@@ -42,11 +44,19 @@ class _Parser(argparse.ArgumentParser):
         raise InputError(f"{message} (see '{self.prog} --help')")
 
 
+def _number(text):
+    """An option's number, under the one grammar of text numbers
+    (eidecomp.io.text.NUMBER)."""
+    from .io.text import parse_number
+
+    value = parse_number(text)
+    if value is None:
+        raise argparse.ArgumentTypeError(f"not a number: {text!r}")
+    return value
+
+
 def _positive_float(text):
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"not a number: {text!r}") from None
+    value = _number(text)
     if not value > 0 or value != value or value == float("inf"):
         raise argparse.ArgumentTypeError(f"must be a positive number: {text!r}")
     return value
@@ -127,12 +137,10 @@ def _add_drive(p):
     _add_seed(p)
 
 
-def _add_job_options(p, target):
+def _add_job_options(p):
     """--seed, --force and -q: the same for every job that writes a folder."""
     _add_seed(p)
-    p.add_argument("--force", action="store_true",
-                   help=f"replace {target} if it holds an eidecomp output of "
-                   "the same kind")
+    p.add_argument("--force", action="store_true", help=FORCE_RULE)
     _add_quiet(p)
 
 
@@ -141,8 +149,7 @@ def _add_bundle_job(p, target, what):
     p.add_argument("bundle", metavar="CIRCUIT", help="a circuit bundle folder")
     p.add_argument("-o", "--output", required=True, metavar=target,
                    help=f"{what} (must not exist, unless --force)")
-    p.add_argument("--force", action="store_true",
-                   help=f"replace {target} if it exists (never an input)")
+    p.add_argument("--force", action="store_true", help=FORCE_RULE)
     _add_quiet(p)
 
 
@@ -196,7 +203,7 @@ def _get_parser():
     dec.add_argument("--scheduler", metavar="ADDRESS",
                      help="dask scheduler address (default: start a local "
                      "cluster of two workers)")
-    _add_job_options(dec, "OUT")
+    _add_job_options(dec)
     asm = sub.add_parser("assemble", help="Dale's-law circuit from a matrix",
                          description="Build an excitatory / untuned-inhibitory "
                          "/ tuned-inhibitory circuit that reproduces W at the "
@@ -261,7 +268,7 @@ def _get_parser():
                        help="also write CIRCUIT/report.html (and its "
                        "figures as SVG) in the same pass")
         _add_matrix_options(p)
-        _add_job_options(p, "CIRCUIT")
+        _add_job_options(p)
     exp = sub.add_parser("export", help="write a circuit as a graph file",
                          description="Write the neuron-level graph of a "
                          "circuit bundle (edges pre -> post, nonnegative weights, "
@@ -291,8 +298,7 @@ def _get_parser():
                           "them into one folder.")
     demo.add_argument("-o", "--output", default="eidecomp-demo", metavar="DIR",
                       help="folder to write (default eidecomp-demo)")
-    demo.add_argument("--force", action="store_true",
-                      help="replace DIR if it exists")
+    demo.add_argument("--force", action="store_true", help=FORCE_RULE)
     _add_quiet(demo)
     sim = sub.add_parser("simulate", help="run the circuit and the original "
                          "network", description="Simulate the circuit's rate "
@@ -340,10 +346,7 @@ def _format_help():
 
 
 def _nonnegative_float(text):
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"not a number: {text!r}") from None
+    value = _number(text)
     if not value >= 0 or value == float("inf"):
         raise argparse.ArgumentTypeError(f"must be 0 or more: {text!r}")
     return value
@@ -449,7 +452,7 @@ def _decompose(args):
         dtype=dtype, engine=args.engine, scheduler=args.scheduler)
     with _progress(args, resolve_tol(args.tol, dtype)) as progress:
         result = run_decompose(config, progress=progress.solver)
-    print(_summary_table(result))
+    _out(_summary_table(result), written=result.output)
     return 0
 
 
@@ -557,7 +560,8 @@ def _assemble(args):
     with _progress(args, resolve_tol(args.tol, dtype)) as progress:
         result = run_assemble(config, progress=progress.solver,
                               stage_progress=progress.stage)
-    print(_tiled_line(result) if result.kind is TILED else _circuit_table(result))
+    _out(_tiled_line(result) if result.kind is TILED else _circuit_table(result),
+         written=result.output)
     return 0
 
 
@@ -570,7 +574,7 @@ def _export(args):
                           force=args.force, tau_e=args.tau_e, tau_i=args.tau_i,
                           raw_csv=args.raw_csv, drive=args.input,
                           seed=args.seed)
-    print(f"written to {path}")
+    _out(f"written to {path}", written=path)
     return 0
 
 
@@ -580,7 +584,8 @@ def _report(args):
     with _progress(args) as progress:
         path = run_report(args.bundle, args.output, force=args.force,
                           progress=progress.stage)
-    print(f"written to {path}; figures as SVG in {report_figures_folder(path)}")
+    _out(f"written to {path}; figures as SVG in {report_figures_folder(path)}",
+         written=path)
     return 0
 
 
@@ -589,8 +594,8 @@ def _demo(args):
 
     with _progress(args) as progress:
         result = run_demo(args.output, force=args.force, progress=progress)
-    print(_circuit_table(result))
-    print(f"report: {result.output / 'report.html'}")
+    _out(f"{_circuit_table(result)}\nreport: {result.output / 'report.html'}",
+         written=result.output)
     return 0
 
 
@@ -639,8 +644,7 @@ def _simulate(args):
          else "circuit vs original network", f"{r['circuit_vs_original']:.2e}"),
         ("||W - W_eff|| / ||W||", f"{r['reconstruction_error']:.2e}"),
     ]
-    print(_table(rows))
-    print(_verdict(r["circuit_vs_original"]))
+    _out(f"{_table(rows)}\n{_verdict(r['circuit_vs_original'])}")
     return 0
 
 
@@ -654,8 +658,45 @@ def _verdict(diff):
             "||W - W_eff|| / ||W|| above, or assemble with more interneurons")
 
 
+class _SummaryLost(Exception):
+    """Standard output could not take the summary: (reason, what was
+    written or None)."""
+
+
+def _printable(text, stream):
+    """``text`` as ``stream`` can encode it: what its encoding cannot show
+    (a name that is not UTF-8, a non-ASCII name under an ASCII locale) as
+    backslash escapes."""
+    encoding = getattr(stream, "encoding", None) or "utf-8"
+    return text.encode(encoding, "backslashreplace").decode(encoding)
+
+
+def _out(text, written=None):
+    """Print a job's summary on standard output. One that cannot take it (a
+    closed pipe, a full device) ends the command in main with one line that
+    says what was written."""
+    try:
+        print(_printable(text, sys.stdout))
+        sys.stdout.flush()
+    except OSError as exc:
+        try:                            # no second failure at the exit's flush
+            os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        except (OSError, ValueError, AttributeError):
+            pass
+        raise _SummaryLost(exc.strerror or type(exc).__name__, written) from None
+
+
 def _show_warning(message, category, filename, lineno, file=None, line=None):
-    print(f"eidecomp: warning: {message}", file=sys.stderr)
+    _say(f"eidecomp: warning: {message}")
+
+
+def _say(line):
+    """One line on standard error; a terminal that went away (SIGHUP) is
+    not an error of its own: the exit status says what happened."""
+    try:
+        print(_printable(line, sys.stderr), file=sys.stderr)
+    except OSError:
+        pass
 
 
 def _one_line(exc):
@@ -671,11 +712,7 @@ def main(argv=None):
     """
     from .io.staging import Terminated, handle_termination
 
-    def say(line):
-        try:
-            print(line, file=sys.stderr)
-        except OSError:  # the terminal went away (SIGHUP): the status says it
-            pass
+    say = _say
 
     try:
         with handle_termination():
@@ -712,6 +749,12 @@ def main(argv=None):
     except MemoryError as exc:
         detail = _one_line(exc) or "an allocation failed"
         say(f"eidecomp: error: out of memory ({detail}); nothing written")
+        return 1
+    except _SummaryLost as exc:
+        reason, written = exc.args
+        say(f"eidecomp: error: standard output could not take the summary "
+            f"({reason}); " + (f"the output was written to {written}"
+                               if written is not None else "nothing was written"))
         return 1
 
 

@@ -307,6 +307,16 @@ class EIRatio:
     def __str__(self):
         return f"{self.text} ({self.value:g} E per interneuron)"
 
+    def interneurons(self, n_e):
+        """The interneuron count this ratio gives ``n_e`` E units:
+        round(n_e / value), the one rule (range checks:
+        eidecomp.assemble's inhibitory_count).
+
+        >>> EIRatio.parse("9:2").interneurons(90)
+        20
+        """
+        return int(round(n_e / self.value))
+
 
 # --- what counts as a connection ---------------------------------------------
 

@@ -576,7 +576,8 @@ def run_export(bundle, fmt, output, *, force=False, tau_e=TAU_E_MS,
     """
     from .export import get_format, render
     from .io import write_file, write_folder
-    from .io.staging import check_output, holding, holding_only
+    from .io.provenance import unedited_file, unedited_folder
+    from .io.staging import check_output
 
     spec = get_format(fmt)
     given = {"tau_e": tau_e != TAU_E_MS, "tau_i": tau_i != TAU_I_MS,
@@ -588,10 +589,9 @@ def run_export(bundle, fmt, output, *, force=False, tau_e=TAU_E_MS,
                              "format")
     spec.check_available()
     bundles.expect_kind(bundle, CIRCUIT)  # a wrong input is named first
-    keep = holding(spec.markers, f"{fmt} export")
     if not spec.folder:
-        check_output(output, force=force, folder=False, replaceable=keep,
-                     inputs=(bundle,))
+        check_output(output, force=force, folder=False,
+                     replaceable=unedited_file, inputs=(bundle,))
     b = bundles.read_circuit_bundle(bundle)
     h = None
     if "drive" in spec.options:        # the same drive as simulate's
@@ -602,12 +602,9 @@ def run_export(bundle, fmt, output, *, force=False, tau_e=TAU_E_MS,
                   tau_e=tau_e, tau_i=tau_i, raw_csv=raw_csv, drive=h,
                   period=b.period)
     if not spec.folder:
-        return write_file(output, data, force=force, replaceable=keep,
-                          inputs=(bundle,))
-
-    replaceable = holding_only(lambda p: p.name in data,
-                               f"a folder that is not a {fmt} export")
-    return write_folder(output, data, force=force, replaceable=replaceable,
+        return write_file(output, data, force=force,
+                          replaceable=unedited_file, inputs=(bundle,))
+    return write_folder(output, data, force=force, replaceable=unedited_folder,
                         inputs=(bundle,))
 
 
@@ -691,18 +688,16 @@ def run_report(bundle, output, *, force=False, progress=None):
     """Write the HTML report of a circuit bundle to ``output``, and its
     figures as SVG files in the folder beside it named after it
     (report.html: report-figures/); returns the page's path."""
-    from .analysis.report import REPORT_TITLE, render_report_files, report_lam_path
+    from .analysis.report import render_report_files, report_lam_path
     from .io import staged_folder, write_file
-    from .io.staging import check_output, fill_folder, holding, holding_only
+    from .io.provenance import stamp, stamp_folder, unedited_file, unedited_folder
+    from .io.staging import check_output, file_bytes, fill_folder
 
     bundles.expect_kind(bundle, CIRCUIT)  # a wrong input is named first
-    keep = holding((REPORT_TITLE.encode(),), "report")
+    keep, keep_figures = unedited_file, unedited_folder
     out = check_output(output, force=force, folder=False, replaceable=keep,
                        inputs=(bundle,))
     figures = report_figures_folder(out)
-
-    keep_figures = holding_only(lambda p: p.suffix == ".svg" and keep(p) is None,
-                                "not the figures of an eidecomp report")
 
     try:
         check_output(figures, force=force, replaceable=keep_figures,
@@ -725,9 +720,11 @@ def run_report(bundle, output, *, force=False, progress=None):
     # (only the folder's own rename comes after the page's)
     with staged_folder(figures, force=force, replaceable=keep_figures,
                        inputs=(bundle,)) as staged:
-        fill_folder(staged, svgs)
-        return write_file(out, page.encode("utf-8"), force=force,
-                          replaceable=keep, inputs=(bundle,))
+        fill_folder(staged, stamp_folder(
+            {name: file_bytes(svg) for name, svg in svgs.items()},
+            kind="eidecomp report figures"))
+        return write_file(out, stamp(file_bytes(page), "xml"),
+                          force=force, replaceable=keep, inputs=(bundle,))
 
 
 def report_figures_folder(page):

@@ -215,3 +215,22 @@ def test_help_states_every_unit(command):
         for flag in a.option_strings:
             if flag in UNITS:
                 assert UNITS[flag] in " ".join(a.help.split()), (command, flag)
+
+
+# --- --force: one rule, in the same words in the README and every --help ------
+# Reference: the README's own sentence (issue 28: one owner for the text).
+
+def test_force_is_explained_in_the_same_words_everywhere():
+    from pathlib import Path
+
+    from eidecomp.io.staging import FORCE_RULE
+
+    readme = (Path(__file__).parents[1] / "README.md").read_text("utf-8")
+    assert f"`--force`: {FORCE_RULE}." in readme
+    seen = 0
+    for command, parser in _subcommands().items():
+        for a in parser._actions:
+            if "--force" in a.option_strings:
+                assert a.help == FORCE_RULE, command
+                seen += 1
+    assert seen >= 6          # decompose, assemble, run, export, report, demo

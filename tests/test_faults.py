@@ -15,6 +15,7 @@ References:
 
 import csv
 import errno
+import hashlib
 import json
 import os
 import re
@@ -654,8 +655,8 @@ def test_force_never_replaces_an_unknown_folder(tmp_path):
     with pytest.raises(InputError) as info:
         with staged_folder(out, force=True) as tmp:
             (tmp / "x").write_text("x")
-    assert str(info.value) == (f"{out}: a folder that is not empty and not known "
-                               "to be an eidecomp output; not replaced")
+    assert str(info.value) == (f"{out}: a folder not known to be an eidecomp "
+                               "output; not replaced")
     assert _listing(tmp_path) == before
 
 
@@ -684,10 +685,22 @@ def test_force_replaces_what_replaceable_accepts(tmp_path):
     assert _listing(tmp_path) == [("c", b""), ("c/a.txt", b"x")]
 
 
-def test_force_replaces_an_empty_folder(tmp_path):
+def test_force_never_replaces_an_empty_folder(tmp_path, capsys):
+    """The README's rule: --force replaces only what eidecomp wrote and
+    nobody changed since, so never a folder of yours, even an empty one
+    (it may be a mount point, or hold permissions you set)."""
     (tmp_path / "c").mkdir()
-    write_folder(tmp_path / "c", {"a.txt": "x"}, force=True)
-    assert _listing(tmp_path) == [("c", b""), ("c/a.txt", b"x")]
+    with pytest.raises(InputError, match="; not replaced$"):
+        write_folder(tmp_path / "c", {"a.txt": "x"}, force=True)
+    w = _small_matrix(tmp_path)
+    before = _listing(tmp_path)
+    capsys.readouterr()
+    assert main(["run", str(w), "-o", str(tmp_path / "c"), "--force",
+                 "-q"]) == 2
+    assert _err_lines(capsys) == [
+        f"eidecomp: error: {tmp_path / 'c'}: an empty folder that eidecomp "
+        "did not write; not replaced"]
+    assert _listing(tmp_path) == before
 
 
 def test_cli_force_refuses_a_folder_of_notes(tmp_path, capsys):
@@ -1147,3 +1160,184 @@ def test_export_command_csv_injection_and_raw(tmp_path):
                    if r["pre_population"] == "E"}
         assert got and all(v == ("" if raw else "'") + names[k]
                            for k, v in got.items())
+
+
+# --- provenance: what --force does replace (issue 28) -------------------------
+# Reference: the README's "Provenance" table; each digest recomputed here with
+# Python's hashlib.sha256 over the bytes the README names.
+
+def _hash_trailer_digest(data, head):
+    """(recorded digest, SHA-256 by hashlib of the bytes before the stamp)."""
+    at = data.rindex(head)
+    return data[at + len(head):].strip()[:64].decode(), \
+        hashlib.sha256(data[:at]).hexdigest()
+
+
+@pytest.mark.parametrize("fmt", ["graphml", "json", "csv", "populations",
+                                 "neuroml", "nest", "brian2", "pynn"])
+def test_every_export_is_stamped_and_replaced_by_force(small_bundle, tmp_path,
+                                                       fmt):
+    from eidecomp.export import get_format
+    from eidecomp.io.provenance import canonical_json
+
+    spec = get_format(fmt)
+    if spec.requires:
+        pytest.importorskip(spec.requires)
+    out = tmp_path / f"x{spec.suffix}"
+    argv = ["export", str(small_bundle), "--format", fmt, "-o", str(out), "-q"]
+    assert main(argv) == 0
+    if spec.folder:
+        manifest = json.loads((out / "eidecomp-manifest.json").read_text())
+        listed = manifest.pop("sha256")
+        stamp_ = manifest.pop("eidecomp_provenance")["sha256"]
+        assert sorted(listed) == sorted(p.name for p in out.iterdir()
+                                        if p.name != "eidecomp-manifest.json")
+        for name, digest in listed.items():
+            assert hashlib.sha256((out / name).read_bytes()).hexdigest() == digest
+        assert stamp_ == hashlib.sha256(canonical_json(
+            {**manifest, "sha256": listed})).hexdigest()
+    else:
+        data = out.read_bytes()
+        if fmt == "json":
+            doc = json.loads(data)
+            recorded = doc.pop("eidecomp_provenance")["sha256"]
+            assert recorded == hashlib.sha256(json.dumps(
+                doc, sort_keys=True, separators=(",", ":")).encode()).hexdigest()
+        else:
+            head = (b"<!-- eidecomp provenance sha256:" if fmt in ("graphml",
+                                                                   "neuroml")
+                    else b"# eidecomp provenance sha256:")
+            recorded, computed = _hash_trailer_digest(data, head)
+            assert recorded == computed
+    first = _listing(tmp_path)
+    assert main(argv + ["--force"]) == 0                    # unedited: replaced
+    assert [p for p, _ in _listing(tmp_path)] == [p for p, _ in first]
+
+
+def test_force_replaces_an_unedited_export_of_another_format(small_bundle,
+                                                             tmp_path):
+    """The rule is provenance, not format: an unedited eidecomp CSV may be
+    replaced by the JSON export written to the same name."""
+    out = tmp_path / "graph.out"
+    assert main(["export", str(small_bundle), "--format", "csv", "-o",
+                 str(out), "-q"]) == 0
+    assert main(["export", str(small_bundle), "--format", "json", "-o",
+                 str(out), "-q", "--force"]) == 0
+    assert out.read_bytes().startswith(b"{")
+
+
+def test_a_reindented_manifest_is_still_read(small_bundle, tmp_path):
+    """The manifest's stamp is over its canonical form (README), so a
+    pretty-printer that changes only whitespace leaves it valid."""
+    c = tmp_path / "c"
+    shutil.copytree(small_bundle, c)
+    doc = json.loads((c / "circuit.json").read_text())
+    (c / "circuit.json").write_text(json.dumps(doc, indent=7))
+    assert main(["export", str(c), "--format", "csv", "-o",
+                 str(tmp_path / "e.csv"), "-q"]) == 0
+
+
+def test_the_report_and_its_figures_are_stamped(small_bundle, tmp_path):
+    from eidecomp.io.provenance import unedited_file, unedited_folder
+
+    page = tmp_path / "r.html"
+    assert main(["report", str(small_bundle), "-o", str(page), "-q"]) == 0
+    recorded, computed = _hash_trailer_digest(
+        page.read_bytes(), b"<!-- eidecomp provenance sha256:")
+    assert recorded == computed
+    assert unedited_file(page) is None
+    assert unedited_folder(tmp_path / "r-figures") is None
+    assert main(["report", str(small_bundle), "-o", str(page), "-q",
+                 "--force"]) == 0
+
+
+def test_library_writers_stamp_what_they_write(small_circuit, tmp_path):
+    """Files written through the Python API carry the same stamp, so the
+    command may later replace them."""
+    from eidecomp.export import write_edge_csv, write_graphml, write_json
+    from eidecomp.graph import neuron_graph
+    from eidecomp.io.provenance import unedited_file
+
+    G = neuron_graph(small_circuit)
+    for write, name in ((write_graphml, "g.graphml"), (write_json, "g.json"),
+                        (write_edge_csv, "e.csv")):
+        write(G, tmp_path / name)
+        assert unedited_file(tmp_path / name) is None, name
+
+
+# --- the last tracebacks: standard output, encodings, a deleted folder ---------
+# (issue 28). References: POSIX (EPIPE on a closed pipe, ENOSPC from
+# /dev/full, getcwd(3) failing with ENOENT once the folder is removed) and
+# Python's codecs (an ASCII stream cannot encode U+00F1; a name that is not
+# UTF-8 decodes to lone surrogates, PEP 383).
+
+def _child(args, cwd, stdout=subprocess.PIPE, env=None):
+    run = subprocess.run([sys.executable, "-m", "eidecomp.cli", *args], cwd=cwd,
+                         stdout=stdout, stderr=subprocess.PIPE, timeout=600,
+                         env=None if env is None else {**os.environ, **env},
+                         preexec_fn=_default_signals)
+    return run.returncode, run.stderr.decode("utf-8", "replace")
+
+
+def test_a_full_stdout_says_what_was_written(small_bundle, tmp_path):
+    with open("/dev/full", "wb") as full:
+        code, err = _child(["export", str(small_bundle), "--format", "csv",
+                            "-o", "e.csv"], tmp_path, stdout=full)
+    assert code == 1
+    assert err == ("eidecomp: error: standard output could not take the "
+                   "summary (No space left on device); the output was "
+                   "written to e.csv\n")
+    assert (tmp_path / "e.csv").is_file()
+
+
+def test_a_closed_pipe_says_what_was_written(small_bundle, tmp_path):
+    proc = subprocess.Popen([sys.executable, "-m", "eidecomp.cli", "export",
+                             str(small_bundle), "--format", "json", "-o",
+                             "g.json"], cwd=tmp_path, stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE,
+                            preexec_fn=_default_signals)
+    proc.stdout.close()              # the reader has gone (like `| head -0`)
+    with proc.stderr:
+        err = proc.stderr.read().decode()
+    assert proc.wait(timeout=600) == 1
+    assert err == ("eidecomp: error: standard output could not take the "
+                   "summary (Broken pipe); the output was written to "
+                   "g.json\n")
+    assert (tmp_path / "g.json").is_file()
+
+
+def test_an_ascii_locale_shows_a_non_ascii_name_escaped(small_bundle, tmp_path):
+    code, err = _child(["export", str(small_bundle), "--format", "csv", "-o",
+                        "ma\u00f1ana.csv"], tmp_path,
+                       env={"PYTHONIOENCODING": "ascii:strict"})
+    assert (code, err) == (0, "")
+    assert (tmp_path / "ma\u00f1ana.csv").is_file()
+
+
+def test_a_name_that_is_not_utf8_reaches_the_report(tmp_path, capsys):
+    name = os.fsdecode(b"w\xff.npy")               # a lone surrogate, PEP 383
+    W = np.random.default_rng(0).normal(size=(12, 12))
+    np.fill_diagonal(W, 0)
+    with open(tmp_path / name, "wb") as fh:
+        np.save(fh, W)
+    capsys.readouterr()
+    assert main(["run", str(tmp_path / name), "-o", str(tmp_path / "c"),
+                 "-q", "--report"]) == 0
+    page = (tmp_path / "c" / "report.html").read_bytes()
+    assert b"w\\udcff.npy" in page                 # shown escaped, not lost
+
+
+def test_a_deleted_working_folder_is_one_line(small_bundle, tmp_path):
+    here = tmp_path / "gone"
+    here.mkdir()
+    proc = subprocess.Popen(
+        [sys.executable, "-c", "import os, sys\nos.rmdir(os.getcwd())\n"
+         "from eidecomp.cli import main\nsys.exit(main(sys.argv[1:]))",
+         "export", str(small_bundle), "--format", "csv", "-o", "e.csv"],
+        cwd=here, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+        preexec_fn=_default_signals)
+    out, err = proc.communicate(timeout=600)
+    assert proc.returncode == 2
+    assert err.decode() == ("eidecomp: error: e.csv: the current folder was "
+                            "deleted, so a relative path names no place; give "
+                            "an absolute one\n")

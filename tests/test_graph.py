@@ -5,6 +5,7 @@ module, read back what we wrote; networkx.utils.graphs_equal compares.
 """
 
 import csv
+import io
 import json
 
 import networkx as nx
@@ -66,12 +67,22 @@ def test_file_round_trip_is_exact(circuit, tmp_path, fmt):
     _blocks_equal(circuit_from_graph(H), c)
 
 
+def _csv_lines(text):
+    """An exported CSV for Python's csv module: all but its last line, the
+    provenance comment (eidecomp.io.provenance), checked to be there (cells
+    may hold line breaks, so the text is cut at the comment, not split)."""
+    at = text.rindex("# eidecomp provenance sha256:")
+    assert at > 0 and text[at - 1] == "\n" and text.endswith("\n")
+    assert text[at:].count("\n") == 1
+    return io.StringIO(text[:at], newline="")
+
+
 def test_edge_csv(circuit, tmp_path):
     c, _ = circuit
     G = neuron_graph(c)
     write_edge_csv(G, tmp_path / "e.csv")
-    with open(tmp_path / "e.csv", encoding="utf-8") as fh:
-        rows = list(csv.DictReader(fh))
+    with open(tmp_path / "e.csv", encoding="utf-8", newline="") as fh:
+        rows = list(csv.DictReader(_csv_lines(fh.read())))
     assert len(rows) == G.number_of_edges()
     for r in rows[:200]:
         assert float(r["weight"]) == G.edges[r["pre"], r["post"]]["weight"]
@@ -195,7 +206,7 @@ def test_every_registry_entry_renders(small, fmt, tmp_path):
     if back is not None:
         _blocks_equal(back, c)
     elif fmt == "csv":
-        rows = list(csv.DictReader(io.StringIO(data.decode("utf-8"), newline="")))
+        rows = list(csv.DictReader(_csv_lines(data.decode("utf-8"))))
         assert len(rows) == sum(np.count_nonzero(getattr(c, b)) for b in
                                 ("J_EE", "J_EU", "J_UE", "J_ET", "J_TE"))
     else:
@@ -264,9 +275,7 @@ _TRIGGERS = ["=", "+", "-", "@", "\t", "\r"]
 
 
 def _csv_rows(data):
-    import io
-
-    return list(csv.DictReader(io.StringIO(data.decode("utf-8"), newline="")))
+    return list(csv.DictReader(_csv_lines(data.decode("utf-8"))))
 
 
 @pytest.mark.parametrize("first", _TRIGGERS)
@@ -312,14 +321,13 @@ def test_csv_weights_are_bare_exact_numbers(small):
     """The weight column is never quoted or prefixed: Python's csv module
     reads every other cell of a row as quoted text, the weight as a number
     (QUOTE_NONNUMERIC), and float() gives the weight bit for bit."""
-    import io
 
     from eidecomp.export import render
     from eidecomp.graph import neuron_graph
 
     c, _ = small
     data = render("csv", c, unit_ids=["-" + str(i) for i in range(20)])
-    reader = csv.reader(io.StringIO(data.decode("utf-8"), newline=""),
+    reader = csv.reader(_csv_lines(data.decode("utf-8")),
                         quoting=csv.QUOTE_NONNUMERIC)
     header = next(reader)
     G = neuron_graph(c)
@@ -488,8 +496,8 @@ def test_igraph_reads_the_graphml_export(tabled):
 
 def test_csv_export_carries_both_ends_values(tabled):
     d, circuit, features, pos = tabled
-    with open(_export(d, "csv", ".csv"), newline="") as fh:
-        rows = list(csv.DictReader(fh))
+    with open(_export(d, "csv", ".csv"), newline="", encoding="utf-8") as fh:
+        rows = list(csv.DictReader(_csv_lines(fh.read())))
     ee = [r for r in rows if r["pre_population"] == r["post_population"] == "E"]
     assert ee
     for r in ee:

@@ -37,6 +37,7 @@ import scipy.sparse
 
 from eidecomp.cli import main
 from eidecomp.errors import InputError
+from eidecomp.io.provenance import stamp, stamp_doc
 
 
 def npy(arr, **kw):
@@ -265,7 +266,7 @@ ROWS = [
     ("bundle-newer-version", {"BUNDLE": "version"},
      ["export", "{d}/c", "--format", "graphml", "-o", "{d}/out"],
      "{d}/c/circuit.json: format version 99 is newer than this eidecomp "
-     "reads (2); upgrade"),
+     "reads (3); upgrade"),
     ("bundle-not-a-bundle", {"c/readme.txt": b"hello"},
      ["export", "{d}/c", "--format", "graphml", "-o", "{d}/out"],
      "{d}/c: no circuit.json; not a circuit bundle"),
@@ -519,8 +520,8 @@ ROWS = [
      "{d}/dec/summary.json: no checksum for sparse.npy"),
     ("dec-old-version", {"DEC": "v1"}, ASM_DEC,
      "{d}/dec/summary.json: format version 1 was written by an older "
-     "eidecomp without a checksum for every file; write it again with this "
-     "one"),
+     "eidecomp, whose manifests carry no provenance stamp; write it again "
+     "with this one"),
     ("dec-missing-key", {"DEC": "no-rank"}, ASM_DEC,
      "{d}/dec/summary.json: missing key 'rank'"),
     ("dec-read-as-circuit", {"DEC": "ok"},
@@ -656,26 +657,29 @@ ROWS = [
      "{d}/u.csv: --position-unit deg, but the table has no x and y columns"),
     ("force-over-a-user-file", {"BUNDLE": "ok", "notes.txt": "mine\n"},
      ["export", "{d}/c", "--format", "json", "-o", "{d}/notes.txt", "--force"],
-     "{d}/notes.txt: not an eidecomp json export; not replaced"),
+     "{d}/notes.txt: not written by eidecomp (it carries no provenance "
+     "stamp); not replaced"),
     ("force-over-another-export", {"BUNDLE": "ok",
                                    "g.graphml": '<graphml><key attr.name="population"'
                                                 '/></graphml>'},
      ["export", "{d}/c", "--format", "json", "-o", "{d}/g.graphml", "--force"],
-     "{d}/g.graphml: not an eidecomp json export; not replaced"),
+     "{d}/g.graphml: not written by eidecomp (it carries no provenance "
+     "stamp); not replaced"),
     ("force-over-a-user-page", {"BUNDLE": "ok", "m.html": "<html>mine</html>"},
      ["report", "{d}/c", "-o", "{d}/m.html", "--force"],
-     "{d}/m.html: not an eidecomp report; not replaced"),
+     "{d}/m.html: not written by eidecomp (it carries no provenance "
+     "stamp); not replaced"),
     ("force-over-a-fake-manifest", {"w.csv": GOOD,
                                     "out/circuit.json": '{"format": '
                                                         '"eidecomp-circuit"}',
                                     "out/thesis.tex": "mine"},
      RUN + ["--force"],
-     "{d}/out: holds 'thesis.tex', which the circuit bundle does not list (a "
-     "file of yours?); not replaced"),
+     "{d}/out: circuit.json: not written by eidecomp (it carries no "
+     "provenance stamp); not replaced"),
     ("force-over-a-bundle-with-notes", {"BUNDLE": "ok", "w.csv": GOOD,
                                         "c/notes.txt": "mine"},
      ["run", "{d}/w.csv", "-o", "{d}/c", "--ei-ratio", "1", "--force"],
-     "{d}/c: holds 'notes.txt', which the circuit bundle does not list (a file "
+     "{d}/c: holds 'notes.txt', which its circuit.json does not list (a file "
      "of yours?); not replaced"),
     ("kernel-no-features", {"k.npy": npy(np.zeros((0, 0, 3, 3)))},
      ["decompose", "--kernel", "{d}/k.npy", "--grid", "8x8", "-o", "{d}/out"],
@@ -720,6 +724,311 @@ ROWS = [
      "{d}/u.csv: row 2 has 3 cells, the header 2"),
 ]
 
+# --- one number grammar for every text input (issue 28) ----------------------
+# Reference: the grammar the README states (ASCII digits, point, exponent;
+# eidecomp.io.text.NUMBER) against what Python's float() also takes (PEP 515
+# underscores, Unicode decimal digits, Unicode white space).
+def _cell(cell):
+    return {"bad.csv": f"0,{cell}\n1,0\n".encode()}
+
+
+def _bad_cell(cell):
+    return f"{{d}}/bad.csv: non-numeric cell {cell!r} at row 1, column 2"
+
+
+NUMBER_ROWS = [("1_0", "underscore-ten"), ("0_5", "underscore-five"),
+               ("1__0", "underscores"), ("\uff11", "full-width-one"),
+               ("\u0663", "arabic-indic-three"), ("\u00b2", "superscript-two"),
+               ("\u00a00.5", "no-break-space-before"),
+               ("0.5\u2007", "figure-space-after"),
+               ("\u22121", "unicode-minus"), ("1.5e", "exponent-without-digits"),
+               ("1e5.5", "fractional-exponent"), ("--1", "double-sign"),
+               ("0.5\u2028", "line-separator-after"), ("1,5e3", None),
+               ("\u0031\u0301", "combining-mark")]
+ROWS += [(f"number-{name}", _cell(cell), DEC, _bad_cell(cell))
+         for cell, name in NUMBER_ROWS if name is not None]
+ROWS += [
+    ("number-units-underscore", {"w.csv": GOOD, "u.csv": "feature\n0\n6_0\n"
+                                                         "120\n"}, UNITS,
+     "{d}/u.csv: row 3, column 'feature': not a number: '6_0'"),
+    ("number-units-full-width", {"w.csv": GOOD, "u.csv": "feature\n0\n"
+                                                         "\uff16\uff10\n120\n"},
+     UNITS, "{d}/u.csv: row 3, column 'feature': not a number: "
+            "'\uff16\uff10'"),
+    ("number-option-underscore", {"w.csv": GOOD},
+     ["decompose", "{d}/w.csv", "-o", "{d}/out", "--lam", "1_0"],
+     "argument --lam: not a number: '1_0' (see 'eidecomp decompose --help')"),
+    ("number-option-full-width", {"w.csv": GOOD},
+     RUN + ["--alpha", "\uff11"],
+     "argument --alpha: not a number: '\uff11' (see 'eidecomp run --help')"),
+    ("number-txt-no-break-space-separator", {"bad.txt": "1 0\n0\u00a01\n"},
+     DEC, "{d}/bad.txt: row 2 has 1 cells, expected 2 as in the first data "
+          "row"),
+]
+
+# --- provenance: --force replaces only an unedited eidecomp output (issue 28)
+# Reference: the README's "Provenance" table and --force rule; SHA-256 by
+# Python's hashlib. Each row tries one way a file or folder that is not an
+# unedited eidecomp output could pass for one.
+NOT_OURS = "not written by eidecomp (it carries no provenance stamp); not replaced"
+EDITED = ("edited after eidecomp wrote it (its provenance digest does not "
+          "match); not replaced")
+LINK = "a symbolic link, which eidecomp never writes through or replaces; not replaced"
+
+
+def _export(fmt, edit=None):
+    """A file or folder KIND for _make: an export of the test bundle, then
+    one hand edit (see _make)."""
+    return ("EXPORT", fmt, edit)
+
+
+def _stamped(data, syntax, edit=lambda b: b):
+    return lambda: edit(stamp(data, syntax))
+
+
+def _json_export(c):
+    return ["export", "{d}/c", "--format", "json", "-o", c, "--force"]
+
+
+def _to(fmt, out):
+    return ["export", "{d}/c", "--format", fmt, "-o", out, "--force"]
+
+
+ROWS += [
+    # markers are no proof: files that begin as an export of ours does
+    ("force-json-with-markers", {"BUNDLE": "ok", "cfg.json":
+                                 '{"population": "V1", "synapse": 1, '
+                                 '"notes": "irreplaceable"}\n'},
+     _json_export("{d}/cfg.json"), f"{{d}}/cfg.json: {NOT_OURS}"),
+    ("force-graphml-with-markers", {"BUNDLE": "ok", "g.graphml":
+                                    '<graphml><key attr.name="synapse"/><key '
+                                    'attr.name="population"/></graphml>\n'},
+     _to("graphml", "{d}/g.graphml"), f"{{d}}/g.graphml: {NOT_OURS}"),
+    ("force-csv-sharing-the-header", {"BUNDLE": "ok", "e.csv":
+                                      '"pre","post","pre_population",'
+                                      '"post_population","synapse","weight"\n'
+                                      '"my","own","E","E","excitatory",1\n'},
+     _to("csv", "{d}/e.csv"), f"{{d}}/e.csv: {NOT_OURS}"),
+    ("force-populations-header", {"BUNDLE": "ok", "p.csv":
+                                  '"pre_population","post_population"\nx,y\n'},
+     _to("populations", "{d}/p.csv"), f"{{d}}/p.csv: {NOT_OURS}"),
+    ("force-page-with-the-title", {"BUNDLE": "ok", "m.html":
+                                   "<title>eidecomp circuit report</title>mine"},
+     ["report", "{d}/c", "-o", "{d}/m.html", "--force"],
+     f"{{d}}/m.html: {NOT_OURS}"),
+    ("force-a-stamp-copied-onto-another-file",
+     {"BUNDLE": "ok", "n.csv": _stamped(b"a,b\n", "hash",
+                                        lambda b: b"mine\n" + b)},
+     _to("csv", "{d}/n.csv"), f"{{d}}/n.csv: {EDITED}"),
+    ("force-stamp-then-text-after-it",
+     {"BUNDLE": "ok", "n.csv": _stamped(b"a,b\n", "hash",
+                                        lambda b: b + b"1,2\n")},
+     _to("csv", "{d}/n.csv"), f"{{d}}/n.csv: {NOT_OURS}"),
+    ("force-stamp-with-a-short-digest",
+     {"BUNDLE": "ok", "n.csv": b"a,b\n# eidecomp provenance sha256:abc\n"},
+     _to("csv", "{d}/n.csv"), f"{{d}}/n.csv: {NOT_OURS}"),
+    ("force-stamp-with-capital-hex",
+     {"BUNDLE": "ok", "n.csv": _stamped(b"a,b\n", "hash",
+                                        lambda b: b[:-66] + b[-66:].upper())},
+     _to("csv", "{d}/n.csv"), f"{{d}}/n.csv: {NOT_OURS}"),
+    ("force-stamp-without-its-line-break",
+     {"BUNDLE": "ok", "n.csv": _stamped(b"a,b\n", "hash", lambda b: b[:-1])},
+     _to("csv", "{d}/n.csv"), f"{{d}}/n.csv: {NOT_OURS}"),
+    ("force-xml-stamp-edited",
+     {"BUNDLE": "ok", "n.graphml": _stamped(b"<graphml/>", "xml",
+                                            lambda b: b.replace(b"ml/", b"ml /"))},
+     _to("graphml", "{d}/n.graphml"), f"{{d}}/n.graphml: {EDITED}"),
+    ("force-json-stamp-value-edited",
+     {"BUNDLE": "ok", "g.json": _stamped(b'{"a": 1, "b": [2, 3]}', "json",
+                                         lambda b: b.replace(b"[2", b"[9"))},
+     _json_export("{d}/g.json"), f"{{d}}/g.json: {EDITED}"),
+    ("force-json-stamp-key-added",
+     {"BUNDLE": "ok", "g.json": _stamped(b'{"a": 1}', "json",
+                                         lambda b: b.replace(b"{", b'{"x": 0, ', 1))},
+     _json_export("{d}/g.json"), f"{{d}}/g.json: {EDITED}"),
+    ("force-json-stamp-duplicate-key",
+     {"BUNDLE": "ok", "g.json": _stamped(b'{"a": 1}', "json",
+                                         lambda b: b.replace(b"{", b'{"a": 1, ', 1))},
+     _json_export("{d}/g.json"), f"{{d}}/g.json: {EDITED}"),
+    ("force-json-stamp-not-an-object",
+     {"BUNDLE": "ok", "g.json": b'[{"eidecomp_provenance": {"sha256": "0"}}]'},
+     _json_export("{d}/g.json"), f"{{d}}/g.json: {NOT_OURS}"),
+    ("force-json-stamp-digest-a-number",
+     {"BUNDLE": "ok", "g.json": b'{"eidecomp_provenance": {"sha256": 1}}'},
+     _json_export("{d}/g.json"), f"{{d}}/g.json: {EDITED}"),
+    ("force-over-an-edited-csv-export",
+     {"BUNDLE": "ok", "e.csv": _export("csv", "flip")},
+     _to("csv", "{d}/e.csv"), f"{{d}}/e.csv: {EDITED}"),
+    ("force-over-an-edited-graphml-export",
+     {"BUNDLE": "ok", "g.graphml": _export("graphml", "flip")},
+     _to("graphml", "{d}/g.graphml"), f"{{d}}/g.graphml: {EDITED}"),
+    ("force-over-an-edited-json-export",
+     {"BUNDLE": "ok", "g.json": _export("json", "flip")},
+     _json_export("{d}/g.json"), f"{{d}}/g.json: {EDITED}"),
+    ("force-over-an-edited-report",
+     {"BUNDLE": "ok", "r.html": ("REPORT", "flip")},
+     ["report", "{d}/c", "-o", "{d}/r.html", "--force"],
+     f"{{d}}/r.html: {EDITED}"),
+    ("force-over-edited-report-figures",
+     {"BUNDLE": "ok", "r.html": ("REPORT", "figure")},
+     ["report", "{d}/c", "-o", "{d}/r.html", "--force"],
+     "{d}/r-figures: '01-matrix-w.svg' was changed after eidecomp "
+     "wrote it; not replaced (the folder of the report's SVG figures, beside "
+     "r.html)"),
+    # symbolic links: never written through or replaced, --force or not
+    ("link-to-our-own-export", {"BUNDLE": "ok", "e.csv": _export("csv"),
+                                "l.csv": ("LINK", "e.csv")},
+     _to("csv", "{d}/l.csv"), f"{{d}}/l.csv: {LINK}"),
+    ("link-without-force", {"BUNDLE": "ok", "e.csv": _export("csv"),
+                            "l.csv": ("LINK", "e.csv")},
+     ["export", "{d}/c", "--format", "csv", "-o", "{d}/l.csv"],
+     f"{{d}}/l.csv: {LINK}"),
+    ("link-dangling", {"BUNDLE": "ok", "l.csv": ("LINK", "gone.csv")},
+     _to("csv", "{d}/l.csv"), f"{{d}}/l.csv: {LINK}"),
+    ("link-to-an-export-folder", {"BUNDLE": "ok", "n": _export("nest"),
+                                  "l": ("LINK", "n")},
+     _to("nest", "{d}/l"), f"{{d}}/l: {LINK}"),
+    ("link-to-our-own-bundle", {"BUNDLE": "ok", "w.csv": GOOD,
+                                "l": ("LINK", "c")},
+     ["run", "{d}/w.csv", "-o", "{d}/l", "--ei-ratio", "1", "--force"],
+     f"{{d}}/l: {LINK}"),
+    ("link-as-the-report-page", {"BUNDLE": "ok", "l.html": ("LINK", "x.html")},
+     ["report", "{d}/c", "-o", "{d}/l.html", "--force"],
+     f"{{d}}/l.html: {LINK}"),
+    ("link-as-a-decomposition", {"w.csv": GOOD, "l": ("LINK", "elsewhere")},
+     ["decompose", "{d}/w.csv", "-o", "{d}/l", "--force"], f"{{d}}/l: {LINK}"),
+    # empty folders: yours, never replaced
+    ("force-over-an-empty-folder", {"w.csv": GOOD, "out": "DIR"},
+     RUN + ["--force"],
+     "{d}/out: an empty folder that eidecomp did not write; not replaced"),
+    ("force-export-folder-over-an-empty-folder", {"BUNDLE": "ok", "n": "DIR"},
+     _to("nest", "{d}/n"),
+     "{d}/n: an empty folder that eidecomp did not write; not replaced"),
+    ("force-decompose-over-an-empty-folder", {"w.csv": GOOD, "o": "DIR"},
+     ["decompose", "{d}/w.csv", "-o", "{d}/o", "--force"],
+     "{d}/o: an empty folder that eidecomp did not write; not replaced"),
+    # export folders: the manifest lists every file, each as written
+    ("force-export-folder-with-a-note", {"BUNDLE": "ok",
+                                         "n": _export("nest", "add")},
+     _to("nest", "{d}/n"),
+     "{d}/n: holds 'notes.txt', which its eidecomp-manifest.json does not "
+     "list (a file of yours?); not replaced"),
+    ("force-export-folder-script-edited", {"BUNDLE": "ok",
+                                           "n": _export("nest", "script")},
+     _to("nest", "{d}/n"),
+     "{d}/n: 'circuit_nest.py' was changed after eidecomp wrote it; not "
+     "replaced"),
+    ("force-export-folder-data-edited", {"BUNDLE": "ok",
+                                         "n": _export("brian2", "data")},
+     _to("brian2", "{d}/n"),
+     "{d}/n: 'circuit_rate_data.npz' was changed after eidecomp wrote it; "
+     "not replaced"),
+    ("force-export-folder-file-missing", {"BUNDLE": "ok",
+                                          "n": _export("nest", "drop")},
+     _to("nest", "{d}/n"),
+     "{d}/n: lacks 'circuit_rate_data.npz', which its eidecomp-manifest.json "
+     "lists; not replaced"),
+    ("force-export-folder-manifest-edited", {"BUNDLE": "ok",
+                                             "n": _export("nest", "manifest")},
+     _to("nest", "{d}/n"),
+     f"{{d}}/n: eidecomp-manifest.json: {EDITED[:-len('; not replaced')]}; "
+     "not replaced"),
+    ("force-export-folder-file-now-a-link", {"BUNDLE": "ok",
+                                             "n": _export("nest", "link")},
+     _to("nest", "{d}/n"),
+     "{d}/n: 'circuit_rate_data.npz' is a symbolic link; not replaced"),
+    ("force-export-folder-without-manifest", {"BUNDLE": "ok",
+                                              "n": _export("nest", "unlist")},
+     _to("nest", "{d}/n"),
+     "{d}/n: has no eidecomp-manifest.json: not a folder eidecomp wrote; not "
+     "replaced"),
+    # bundles: the manifest's own stamp, and every file as written
+    ("force-bundle-block-edited", {"BUNDLE": "swap", "w.csv": GOOD},
+     ["run", "{d}/w.csv", "-o", "{d}/c", "--ei-ratio", "1", "--force"],
+     "{d}/c: 'low_rank.npy' was changed after eidecomp wrote it; not replaced"),
+    ("force-bundle-manifest-edited", {"BUNDLE": "raw-set:parameters.ei_ratio="
+                                                '"9:2"', "w.csv": GOOD},
+     ["run", "{d}/w.csv", "-o", "{d}/c", "--ei-ratio", "1", "--force"],
+     f"{{d}}/c: circuit.json: {EDITED[:-len('; not replaced')]}; not replaced"),
+    ("force-decomposition-over-a-circuit", {"BUNDLE": "ok", "w.csv": GOOD},
+     ["decompose", "{d}/w.csv", "-o", "{d}/c", "--force"],
+     "{d}/c: holds an eidecomp circuit bundle, not a decomposition folder; "
+     "not replaced"),
+    # edited manifests are never believed
+    ("read-manifest-ratio-edited", {"BUNDLE": 'raw-set:parameters.ei_ratio="9:2"'},
+     ["report", "{d}/c", "-o", "{d}/r.html"],
+     "{d}/c/circuit.json: edited after eidecomp wrote it (its provenance "
+     "digest does not match); not read"),
+    ("read-manifest-shape-edited", {"BUNDLE": "raw-set:input.shape=[1e9, 1e9]"},
+     ["export", "{d}/c", "--format", "csv", "-o", "{d}/e.csv"],
+     "{d}/c/circuit.json: edited after eidecomp wrote it (its provenance "
+     "digest does not match); not read"),
+    ("read-manifest-stamp-removed", {"BUNDLE": "unstamp"},
+     ["simulate", "{d}/c"],
+     "{d}/c/circuit.json: not written by eidecomp (it carries no provenance "
+     "stamp); not read"),
+    ("read-manifest-digest-zeroed", {"BUNDLE": "zero-stamp"},
+     ["report", "{d}/c", "-o", "{d}/r.html"],
+     "{d}/c/circuit.json: edited after eidecomp wrote it (its provenance "
+     "digest does not match); not read"),
+    # a manifest stamped again after an edit must still agree with its arrays
+    ("restamped-ratio", {"BUNDLE": 'set:parameters.ei_ratio="9:2"'},
+     ["report", "{d}/c", "-o", "{d}/r.html"],
+     "{d}/c/circuit.json: parameters: 'ei_ratio' 9:2 gives 4 interneurons, "
+     "but the blocks hold 5"),
+    ("restamped-ratio-not-a-ratio", {"BUNDLE": 'set:parameters.ei_ratio="x"'},
+     ["report", "{d}/c", "-o", "{d}/r.html"],
+     "E:I ratio 'x' is not a ratio like 4:1 or a number"),
+    ("restamped-interneuron-count", {"BUNDLE": "set:parameters.n_inhibitory=9"},
+     ["simulate", "{d}/c"],
+     "{d}/c/circuit.json: parameters: 'n_inhibitory' is 9 but the blocks "
+     "hold 5 interneurons"),
+    ("restamped-huge-shape", {"BUNDLE": "set:input.shape=[1000000000, "
+                                        "1000000000]"},
+     ["export", "{d}/c", "--format", "csv", "-o", "{d}/e.csv"],
+     "{d}/c/circuit.json: input: 'shape' is [1000000000, 1000000000] but the "
+     "blocks are of a 20 x 20 W"),
+    ("restamped-shape-text", {"BUNDLE": 'set:input.shape="20x20"'},
+     ["export", "{d}/c", "--format", "csv", "-o", "{d}/e.csv"],
+     "{d}/c/circuit.json: input: 'shape' is '20x20' but the blocks are of a "
+     "20 x 20 W"),
+    ("restamped-nan-error", {"BUNDLE": "set:metrics.relative_error=NaN"},
+     ["report", "{d}/c", "-o", "{d}/r.html"],
+     "{d}/c/circuit.json: metrics.relative_error is nan, not a finite "
+     "number"),
+    ("restamped-1e999", {"BUNDLE": "set:stability.original_spectral_abscissa="
+                                   "1e999"},
+     ["report", "{d}/c", "-o", "{d}/r.html"],
+     "{d}/c/circuit.json: stability.original_spectral_abscissa is inf, not a "
+     "finite number"),
+    ("restamped-minus-infinity", {"BUNDLE": "set:parameters.lam=-Infinity"},
+     ["simulate", "{d}/c"],
+     "{d}/c/circuit.json: parameters.lam is -inf, not a finite number"),
+    ("restamped-duplicate-ids", {"BUNDLE": 'set:unit_ids=["u", "v", "u", "w", '
+                                           '"x", "y", "z", "a", "b", "c", "d", '
+                                           '"e", "f", "g", "h", "i", "j", "k", '
+                                           '"l", "m"]'},
+     ["export", "{d}/c", "--format", "csv", "-o", "{d}/e.csv"],
+     "{d}/c/circuit.json: 'unit_ids' names 'u' twice"),
+    ("restamped-dec-rank-huge", {"DEC": "set:rank=1000000"}, ASM_DEC,
+     "{d}/dec/summary.json: 'rank' is 1000000, outside 0 to 3 for a 3 x 3 "
+     "matrix"),
+    ("restamped-dec-rank-negative", {"DEC": "set:rank=-1"}, ASM_DEC,
+     "{d}/dec/summary.json: 'rank' is -1, outside 0 to 3 for a 3 x 3 matrix"),
+    ("restamped-dec-shape", {"DEC": "shape"}, ASM_DEC,
+     "{d}/dec/summary.json: input: 'shape' is [9, 9] but the arrays are "
+     "3 x 3"),
+    ("restamped-dec-lam-nan", {"DEC": "set:lam=NaN"}, ASM_DEC,
+     "{d}/dec/summary.json: lam is nan, not a finite number"),
+    ("dec-manifest-edited", {"DEC": "raw-lam"}, ASM_DEC,
+     "{d}/dec/summary.json: edited after eidecomp wrote it (its provenance "
+     "digest does not match); not read"),
+    ("read-manifest-duplicate-key", {"BUNDLE": "dup-key"},
+     ["export", "{d}/c", "--format", "csv", "-o", "{d}/e.csv"],
+     "{d}/c/circuit.json: corrupt JSON (the key 'format' appears twice in one "
+     "object)"),
+]
+
 
 @pytest.fixture(scope="module")
 def bundle(tmp_path_factory):
@@ -733,10 +1042,13 @@ def bundle(tmp_path_factory):
     return d / "c"
 
 
-def _edit_manifest(path, edit):
+def _edit_manifest(path, edit, restamp=True):
+    """Edit a manifest; ``restamp`` gives it a matching provenance stamp
+    again (eidecomp.io.provenance), as a writer that knows the format
+    would, so the checks past the stamp are the ones tried."""
     doc = json.loads(path.read_text())
     edit(doc)
-    path.write_text(json.dumps(doc))
+    path.write_text(json.dumps(stamp_doc(doc) if restamp else doc))
 
 
 def _drop(doc, dotted):
@@ -771,6 +1083,24 @@ def _edit_bundle(c, mode):
                 m = m[k]
             m[path[-1]] = value
         _edit_manifest(doc, put)
+    elif kind == "raw-set":   # an edit by hand, the stamp left as it was
+        key, value = arg.split("=", 1)
+        path, value = key.split("."), json.loads(value)
+
+        def put_raw(m):
+            for k in path[:-1]:
+                m = m[k]
+            m[path[-1]] = value
+        _edit_manifest(doc, put_raw, restamp=False)
+    elif mode == "unstamp":
+        _edit_manifest(doc, lambda m: m.pop("eidecomp_provenance"),
+                       restamp=False)
+    elif mode == "zero-stamp":
+        _edit_manifest(doc, lambda m: m["eidecomp_provenance"].__setitem__(
+            "sha256", "0" * 64), restamp=False)
+    elif mode == "dup-key":     # the format named twice, the second a lie
+        text = doc.read_text()
+        doc.write_text(text.replace("{", '{"format": "x", ', 1))
     elif kind == "sum":
         _edit_manifest(doc, lambda m: m["sha256"].__setitem__(arg, "0" * 64))
     elif kind == "plant" and arg.endswith(":huge"):
@@ -818,6 +1148,59 @@ def _make_decomposition(folder, mode):
         _edit_manifest(doc, lambda m: m.__setitem__("format_version", 1))
     elif mode == "no-rank":
         _edit_manifest(doc, lambda m: m.pop("rank"))
+    elif mode.startswith("set:"):      # set:key=JSON, stamped again
+        key, value = mode[4:].split("=", 1)
+        _edit_manifest(doc, lambda m: m.__setitem__(key, json.loads(value)))
+    elif mode == "raw-lam":            # by hand: the stamp left as it was
+        _edit_manifest(doc, lambda m: m.__setitem__("lam", 0.123), restamp=False)
+    elif mode == "shape":
+        _edit_manifest(doc, lambda m: m["input"].__setitem__("shape", [9, 9]))
+
+
+def _flip(path):
+    """One byte of ``path`` changed, in its middle."""
+    data = bytearray(path.read_bytes())
+    data[len(data) // 2] ^= 0x01
+    path.write_bytes(bytes(data))
+
+
+def _made_output(path, kind, bundle):
+    """An export (("EXPORT", format, edit)) or a report (("REPORT", edit))
+    of the test bundle written by the command at ``path``, then one edit:
+    flip (a byte of the file), add / script / data / drop / manifest / link
+    / unlist (an export folder's note added, script or data changed, data
+    removed, manifest edited, data made a link, manifest removed), figure
+    (a byte of the report's first figure)."""
+    if kind[0] == "REPORT":
+        argv, edit = ["report", str(bundle), "-o", str(path)], kind[1]
+    else:
+        argv = ["export", str(bundle), "--format", kind[1], "-o", str(path)]
+        edit = kind[2]
+    assert main(argv + ["-q"]) == 0
+    files = sorted(path.iterdir()) if path.is_dir() else []
+    by_end = {p.suffix: p for p in files}
+    if edit == "flip":
+        _flip(path)
+    elif edit == "figure":
+        _flip(sorted(path.with_name(f"{path.stem}-figures").glob("*.svg"))[0])
+    elif edit == "add":
+        (path / "notes.txt").write_text("mine\n")
+    elif edit == "script":
+        _flip(by_end[".py"])
+    elif edit == "data":
+        _flip(by_end[".npz"])
+    elif edit == "drop":
+        by_end[".npz"].unlink()
+    elif edit == "manifest":
+        m = path / "eidecomp-manifest.json"
+        m.write_text(m.read_text().replace("eidecomp nest export", "mine"))
+    elif edit == "link":
+        data = by_end[".npz"]
+        copy = path.parent / "elsewhere.npz"
+        data.rename(copy)
+        data.symlink_to(copy)
+    elif edit == "unlist":
+        (path / "eidecomp-manifest.json").unlink()
 
 
 def _make(d, files, bundle):
@@ -839,10 +1222,9 @@ def _make(d, files, bundle):
                 (d / "c" / "J_EE.npy").write_bytes(data[:len(data) // 2])
             elif content == "missing":
                 (d / "c" / "J_TE.npy").unlink()
-            elif content == "version":
-                meta = json.loads(doc.read_text())
-                meta["format_version"] = 99
-                doc.write_text(json.dumps(meta))
+            elif content == "version":   # as a newer eidecomp writes it
+                _edit_manifest(doc, lambda m: m.__setitem__("format_version",
+                                                            99))
             continue
         path = d / name
         path.parent.mkdir(parents=True, exist_ok=True)
@@ -856,6 +1238,15 @@ def _make(d, files, bundle):
                 fh.write(head)
                 fh.truncate(len(head) + size)  # a hole: no disk used
             continue
+        if content == "DIR":
+            path.mkdir()
+            continue
+        if isinstance(content, tuple) and content[0] == "LINK":
+            path.symlink_to(d / content[1])
+            continue
+        if isinstance(content, tuple) and content[0] in ("EXPORT", "REPORT"):
+            _made_output(path, content, bundle)
+            continue
         if callable(content):
             content = content()
         if content == "OBJECT":
@@ -866,8 +1257,8 @@ def _make(d, files, bundle):
 
 
 def _listing(d):
-    return sorted((str(p.relative_to(d)), p.stat().st_size, p.stat().st_mtime_ns)
-                  for p in d.rglob("*"))
+    return sorted((str(p.relative_to(d)), p.lstat().st_size,
+                   p.lstat().st_mtime_ns) for p in d.rglob("*"))
 
 
 def test_the_hole_rows_use_no_disk(tmp_path):

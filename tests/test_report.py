@@ -110,7 +110,9 @@ def test_every_figure_is_also_an_svg_file_the_page_links_to(bundle, tmp_path):
     links = _svg_links(out.read_text(encoding="utf-8"))
     assert links and all(name.startswith("r-figures/") for name in links)
     first = {p.name: p.read_bytes() for p in (tmp_path / "r-figures").iterdir()}
-    assert sorted(first) == sorted(n.split("/")[1] for n in links)
+    # the figures, and the manifest that proves them ours (README, "Provenance")
+    assert sorted(first) == sorted([n.split("/")[1] for n in links]
+                                   + ["eidecomp-manifest.json"])
     for name in links:
         _parsed_svg(tmp_path / name)
     # the same bundle gives the same bytes (no date, fixed ids)
@@ -125,7 +127,7 @@ def test_report_keeps_a_folder_that_is_not_its_figures(bundle, tmp_path, capsys)
     (tmp_path / "r-figures" / "notes.txt").write_text("mine")
     assert main(["report", str(bundle), "-o", str(out), "-q", "--force"]) == 2
     err = capsys.readouterr().err
-    assert "r-figures" in err and "not the figures of an eidecomp report" in err
+    assert "r-figures" in err and "not a folder eidecomp wrote" in err
     assert len(err.strip().splitlines()) == 1
     assert not out.exists()                       # nothing written
     assert (tmp_path / "r-figures" / "notes.txt").read_text() == "mine"
@@ -137,12 +139,18 @@ def test_a_failed_page_write_leaves_the_old_figures_beside_the_old_page(
     # written (here a full disk, simulated), the folder is not replaced either
     import eidecomp.io
     from eidecomp.errors import WriteError
+    from eidecomp.io.provenance import FOLDER_MANIFEST, folder_manifest
 
     out = tmp_path / "r.html"
     assert main(["report", str(bundle), "-o", str(out), "-q"]) == 0
     old_page = out.read_bytes()
-    svg = sorted((tmp_path / "r-figures").iterdir())[0]
+    svg = sorted((tmp_path / "r-figures").glob("*.svg"))[0]
     svg.write_bytes(svg.read_bytes() + b"<!-- the earlier run -->")
+    # as an earlier eidecomp would have written it: its manifest to match
+    figures = {p.name: p.read_bytes() for p in svg.parent.iterdir()
+               if p.name != FOLDER_MANIFEST}
+    (svg.parent / FOLDER_MANIFEST).write_bytes(
+        folder_manifest(figures, kind="eidecomp report figures"))
     old_figures = {p.name: p.read_bytes() for p in svg.parent.iterdir()}
 
     def full_disk(path, *args, **kwargs):

@@ -157,7 +157,10 @@ def test_export_command_simulator_formats(bundle, tmp_path, fmt):
         for name, J in read_blocks(out).items():
             np.testing.assert_array_equal(J, getattr(c, name))
     else:
-        assert sorted(p.suffix for p in out.iterdir()) == [".npz", ".py"]
+        # the script, its data, and the folder's manifest (README, "Provenance")
+        assert sorted(p.name.rsplit(".", 1)[-1] if p.name != "eidecomp-manifest"
+                      ".json" else p.name for p in out.iterdir()) == [
+            "eidecomp-manifest.json", "npz", "py"]
 
 
 @pytest.mark.parametrize("engine", ["nest", "brian2"])
@@ -445,10 +448,11 @@ def test_pynn_data_name_the_populations(circuit):
     import io
 
     from eidecomp.export import pynn_script, render
+    from eidecomp.io.provenance import stamp
     from eidecomp.types import POPULATION_NAMES
 
     files = render("pynn", circuit[0])
-    assert files["circuit_pynn.py"] == pynn_script.SCRIPT.encode()
+    assert files["circuit_pynn.py"] == stamp(pynn_script.SCRIPT.encode(), "hash")
     for name in POPULATION_NAMES.values():  # no string literal of a name
         assert f'"{name}"' not in pynn_script.SCRIPT
     with np.load(io.BytesIO(files["circuit_pynn_data.npz"]),

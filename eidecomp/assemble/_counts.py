@@ -32,7 +32,7 @@ def inhibitory_count(n_e, ratio, *, where="", units="excitatory units"):
     if not math.isfinite(quotient):  # a ratio like 1:1e308
         raise InputError(f"E:I ratio {r.text} asks for more interneurons"
                          f"{where} than the {n_e} {units}")
-    n_i = int(round(quotient))
+    n_i = r.interneurons(n_e)
     if n_i < 1:
         raise InputError(f"E:I ratio {r.text} leaves no interneuron{where} "
                          f"for {n_e} {units} (round({n_e}/{r.value:g}) = 0)")

@@ -72,10 +72,13 @@ def write_into(folder, files):
     through a temporary name renamed into place; other files are kept."""
     from pathlib import Path
 
-    from ..io.staging import any_file, write_file
+    from ..io.provenance import stamp_folder
+    from ..io.staging import any_file, file_bytes, write_file
 
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
+    files = stamp_folder({n: file_bytes(v) for n, v in files.items()},
+                         kind="eidecomp simulator script")
     for name, data in files.items():
         write_file(folder / name, data, force=True,
                       replaceable=any_file)

@@ -38,6 +38,7 @@ import csv
 import io
 
 from ..graph import POPULATION_COLUMNS, population_table
+from ..io.provenance import stamp
 from ..params import DEFAULT_PERIOD, TAU_E_MS, TAU_I_MS
 from .graph_files import graph_of
 
@@ -91,7 +92,7 @@ def render_populations(circuit, *, features=None, positions=None,
                        period=DEFAULT_PERIOD):
     """The population-level table (connection probability and mean weight
     per pair of populations) as CSV bytes; nothing else applies."""
-    return population_csv_text(circuit).encode("utf-8")
+    return stamp(population_csv_text(circuit).encode("utf-8"), "hash")
 
 
 def edge_csv_text(G, *, raw=False):
@@ -125,12 +126,13 @@ def render_csv(circuit, *, features=None, positions=None, unit_ids=None,
     do not apply)."""
     G = graph_of(circuit, features=features, positions=positions,
                  unit_ids=unit_ids, period=period)
-    return edge_csv_text(G, raw=raw_csv).encode("utf-8")
+    return stamp(edge_csv_text(G, raw=raw_csv).encode("utf-8"), "hash")
 
 
 def write_edge_csv(G, path, *, raw=False):
     from ..io.staging import any_file, write_file
 
-    return write_file(path, edge_csv_text(G, raw=raw).encode("utf-8"),
+    return write_file(path, stamp(edge_csv_text(G, raw=raw).encode("utf-8"),
+                                  "hash"),
                       force=True,
                       replaceable=any_file)

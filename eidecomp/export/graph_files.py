@@ -16,6 +16,7 @@ import networkx as nx
 from ..analysis.tuning import pool_features
 from ..errors import InputError
 from ..graph import neuron_graph
+from ..io.provenance import stamp
 from ..params import DEFAULT_PERIOD, TAU_E_MS, TAU_I_MS
 from ._names import NOT_XML_CHAR, per_unit, per_unit_xy, unit_id_list
 
@@ -65,7 +66,8 @@ def to_graphml_bytes(G):
     # no CR of its own: every CR is from a value, written as a reference so
     # that a parser does not read it as LF.
     text = str(writer).replace("\r", "&#13;")
-    return (text if text.endswith("\n") else text + "\n").encode("utf-8")
+    return stamp((text if text.endswith("\n") else text + "\n").encode("utf-8"),
+                 "xml")
 
 
 def to_json_bytes(G):
@@ -75,8 +77,8 @@ def to_json_bytes(G):
     with ``edges="links"``)."""
     data = nx.node_link_data(G, edges="edges")
     data["links"] = data["edges"]
-    return (json.dumps(data, indent=1, sort_keys=True, allow_nan=False)
-            + "\n").encode()
+    return stamp((json.dumps(data, indent=1, sort_keys=True, allow_nan=False)
+                  + "\n").encode(), "json")
 
 
 def render_graphml(circuit, *, features=None, positions=None, unit_ids=None,

@@ -32,6 +32,7 @@ import json
 import numpy as np
 
 from ..analysis.tuning import pool_features
+from ..io.provenance import stamp
 from ..params import DEFAULT_PERIOD, TAU_E_MS, TAU_I_MS
 from ..types import BLOCKS, EXCITATORY, POPULATION_NAMES, TUNED, UNTUNED
 from ._names import per_unit, per_unit_xy, unit_id_list
@@ -182,7 +183,7 @@ def render_neuroml(circuit, *, features=None, positions=None, unit_ids=None,
     # read back and checked by libNeuroML (ValueError on a schema violation);
     # its string loader would print the document, so the parser is called
     parseString(text, silence=True).validate(recursive=True)
-    return text.encode("utf-8")
+    return stamp(text.encode("utf-8"), "xml")
 
 
 def write_neuroml(circuit, path, **kwargs):

@@ -11,8 +11,10 @@ before rendering), gives a one-line help text, and holds a pure renderer::
         -> bytes                              (one file)
         -> {file name: bytes | str | ndarray} (a folder)
 
-which writes nothing: :func:`eidecomp.io.write_file` and
-:func:`eidecomp.io.write_folder` do, atomically. Options a format has no use
+which writes nothing (:func:`render` stamps what it returns, and gives a
+folder its ``eidecomp-manifest.json``: eidecomp.io.provenance);
+:func:`eidecomp.io.write_file` and :func:`eidecomp.io.write_folder` write,
+atomically. Options a format has no use
 for are accepted and ignored. A new format is one module with its renderer
 and one line in :data:`REGISTRY`.
 
@@ -25,7 +27,7 @@ Examples
 >>> FORMATS
 ('graphml', 'json', 'csv', 'populations', 'neuroml', 'pynn', 'nest', 'brian2')
 >>> get_format("pynn").folder, sorted(render("nest", c))
-(True, ['circuit_nest.py', 'circuit_rate_data.npz'])
+(True, ['circuit_nest.py', 'circuit_rate_data.npz', 'eidecomp-manifest.json'])
 >>> render("csv", c, unit_ids=["=1+1", "b"]).decode().splitlines()[1]
 '"E0","E0","E","E","excitatory",1.0,"\\'=1+1","\\'=1+1"'
 """
@@ -35,6 +37,8 @@ from collections.abc import Callable
 from dataclasses import dataclass
 
 from ..errors import InputError
+from ..io.provenance import stamp_folder
+from ..io.staging import file_bytes
 from . import edges_csv, graph_files, neuroml2, pynn_script, rate_scripts
 
 __all__ = ["FILE_FORMATS", "FOLDER_FORMATS", "FORMATS", "REGISTRY",
@@ -68,9 +72,6 @@ class ExportFormat:
         The optional module the renderer imports, or None.
     suffix : str
         The usual file name ending of a one-file format ("" for a folder).
-    markers : tuple of bytes
-        One of them stands in the first 4 KB of every file this format
-        writes: how ``--force`` tells an earlier export from a user's file.
     options : tuple of str
         The render options this format uses beyond the circuit, its unit ids,
         features and positions; the command refuses the others.
@@ -82,7 +83,6 @@ class ExportFormat:
     help: str
     requires: str | None = None
     suffix: str = ""
-    markers: tuple = ()
     options: tuple = ()
 
     def check_available(self):
@@ -95,22 +95,18 @@ _TAUS = ("tau_e", "tau_i")
 _SCRIPT = _TAUS + ("drive", "seed")  # the simulator scripts take a drive
 REGISTRY = (
     ExportFormat("graphml", False, graph_files.render_graphml,
-                 "neuron-level graph, GraphML (networkx)", suffix=".graphml",
-                 markers=(b'attr.name="synapse"', b'attr.name="population"')),
+                 "neuron-level graph, GraphML (networkx)", suffix=".graphml"),
     ExportFormat("json", False, graph_files.render_json,
-                 "neuron-level graph, node-link JSON (networkx)", suffix=".json",
-                 markers=(b'"synapse":', b'"population":')),
+                 "neuron-level graph, node-link JSON (networkx)", suffix=".json"),
     ExportFormat("csv", False, edges_csv.render_csv,
                  "edge list, one row per synapse", suffix=".csv",
-                 markers=(edges_csv.HEADER_LINE.encode(),), options=("raw_csv",)),
+                 options=("raw_csv",)),
     ExportFormat("populations", False, edges_csv.render_populations,
                  "population-level table: connection probability and mean "
-                 "weight per pair of populations, CSV", suffix=".csv",
-                 markers=(edges_csv.POPULATION_HEADER.encode(),)),
+                 "weight per pair of populations, CSV", suffix=".csv"),
     ExportFormat("neuroml", False, neuroml2.render_neuroml,
                  "NeuroML2 network (libNeuroML), schema-validated",
-                 requires="neuroml", suffix=".net.nml",
-                 markers=(b'id="eidecomp_circuit"',), options=_TAUS),
+                 requires="neuroml", suffix=".net.nml", options=_TAUS),
     ExportFormat("pynn", True, pynn_script.render_pynn,
                  "folder: PyNN script (spiking) and its data", options=_SCRIPT),
     ExportFormat("nest", True, rate_scripts.render_nest,
@@ -144,4 +140,8 @@ def render(name, circuit, **options):
     is given (:meth:`eidecomp.types.Circuit.named`)."""
     fmt = get_format(name)
     fmt.check_available()
-    return fmt.render(circuit, **options)
+    out = fmt.render(circuit, **options)
+    if not fmt.folder:
+        return out                  # stamped by its renderer
+    return stamp_folder({n: file_bytes(v) for n, v in out.items()},
+                        kind=f"eidecomp {fmt.name} export")

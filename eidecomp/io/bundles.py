@@ -44,7 +44,7 @@ import numpy as np
 
 from .._version import __version__
 from ..errors import InputError
-from ..params import DEFAULT_PERIOD, silent_pool
+from ..params import DEFAULT_PERIOD, EIRatio, silent_pool
 from ..types import (
     BLOCK_NAMES,
     EXCITATORY,
@@ -61,6 +61,7 @@ from . import staging
 from .binary import npy_header, read_npy
 from .jsondoc import load_json, require
 from .matrices import file_checksum
+from .provenance import stamp_doc, unedited_folder, verify_doc
 from .staging import check_output, file_bytes, staged_folder
 
 __all__ = [
@@ -115,27 +116,27 @@ class BundleKind:
 
 _POST_PRE = "W[post, pre]: row = target, column = source"
 DECOMPOSITION = BundleKind(
-    "decomposition", "eidecomp-decomposition", 2, "summary.json",
+    "decomposition", "eidecomp-decomposition", 3, "summary.json",
     ("low_rank.npy", "sparse.npy"), "decomposition folder", _POST_PRE)
 FACTORED = BundleKind(
-    "factored decomposition", "eidecomp-dask-decomposition", 2, "summary.json",
+    "factored decomposition", "eidecomp-dask-decomposition", 3, "summary.json",
     ("low_rank_U.npy", "low_rank_s.npy", "low_rank_Vt.npy", "sparse.npy"),
     "decomposition folder (dask engine)",
     _POST_PRE + "; L = (U * s) @ Vt from the three low_rank_*.npy factors")
 KERNEL_DECOMPOSITION = BundleKind(
-    "kernel decomposition", "eidecomp-kernel-decomposition", 2, "summary.json",
+    "kernel decomposition", "eidecomp-kernel-decomposition", 3, "summary.json",
     ("low_rank_kernel.npy", "sparse_kernel.npy", "ranks.npy"),
     "kernel decomposition folder",
     "full-grid kernels K[post_feature, pre_feature, offset mod grid] (F, F, H, "
     "W); the tiled matrix is W[post, pre]; ranks.npy is the rank of L at each "
     "spatial frequency")
 CIRCUIT = BundleKind(
-    "circuit", "eidecomp-circuit", 2, "circuit.json",
+    "circuit", "eidecomp-circuit", 3, "circuit.json",
     tuple(f"{b}.npy" for b in BLOCK_NAMES), "circuit bundle",
     "blocks are nonnegative magnitudes, [post, pre]; the sign is the "
     "presynaptic population's")
 TILED = BundleKind(
-    "tiled circuit", "eidecomp-tiled-circuit", 2, "tiled.json",
+    "tiled circuit", "eidecomp-tiled-circuit", 3, "tiled.json",
     tuple(f"{b}_kernel.npy" for b in BLOCK_NAMES), "tiled circuit bundle",
     "full-grid kernels (P, Q, H, W), [post, pre, offset mod grid]; "
     "nonnegative magnitudes, the sign the presynaptic population's")
@@ -171,38 +172,22 @@ def identify(folder):
 
 def replaceable_by(*kinds):
     """The ``replaceable`` rule of :func:`eidecomp.io.staging.check_output`
-    for an output of one of ``kinds``: an empty folder, or an eidecomp folder
-    of the same kind; anything else is a reason string."""
+    for an output of one of ``kinds``: an eidecomp folder of the same kind
+    that nobody has changed (its manifest's stamp and every file's SHA-256
+    as written, nothing added: :func:`eidecomp.io.provenance.unedited_folder`);
+    anything else is a reason string."""
     def rule(path):
         path = Path(path)
-        if path.is_dir() and not any(path.iterdir()):
-            return None
         found = identify(path)
         wanted = " or ".join(k.what for k in kinds)
-        if found not in kinds:
-            return (f"holds an eidecomp {found.what}, not a {wanted}" if found
-                    else f"is not an eidecomp {wanted}")
-        foreign = _foreign_entries(path, found)
-        if foreign:
-            return (f"holds {foreign[0]!r}, which the {found.what} does not "
-                    "list (a file of yours?)")
-        return None
+        if found is not None and found not in kinds:
+            return f"holds an eidecomp {found.what}, not a {wanted}"
+        reason = unedited_folder(path, kinds[0].manifest if found is None
+                                 else found.manifest)
+        if reason is None and found is None:
+            reason = f"is not an eidecomp {wanted}"
+        return reason
     return rule
-
-
-def _foreign_entries(folder, kind):
-    """Entries of ``folder`` that are neither its manifest nor a file its
-    manifest lists: what replacing the folder would destroy of someone
-    else's."""
-    try:
-        sums = load_json(folder / kind.manifest, what=kind.manifest).get("sha256")
-    except InputError:
-        sums = None
-    listed = set(sums) if isinstance(sums, dict) else set()
-    return sorted(e.name for e in folder.iterdir()
-                  if e.name != kind.manifest and not (e.name in listed
-                                                      and e.is_file()
-                                                      and not e.is_symlink()))
 
 
 def check_bundle_output(out, kind, *, force=False, inputs=()):
@@ -234,11 +219,15 @@ class _Pending:
         missing = [f for f in kind.required if f not in self.sums]
         if missing:  # a writer's bug, never the user's
             raise RuntimeError(f"{kind.what} written without {missing}")
-        manifest = {**doc, "format": kind.format,
-                    "format_version": kind.version,
-                    "eidecomp_version": __version__,
-                    "convention": kind.convention,
-                    "sha256": dict(sorted(self.sums.items()))}
+        try:
+            _finite_numbers(doc, kind.manifest)
+        except InputError as exc:  # a writer's bug too: readers refuse it
+            raise RuntimeError(str(exc)) from None
+        manifest = stamp_doc({**doc, "format": kind.format,
+                              "format_version": kind.version,
+                              "eidecomp_version": __version__,
+                              "convention": kind.convention,
+                              "sha256": dict(sorted(self.sums.items()))})
         staging._write_bytes(self.folder / kind.manifest, file_bytes(manifest))
         return manifest
 
@@ -295,6 +284,9 @@ def _manifest(folder, kind):
     if found is not kind:
         raise InputError(f"{path}: " + (f"a {found.what}, not a {kind.what}"
                                         if found else f"not an eidecomp {kind.what}"))
+    _check_version(doc, path, kind)
+    doc = verify_doc(doc, path)
+    _finite_numbers(doc, path)
     return doc
 
 
@@ -308,8 +300,8 @@ def _check_version(doc, path, kind):
                          f"eidecomp reads ({kind.version}); upgrade")
     if version < kind.version:
         raise InputError(f"{path}: format version {version} was written by an "
-                         "older eidecomp without a checksum for every file; "
-                         "write it again with this one")
+                         "older eidecomp, whose manifests carry no provenance "
+                         "stamp; write it again with this one")
 
 
 def _check_sums(folder, doc, path, kind):
@@ -343,7 +335,6 @@ def read_bundle(folder, kind):
     folder = Path(folder)
     doc = _manifest(folder, kind)
     path = folder / kind.manifest
-    _check_version(doc, path, kind)
     _check_sums(folder, doc, path, kind)
     return doc
 
@@ -374,6 +365,7 @@ def read_decomposition(folder):
     if L.shape != S.shape:
         raise InputError(f"{folder}: low_rank.npy is {L.shape} and sparse.npy "
                          f"{S.shape}; they must agree")
+    _check_split_doc(doc, where, L.shape)
     dec = Decomposition(low_rank=L, sparse=S,
                         rank=int(_number(doc, "rank", where, int)),
                         lam=float(_number(doc, "lam", where)),
@@ -384,6 +376,20 @@ def read_decomposition(folder):
                         report=_read_report(doc, where),
                         **_split_values(doc, where))
     return dec, doc
+
+
+def _check_split_doc(doc, where, shape):
+    """summary.json's input shape and rank as the arrays allow: the shape
+    of L and S, a rank between 0 and the smaller side."""
+    given = require(require(doc, "input", dict, where), "shape", list,
+                    f"{where}: input")
+    if given != list(shape):
+        raise InputError(f"{where}: input: 'shape' is {given!r} but the "
+                         f"arrays are {shape[0]} x {shape[1]}")
+    rank = _number(doc, "rank", where, int)
+    if not 0 <= rank <= min(shape):
+        raise InputError(f"{where}: 'rank' is {rank}, outside 0 to "
+                         f"{min(shape)} for a {shape[0]} x {shape[1]} matrix")
 
 
 def read_factored(folder):
@@ -464,11 +470,46 @@ def _check_optional_numbers(doc, where):
 
 
 def _check_counts(doc, where, circuit):
-    """counts as the blocks have them: a hand edit may not contradict them."""
+    """counts, the input's shape and the asked ratio as the blocks have them:
+    a manifest may not contradict its arrays."""
     for kind, size in circuit.sizes.items():
         if doc["counts"][kind] != size:
             raise InputError(f"{where}: counts: {kind!r} is "
                              f"{doc['counts'][kind]} but the blocks hold {size}")
+    n_w = circuit.n_w_units
+    shape = doc["input"].get("shape")     # None: a circuit made in Python
+    if shape is not None and shape != [n_w, n_w]:
+        raise InputError(f"{where}: input: 'shape' is {shape!r} but the "
+                         f"blocks are of a {n_w} x {n_w} W")
+    params = doc["parameters"]
+    n_i = circuit.n_inhibitory
+    if params.get("own_neurons") is False:
+        if params.get("n_inhibitory") != n_i:
+            raise InputError(f"{where}: parameters: 'n_inhibitory' is "
+                             f"{params.get('n_inhibitory')!r} but the blocks "
+                             f"hold {n_i} interneurons")
+        ratio = EIRatio.parse(require(params, "ei_ratio", str,
+                                      f"{where}: parameters"))
+        if ratio.interneurons(circuit.n_excitatory) != n_i:
+            raise InputError(f"{where}: parameters: 'ei_ratio' {ratio.text} "
+                             f"gives {ratio.interneurons(circuit.n_excitatory)}"
+                             f" interneurons, but the blocks hold {n_i}")
+
+
+def _finite_numbers(doc, where):
+    """Every number of a manifest finite (NaN, Infinity and 1e999, which
+    JSON readers take as infinity, refused); iterative."""
+    stack = [(doc, "")]
+    while stack:
+        node, place = stack.pop()
+        if isinstance(node, float) and not np.isfinite(node):
+            raise InputError(f"{where}: {place or 'a value'} is {node!r}, not "
+                             "a finite number")
+        if isinstance(node, dict):
+            stack.extend((v, f"{place}.{k}" if place else str(k))
+                         for k, v in node.items())
+        elif isinstance(node, list):
+            stack.extend((v, f"{place}[{i}]") for i, v in enumerate(node))
 
 
 def _check_circuit_doc(doc, where, n_e):
@@ -491,6 +532,10 @@ def _check_circuit_doc(doc, where, n_e):
                                 and all(isinstance(u, str) for u in ids)):
         raise InputError(f"{where}: 'unit_ids' must be a list of {n_e} names "
                          "(one per excitatory unit) or null")
+    if ids is not None and len(set(ids)) != len(ids):
+        seen = set()
+        twice = next(u for u in ids if u in seen or seen.add(u))
+        raise InputError(f"{where}: 'unit_ids' names {twice!r} twice")
 
 
 @dataclass(frozen=True)

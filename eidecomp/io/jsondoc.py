@@ -3,7 +3,8 @@
 :func:`load_json` refuses, in one InputError line naming the file, a
 missing or unreadable file, one larger than ``max_bytes`` (checked with
 ``os.stat`` before reading), text that is not UTF-8, corrupt JSON (with the
-line and column of Python's json module), nesting deeper than
+line and column of Python's json module), a key given twice in one object,
+nesting deeper than
 ``max_depth`` (found by a linear scan before parsing, so no input reaches
 the parser's recursion) and strings longer than ``max_str``. ``NaN`` and
 ``Infinity`` are accepted: Python's json module writes them, and so does
@@ -19,7 +20,7 @@ import numpy as np
 from ..errors import InputError
 from .text import input_file, read_input_bytes
 
-__all__ = ["load_json", "require"]
+__all__ = ["DuplicateKeyError", "load_json", "no_duplicate_keys", "require"]
 
 # a JSON string from its opening quote to its closing one, or to the end of
 # the text when it is never closed; possessive, so the scan stays linear
@@ -62,6 +63,22 @@ def _too_long(doc, max_str):
         elif isinstance(node, list):
             stack.extend((v, f"{where}[{i}]") for i, v in enumerate(node))
     return None
+
+
+class DuplicateKeyError(ValueError):
+    """A key given twice in one JSON object (Python's json module keeps the
+    last silently; RFC 8259 says the names SHOULD be unique)."""
+
+
+def no_duplicate_keys(pairs):
+    """The ``object_pairs_hook`` of every JSON read: DuplicateKeyError on a
+    key given twice in one object."""
+    seen = set()
+    for key, _ in pairs:
+        if key in seen:
+            raise DuplicateKeyError(key)
+        seen.add(key)
+    return dict(pairs)
 
 
 def load_json(path, *, what="JSON file", max_bytes=16 * 2**20, max_depth=64,
@@ -111,9 +128,12 @@ def load_json(path, *, what="JSON file", max_bytes=16 * 2**20, max_depth=64,
     if nesting_depth(text) > max_depth:
         raise InputError(f"{path}: JSON nested deeper than {max_depth} levels")
     try:
-        doc = json.loads(text)
+        doc = json.loads(text, object_pairs_hook=no_duplicate_keys)
     except json.JSONDecodeError as exc:
         raise InputError(f"{path}: corrupt JSON ({exc})") from None
+    except DuplicateKeyError as exc:
+        raise InputError(f"{path}: corrupt JSON (the key {exc.args[0]!r} "
+                         "appears twice in one object)") from None
     except ValueError:  # the only other one: int() of too many digits
         raise InputError(f"{path}: corrupt JSON (an integer of more than "
                          f"{sys.get_int_max_str_digits()} digits)") from None

@@ -33,10 +33,16 @@ import numpy as np
 
 from ..errors import InputError, WriteError
 
-__all__ = ["HEAD_BYTES", "TERMINATING_SIGNALS", "Terminated", "any_file",
+__all__ = ["FORCE_RULE", "TERMINATING_SIGNALS", "Terminated", "any_file",
            "check_output", "file_bytes", "fill_folder", "handle_termination",
-           "holding", "holding_only",
            "npy_bytes", "staged_folder", "write_file", "write_folder"]
+
+FORCE_RULE = ("replace an existing output only if eidecomp wrote it and "
+              "nobody has changed it since (its provenance stamp still "
+              "matches): never a file or folder of yours, an empty one "
+              "included, never a symbolic link, never an input of the job")
+"""What ``--force`` does, in the words of every command's help and of the
+README (the rule itself: :func:`check_output` and eidecomp.io.provenance)."""
 
 #: Signals that stop a run like SIGINT: ``kill``'s default, and a closed terminal.
 TERMINATING_SIGNALS = (signal.SIGTERM, signal.SIGHUP)
@@ -238,6 +244,13 @@ def _sweep(target):
 def _target(out):
     """The directory entry a write to ``out`` replaces: its parent with every
     symbolic link resolved, and its own name ('.', '..' and '' resolved)."""
+    if not out.is_absolute():
+        try:
+            os.getcwd()
+        except FileNotFoundError:
+            raise InputError(f"{out}: the current folder was deleted, so a "
+                             "relative path names no place; give an absolute "
+                             "one") from None
     if out.name in ("", ".", ".."):
         return Path(os.path.realpath(out))
     return Path(os.path.realpath(out.parent)) / out.name
@@ -281,10 +294,8 @@ def _check_existing(out, target, folder, replaceable):
     if folder:
         if not target.is_dir():
             raise InputError(f"{out}: not a folder; not replaced")
-        if not any(target.iterdir()):
-            return  # an empty folder: nothing to lose
-        reason = ("a folder that is not empty and not known to be an "
-                  "eidecomp output") if replaceable is None else replaceable(out)
+        reason = ("a folder not known to be an eidecomp output"
+                  if replaceable is None else replaceable(out))
         if reason:
             raise InputError(f"{out}: {reason}; not replaced")
         return
@@ -312,41 +323,14 @@ def _check(out, force, folder, replaceable, inputs, sweep=True):
     if sweep:
         _sweep(target)
     existed = os.path.lexists(target)
+    if existed and os.path.islink(target):
+        raise InputError(f"{out}: a symbolic link, which eidecomp never "
+                         "writes through or replaces; not replaced")
     if existed:
         if not force:
             raise InputError(f"{out}: already exists; use --force to replace it")
         _check_existing(out, target, folder, replaceable)
     return target, existed
-
-
-HEAD_BYTES = 4096
-
-
-def holding(markers, what):
-    """The ``replaceable`` rule of a file output: an existing file whose
-    first :data:`HEAD_BYTES` bytes hold one of ``markers`` (how an earlier
-    eidecomp output of that kind begins); any other file is kept."""
-    def rule(path):
-        try:
-            with open(path, "rb") as fh:
-                head = fh.read(HEAD_BYTES)
-        except OSError as exc:
-            return f"cannot be read to tell what it is ({exc.strerror})"
-        if any(m in head for m in markers):
-            return None
-        return f"not an eidecomp {what}"
-    return rule
-
-
-def holding_only(accept, why):
-    """The ``replaceable`` rule of a folder output: a folder whose every
-    entry is a regular file that ``accept(path)`` takes (an earlier output
-    of the same kind); otherwise ``why``, the reason it is kept."""
-    def rule(folder):
-        if all(p.is_file() and accept(p) for p in Path(folder).iterdir()):
-            return None
-        return why
-    return rule
 
 
 def any_file(path):
@@ -395,7 +379,7 @@ def check_output(out, *, force=False, folder=True, replaceable=None, inputs=()):
     ...     check_output(d / "notes", force=True)
     ... except InputError as exc:
     ...     print(str(exc).replace(str(d), "D").replace("; ", ";\\n"))
-    D/notes: a folder that is not empty and not known to be an eidecomp output;
+    D/notes: a folder not known to be an eidecomp output;
     not replaced
     """
     _check(out, force, folder, replaceable, inputs)
@@ -550,14 +534,15 @@ def write_file(out, data, *, force=False, replaceable=None, inputs=()):
 
 def file_bytes(value):
     """The bytes of a file: an ndarray as .npy, a dict as JSON (sorted keys),
-    str as UTF-8, anything else as bytes(value)."""
+    str as UTF-8 (a lone surrogate, from a file name that is not UTF-8, as
+    its backslash escape), anything else as bytes(value)."""
     if isinstance(value, np.ndarray):
         return npy_bytes(value)
     if isinstance(value, dict):
         return (json.dumps(value, indent=2, sort_keys=True, allow_nan=True)
                 + "\n").encode()
     if isinstance(value, str):
-        return value.encode()
+        return value.encode("utf-8", "backslashreplace")
     return bytes(value)
 
 

@@ -21,8 +21,8 @@ import numpy as np
 
 from ..errors import InputError
 
-__all__ = ["MAX_NUMBER_CELL", "cannot_read", "input_file", "read_input_bytes",
-           "read_text_table", "show_cell"]
+__all__ = ["MAX_NUMBER_CELL", "NUMBER", "cannot_read", "input_file",
+           "parse_number", "read_input_bytes", "read_text_table", "show_cell"]
 
 MAX_NUMBER_CELL = 1024
 """The longest cell of a number table, in characters: the exact decimal
@@ -95,11 +95,32 @@ def show_cell(cell, width=40):
     return f"{cell[:width]!r}... ({len(cell)} characters)"
 
 
-def _parse_float(cell):
-    try:
-        return float(cell)
-    except ValueError:
+NUMBER = re.compile(r"[ \t]*[+-]?(?:(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?"
+                    r"|(?i:nan|inf|infinity))[ \t]*")
+"""The one grammar of a number in every text input (tables, the unit
+table, numeric options): ASCII digits, an optional point and exponent,
+spaces or tabs around it, and the words nan, inf and infinity, which the
+readers then refuse as not finite by name. Python's float() alone takes
+more: '1_0' as 10, full-width digits, a leading no-break space."""
+
+
+_BLANKS = " \t"
+_BLANK_RUN = re.compile(r"[ \t]+")
+_LINE_BREAK = re.compile(r"\r\n|\r|\n")
+
+
+def parse_number(text):
+    """The float that ``text`` spells under :data:`NUMBER`, else None.
+
+    >>> parse_number(" -1.5e3"), parse_number("1_0"), parse_number("\uff11")
+    (-1500.0, None, None)
+    >>> parse_number("NaN")
+    nan
+    """
+    if len(text) > MAX_NUMBER_CELL or not NUMBER.fullmatch(text):
         return None
+    return float(text)
+
 
 
 _DECIMAL_COMMA = re.compile(r"^[+-]?\d*,\d+([eE][+-]?\d+)?$")
@@ -141,7 +162,10 @@ def _nonblank_lines(path):
         text = read_input_bytes(path).decode("utf-8-sig")
     except UnicodeDecodeError as exc:
         raise InputError(f"{path}: not UTF-8 text (byte {exc.start})") from None
-    lines = [(k + 1, ln) for k, ln in enumerate(text.splitlines()) if ln.strip()]
+    # ASCII line breaks and blanks only: str.splitlines and str.strip also
+    # take U+0085, U+2028, a no-break space..., which no number table holds
+    lines = [(k + 1, ln) for k, ln in enumerate(_LINE_BREAK.split(text))
+             if ln.strip(_BLANKS)]
     if not lines:
         raise InputError(f"{path}: file is empty")
     for k, ln in lines:
@@ -164,9 +188,9 @@ def _table_rows(path, lines, suffix):
     elif suffix == ".tsv" or (suffix == ".txt" and "\t" in first):
         rows, numbers = _split(path, lines, "\t")
     else:
-        rows = [ln.split() for _, ln in lines]
+        rows = [_BLANK_RUN.split(ln.strip(_BLANKS)) for _, ln in lines]
         numbers = [k for k, _ in lines]  # the file's line of each row
-    rows = [[c.strip() for c in row] for row in rows]
+    rows = [[c.strip(_BLANKS) for c in row] for row in rows]
     _check_cell_lengths(path, rows, numbers)
     return rows, numbers
 
@@ -188,8 +212,8 @@ def _take_header(path, rows, numbers):
     header = None
     # a header row starts with a text or empty cell; a first row that starts
     # with a number is data, so a typo in it is named, never taken as a header
-    if any(_parse_float(c) is None for c in rows[0]) and \
-            _parse_float(rows[0][0]) is None:
+    if any(parse_number(c) is None for c in rows[0]) and \
+            parse_number(rows[0][0]) is None:
         for j, c in enumerate(rows[0]):
             if _DECIMAL_COMMA.match(c):
                 raise _cell_error(path, c, numbers[0], j + 1)
@@ -202,7 +226,7 @@ def _take_header(path, rows, numbers):
 def _has_index(header, rows):
     """Whether the first column is an index: non-numeric in every data row,
     or under an empty header cell of a header as wide as the rows."""
-    first_col_text = all(_parse_float(r[0]) is None for r in rows if r)
+    first_col_text = all(parse_number(r[0]) is None for r in rows if r)
     return first_col_text or (header is not None and header[0] == ""
                               and len(header) == len(rows[0]))
 
@@ -210,7 +234,7 @@ def _has_index(header, rows):
 def _is_text_row(cells):
     """Whether every cell is non-empty text that is no number (not even one
     written with a decimal comma): a second header, or a second table."""
-    return bool(cells) and all(_parse_float(c) is None and c != ""
+    return bool(cells) and all(parse_number(c) is None and c != ""
                                and not _DECIMAL_COMMA.match(c) for c in cells)
 
 
@@ -226,7 +250,7 @@ def _parse_row(path, row, line_no, width, index, several):
                          "header, or two tables in one file?)")
     parsed = []
     for j, cell in enumerate(cells):
-        v = _parse_float(cell)
+        v = parse_number(cell)
         if v is None:
             raise _cell_error(path, cell, line_no, j + 1 + index)
         parsed.append(v)

@@ -19,7 +19,7 @@ import numpy as np
 from ..errors import InputError
 from ..names import NOT_XML_CHAR
 from ..params import DEFAULT_PERIOD
-from .text import input_file, read_input_bytes, show_cell
+from .text import input_file, parse_number, read_input_bytes, show_cell
 
 __all__ = ["MAX_FIELD", "POSITION_UNITS", "UnitTable",
            "read_unit_table", "read_units"]
@@ -102,12 +102,12 @@ def _number_column(path, body, j, name):
     missing cell counts as empty, and is not a number."""
     vals = np.empty(len(body))
     for i, row in enumerate(body):
-        cell = row[j].strip() if j < len(row) else ""
-        try:
-            vals[i] = float(cell)
-        except ValueError:
+        cell = row[j].strip(" \t") if j < len(row) else ""
+        value = parse_number(cell)
+        if value is None:
             raise InputError(f"{path}: row {i + 2}, column '{name}': "
-                             f"not a number: {show_cell(cell)}") from None
+                             f"not a number: {show_cell(cell)}")
+        vals[i] = value
         if not np.isfinite(vals[i]):
             raise InputError(f"{path}: row {i + 2}, column '{name}': "
                              f"{cell if len(cell) <= 40 else show_cell(cell)} "
