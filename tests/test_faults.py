@@ -1341,3 +1341,52 @@ def test_a_deleted_working_folder_is_one_line(small_bundle, tmp_path):
     assert err.decode() == ("eidecomp: error: e.csv: the current folder was "
                             "deleted, so a relative path names no place; give "
                             "an absolute one\n")
+
+
+# --- starting: an interrupt or a failed import before eidecomp is loaded -----
+# References: POSIX setrlimit(RLIMIT_AS) (an mmap beyond it fails, so a
+# shared library cannot be mapped) and signal delivery (SIGINT raises
+# KeyboardInterrupt in Python's main thread).
+
+_LAUNCH = "import sys, eidecomp_launch\nsys.exit(eidecomp_launch.main())"
+
+
+def test_too_little_memory_to_start_is_one_line(tmp_path):
+    import resource
+
+    def limited():
+        _default_signals()
+        resource.setrlimit(resource.RLIMIT_AS, (50_000 * 1024,) * 2)
+
+    run = subprocess.run([sys.executable, "-c", _LAUNCH, "run", "w.csv", "-o",
+                          "c"], cwd=tmp_path, capture_output=True, text=True,
+                         preexec_fn=limited, timeout=120,
+                         env={**os.environ, "OPENBLAS_NUM_THREADS": "1"})
+    assert run.returncode == 1
+    (line,) = run.stderr.splitlines()
+    assert line.startswith("eidecomp: error: cannot start (")
+    assert line.endswith("or a broken installation (install eidecomp again)")
+    assert not any(tmp_path.iterdir())
+
+
+def test_an_interrupt_while_starting_is_one_line(tmp_path):
+    """The import of eidecomp.cli is held (a meta-path finder that waits) so
+    that SIGINT lands inside it, as Ctrl-C during a slow start does."""
+    hold = ("import sys, time\n"
+            "class Hold:\n"
+            "    def find_spec(self, name, path=None, target=None):\n"
+            "        if name == 'eidecomp.cli':\n"
+            "            print('loading', file=sys.stderr, flush=True)\n"
+            "            time.sleep(60)\n"
+            "sys.meta_path.insert(0, Hold())\n")
+    proc = subprocess.Popen([sys.executable, "-c", hold + _LAUNCH, "run",
+                             "w.csv", "-o", "c"], cwd=tmp_path,
+                            stderr=subprocess.PIPE, text=True,
+                            preexec_fn=_default_signals)
+    assert proc.stderr.readline() == "loading\n"
+    proc.send_signal(signal.SIGINT)
+    with proc.stderr:
+        rest = proc.stderr.read()
+    assert proc.wait(timeout=60) == 130
+    assert rest == "eidecomp: interrupted while starting; nothing written\n"
+    assert not any(tmp_path.iterdir())
