@@ -2,7 +2,9 @@
 
 Exit status: 0 on success, 2 for bad input or options (one line on stderr, no
 traceback, nothing written), 1 when a solver fails or an output cannot be
-written (a full disk: nothing is left half-written), 130 on an interrupt.
+written (a full disk: nothing is left half-written), 3 when the output was
+written but standard output could not take its summary, 130 on an
+interrupt.
 """
 
 import argparse
@@ -13,6 +15,7 @@ import warnings
 
 from ._version import __version__
 from .errors import ConvergenceWarning, InputError, SolverError, WriteError
+from .grammar import parse_integer, parse_number
 from .io.staging import FORCE_RULE
 from .params import (
     AGREEMENT_RTOL,
@@ -46,9 +49,7 @@ class _Parser(argparse.ArgumentParser):
 
 def _number(text):
     """An option's number, under the one grammar of text numbers
-    (eidecomp.io.text.NUMBER)."""
-    from .io.text import parse_number
-
+    (eidecomp.grammar)."""
     value = parse_number(text)
     if value is None:
         raise argparse.ArgumentTypeError(f"not a number: {text!r}")
@@ -63,10 +64,9 @@ def _positive_float(text):
 
 
 def _count(text):
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"not a whole number: {text!r}") from None
+    value = parse_integer(text)
+    if value is None:
+        raise argparse.ArgumentTypeError(f"not a whole number: {text!r}")
     if value < 0:
         raise argparse.ArgumentTypeError(f"must be 0 or more: {text!r}")
     return value
@@ -658,6 +658,12 @@ def _verdict(diff):
             "||W - W_eff|| / ||W|| above, or assemble with more interneurons")
 
 
+SUMMARY_LOST = 3
+"""The exit status when the output was written but its summary could not be
+printed (a closed pipe, a full device): neither success nor a failure that
+left nothing behind."""
+
+
 class _SummaryLost(Exception):
     """Standard output could not take the summary: (reason, what was
     written or None)."""
@@ -675,6 +681,8 @@ def _out(text, written=None):
     """Print a job's summary on standard output. One that cannot take it (a
     closed pipe, a full device) ends the command in main with one line that
     says what was written."""
+    if sys.stdout is None:              # closed before Python started (>&-)
+        raise _SummaryLost("it is closed", written)
     try:
         print(_printable(text, sys.stdout))
         sys.stdout.flush()
@@ -693,6 +701,8 @@ def _show_warning(message, category, filename, lineno, file=None, line=None):
 def _say(line):
     """One line on standard error; a terminal that went away (SIGHUP) is
     not an error of its own: the exit status says what happened."""
+    if sys.stderr is None:              # closed: print() would use stdout
+        return
     try:
         print(_printable(line, sys.stderr), file=sys.stderr)
     except OSError:
@@ -752,10 +762,13 @@ def main(argv=None):
         return 1
     except _SummaryLost as exc:
         reason, written = exc.args
-        say(f"eidecomp: error: standard output could not take the summary "
-            f"({reason}); " + (f"the output was written to {written}"
-                               if written is not None else "nothing was written"))
-        return 1
+        if written is None:
+            say(f"eidecomp: error: standard output could not take the "
+                f"result ({reason}); nothing was written")
+            return 1
+        say(f"eidecomp: standard output could not take the summary "
+            f"({reason}); the output was written to {written}")
+        return SUMMARY_LOST
 
 
 if __name__ == "__main__":

@@ -23,6 +23,7 @@ F x F blocks G_hat[:, :, f], so ||M||_* = sum_f ||G_hat_f||_*,
 import numpy as np
 
 from .errors import InputError
+from .grammar import parse_integer
 from .limits import check_fits
 
 __all__ = ["check_kernel", "dense_bytes", "expand", "expand_full",
@@ -35,10 +36,10 @@ def parse_grid(text):
     >>> parse_grid("12x8")
     (12, 8)
     """
-    try:
-        h, w = (int(t) for t in str(text).lower().split("x"))
-    except ValueError:
-        raise InputError(f"grid {text!r} is not of the form HxW, e.g. 64x64") from None
+    sides = [parse_integer(t) for t in str(text).lower().split("x")]
+    if len(sides) != 2 or None in sides:
+        raise InputError(f"grid {text!r} is not of the form HxW, e.g. 64x64")
+    h, w = sides
     if h < 1 or w < 1:
         raise InputError(f"grid {text!r} must be at least 1x1")
     return h, w

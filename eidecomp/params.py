@@ -21,6 +21,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .errors import InputError
+from .grammar import NUMBER_BODY
 
 __all__ = [
     "AGREEMENT_RTOL",
@@ -256,7 +257,7 @@ class SolverSettings:
 
 # --- the E:I ratio ------------------------------------------------------------
 
-_RATIO = re.compile(r"^\s*([0-9.eE+-]+)\s*(?::\s*([0-9.eE+-]+)\s*)?$")
+_RATIO = re.compile(rf"[ \t]*({NUMBER_BODY})[ \t]*(?::[ \t]*({NUMBER_BODY})[ \t]*)?")
 DEFAULT_EI_RATIO = "4:1"  # about four to one in cortex (common practice)
 
 
@@ -288,7 +289,7 @@ class EIRatio:
             value = float(spec)
             text = f"{value:g}:1"
         else:
-            m = _RATIO.match(str(spec))
+            m = _RATIO.fullmatch(str(spec))
             try:
                 e = float(m.group(1))
                 i = float(m.group(2)) if m.group(2) is not None else 1.0

@@ -575,6 +575,7 @@ def run_export(bundle, fmt, output, *, force=False, tau_e=TAU_E_MS,
     the CSV-injection quote (eidecomp.export.edges_csv).
     """
     from .export import get_format, render
+    from .export.registry import folder_kind
     from .io import write_file, write_folder
     from .io.provenance import unedited_file, unedited_folder
     from .io.staging import check_output
@@ -604,8 +605,9 @@ def run_export(bundle, fmt, output, *, force=False, tau_e=TAU_E_MS,
     if not spec.folder:
         return write_file(output, data, force=force,
                           replaceable=unedited_file, inputs=(bundle,))
-    return write_folder(output, data, force=force, replaceable=unedited_folder,
-                        inputs=(bundle,))
+    return write_folder(output, data, force=force, inputs=(bundle,),
+                        replaceable=lambda p: unedited_folder(
+                            p, kind=folder_kind(fmt)))
 
 
 # --- simulate ----------------------------------------------------------------
@@ -694,7 +696,10 @@ def run_report(bundle, output, *, force=False, progress=None):
     from .io.staging import check_output, file_bytes, fill_folder
 
     bundles.expect_kind(bundle, CIRCUIT)  # a wrong input is named first
-    keep, keep_figures = unedited_file, unedited_folder
+    keep = unedited_file
+
+    def keep_figures(path):
+        return unedited_folder(path, kind=REPORT_FIGURES_KIND)
     out = check_output(output, force=force, folder=False, replaceable=keep,
                        inputs=(bundle,))
     figures = report_figures_folder(out)
@@ -722,9 +727,13 @@ def run_report(bundle, output, *, force=False, progress=None):
                        inputs=(bundle,)) as staged:
         fill_folder(staged, stamp_folder(
             {name: file_bytes(svg) for name, svg in svgs.items()},
-            kind="eidecomp report figures"))
+            kind=REPORT_FIGURES_KIND))
         return write_file(out, stamp(file_bytes(page), "xml"),
                           force=force, replaceable=keep, inputs=(bundle,))
+
+
+REPORT_FIGURES_KIND = "eidecomp report figures"
+"""The kind the manifest of a report's figures folder names."""
 
 
 def report_figures_folder(page):

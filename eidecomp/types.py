@@ -621,7 +621,8 @@ class Circuit:
                 raise ValueError(f"w_index must give one W unit (>= 0) for each "
                                  f"of the {total} units, got {len(index)}")
             e = index[:self.n_excitatory]
-            if (set(index) != set(range(max(index, default=-1) + 1))
+            if (max(index, default=-1) >= len(index)  # cannot name them all
+                    or set(index) != set(range(max(index, default=-1) + 1))
                     or len(set(e)) != len(e) or set(e) & set(index[len(e):])):
                 raise ValueError("w_index must name every W unit at least once, "
                                  "each E unit once, and no unit as both E and I")

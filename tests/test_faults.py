@@ -1283,10 +1283,10 @@ def test_a_full_stdout_says_what_was_written(small_bundle, tmp_path):
     with open("/dev/full", "wb") as full:
         code, err = _child(["export", str(small_bundle), "--format", "csv",
                             "-o", "e.csv"], tmp_path, stdout=full)
-    assert code == 1
-    assert err == ("eidecomp: error: standard output could not take the "
-                   "summary (No space left on device); the output was "
-                   "written to e.csv\n")
+    assert code == 3                       # written, its summary lost
+    assert err == ("eidecomp: standard output could not take the summary "
+                   "(No space left on device); the output was written to "
+                   "e.csv\n")
     assert (tmp_path / "e.csv").is_file()
 
 
@@ -1299,10 +1299,9 @@ def test_a_closed_pipe_says_what_was_written(small_bundle, tmp_path):
     proc.stdout.close()              # the reader has gone (like `| head -0`)
     with proc.stderr:
         err = proc.stderr.read().decode()
-    assert proc.wait(timeout=600) == 1
-    assert err == ("eidecomp: error: standard output could not take the "
-                   "summary (Broken pipe); the output was written to "
-                   "g.json\n")
+    assert proc.wait(timeout=600) == 3
+    assert err == ("eidecomp: standard output could not take the summary "
+                   "(Broken pipe); the output was written to g.json\n")
     assert (tmp_path / "g.json").is_file()
 
 
@@ -1390,3 +1389,89 @@ def test_an_interrupt_while_starting_is_one_line(tmp_path):
     assert proc.wait(timeout=60) == 130
     assert rest == "eidecomp: interrupted while starting; nothing written\n"
     assert not any(tmp_path.iterdir())
+
+
+# --- found by the adversarial pass over the provenance change (issue 28) ------
+
+def test_a_closed_stdout_descriptor_is_one_line(small_bundle, tmp_path):
+    """stdout closed before Python starts (`>&-`: sys.stdout is None)."""
+    def closed():
+        _default_signals()
+        os.close(1)
+
+    run = subprocess.run([sys.executable, "-m", "eidecomp.cli", "export",
+                          str(small_bundle), "--format", "csv", "-o", "e.csv"],
+                         cwd=tmp_path, stderr=subprocess.PIPE, text=True,
+                         preexec_fn=closed, timeout=600)
+    assert run.returncode == 3
+    assert run.stderr == ("eidecomp: standard output could not take the "
+                          "summary (it is closed); the output was written to "
+                          "e.csv\n")
+
+
+def test_a_report_page_name_that_is_not_utf8(small_bundle, tmp_path):
+    """The figure links of a page named with bytes that are not UTF-8 are
+    percent-encoded from those bytes (RFC 3986), so they open the files."""
+    from urllib.parse import unquote_to_bytes
+
+    page = tmp_path / os.fsdecode(b"p\xfd.html")
+    assert main(["report", str(small_bundle), "-o", str(page), "-q"]) == 0
+    links = re.findall(r"href='([^']+\.svg)'", page.read_text("utf-8", "replace"))
+    assert links
+    for link in links:
+        assert (tmp_path / os.fsdecode(unquote_to_bytes(link))).is_file()
+
+
+def test_a_refused_write_leaves_a_leftover_lookalike_alone(tmp_path, capsys):
+    """The temporary copies of killed runs are swept only when the write goes
+    ahead: a refusal changes nothing, even a folder named like one."""
+    w = _small_matrix(tmp_path)
+    assert main(["run", str(w), "-o", str(tmp_path / "B"), "-q"]) == 0
+    look = tmp_path / f".B.eidecomp-{_dead_pid()}-abcdefgh.partial"
+    look.mkdir()
+    (look / "thesis.tex").write_text("mine")
+    before = _listing(tmp_path)
+    capsys.readouterr()
+    assert main(["run", str(w), "-o", str(tmp_path / "B"), "-q"]) == 2
+    assert _listing(tmp_path) == before
+
+
+def test_an_unreadable_file_inside_our_folder_is_one_line(small_bundle,
+                                                          tmp_path, capsys):
+    """A file of an eidecomp folder that cannot be read is reported, not a
+    traceback (the read fails as the kernel fails it: open(2) EACCES)."""
+    import builtins
+
+    c = tmp_path / "c"
+    shutil.copytree(small_bundle, c)
+    real_open = builtins.open
+    target = str(c / "J_EE.npy")
+
+    def failing(path, *a, **k):
+        if str(path) == target:
+            raise PermissionError(errno.EACCES, "Permission denied", target)
+        return real_open(path, *a, **k)
+
+    w = _small_matrix(tmp_path)
+    with pytest.MonkeyPatch.context() as mp:
+        mp.setattr(builtins, "open", failing)
+        capsys.readouterr()
+        assert main(["run", str(w), "-o", str(c), "-q", "--force"]) == 2
+    assert _err_lines(capsys) == [
+        f"eidecomp: error: {c}: 'J_EE.npy' cannot be read to check it "
+        "(Permission denied); not replaced"]
+
+
+def test_a_large_stamped_file_is_checked_in_a_stream(tmp_path):
+    """A trailing stamp is verified by hashing blocks, not by reading the
+    file whole (checked here against hashlib over a 64 MiB file)."""
+    from eidecomp.io.provenance import stamp, unedited_file
+
+    body = np.random.default_rng(0).bytes(64 << 20)
+    path = tmp_path / "big.csv"
+    path.write_bytes(stamp(body, "hash"))
+    assert unedited_file(path) is None
+    with open(path, "r+b") as fh:
+        fh.seek(1 << 20)
+        fh.write(b"x")
+    assert unedited_file(path).startswith("edited after eidecomp wrote it")

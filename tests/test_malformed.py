@@ -1023,6 +1023,63 @@ ROWS += [
     ("dec-manifest-edited", {"DEC": "raw-lam"}, ASM_DEC,
      "{d}/dec/summary.json: edited after eidecomp wrote it (its provenance "
      "digest does not match); not read"),
+    # found by the adversarial pass over the change (issue 28)
+    ("restamped-dec-lam-huge-integer", {"DEC": "set:lam=" + "1" + "0" * 400},
+     ASM_DEC, "{d}/dec/summary.json: lam is an integer of 401 digits, beyond "
+              "2**53 (no count or size eidecomp writes is)"),
+    ("restamped-period-huge-integer", {"BUNDLE": "set:parameters.period=1"
+                                                 + "0" * 400},
+     ["export", "{d}/c", "--format", "json", "-o", "{d}/g.json"],
+     "{d}/c/circuit.json: parameters.period is an integer of 401 digits, "
+     "beyond 2**53 (no count or size eidecomp writes is)"),
+    ("restamped-w-index-far", {"BUNDLE": "set:w_index=" + str(
+        list(range(24)) + [10**9])},
+     ["export", "{d}/c", "--format", "csv", "-o", "{d}/e.csv"],
+     "{d}/c: w_index must name every W unit at least once, each E unit "
+     "once, and no unit as both E and I"),
+    ("restamped-ratio-own-neurons-missing",
+     {"BUNDLE": 'drop:parameters.own_neurons;set:parameters.ei_ratio="1:1"'},
+     ["export", "{d}/c", "--format", "csv", "-o", "{d}/e.csv"],
+     "{d}/c/circuit.json: parameters: 'ei_ratio' 1:1 gives 20 interneurons, "
+     "but the blocks hold 5"),
+    ("restamped-own-neurons-claimed", {"BUNDLE": "set:parameters.own_neurons="
+                                                 "true"},
+     ["export", "{d}/c", "--format", "csv", "-o", "{d}/e.csv"],
+     "{d}/c/circuit.json: parameters: 'own_neurons' is true but the blocks "
+     "are not a circuit of W's own neurons"),
+    ("restamped-own-neurons-text", {"BUNDLE": 'set:parameters.own_neurons="no"'},
+     ["export", "{d}/c", "--format", "csv", "-o", "{d}/e.csv"],
+     "{d}/c/circuit.json: parameters: key 'own_neurons' must be true or false "
+     "(got a string)"),
+    ("read-manifest-stamp-with-a-note", {"BUNDLE": "stamp-note"},
+     ["report", "{d}/c", "-o", "{d}/r.html"],
+     "{d}/c/circuit.json: edited after eidecomp wrote it (its provenance "
+     "digest does not match); not read"),
+    ("force-json-stamp-with-a-note",
+     {"BUNDLE": "ok", "g.json": _stamped(b'{"a": 1}', "json",
+                                         lambda b: b.replace(b'"}', b'", "n": 1}'))},
+     _json_export("{d}/g.json"), f"{{d}}/g.json: {EDITED}"),
+    ("force-export-folder-over-report-figures", {"BUNDLE": "ok",
+                                                 "r.html": ("REPORT", None)},
+     _to("pynn", "{d}/r-figures"),
+     "{d}/r-figures: holds eidecomp report figures, not eidecomp pynn export; "
+     "not replaced"),
+    ("force-nest-over-brian2-folder", {"BUNDLE": "ok",
+                                       "n": _export("brian2")},
+     _to("nest", "{d}/n"),
+     "{d}/n: holds eidecomp brian2 export, not eidecomp nest export; not "
+     "replaced"),
+    ("output-inside-another-bundle", {"BUNDLE": "ok", "w.csv": GOOD,
+                                      "c2": ("COPY", "c")},
+     ["export", "{d}/c", "--format", "json", "-o", "{d}/c2/circuit.json",
+      "--force"],
+     "{d}/c2/circuit.json: inside {d}/c2, a folder eidecomp wrote "
+     "(circuit.json lists its files); write elsewhere"),
+    ("output-new-file-inside-an-export-folder", {"BUNDLE": "ok",
+                                                 "n": _export("nest")},
+     ["export", "{d}/c", "--format", "csv", "-o", "{d}/n/e.csv"],
+     "{d}/n/e.csv: inside {d}/n, a folder eidecomp wrote "
+     "(eidecomp-manifest.json lists its files); write elsewhere"),
     ("read-manifest-duplicate-key", {"BUNDLE": "dup-key"},
      ["export", "{d}/c", "--format", "csv", "-o", "{d}/e.csv"],
      "{d}/c/circuit.json: corrupt JSON (the key 'format' appears twice in one "
@@ -1067,7 +1124,10 @@ PLANTS = {  # bytes planted into a bundle, their checksum put into circuit.json
 
 
 def _edit_bundle(c, mode):
-    """The hand edits of a circuit bundle; True when ``mode`` is one."""
+    """The hand edits of a circuit bundle; True when ``mode`` is one (or
+    several joined by ';', made in turn)."""
+    if ";" in mode:
+        return all([_edit_bundle(c, m) for m in mode.split(";")])
     doc = c / "circuit.json"
     if mode == "ok":
         return True
@@ -1098,6 +1158,9 @@ def _edit_bundle(c, mode):
     elif mode == "zero-stamp":
         _edit_manifest(doc, lambda m: m["eidecomp_provenance"].__setitem__(
             "sha256", "0" * 64), restamp=False)
+    elif mode == "stamp-note":   # a member added inside the stamp itself
+        _edit_manifest(doc, lambda m: m["eidecomp_provenance"].__setitem__(
+            "note", "mine"), restamp=False)
     elif mode == "dup-key":     # the format named twice, the second a lie
         text = doc.read_text()
         doc.write_text(text.replace("{", '{"format": "x", ', 1))
@@ -1240,6 +1303,9 @@ def _make(d, files, bundle):
             continue
         if content == "DIR":
             path.mkdir()
+            continue
+        if isinstance(content, tuple) and content[0] == "COPY":
+            shutil.copytree(d / content[1], path)
             continue
         if isinstance(content, tuple) and content[0] == "LINK":
             path.symlink_to(d / content[1])

@@ -140,6 +140,7 @@ def test_a_failed_page_write_leaves_the_old_figures_beside_the_old_page(
     import eidecomp.io
     from eidecomp.errors import WriteError
     from eidecomp.io.provenance import FOLDER_MANIFEST, folder_manifest
+    from eidecomp.pipeline import REPORT_FIGURES_KIND
 
     out = tmp_path / "r.html"
     assert main(["report", str(bundle), "-o", str(out), "-q"]) == 0
@@ -150,7 +151,7 @@ def test_a_failed_page_write_leaves_the_old_figures_beside_the_old_page(
     figures = {p.name: p.read_bytes() for p in svg.parent.iterdir()
                if p.name != FOLDER_MANIFEST}
     (svg.parent / FOLDER_MANIFEST).write_bytes(
-        folder_manifest(figures, kind="eidecomp report figures"))
+        folder_manifest(figures, kind=REPORT_FIGURES_KIND))
     old_figures = {p.name: p.read_bytes() for p in svg.parent.iterdir()}
 
     def full_disk(path, *args, **kwargs):

@@ -12,6 +12,7 @@ import base64
 import html
 import io
 import json
+import os
 import re
 import warnings
 from urllib.parse import quote
@@ -462,7 +463,9 @@ def _render(circuit, meta, W, low_rank, features, positions, path_points,
         if vector is not None:
             name = svg_name(k, title)
             files[name] = vector
-            href = html.escape(quote(link + name), quote=True)
+            # the link's bytes as the file system names them (a name that
+            # is not UTF-8 holds lone surrogates, PEP 383), percent-encoded
+            href = html.escape(quote(os.fsencode(link + name)), quote=True)
             caption += f" (<a href='{href}'>SVG</a>)"
         parts.append(f"<figure><img class='figure' alt='{html.escape(title)}' "
                      f"src='data:image/png;base64,{data}'><figcaption>"

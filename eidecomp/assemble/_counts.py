@@ -3,6 +3,7 @@
 import math
 
 from ..errors import InputError
+from ..grammar import parse_number
 from ..params import EIRatio
 
 __all__ = ["inhibitory_count", "parse_ratio", "split_counts"]
@@ -56,11 +57,11 @@ def split_counts(n_i, share, rank_low, has_tuned):
     """
     if isinstance(share, str):
         if share != "auto":
-            try:
-                share = float(share)
-            except ValueError:
+            number = parse_number(share)
+            if number is None:
                 raise InputError(f"untuned share {share!r} is neither 'auto' "
-                                 "nor a number in [0, 1]") from None
+                                 "nor a number in [0, 1]")
+            share = number
     if share == "auto":
         keep = 1 if has_tuned and n_i > 1 else 0
         n_u = max(0, min(int(rank_low), n_i - keep))

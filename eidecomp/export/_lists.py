@@ -67,9 +67,11 @@ def npz_bytes(arrays):
     return buf.getvalue()
 
 
-def write_into(folder, files):
+def write_into(folder, files, fmt):
     """Write {name: bytes} into ``folder`` (created if missing), each file
-    through a temporary name renamed into place; other files are kept."""
+    through a temporary name renamed into place, with the folder's stamped
+    manifest for export format ``fmt`` (eidecomp.io.provenance); other
+    files are kept."""
     from pathlib import Path
 
     from ..io.provenance import stamp_folder
@@ -77,8 +79,10 @@ def write_into(folder, files):
 
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
+    from .registry import folder_kind
+
     files = stamp_folder({n: file_bytes(v) for n, v in files.items()},
-                         kind="eidecomp simulator script")
+                         kind=folder_kind(fmt))
     for name, data in files.items():
         write_file(folder / name, data, force=True,
                       replaceable=any_file)

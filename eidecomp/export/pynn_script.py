@@ -326,4 +326,4 @@ def render_pynn(circuit, *, features=None, positions=None, unit_ids=None,
 
 def write_pynn(circuit, folder, h=None, **kwargs):
     """Write circuit_pynn.py and circuit_pynn_data.npz into ``folder``."""
-    return write_into(folder, pynn_files(circuit, h, **kwargs))
+    return write_into(folder, pynn_files(circuit, h, **kwargs), "pynn")

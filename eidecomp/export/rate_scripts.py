@@ -153,4 +153,5 @@ def render_brian2(circuit, *, features=None, positions=None, unit_ids=None,
 
 def write_rate_script(circuit, folder, engine, h=None, **kwargs):
     """Write the script for ``engine`` ("nest" or "brian2") and its data."""
-    return write_into(folder, rate_script_files(circuit, engine, h, **kwargs))
+    return write_into(folder, rate_script_files(circuit, engine, h, **kwargs),
+                      engine)

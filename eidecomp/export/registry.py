@@ -42,7 +42,8 @@ from ..io.staging import file_bytes
 from . import edges_csv, graph_files, neuroml2, pynn_script, rate_scripts
 
 __all__ = ["FILE_FORMATS", "FOLDER_FORMATS", "FORMATS", "REGISTRY",
-           "ExportFormat", "get_format", "render", "require_module"]
+           "ExportFormat", "folder_kind", "get_format", "render",
+           "require_module"]
 
 SIM_EXTRA = "pip install 'eidecomp[sim]'"
 
@@ -144,4 +145,10 @@ def render(name, circuit, **options):
     if not fmt.folder:
         return out                  # stamped by its renderer
     return stamp_folder({n: file_bytes(v) for n, v in out.items()},
-                        kind=f"eidecomp {fmt.name} export")
+                        kind=folder_kind(fmt.name))
+
+
+def folder_kind(name):
+    """The kind an export folder's manifest names (eidecomp.io.provenance):
+    ``--force`` replaces a folder export only with one of the same format."""
+    return f"eidecomp {name} export"

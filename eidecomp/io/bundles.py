@@ -483,11 +483,20 @@ def _check_counts(doc, where, circuit):
                          f"blocks are of a {n_w} x {n_w} W")
     params = doc["parameters"]
     n_i = circuit.n_inhibitory
-    if params.get("own_neurons") is False:
-        if params.get("n_inhibitory") != n_i:
-            raise InputError(f"{where}: parameters: 'n_inhibitory' is "
-                             f"{params.get('n_inhibitory')!r} but the blocks "
-                             f"hold {n_i} interneurons")
+    if params.get("own_neurons") is not None:
+        own = require(params, "own_neurons", bool, f"{where}: parameters")
+        if own != circuit.own_neurons:
+            raise InputError(f"{where}: parameters: 'own_neurons' is "
+                             f"{str(own).lower()} but the blocks are "
+                             + ("" if circuit.own_neurons else "not ")
+                             + "a circuit of W's own neurons")
+    if circuit.own_neurons:       # W's own inhibitory neurons: no ratio asked
+        return
+    if "n_inhibitory" in params and params["n_inhibitory"] != n_i:
+        raise InputError(f"{where}: parameters: 'n_inhibitory' is "
+                         f"{params['n_inhibitory']!r} but the blocks hold "
+                         f"{n_i} interneurons")
+    if "ei_ratio" in params:
         ratio = EIRatio.parse(require(params, "ei_ratio", str,
                                       f"{where}: parameters"))
         if ratio.interneurons(circuit.n_excitatory) != n_i:
@@ -498,13 +507,19 @@ def _check_counts(doc, where, circuit):
 
 def _finite_numbers(doc, where):
     """Every number of a manifest finite (NaN, Infinity and 1e999, which
-    JSON readers take as infinity, refused); iterative."""
+    JSON readers take as infinity, refused) and every integer within 2**53
+    (a float64 holds it exactly; 10**400 would overflow later); iterative."""
     stack = [(doc, "")]
     while stack:
         node, place = stack.pop()
         if isinstance(node, float) and not np.isfinite(node):
             raise InputError(f"{where}: {place or 'a value'} is {node!r}, not "
                              "a finite number")
+        if (isinstance(node, int) and not isinstance(node, bool)
+                and abs(node) > 2**53):
+            raise InputError(f"{where}: {place or 'a value'} is an integer of "
+                             f"{len(str(abs(node)))} digits, beyond 2**53 (no "
+                             "count or size eidecomp writes is)")
         if isinstance(node, dict):
             stack.extend((v, f"{place}.{k}" if place else str(k))
                          for k, v in node.items())

@@ -73,8 +73,9 @@ def read_matrix(path, *, key=None, transpose=False, square=True, what="matrix"):
     array([[ 0. ,  1.5],
            [-2. ,  0. ]])
     """
+    size = input_file(path, what).st_size   # as given: 'w.csv/' is no file
     path = Path(path)
-    if input_file(path, what).st_size == 0:
+    if size == 0:
         raise InputError(f"{path}: file is empty")
     arr = np.asarray(load_array(path, key, what=what))
     if arr.dtype.kind not in "biuf":

@@ -47,7 +47,7 @@ from ..errors import InputError
 from .jsondoc import no_duplicate_keys
 
 __all__ = ["FOLDER_MANIFEST", "JSON_KEY", "SUFFIX_SYNTAX", "SYNTAXES",
-           "canonical_json", "digest", "folder_manifest", "stamp",
+           "canonical_json", "digest", "folder_manifest", "is_manifest", "stamp",
            "stamp_doc", "stamp_folder", "unedited_bytes", "unedited_file",
            "unedited_folder", "verify_doc"]
 
@@ -151,6 +151,8 @@ def unedited_bytes(data):
 def _doc_reason(doc):
     if not isinstance(doc, dict) or not isinstance(doc.get(JSON_KEY), dict):
         return UNSTAMPED
+    if set(doc[JSON_KEY]) != {"sha256"}:     # the stamp holds nothing else
+        return EDITED
     recorded = doc[JSON_KEY].get("sha256")
     body = {k: v for k, v in doc.items() if k != JSON_KEY}
     try:
@@ -185,18 +187,53 @@ def _entry_reason(path):
     return None
 
 
+JSON_CHECK_MAX = 1 << 30
+"""The largest JSON file whose stamp is checked (it is parsed whole); a
+larger one is not proved unedited. A stamp that ends the file is checked
+in a stream, at any size."""
+
+
 def unedited_file(path):
     """None when ``path`` is a regular file (not a link) whose stamp
     matches, else the reason it is not (the ``replaceable`` rule of a file
-    output)."""
+    output). A trailing stamp is checked by hashing the file in blocks; a
+    JSON stamp by parsing a file of at most ``JSON_CHECK_MAX`` bytes."""
     reason = _entry_reason(path)
     if reason is not None:
         return reason
     try:
-        data = Path(path).read_bytes()
+        with open(path, "rb") as fh:
+            size = os.fstat(fh.fileno()).st_size
+            fh.seek(max(size - _TAIL_BYTES, 0))
+            found = _trailer(fh.read())
+            if found is not None:
+                _, hexd, length = found
+                fh.seek(0)
+                return None if _stream_digest(fh, size - length) == hexd \
+                    else EDITED
+            fh.seek(0)
+            if not fh.read(64).lstrip().startswith(b"{"):
+                return UNSTAMPED
+            if size > JSON_CHECK_MAX:
+                return (f"a JSON file of {size} bytes, too large to check "
+                        "its provenance stamp")
+            fh.seek(0)
+            data = fh.read()
     except OSError as exc:
         return f"cannot be read to check its provenance ({exc.strerror})"
     return unedited_bytes(data)
+
+
+def _stream_digest(fh, n):
+    """The SHA-256 of the next ``n`` bytes of ``fh``, read in blocks."""
+    h = hashlib.sha256()
+    while n > 0:
+        block = fh.read(min(n, 1 << 20))
+        if not block:
+            break
+        h.update(block)
+        n -= len(block)
+    return h.hexdigest()
 
 
 def folder_manifest(files, **fields):
@@ -204,6 +241,20 @@ def folder_manifest(files, **fields):
     (name -> bytes): ``fields`` and the SHA-256 of each file, stamped."""
     doc = {**fields, "sha256": {n: digest(d) for n, d in sorted(files.items())}}
     return (json.dumps(stamp_doc(doc), indent=1) + "\n").encode("ascii")
+
+
+def is_manifest(path):
+    """Whether ``path`` is a regular file holding the stamped manifest of a
+    folder eidecomp wrote (a JSON object with its stamp and a "sha256"
+    object), edited or not."""
+    if _entry_reason(path) is not None:
+        return False
+    try:
+        doc = _loads(Path(path).read_bytes())
+    except (OSError, UnicodeDecodeError, ValueError, RecursionError):
+        return False
+    return (isinstance(doc, dict) and isinstance(doc.get(JSON_KEY), dict)
+            and isinstance(doc.get("sha256"), dict))
 
 
 def stamp_folder(files, **fields):
@@ -217,11 +268,12 @@ def stamp_folder(files, **fields):
     return out
 
 
-def unedited_folder(path, manifest=FOLDER_MANIFEST):
+def unedited_folder(path, manifest=FOLDER_MANIFEST, kind=None):
     """None when ``path`` is a folder (not a link) whose ``manifest`` is
     stamped and unedited and lists every other entry, each a regular file
-    with the recorded SHA-256; else the reason (the ``replaceable`` rule of
-    a folder output)."""
+    with the recorded SHA-256, and (given ``kind``) whose manifest names
+    that kind; else the reason (the ``replaceable`` rule of a folder
+    output)."""
     path = Path(path)
     try:
         mode = os.lstat(path).st_mode
@@ -243,9 +295,12 @@ def unedited_folder(path, manifest=FOLDER_MANIFEST):
     if reason is not None:
         return f"{manifest}: {reason}"
     try:
-        sums = _loads((path / manifest).read_bytes()).get("sha256")
+        doc = _loads((path / manifest).read_bytes())
+        sums = doc.get("sha256")
     except (OSError, UnicodeDecodeError, ValueError, AttributeError):
-        sums = None
+        doc, sums = {}, None
+    if kind is not None and doc.get("kind") != kind:
+        return f"holds {doc.get('kind') or 'another output'}, not {kind}"
     if not isinstance(sums, dict):
         return f"its {manifest} lists no files"
     for name in entries:
@@ -259,7 +314,11 @@ def unedited_folder(path, manifest=FOLDER_MANIFEST):
         reason = _entry_reason(where)
         if reason is not None:
             return f"{name!r} {reason}"
-        if _file_digest(where) != recorded:
+        try:
+            changed = _file_digest(where) != recorded
+        except OSError as exc:
+            return f"{name!r} cannot be read to check it ({exc.strerror})"
+        if changed:
             return f"{name!r} was changed after eidecomp wrote it"
     return None
 

@@ -320,8 +320,6 @@ def _check(out, force, folder, replaceable, inputs, sweep=True):
     if cwd is not None and _within(cwd, target):
         raise InputError(f"{out}: holds the current folder {cwd}; not replaced")
     _check_parent(out, target)
-    if sweep:
-        _sweep(target)
     existed = os.path.lexists(target)
     if existed and os.path.islink(target):
         raise InputError(f"{out}: a symbolic link, which eidecomp never "
@@ -330,7 +328,28 @@ def _check(out, force, folder, replaceable, inputs, sweep=True):
         if not force:
             raise InputError(f"{out}: already exists; use --force to replace it")
         _check_existing(out, target, folder, replaceable)
+    _check_not_inside_ours(out, target, folder)
+    if sweep:                 # only once the write may go ahead: a refusal
+        _sweep(target)        # changes nothing
+        if not existed and os.path.lexists(target):  # a killed run's output,
+            return _check(out, force, folder, replaceable, inputs,  # put back
+                          sweep=False)
     return target, existed
+
+
+def _check_not_inside_ours(out, target, folder):
+    """Refuse an output inside a folder eidecomp wrote (a bundle, an export
+    folder, report figures): writing there would break that folder's
+    manifest, which lists every file it holds."""
+    from .bundles import KINDS
+    from .provenance import FOLDER_MANIFEST, is_manifest
+
+    parent = target.parent
+    for manifest in sorted({FOLDER_MANIFEST} | {k.manifest for k in KINDS}):
+        if is_manifest(parent / manifest):
+            raise InputError(f"{out}: inside {parent}, a folder eidecomp "
+                             f"wrote ({manifest} lists its files); write "
+                             "elsewhere")
 
 
 def any_file(path):

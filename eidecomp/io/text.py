@@ -20,15 +20,13 @@ import stat
 import numpy as np
 
 from ..errors import InputError
+from ..grammar import MAX_NUMBER_TEXT, parse_number
 
-__all__ = ["MAX_NUMBER_CELL", "NUMBER", "cannot_read", "input_file",
-           "parse_number", "read_input_bytes", "read_text_table", "show_cell"]
+__all__ = ["MAX_NUMBER_CELL", "cannot_read", "input_file", "read_input_bytes",
+           "read_text_table", "show_cell"]
 
-MAX_NUMBER_CELL = 1024
-"""The longest cell of a number table, in characters: the exact decimal
-expansion of any float64 has at most 767 significant digits (IEEE 754
-binary64: 53-bit significand, exponent down to -1074), so a longer cell is
-not a number written by any program."""
+MAX_NUMBER_CELL = MAX_NUMBER_TEXT
+"""The longest cell of a number table (eidecomp.grammar.MAX_NUMBER_TEXT)."""
 
 _NOT_REGULAR = ((stat.S_ISFIFO, "a named pipe"), (stat.S_ISCHR, "a character device"),
                 (stat.S_ISBLK, "a block device"), (stat.S_ISSOCK, "a socket"))
@@ -95,31 +93,9 @@ def show_cell(cell, width=40):
     return f"{cell[:width]!r}... ({len(cell)} characters)"
 
 
-NUMBER = re.compile(r"[ \t]*[+-]?(?:(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?"
-                    r"|(?i:nan|inf|infinity))[ \t]*")
-"""The one grammar of a number in every text input (tables, the unit
-table, numeric options): ASCII digits, an optional point and exponent,
-spaces or tabs around it, and the words nan, inf and infinity, which the
-readers then refuse as not finite by name. Python's float() alone takes
-more: '1_0' as 10, full-width digits, a leading no-break space."""
-
-
 _BLANKS = " \t"
 _BLANK_RUN = re.compile(r"[ \t]+")
 _LINE_BREAK = re.compile(r"\r\n|\r|\n")
-
-
-def parse_number(text):
-    """The float that ``text`` spells under :data:`NUMBER`, else None.
-
-    >>> parse_number(" -1.5e3"), parse_number("1_0"), parse_number("\uff11")
-    (-1500.0, None, None)
-    >>> parse_number("NaN")
-    nan
-    """
-    if len(text) > MAX_NUMBER_CELL or not NUMBER.fullmatch(text):
-        return None
-    return float(text)
 
 
 

@@ -17,9 +17,10 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import InputError
+from ..grammar import parse_number
 from ..names import NOT_XML_CHAR
 from ..params import DEFAULT_PERIOD
-from .text import input_file, parse_number, read_input_bytes, show_cell
+from .text import input_file, read_input_bytes, show_cell
 
 __all__ = ["MAX_FIELD", "POSITION_UNITS", "UnitTable",
            "read_unit_table", "read_units"]
@@ -37,6 +38,9 @@ def _rows(path, text):
         for r in reader:
             if any(c.strip() for c in r):
                 rows.append(r)
+            elif len(r) > 1:        # ',' alone: a unit's row left empty
+                raise InputError(f"{path}: line {reader.line_num} holds only "
+                                 "separators; every unit needs its row")
     except csv.Error as exc:
         raise InputError(f"{path}: row {len(rows) + 1}: {exc}") from None
     return rows
@@ -150,8 +154,8 @@ def read_units(path, n_units, *, period=DEFAULT_PERIOD):
     Returns a dict of arrays: ``feature``, and ``id``, ``x``, ``y`` when
     present.
     """
+    rows = _read_rows(path)                 # as given: 'u.csv/' is no file
     path = Path(path)
-    rows = _read_rows(path)
     header = [c.strip().lower() for c in rows[0]]
     body = rows[1:]
     _check_header(path, header, len(body), n_units)
