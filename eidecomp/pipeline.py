@@ -575,7 +575,7 @@ def run_export(bundle, fmt, output, *, force=False, tau_e=TAU_E_MS,
     the CSV-injection quote (eidecomp.export.edges_csv).
     """
     from .export import get_format, render
-    from .export.registry import folder_kind
+    from .export.registry import FILE_SUFFIXES, folder_kind
     from .io import write_file, write_folder
     from .io.provenance import unedited_file, unedited_folder
     from .io.staging import check_output
@@ -590,6 +590,10 @@ def run_export(bundle, fmt, output, *, force=False, tau_e=TAU_E_MS,
                              "format")
     spec.check_available()
     bundles.expect_kind(bundle, CIRCUIT)  # a wrong input is named first
+    if spec.folder and Path(output).suffix.lower() in FILE_SUFFIXES:
+        raise InputError(f"{output}: the {fmt} export is a folder (a script "
+                         f"and its data), not a {Path(output).suffix} file; "
+                         "give a folder name")
     if not spec.folder:
         check_output(output, force=force, folder=False,
                      replaceable=unedited_file, inputs=(bundle,))

@@ -1080,6 +1080,33 @@ ROWS += [
      ["export", "{d}/c", "--format", "csv", "-o", "{d}/n/e.csv"],
      "{d}/n/e.csv: inside {d}/n, a folder eidecomp wrote "
      "(eidecomp-manifest.json lists its files); write elsewhere"),
+    # smaller points of issue 28
+    ("folder-export-named-as-a-script", {"BUNDLE": "ok"},
+     ["export", "{d}/c", "--format", "pynn", "-o", "{d}/y9.py"],
+     "{d}/y9.py: the pynn export is a folder (a script and its data), not a "
+     ".py file; give a folder name"),
+    ("folder-export-named-as-neuroml", {"BUNDLE": "ok"},
+     ["export", "{d}/c", "--format", "nest", "-o", "{d}/n.net.nml"],
+     "{d}/n.net.nml: the nest export is a folder (a script and its data), "
+     "not a .nml file; give a folder name"),
+    ("unit-table-given-as-the-matrix", {"bad.csv": "id,feature,x\na,0,1\n"
+                                                   "b,60,2\nc,120,3\n"}, DEC,
+     "{d}/bad.csv: a unit table (columns id, feature, x), not a matrix; give "
+     "it with --units"),
+    ("unit-table-as-matrix-capitals", {"bad.tsv": "Feature\tY\n0\t1\n"
+                                                  "60\t2\n"}, DEC,
+     "{d}/bad.tsv: a unit table (columns Feature, Y), not a matrix; give it "
+     "with --units"),
+    ("matrix-path-with-a-trailing-slash", {"w.csv": GOOD},
+     ["decompose", "{d}/w.csv/", "-o", "{d}/out"],
+     "{d}/w.csv/: cannot read (Not a directory)"),
+    ("units-path-with-a-trailing-slash", {"w.csv": GOOD, "u.csv": FEATURES},
+     RUN + ["--units", "{d}/u.csv/"], "{d}/u.csv/: cannot read (Not a "
+                                      "directory)"),
+    ("units-row-of-separators", {"w.csv": GOOD, "u.csv": "feature,x\n0,1\n"
+                                                         ",\n120,3\n"},
+     UNITS, "{d}/u.csv: line 3 holds only separators; every unit needs its "
+            "row"),
     ("read-manifest-duplicate-key", {"BUNDLE": "dup-key"},
      ["export", "{d}/c", "--format", "csv", "-o", "{d}/e.csv"],
      "{d}/c/circuit.json: corrupt JSON (the key 'format' appears twice in one "

@@ -41,7 +41,7 @@ from ..io.provenance import stamp_folder
 from ..io.staging import file_bytes
 from . import edges_csv, graph_files, neuroml2, pynn_script, rate_scripts
 
-__all__ = ["FILE_FORMATS", "FOLDER_FORMATS", "FORMATS", "REGISTRY",
+__all__ = ["FILE_FORMATS", "FILE_SUFFIXES", "FOLDER_FORMATS", "FORMATS", "REGISTRY",
            "ExportFormat", "folder_kind", "get_format", "render",
            "require_module"]
 
@@ -120,6 +120,12 @@ REGISTRY = (
 """Every export format, in the order they are listed."""
 
 _BY_NAME = {f.name: f for f in REGISTRY}
+FILE_SUFFIXES = frozenset({".py", ".npz", ".npy", ".html", ".svg"}
+                          | {f.suffix for f in REGISTRY if not f.folder}
+                          | {"." + f.suffix.rsplit(".", 1)[-1]
+                             for f in REGISTRY if not f.folder})
+"""Endings of file names that no folder export is given (a script's, its
+data's, a report's, and every file format's, ".nml" of ".net.nml" too)."""
 FORMATS = tuple(_BY_NAME)
 FILE_FORMATS = tuple(f.name for f in REGISTRY if not f.folder)
 FOLDER_FORMATS = tuple(f.name for f in REGISTRY if f.folder)

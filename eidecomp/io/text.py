@@ -194,6 +194,12 @@ def _take_header(path, rows, numbers):
             if _DECIMAL_COMMA.match(c):
                 raise _cell_error(path, c, numbers[0], j + 1)
         header, rows, numbers = rows[0], rows[1:], numbers[1:]
+        from .units import looks_like_unit_table  # units imports this module
+
+        if looks_like_unit_table(header):
+            raise InputError(f"{path}: a unit table (columns "
+                             f"{', '.join(c.strip() for c in header)}), not a "
+                             "matrix; give it with --units")
     if not rows:
         raise InputError(f"{path}: a header row but no numbers")
     return header, rows, numbers

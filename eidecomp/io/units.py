@@ -79,6 +79,22 @@ def _read_rows(path):
     return rows
 
 
+UNIT_COLUMNS = ("id", "feature", "x", "y")
+"""The columns a unit table may hold (README, the --units option)."""
+
+
+def looks_like_unit_table(header):
+    """Whether a table's header row names a unit table's columns (a
+    'feature' column, and nothing else but id, x, y): a matrix reader then
+    says what the file is instead of reading its numbers.
+
+    >>> looks_like_unit_table(["id", "Feature", "x"]), looks_like_unit_table(["a", "b"])
+    (True, False)
+    """
+    names = [c.strip().lower() for c in header]
+    return "feature" in names and set(names) <= set(UNIT_COLUMNS)
+
+
 def _check_header(path, header, n_rows, n_units):
     """Refuse a header without 'feature' or with a repeated name, and a
     table whose number of data rows is not W's number of units."""
