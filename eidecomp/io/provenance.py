@@ -172,14 +172,17 @@ def verify_doc(doc, where):
     return {k: v for k, v in doc.items() if k != JSON_KEY}
 
 
-def _entry_reason(path):
-    """Why ``path`` is no regular file of its own (a link, a folder...)."""
+def _entry_reason(path, folder=False):
+    """Why ``path`` is not a regular file (``folder``: a folder) of its own:
+    a link, the other kind, a device..., or None."""
     try:
         mode = os.lstat(path).st_mode
     except OSError as exc:
         return f"cannot be examined ({exc.strerror})"
     if stat.S_ISLNK(mode):
         return "is a symbolic link"
+    if folder:
+        return None if stat.S_ISDIR(mode) else "is not a folder"
     if stat.S_ISDIR(mode):
         return "is a folder"
     if not stat.S_ISREG(mode):
@@ -275,14 +278,9 @@ def unedited_folder(path, manifest=FOLDER_MANIFEST, kind=None):
     that kind; else the reason (the ``replaceable`` rule of a folder
     output)."""
     path = Path(path)
-    try:
-        mode = os.lstat(path).st_mode
-    except OSError as exc:
-        return f"cannot be examined ({exc.strerror})"
-    if stat.S_ISLNK(mode):
-        return "is a symbolic link"
-    if not stat.S_ISDIR(mode):
-        return "is not a folder"
+    reason = _entry_reason(path, folder=True)
+    if reason is not None:
+        return reason
     try:
         entries = sorted(e.name for e in path.iterdir())
     except OSError as exc:
