@@ -166,6 +166,14 @@ def dense_input(W, name="W"):
     >>> dense_input(sparse.eye(2, format="csr")).tolist()
     [[1.0, 0.0], [0.0, 1.0]]
     """
+    if isinstance(W, np.ma.MaskedArray):
+        hidden = int(np.ma.getmaskarray(W).sum())
+        if hidden:   # np.asarray would drop the mask and use the values under it
+            raise InputError(f"{name} is a masked array with {hidden} masked "
+                             "entries, which eidecomp would read as numbers; "
+                             "give robust_pca mask= (True where observed) or "
+                             "fill them")
+        W = W.data
     if hasattr(W, "tocoo") and hasattr(W, "nnz"):   # scipy.sparse, any format
         shape = tuple(int(s) for s in W.shape)
         itemsize = np.dtype(W.dtype).itemsize if W.dtype.kind in "fiub" else 8

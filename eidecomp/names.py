@@ -58,7 +58,17 @@ def unit_labels(W, name="W", *, square=False):
             type(index).__name__ == "RangeIndex"
             and type(columns).__name__ == "RangeIndex"):
         return None
+    for axis, labels in (("rows", index), ("columns", columns)):
+        k = next((k for k, x in enumerate(labels) if x != x), None)  # NaN
+        if k is not None:
+            raise InputError(f"{name}: the label of {axis[:-1]} {k} is NaN; "
+                             "every unit needs a name")
     rows, cols = [str(x) for x in index], [str(x) for x in columns]
+    if rows != cols and sorted(rows) == sorted(cols):
+        raise InputError(f"{name}'s columns (pre units) hold its rows' labels "
+                         "in another order, so W[post, pre] would pair the "
+                         "wrong units; reorder them to match, e.g. "
+                         "W.loc[:, W.index]")
     if rows != cols:
         if square:
             raise InputError(f"{name}'s rows (post units) and columns (pre "

@@ -1475,3 +1475,46 @@ def test_a_large_stamped_file_is_checked_in_a_stream(tmp_path):
         fh.seek(1 << 20)
         fh.write(b"x")
     assert unedited_file(path).startswith("edited after eidecomp wrote it")
+
+
+# --- the Python API's inputs: labels and masks it must not drop (issue 28) ----
+# References: numpy.ma (np.asarray of a MaskedArray returns the data under
+# the mask), pandas (a DataFrame's index labels the rows, its columns the
+# columns; NaN is a float label), against the W[post, pre] convention.
+
+def _api_w():
+    W = np.random.default_rng(0).normal(size=(5, 5))
+    np.fill_diagonal(W, 0.0)
+    return W
+
+
+@pytest.mark.parametrize("call", ["robust_pca", "assemble"])
+def test_a_masked_array_is_not_read_as_its_data(call):
+    import eidecomp
+
+    W = np.ma.masked_array(_api_w(), mask=np.eye(5, dtype=bool))
+    with pytest.raises(InputError, match=r"^W is a masked array with 5 masked "
+                                         r"entries"):
+        getattr(eidecomp, call)(W)
+    full = np.ma.masked_array(_api_w())          # nothing masked: its data
+    assert eidecomp.robust_pca(full).rank == eidecomp.robust_pca(_api_w()).rank
+
+
+@pytest.mark.parametrize("call", ["robust_pca", "assemble"])
+def test_columns_in_another_order_than_the_index_are_refused(call):
+    pd = pytest.importorskip("pandas")
+    import eidecomp
+
+    W = pd.DataFrame(_api_w(), index=list("abcde"), columns=list("edcba"))
+    with pytest.raises(InputError, match="in another order"):
+        getattr(eidecomp, call)(W)
+
+
+def test_a_nan_label_is_refused():
+    pd = pytest.importorskip("pandas")
+    import eidecomp
+
+    labels = ["a", "b", float("nan"), "d", "e"]
+    W = pd.DataFrame(_api_w(), index=labels, columns=labels)
+    with pytest.raises(InputError, match="^W: the label of row 2 is NaN"):
+        eidecomp.robust_pca(W)
