@@ -42,7 +42,7 @@ from ..io.provenance import stamp
 from ..params import DEFAULT_PERIOD, TAU_E_MS, TAU_I_MS
 from .graph_files import graph_of
 
-__all__ = ["FORMULA_TRIGGERS", "POPULATION_HEADER", "edge_csv_text",
+__all__ = ["FORMULA_TRIGGERS", "edge_csv_text",
            "neutralise_cell", "population_csv_text", "render_csv",
            "render_populations", "restore_cell", "write_edge_csv"]
 
@@ -67,13 +67,6 @@ COLUMNS = ("pre", "post", "pre_population", "post_population", "synapse",
            "weight")
 NODE_VALUES = ("feature", "x", "y")
 """Numeric node attributes written, per end of the edge, when present."""
-HEADER_LINE = ",".join(f'"{c}"' for c in COLUMNS)
-"""How every CSV edge list begins (all text cells are quoted)."""
-
-
-POPULATION_HEADER = ",".join(f'"{c}"' for c in POPULATION_COLUMNS)
-"""How every population table begins."""
-
 
 def population_csv_text(circuit):
     """:func:`eidecomp.graph.population_table` as CSV text (the population

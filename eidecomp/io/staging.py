@@ -328,7 +328,7 @@ def _check(out, force, folder, replaceable, inputs, sweep=True):
         if not force:
             raise InputError(f"{out}: already exists; use --force to replace it")
         _check_existing(out, target, folder, replaceable)
-    _check_not_inside_ours(out, target, folder)
+    _check_not_inside_ours(out, target)
     if sweep:                 # only once the write may go ahead: a refusal
         _sweep(target)        # changes nothing
         if not existed and os.path.lexists(target):  # a killed run's output,
@@ -337,7 +337,7 @@ def _check(out, force, folder, replaceable, inputs, sweep=True):
     return target, existed
 
 
-def _check_not_inside_ours(out, target, folder):
+def _check_not_inside_ours(out, target):
     """Refuse an output inside a folder eidecomp wrote (a bundle, an export
     folder, report figures): writing there would break that folder's
     manifest, which lists every file it holds."""
