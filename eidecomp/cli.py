@@ -81,9 +81,9 @@ def _add_matrix_options(p):
                    "(default: the file's only one)")
     p.add_argument("--transpose", action="store_true",
                    help="the file is stored [pre, post]")
-    p.add_argument("--mask", metavar="FILE",
-                   help="matrix of W's shape: 1 where an entry is unobserved "
-                   "(default: every entry observed)")
+    p.add_argument("--unobserved", metavar="FILE",
+                   help="matrix of W's shape: 1 where an entry is unobserved, "
+                   "0 where observed (default: every entry observed)")
     p.add_argument("--ignore-diagonal", action="store_true",
                    help="treat self-connections as unobserved")
     p.add_argument("--lam", type=_positive_float,
@@ -113,12 +113,18 @@ def _add_matrix_options(p):
                    f"(default {SOLVERS[0]})")
 
 
-def _add_quiet(p):
-    """-q: the one switch of every command's progress lines."""
+QUIET_RULE = ("no progress lines and no summary: only warnings and errors, on "
+              "standard error; the exit status tells the outcome")
+"""What -q does for every command that writes an output (README, "Exit
+statuses" and progress)."""
+
+
+def _add_quiet(p, result_printed=False):
+    """-q: the one switch of every command's progress lines and summary;
+    a command whose printed lines are its result (simulate) keeps them."""
     p.add_argument("-q", "--quiet", action="store_true",
-                   help="no progress lines (they go to standard error: a live "
-                   "line on a terminal, a plain line every few seconds "
-                   "otherwise)")
+                   help="no progress lines; the comparison, this command's "
+                   "result, is still printed" if result_printed else QUIET_RULE)
 
 
 def _add_seed(p):
@@ -326,7 +332,7 @@ def _get_parser():
                      help="simulated time in ms (default: 40 time constants of "
                      "the slowest mode; 40 of the slower population's when the "
                      "linear dynamics are unstable)")
-    _add_quiet(sim)
+    _add_quiet(sim, result_printed=True)
     return parser
 
 
@@ -444,7 +450,7 @@ def _decompose(args):
     config = DecomposeConfig(
         input=args.matrix, output=args.output, key=args.key,
         kernel=args.kernel, grid=args.grid, boundary=args.boundary,
-        transpose=args.transpose, mask=args.mask,
+        transpose=args.transpose, unobserved=args.unobserved,
         ignore_diagonal=args.ignore_diagonal, lam=args.lam,
         target_rank=args.target_rank, method=args.method, solver=args.solver,
         tol=args.tol, stop=args.stop, gap_tol=args.gap_tol,
@@ -452,7 +458,7 @@ def _decompose(args):
         dtype=dtype, engine=args.engine, scheduler=args.scheduler)
     with _progress(args, resolve_tol(args.tol, dtype)) as progress:
         result = run_decompose(config, progress=progress.solver)
-    _out(_summary_table(result), written=result.output)
+    _out(_summary_table(result), written=result.output, quiet=args.quiet)
     return 0
 
 
@@ -552,7 +558,7 @@ def _assemble(args):
         magnification=args.magnification, report=args.report,
         kernel=getattr(args, "kernel", None), grid=getattr(args, "grid", None),
         expand=getattr(args, "expand", False), key=args.key,
-        transpose=args.transpose, mask=args.mask,
+        transpose=args.transpose, unobserved=args.unobserved,
         ignore_diagonal=args.ignore_diagonal, lam=args.lam, tol=args.tol,
         stop=args.stop, gap_tol=args.gap_tol, target_rank=args.target_rank,
         method=args.method, solver=args.solver,
@@ -561,7 +567,7 @@ def _assemble(args):
         result = run_assemble(config, progress=progress.solver,
                               stage_progress=progress.stage)
     _out(_tiled_line(result) if result.kind is TILED else _circuit_table(result),
-         written=result.output)
+         written=result.output, quiet=args.quiet)
     return 0
 
 
@@ -574,7 +580,7 @@ def _export(args):
                           force=args.force, tau_e=args.tau_e, tau_i=args.tau_i,
                           raw_csv=args.raw_csv, drive=args.input,
                           seed=args.seed)
-    _out(f"written to {path}", written=path)
+    _out(f"written to {path}", written=path, quiet=args.quiet)
     return 0
 
 
@@ -585,7 +591,7 @@ def _report(args):
         path = run_report(args.bundle, args.output, force=args.force,
                           progress=progress.stage)
     _out(f"written to {path}; figures as SVG in {report_figures_folder(path)}",
-         written=path)
+         written=path, quiet=args.quiet)
     return 0
 
 
@@ -595,7 +601,7 @@ def _demo(args):
     with _progress(args) as progress:
         result = run_demo(args.output, force=args.force, progress=progress)
     _out(f"{_circuit_table(result)}\nreport: {result.output / 'report.html'}",
-         written=result.output)
+         written=result.output, quiet=args.quiet)
     return 0
 
 
@@ -677,10 +683,12 @@ def _printable(text, stream):
     return text.encode(encoding, "backslashreplace").decode(encoding)
 
 
-def _out(text, written=None):
-    """Print a job's summary on standard output. One that cannot take it (a
-    closed pipe, a full device) ends the command in main with one line that
-    says what was written."""
+def _out(text, written=None, *, quiet=False):
+    """Print a job's summary on standard output, unless ``quiet`` (-q). One
+    that cannot take it (a closed pipe, a full device) ends the command in
+    main with one line that says what was written."""
+    if quiet:
+        return
     if sys.stdout is None:              # closed before Python started (>&-)
         raise _SummaryLost("it is closed", written)
     try:

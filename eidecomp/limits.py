@@ -171,8 +171,8 @@ def dense_input(W, name="W"):
         if hidden:   # np.asarray would drop the mask and use the values under it
             raise InputError(f"{name} is a masked array with {hidden} masked "
                              "entries, which eidecomp would read as numbers; "
-                             "give robust_pca mask= (True where observed) or "
-                             "fill them")
+                             "give robust_pca observed= (True where observed) "
+                             "or fill them")
         W = W.data
     if hasattr(W, "tocoo") and hasattr(W, "nnz"):   # scipy.sparse, any format
         shape = tuple(int(s) for s in W.shape)
@@ -181,6 +181,50 @@ def dense_input(W, name="W"):
                    f"densifying the sparse {name} of shape {shape}")
         return W.toarray()
     return np.asarray(W)
+
+
+def observed_entries(observed, shape, *, ignore_diagonal=False,
+                     name="observed"):
+    """The boolean array of W's observed entries, or None for all of them:
+    the one check of which entries count, for the library and the command.
+
+    ``observed`` is None or W's shape of True/False (or 1/0), True where the
+    entry is observed; ``ignore_diagonal`` leaves the diagonal out too. An
+    array of another shape or other values, a non-square W with
+    ``ignore_diagonal``, or no observed entry left is one InputError that
+    starts with ``name``.
+
+    >>> observed_entries(None, (2, 2), ignore_diagonal=True).tolist()
+    [[False, True], [True, False]]
+    >>> observed_entries([[0, 0], [0, 0]], (2, 2))
+    Traceback (most recent call last):
+    ...
+    eidecomp.errors.InputError: observed leaves no entry of W observed
+    """
+    obs = None
+    if observed is not None:
+        obs = np.asarray(observed)
+        if obs.shape != tuple(shape):
+            raise InputError(f"{name} has shape {obs.shape} but W has shape "
+                             f"{tuple(shape)}")
+        if obs.dtype != bool:
+            if obs.dtype.kind not in "iuf" or not np.isin(obs, (0, 1)).all():
+                raise InputError(f"{name} must hold only True/False (or 1/0), "
+                                 "True where an entry is observed")
+            obs = obs.astype(bool)
+    if ignore_diagonal:
+        if shape[0] != shape[1]:
+            raise InputError(f"ignore_diagonal needs a square W, got "
+                             f"{tuple(shape)}")
+        obs = np.ones(shape, bool) if obs is None else obs.copy()
+        np.fill_diagonal(obs, False)
+    if obs is not None and not obs.any():
+        raise InputError(
+            "ignoring the diagonal leaves no entry of W observed"
+            if observed is None else f"{name}"
+            f"{' with the diagonal ignored' if ignore_diagonal else ''} leaves "
+            "no entry of W observed")
+    return obs
 
 
 def size_text(n_bytes):

@@ -17,7 +17,14 @@ import numpy as np
 from . import datasets, dynamics
 from .decompose import METHODS, SOLVERS
 from .errors import InputError
-from .io import bundles, file_checksum, read_mask, read_matrix, read_unit_table
+from .io import (
+    bundles,
+    file_checksum,
+    read_matrix,
+    read_unit_table,
+    read_unobserved,
+    require_present,
+)
 from .io.bundles import (
     CIRCUIT,
     DECOMPOSITION,
@@ -81,7 +88,7 @@ def refuse_inapplicable(config, allowed, what):
             raise InputError(f"{_flag(f.name)} does not apply to {what}")
 
 
-_MATRIX_OPTIONS = ("key", "transpose", "mask", "ignore_diagonal", "lam", "tol",
+_MATRIX_OPTIONS = ("key", "transpose", "unobserved", "ignore_diagonal", "lam", "tol",
                    "stop", "gap_tol", "dtype", "target_rank", "method", "solver")
 
 
@@ -99,14 +106,20 @@ def _load_matrix(config, *, square, what="weight matrix"):
                "key": config.key, "transpose": config.transpose}
 
 
-def _load_mask(config, shape):
-    if config.mask is None:
+def _load_observed(config, shape):
+    """The observed entries of W (None: all) from --unobserved's file."""
+    if config.unobserved is None:
         return None
-    return read_mask(config.mask, shape, transpose=config.transpose)
+    return read_unobserved(config.unobserved, shape, transpose=config.transpose,
+                           ignore_diagonal=config.ignore_diagonal)
 
 
 def _inputs(*paths):
-    return tuple(p for p in paths if p is not None and p != EXAMPLE)
+    """The job's input paths (the built-in example left out), each checked
+    to be there: a missing input is named before the output is looked at."""
+    paths = tuple(p for p in paths if p is not None and p != EXAMPLE)
+    require_present(*paths)
+    return paths
 
 
 # --- decompose -----------------------------------------------------------------
@@ -120,7 +133,7 @@ class MatrixOptions:
     output: str
     key: str | None = None
     transpose: bool = False
-    mask: str | None = None
+    unobserved: str | None = None
     ignore_diagonal: bool = False
     lam: float | None = None
     tol: float | None = None
@@ -168,11 +181,11 @@ def _parameters(config, names):
 def _decompose_dense(config, out, progress):
     from .decompose import robust_pca
 
-    inputs = _inputs(config.input, config.mask)
+    inputs = _inputs(config.input, config.unobserved)
     check_bundle_output(out, DECOMPOSITION, force=config.force, inputs=inputs)
     W, source = _load_matrix(config, square=False)
     dec = robust_pca(W, lam=config.lam, method=config.method,
-                     mask=_load_mask(config, W.shape),
+                     observed=_load_observed(config, W.shape),
                      ignore_diagonal=config.ignore_diagonal,
                      target_rank=config.target_rank, tol=config.tol,
                      max_iter=config.max_iter, solver=config.solver,
@@ -181,7 +194,8 @@ def _decompose_dense(config, out, progress):
     dec = _with_suggestion(W, dec, config, _stage_of(progress))
     summary = bundles.write_decomposition(
         out, dec, source=source,
-        mask={"path": config.mask, "ignore_diagonal": config.ignore_diagonal},
+        unobserved={"path": config.unobserved,
+                    "ignore_diagonal": config.ignore_diagonal},
         parameters=_parameters(config, ("lam", "target_rank", "method", "solver",
                                         "tol", "stop", "gap_tol", "max_iter",
                                         "seed", "dtype")),
@@ -208,7 +222,7 @@ def _with_suggestion(W, dec, config, progress, points=None):
     if (dec.verdict is None or dec.verdict.fits or dec.method != "ialm"
             or config.target_rank is not None):
         return dec
-    verdict, _ = suggest_lam(W, dec, mask=dec.observed, seed=config.seed,
+    verdict, _ = suggest_lam(W, dec, observed=dec.observed, seed=config.seed,
                              progress=progress, points=points)
     with handing_over():
         return dataclasses.replace(dec, verdict=verdict)
@@ -376,8 +390,9 @@ class AssembleResult:
 
 
 def _read_split_input(config):
-    """(W, Decomposition or None, mask, source): a decomposition folder, or a
-    matrix file and its mask (to decompose once every input has been read)."""
+    """(W, Decomposition or None, observed, source): a decomposition folder,
+    or a matrix file and its observed entries (to decompose once every input
+    has been read)."""
     if config.input is not None and Path(config.input).is_dir():
         kind = bundles.identify(config.input)
         if kind is not DECOMPOSITION:
@@ -394,7 +409,7 @@ def _read_split_input(config):
                   "sha256": summary["input"].get("sha256")}
         return np.asarray(dec.low_rank) + np.asarray(dec.sparse), dec, None, source
     W, source = _load_matrix(config, square=True)
-    return W, None, _load_mask(config, W.shape), source
+    return W, None, _load_observed(config, W.shape), source
 
 
 def _check_square(W, name):
@@ -430,7 +445,7 @@ def _assemble_dense(config, out, progress, stage_progress, extra_files):
     _check_split_options(config)
     ratio = (None if config.ei_ratio is None   # bad options fail before any work
              else EIRatio.parse(config.ei_ratio))
-    inputs = _inputs(config.input, config.mask, config.units)
+    inputs = _inputs(config.input, config.unobserved, config.units)
     check_bundle_output(out, CIRCUIT, force=config.force, inputs=inputs)
     W, dec, observed, source = _read_split_input(config)
     _check_square(W, config.input)
@@ -443,12 +458,13 @@ def _assemble_dense(config, out, progress, stage_progress, extra_files):
     if dec is None:  # every input read and checked: now the work
         if config.dtype == "float32":   # W is kept for the stability and
             W = W.astype(np.float32)    # report: at the split's precision
-        dec = robust_pca(W, lam=config.lam, mask=observed,
+        dec = robust_pca(W, lam=config.lam, observed=observed,
                          ignore_diagonal=config.ignore_diagonal, tol=config.tol,
                          target_rank=config.target_rank, method=config.method,
                          solver=config.solver, seed=config.seed,
                          progress=progress, dtype=config.dtype,
                          **_stop_options(config))
+        W = dec.completed(W)   # a value left out never enters the circuit
         if config.report:
             announcer(stage_progress)("report: lambda path")
             path = report_lam_path(W, progress=stage_progress)

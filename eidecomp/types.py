@@ -242,6 +242,25 @@ class Decomposition:
     def shape(self):
         return self.low_rank.shape
 
+    def completed(self, W):
+        """W where it was observed, L + S (the completion: S is zero there)
+        where it was not; W itself when every entry was observed. What the
+        circuit, its stability and its report take as W, so that a value
+        left out of the split never enters them.
+
+        >>> import numpy as np
+        >>> dec = Decomposition(low_rank=np.full((2, 2), 0.5),
+        ...                     sparse=np.zeros((2, 2)), rank=1, lam=1.0,
+        ...                     objective=1.0, n_iter=1, converged=True,
+        ...                     observed=~np.eye(2, dtype=bool))
+        >>> dec.completed(np.zeros((2, 2))).tolist()
+        [[0.5, 0.0], [0.0, 0.5]]
+        """
+        if self.observed is None:
+            return W
+        return np.where(self.observed, W,
+                        np.add(self.low_rank, self.sparse, dtype=np.asarray(W).dtype))
+
     @property
     def sparsity(self):
         """Fraction of observed entries where S is nonzero."""

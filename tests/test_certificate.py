@@ -216,7 +216,7 @@ def test_decompose_command_states_the_verdict_first(tmp_path, capsys):
     W = patch_partial_correlations(8, 8000, seed=0)
     np.save(tmp_path / "w.npy", W)
     assert main(["decompose", str(tmp_path / "w.npy"), "-o",
-                 str(tmp_path / "out"), "-q"]) == 0
+                 str(tmp_path / "out")]) == 0
     first = capsys.readouterr().out.splitlines()[0]
     assert first.startswith("W is not low-rank plus sparse")
     doc = json.loads((tmp_path / "out" / "summary.json").read_text())

@@ -26,7 +26,7 @@ def planted(tmp_path):
 def test_decompose_writes_outputs(planted, tmp_path, capsys):
     path, W, L0 = planted
     out = tmp_path / "out"
-    assert main(["decompose", str(path), "-o", str(out), "--quiet"]) == 0
+    assert main(["decompose", str(path), "-o", str(out)]) == 0
     L, S = np.load(out / "low_rank.npy"), np.load(out / "sparse.npy")
     ref = robust_pca(W)
     assert np.array_equal(L, ref.low_rank) and np.array_equal(S, ref.sparse)
@@ -50,7 +50,8 @@ def test_transpose_and_diagonal(planted, tmp_path):
     assert main(["decompose", str(tmp_path / "wt.npy"), "-o", str(b), "-q",
                  "--transpose", "--ignore-diagonal"]) == 0
     assert np.array_equal(np.load(a / "low_rank.npy"), np.load(b / "low_rank.npy"))
-    assert json.loads((a / "summary.json").read_text())["mask"]["n_unobserved"] == 60
+    doc = json.loads((a / "summary.json").read_text())
+    assert doc["unobserved"]["n_unobserved"] == 60
 
 
 def test_force_needed_to_overwrite(planted, tmp_path, capsys):
@@ -87,7 +88,8 @@ def _write(tmp_path, name, content):
     ("w.npy", np.eye(3), ["--lam", "-1"], "must be a positive number"),
     ("w.npy", np.eye(3), ["--method", "magic"], "invalid choice: 'magic'"),
     ("w.npy", np.eye(3), ["--frobnicate"], "unrecognized arguments: --frobnicate"),
-    ("w.npy", np.eye(3), ["--mask", "MASK"], "mask has shape (2, 2)"),
+    ("w.npy", np.eye(3), ["--unobserved", "MASK"],
+     "the file of unobserved entries has shape (2, 2)"),
 ])
 def test_bad_input_one_line_exit_2_nothing_written(tmp_path, capsys, name,
                                                    content, extra, message):
@@ -234,3 +236,47 @@ def test_force_is_explained_in_the_same_words_everywhere():
                 assert a.help == FORCE_RULE, command
                 seen += 1
     assert seen >= 6          # decompose, assemble, run, export, report, demo
+
+
+# --- -q: one rule, in the same words in the README and every --help ----------
+# Reference: the README's own sentence (issue 28: `-q` said "progress only"
+# and still printed the summary).
+
+def test_quiet_is_explained_in_the_same_words_everywhere():
+    from pathlib import Path
+
+    from eidecomp.cli import QUIET_RULE
+
+    readme = (Path(__file__).parents[1] / "README.md").read_text("utf-8")
+    assert f"`-q`: {QUIET_RULE}." in readme
+    helps = {command: a.help for command, parser in _subcommands().items()
+             for a in parser._actions if "-q" in a.option_strings}
+    assert set(helps) == set(_subcommands())       # every command takes -q
+    for command, text in helps.items():
+        if command == "simulate":                 # its printed lines are its result
+            assert "still printed" in text
+        else:
+            assert text == QUIET_RULE, command
+
+
+def test_quiet_prints_nothing_but_writes_everything(tmp_path, capsys):
+    """With -q the output is written as without it, nothing reaches
+    standard output, and standard error holds warnings alone."""
+    W, _, _ = make_planted(40, rank=2, corruption=0.05, seed=2)
+    np.fill_diagonal(W, 0.0)
+    np.save(tmp_path / "w.npy", W)
+    d, c = str(tmp_path / "d"), str(tmp_path / "c")
+    runs = [["decompose", str(tmp_path / "w.npy"), "-o", d],
+            ["run", str(tmp_path / "w.npy"), "-o", c, "--ei-ratio", "4:1"],
+            ["assemble", d, "-o", str(tmp_path / "c2")],
+            ["export", c, "--format", "graphml", "-o", str(tmp_path / "g.graphml")],
+            ["report", c, "-o", str(tmp_path / "r.html")]]
+    for argv in runs:
+        capsys.readouterr()
+        assert main(argv + ["-q"]) == 0, argv
+        out, err = capsys.readouterr()
+        assert out == "", argv
+        assert all(line.startswith("eidecomp: warning: ")
+                   for line in err.splitlines()), argv   # warnings only
+    for name in ("d", "c", "c2", "g.graphml", "r.html"):
+        assert (tmp_path / name).exists(), name

@@ -33,7 +33,7 @@ def planted(tmp_path_factory):
 def test_run_writes_a_bundle_equal_to_the_library(planted, tmp_path, capsys):
     d, W = planted
     out = tmp_path / "c"
-    assert main(["run", str(d / "w.npy"), "-o", str(out), "-q",
+    assert main(["run", str(d / "w.npy"), "-o", str(out),
                  "--units", str(d / "units.csv")]) == 0
     table = capsys.readouterr().out
     assert "this circuit" in table and "global@error" in table

@@ -1518,3 +1518,78 @@ def test_a_nan_label_is_refused():
     W = pd.DataFrame(_api_w(), index=labels, columns=labels)
     with pytest.raises(InputError, match="^W: the label of row 2 is NaN"):
         eidecomp.robust_pca(W)
+
+
+# --- which entries count: one check for the library and the command (issue 28)
+# Reference: the W[post, pre] convention and the names' own meaning:
+# ``observed=`` is True where observed; the command's file is 1 where
+# unobserved (README, "Decomposing a matrix").
+
+@pytest.mark.parametrize(("observed", "kwargs", "message"), [
+    (np.zeros((5, 5), bool), {}, "^observed leaves no entry of W observed$"),
+    (np.eye(5, dtype=bool), {"ignore_diagonal": True},
+     "^observed with the diagonal ignored leaves no entry of W observed$"),
+    (np.ones((5, 4), bool), {}, r"^observed has shape \(5, 4\) but W has shape "
+                                r"\(5, 5\)$"),
+    (np.full((5, 5), 2), {}, "^observed must hold only True/False"),
+    (np.full((5, 5), "yes"), {}, "^observed must hold only True/False"),
+    (np.ones((5, 5, 1), bool), {}, r"^observed has shape \(5, 5, 1\)"),
+])
+@pytest.mark.parametrize("call", ["robust_pca", "lambda_path", "fit"])
+def test_observed_entries_are_checked_in_every_call(call, observed, kwargs,
+                                                    message):
+    import eidecomp
+    from eidecomp.decompose import RobustPCA
+
+    W = _api_w()
+    run = {"robust_pca": eidecomp.robust_pca,
+           "lambda_path": lambda W, **k: eidecomp.lambda_path(W, n_lams=2, **k),
+           "fit": lambda W, **k: RobustPCA().fit(W, **k)}[call]
+    with pytest.raises(InputError, match=message):
+        run(W, observed=observed, **kwargs)
+
+
+def test_the_old_mask_keyword_is_not_taken_silently():
+    """A script written for the old name fails at once instead of splitting
+    with the entries it meant to leave out."""
+    import eidecomp
+
+    with pytest.raises(TypeError, match="mask"):
+        eidecomp.robust_pca(_api_w(), mask=np.ones((5, 5), bool))
+
+
+def test_a_folder_split_with_unobserved_entries_assembles_as_the_matrix(tmp_path):
+    """``assemble DECOMPOSITION/`` builds the circuit ``assemble W
+    --unobserved FILE`` builds: the folder keeps the pattern (observed.npy),
+    so the entries left out stay out of the fit."""
+    from eidecomp.cli import main
+
+    W, _, _ = make_planted_circuit(40, n_untuned=2, n_tuned=6, pool=3, seed=3)
+    hidden = np.zeros(W.shape, int)
+    hidden[np.random.default_rng(3).random(W.shape) < 0.05] = 1
+    np.save(tmp_path / "w.npy", W)
+    np.save(tmp_path / "u.npy", hidden)
+    args = ["--unobserved", str(tmp_path / "u.npy"), "-q"]
+    assert main(["decompose", str(tmp_path / "w.npy"), "-o",
+                 str(tmp_path / "d")] + args) == 0
+    assert main(["assemble", str(tmp_path / "d"), "-o", str(tmp_path / "a"),
+                 "-q"]) == 0
+    assert main(["assemble", str(tmp_path / "w.npy"), "-o",
+                 str(tmp_path / "b")] + args) == 0
+    for block in ("J_EE", "J_EU", "J_UE", "J_ET", "J_TE"):
+        a, b = tmp_path / "a" / f"{block}.npy", tmp_path / "b" / f"{block}.npy"
+        assert a.exists() == b.exists(), block
+        if a.exists():
+            assert np.array_equal(np.load(a), np.load(b)), block
+    doc = json.loads((tmp_path / "d" / "summary.json").read_text())
+    assert doc["unobserved"]["n_unobserved"] == int(hidden.sum())
+    # W's own stability: the same W (observed values, the completion where
+    # left out), up to the split's primal residual, by numpy's eigenvalues
+    sa, sb = (json.loads((tmp_path / x / "circuit.json").read_text())["stability"]
+              for x in "ab")
+    assert sa["original_spectral_abscissa"] == pytest.approx(
+        sb["original_spectral_abscissa"], rel=1e-6)
+    completed = np.where(hidden == 0, W, np.load(tmp_path / "d" / "low_rank.npy")
+                         + np.load(tmp_path / "d" / "sparse.npy"))
+    assert sb["original_spectral_abscissa"] == pytest.approx(
+        np.linalg.eigvals(completed).real.max() - 1.0, rel=1e-9)

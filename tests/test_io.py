@@ -9,7 +9,7 @@ import pytest
 import scipy.io
 
 from eidecomp.errors import InputError
-from eidecomp.io import read_mask, read_matrix, write_folder
+from eidecomp.io import read_matrix, read_unobserved, write_folder
 
 W = np.array([[0.0, 1.5, -2.0], [0.25, 0.0, 3.0], [-1.0, 1e-12, 0.0]])
 
@@ -87,15 +87,15 @@ def test_binary_errors(tmp_path):
         read_matrix(tmp_path / "bad.npy")
 
 
-def test_mask(tmp_path):
+def test_unobserved_entries_file(tmp_path):
     M = np.eye(3)
     np.save(tmp_path / "m.npy", M)
-    assert np.array_equal(read_mask(tmp_path / "m.npy", (3, 3)), M == 0)
-    with pytest.raises(InputError, match=r"mask has shape \(3, 3\)"):
-        read_mask(tmp_path / "m.npy", (4, 4))
+    assert np.array_equal(read_unobserved(tmp_path / "m.npy", (3, 3)), M == 0)
+    with pytest.raises(InputError, match=r"unobserved entries has shape \(3, 3\)"):
+        read_unobserved(tmp_path / "m.npy", (4, 4))
     np.save(tmp_path / "m2.npy", 2 * M)
     with pytest.raises(InputError, match="only 0"):
-        read_mask(tmp_path / "m2.npy", (3, 3))
+        read_unobserved(tmp_path / "m2.npy", (3, 3))
 
 
 def test_write_folder_is_atomic_and_refuses_overwrite(tmp_path):

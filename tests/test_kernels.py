@@ -121,7 +121,7 @@ def test_kernel_command(tmp_path, capsys):
         (["--kernel", str(tmp_path / "k.npy"), "--grid", "axb"], "HxW"),
         (["--kernel", str(tmp_path / "bad3d.npy"), "--grid", "8x8"], "4-D"),
         (["--kernel", str(tmp_path / "even.npy"), "--grid", "8x8"], "odd"),
-        (["--kernel", str(tmp_path / "none.npy"), "--grid", "8x8"], "not found"),
+        (["--kernel", str(tmp_path / "none.npy"), "--grid", "8x8"], "no such file"),
     ]:
         capsys.readouterr()
         assert main(["decompose", *args, "-o", str(tmp_path / "x")]) == 2
@@ -174,12 +174,12 @@ def test_tiled_assemble_command(tmp_path, capsys):
     G = _planted_full(8, (7, 7), seed=2)
     np.save(tmp_path / "k.npy", to_local(G))
     assert main(["assemble", "--kernel", str(tmp_path / "k.npy"), "--grid",
-                 "7x7", "-o", str(tmp_path / "t"), "-q"]) == 0
+                 "7x7", "-o", str(tmp_path / "t")]) == 0
     doc = json.loads((tmp_path / "t" / "tiled.json").read_text())
     assert doc["per_site"] == {"excitatory": 8, "untuned": 1, "tuned": 1}
     assert np.load(tmp_path / "t" / "J_EU_kernel.npy").shape == (8, 1, 7, 7)
     assert main(["assemble", "--kernel", str(tmp_path / "k.npy"), "--grid",
-                 "7x7", "-o", str(tmp_path / "x"), "-q", "--expand"]) == 0
+                 "7x7", "-o", str(tmp_path / "x"), "--expand"]) == 0
     c, meta = read_circuit(tmp_path / "x")  # a regular, checksummed bundle
     assert (c.n_excitatory, c.n_inhibitory) == (392, 98)
     assert "expanded it is 490 units" in capsys.readouterr().out

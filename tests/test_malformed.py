@@ -210,12 +210,14 @@ ROWS = [
      ".csv, .tsv, .txt, .mat"),
     ("missing-file", {}, ["decompose", "{d}/none.csv", "-o", "{d}/out"],
      "{d}/none.csv: no such file"),
-    ("mask-wrong-shape", {"w.csv": GOOD, "m.csv": b"0,1\n1,0\n"},
-     ["decompose", "{d}/w.csv", "--mask", "{d}/m.csv", "-o", "{d}/out"],
-     "{d}/m.csv: mask has shape (2, 2) but the matrix has shape (3, 3)"),
-    ("mask-not-binary", {"w.csv": GOOD, "m.csv": b"0,1,0\n1,0,2\n0,0,0\n"},
-     ["decompose", "{d}/w.csv", "--mask", "{d}/m.csv", "-o", "{d}/out"],
-     "{d}/m.csv: mask must hold only 0 (observed) and 1 (unobserved)"),
+    ("unobserved-wrong-shape", {"w.csv": GOOD, "m.csv": b"0,1\n1,0\n"},
+     ["decompose", "{d}/w.csv", "--unobserved", "{d}/m.csv", "-o", "{d}/out"],
+     "{d}/m.csv: the file of unobserved entries has shape (2, 2) but W has "
+     "shape (3, 3)"),
+    ("unobserved-not-binary", {"w.csv": GOOD, "m.csv": b"0,1,0\n1,0,2\n0,0,0\n"},
+     ["decompose", "{d}/w.csv", "--unobserved", "{d}/m.csv", "-o", "{d}/out"],
+     "{d}/m.csv: the file of unobserved entries must hold only 0 (observed) "
+     "and 1 (unobserved)"),
     ("units-wrong-rows", {"w.csv": GOOD, "u.csv": b"feature\n0\n90\n"},
      UNITS,
      "{d}/u.csv: unit table has 2 rows, W has 3 units"),
@@ -292,8 +294,8 @@ ROWS = [
      "/dev/null: cannot read (a character device, not a regular file)"),
     ("unreadable-folder-as-matrix", {"bad.npy/x.npy": npy(np.eye(2))}, DEC,
      "{d}/bad.npy: is a folder, expected a weight matrix file"),
-    ("unreadable-fifo-mask", {"w.csv": GOOD, "m.csv": "FIFO"},
-     ["decompose", "{d}/w.csv", "--mask", "{d}/m.csv", "-o", "{d}/out"],
+    ("unreadable-fifo-unobserved", {"w.csv": GOOD, "m.csv": "FIFO"},
+     ["decompose", "{d}/w.csv", "--unobserved", "{d}/m.csv", "-o", "{d}/out"],
      "{d}/m.csv: cannot read (a named pipe, not a regular file)"),
     ("unreadable-fifo-units", {"w.csv": GOOD, "u.csv": "FIFO"}, UNITS,
      "{d}/u.csv: cannot read (a named pipe, not a regular file)"),
@@ -483,10 +485,10 @@ ROWS = [
      UNITS,
      "{d}/u.csv: row 3, column 'x': not a number: "
      "'farfarfarfarfarfarfarfarfarfarfarfarfarf'... (90 characters)"),
-    # --- masks -----------------------------------------------------------
-    ("mask-no-observed-entry", {"w.csv": GOOD, "m.csv": b"1,1,1\n1,1,1\n1,1,1\n"},
-     ["decompose", "{d}/w.csv", "--mask", "{d}/m.csv", "-o", "{d}/out"],
-     "{d}/m.csv: the mask leaves no observed entry (every entry is 1)"),
+    # --- unobserved entries -----------------------------------------------------------
+    ("unobserved-none-observed", {"w.csv": GOOD, "m.csv": b"1,1,1\n1,1,1\n1,1,1\n"},
+     ["decompose", "{d}/w.csv", "--unobserved", "{d}/m.csv", "-o", "{d}/out"],
+     "{d}/m.csv: the file of unobserved entries leaves no entry of W observed"),
     # --- one owner for every format: bundles, and options that do not apply.
     # References: the JSON text format (RFC 8259) for the hand-edited
     # manifests; numpy's NPY format (NEP 1) for the planted headers; SHA-256
@@ -494,9 +496,9 @@ ROWS = [
     ("dec-lam-ignored", {"DEC": "ok"}, ASM_DEC + ["--lam", "0.5"],
      "--lam does not apply to a decomposition folder (it was decomposed "
      "already: decompose again, or give the matrix)"),
-    ("dec-mask-ignored", {"DEC": "ok", "m.csv": "0,0,0\n0,0,0\n0,0,1\n"},
-     ASM_DEC + ["--mask", "{d}/m.csv"],
-     "--mask does not apply to a decomposition folder (it was decomposed "
+    ("dec-unobserved-refused", {"DEC": "ok", "m.csv": "0,0,0\n0,0,0\n0,0,1\n"},
+     ASM_DEC + ["--unobserved", "{d}/m.csv"],
+     "--unobserved does not apply to a decomposition folder (it was decomposed "
      "already: decompose again, or give the matrix)"),
     ("dec-transpose-ignored", {"DEC": "ok"}, ASM_DEC + ["--transpose"],
      "--transpose does not apply to a decomposition folder (it was decomposed "
@@ -589,10 +591,11 @@ ROWS = [
     ("matrix-expand-option", {"w.csv": GOOD},
      ["assemble", "{d}/w.csv", "-o", "{d}/out", "--expand"],
      "--expand does not apply to a matrix"),
-    ("kernel-mask-option", {"k.npy": npy(np.ones((1, 1, 3, 3))),
+    ("kernel-unobserved-option", {"k.npy": npy(np.ones((1, 1, 3, 3))),
                             "m.csv": "0\n"},
      ["decompose", "--kernel", "{d}/k.npy", "--grid", "4x4", "-o", "{d}/out",
-      "--mask", "{d}/m.csv"], "--mask does not apply to a kernel (--kernel)"),
+      "--unobserved", "{d}/m.csv"],
+     "--unobserved does not apply to a kernel (--kernel)"),
     ("kernel-units-option", {"k.npy": npy(np.ones((1, 1, 3, 3))),
                              "u.csv": FEATURES},
      ["assemble", "--kernel", "{d}/k.npy", "--grid", "4x4", "-o", "{d}/out",
@@ -609,10 +612,11 @@ ROWS = [
     ("kernel-and-matrix", {"w.csv": GOOD, "k.npy": npy(np.ones((1, 1, 3, 3)))},
      ["decompose", "{d}/w.csv", "--kernel", "{d}/k.npy", "--grid", "4x4", "-o",
       "{d}/out"], "give either a matrix or --kernel"),
-    ("dask-mask-option", {"w.npy": npy(np.eye(3)), "m.csv": "0,0,0\n0,0,0\n0,0,1\n"},
-     ["decompose", "{d}/w.npy", "--engine", "dask", "-o", "{d}/out", "--mask",
+    ("dask-unobserved-option", {"w.npy": npy(np.eye(3)),
+                                "m.csv": "0,0,0\n0,0,0\n0,0,1\n"},
+     ["decompose", "{d}/w.npy", "--engine", "dask", "-o", "{d}/out", "--unobserved",
       "{d}/m.csv"],
-     "--mask does not apply to the dask engine (plain PCP with the ALM)"),
+     "--unobserved does not apply to the dask engine (plain PCP with the ALM)"),
     ("dask-method-option", {"w.npy": npy(np.eye(3))},
      ["decompose", "{d}/w.npy", "--engine", "dask", "-o", "{d}/out",
       "--method", "convex"],
@@ -1111,6 +1115,52 @@ ROWS += [
      ["export", "{d}/c", "--format", "csv", "-o", "{d}/e.csv"],
      "{d}/c/circuit.json: corrupt JSON (the key 'format' appears twice in one "
      "object)"),
+    # a missing input is named before the output is looked at (issue 28)
+    ("missing-matrix-before-existing-output", {"out": "DIR"},
+     ["decompose", "{d}/nope.csv", "-o", "{d}/out"], "{d}/nope.csv: no such file"),
+    ("missing-matrix-before-existing-circuit", {"out": "DIR"},
+     RUN[:1] + ["{d}/nope.npy"] + RUN[2:], "{d}/nope.npy: no such file"),
+    ("missing-decomposition-before-existing-output", {"out.txt": "mine"},
+     ["assemble", "{d}/dec/", "-o", "{d}/out.txt"], "{d}/dec/: no such file"),
+    ("missing-unobserved-before-existing-output", {"w.csv": GOOD, "out": "DIR"},
+     ["decompose", "{d}/w.csv", "--unobserved", "{d}/m.csv", "-o", "{d}/out"],
+     "{d}/m.csv: no such file"),
+    ("missing-units-before-existing-output", {"w.csv": GOOD, "out": "DIR"},
+     RUN + ["--units", "{d}/u.csv"], "{d}/u.csv: no such file"),
+    ("missing-kernel-before-existing-output", {"out": "DIR"},
+     ["assemble", "--kernel", "{d}/k.npy", "--grid", "4x4", "-o", "{d}/out"],
+     "{d}/k.npy: no such file"),
+    ("missing-kernel-before-existing-decomposition", {"o": "x"},
+     ["decompose", "--kernel", "{d}/k.npy", "--grid", "4x4", "-o", "{d}/o"],
+     "{d}/k.npy: no such file"),
+    ("missing-units-named-before-forced-output", {"w.csv": GOOD, "out": "DIR"},
+     RUN + ["--units", "{d}/u.csv", "--force"], "{d}/u.csv: no such file"),
+    ("dangling-link-as-the-input", {"w.csv": ("LINK", "gone.csv"), "out": "DIR"},
+     ["decompose", "{d}/w.csv", "-o", "{d}/out"], "{d}/w.csv: no such file"),
+    # the file of unobserved entries: one owner of its checks with observed=
+    ("unobserved-all-ones-with-the-diagonal", {"w.csv": GOOD,
+                                               "m.csv": "0,1,1\n1,0,1\n1,1,0\n"},
+     ["decompose", "{d}/w.csv", "--unobserved", "{d}/m.csv", "--ignore-diagonal",
+      "-o", "{d}/out"],
+     "{d}/m.csv: the file of unobserved entries with the diagonal ignored "
+     "leaves no entry of W observed"),
+    ("ignore-diagonal-of-a-one-unit-matrix", {"w.csv": "0.5\n"},
+     ["decompose", "{d}/w.csv", "--ignore-diagonal", "-o", "{d}/out"],
+     "ignoring the diagonal leaves no entry of W observed"),
+    ("unobserved-transposed-shape", {"w.csv": "1,2,3\n4,5,6\n",
+                                     "m.csv": "0,0\n0,0\n0,1\n"},
+     ["decompose", "{d}/w.csv", "--unobserved", "{d}/m.csv", "-o", "{d}/out"],
+     "{d}/m.csv: the file of unobserved entries has shape (3, 2) but W has "
+     "shape (2, 3)"),
+    ("unobserved-negative-zero-and-half", {"w.csv": GOOD,
+                                           "m.csv": "0,0,0\n0,0.5,0\n0,0,0\n"},
+     ["decompose", "{d}/w.csv", "--unobserved", "{d}/m.csv", "-o", "{d}/out"],
+     "{d}/m.csv: the file of unobserved entries must hold only 0 (observed) "
+     "and 1 (unobserved)"),
+    ("the-old-mask-option", {"w.csv": GOOD, "m.csv": "0,0,0\n0,0,0\n0,0,1\n"},
+     ["decompose", "{d}/w.csv", "--mask", "{d}/m.csv", "-o", "{d}/out"],
+     "unrecognized arguments: --mask {d}/m.csv (see 'eidecomp decompose "
+     "--help')"),
 ]
 
 
@@ -1449,7 +1499,7 @@ UNREADABLE = [  # (target file, argv)
     ("w.npz", ["decompose", "{d}/w.npz", "-o", "{d}/out"]),
     ("w.mat", ["decompose", "{d}/w.mat", "-o", "{d}/out"]),
     ("w.csv", ["decompose", "{d}/w.csv", "-o", "{d}/out"]),
-    ("m.npy", ["decompose", "{d}/w.npy", "--mask", "{d}/m.npy", "-o", "{d}/out"]),
+    ("m.npy", ["decompose", "{d}/w.npy", "--unobserved", "{d}/m.npy", "-o", "{d}/out"]),
     ("u.csv", ["run", "{d}/w.npy", "--units", "{d}/u.csv", "--ei-ratio", "1",
                "-o", "{d}/out"]),
     ("k.npy", ["decompose", "--kernel", "{d}/k.npy", "--grid", "8x8", "-o",

@@ -149,7 +149,7 @@ def test_the_commands_keep_w_unit_for_unit(tmp_path, capsys):
         for k, name in enumerate(names):
             fh.write(f"{name},{(7.0 * k) % 180}\n")
     out = tmp_path / "c"
-    assert main(["run", str(tmp_path / "w.npy"), "-o", str(out), "-q",
+    assert main(["run", str(tmp_path / "w.npy"), "-o", str(out),
                  "--units", str(tmp_path / "units.csv")]) == 0
     summary = capsys.readouterr().out
     assert summary.splitlines()[0].startswith("this circuit is W itself")
@@ -167,7 +167,7 @@ def test_the_commands_keep_w_unit_for_unit(tmp_path, capsys):
     assert main(["simulate", str(out), "--gain", f"{g:.6g}", "-q"]) == 0
     capsys.readouterr()
     assert main(["run", str(tmp_path / "w.npy"), "-o", str(tmp_path / "d"),
-                 "-q", "--ei-ratio", "40:1"]) == 0
+                 "--ei-ratio", "40:1"]) == 0
     assert "fewer than W's own" in capsys.readouterr().out
 
 
@@ -240,8 +240,7 @@ def test_stability_of_own_neurons_is_checked_where_it_is_used(tmp_path, capsys):
     assert s["circuit_spectral_abscissa_default_taus"] > 0
     assert "--tau-i equal to --tau-e" in s["why"]
     np.save(tmp_path / "w.npy", W)
-    assert main(["run", str(tmp_path / "w.npy"), "-o", str(tmp_path / "c"),
-                 "-q"]) == 0
+    assert main(["run", str(tmp_path / "w.npy"), "-o", str(tmp_path / "c")]) == 0
     out = capsys.readouterr().out
     assert "unstable at every" not in out
     assert "stable at tau_I = tau_E, unstable at the default" in out
@@ -288,10 +287,9 @@ def test_division_counts_the_targets_w_has_not_solver_noise(tmp_path, capsys):
     W[0, 4] = W[1, 5] = -0.7
     np.save(tmp_path / "w.npy", W)
     assert main(["run", str(tmp_path / "w.npy"), "-o", str(tmp_path / "c"),
-                 "-q", "--ei-ratio", "4:3"]) == 0
+                 "--ei-ratio", "4:3"]) == 0
     assert "only 2 targets" in capsys.readouterr().out
-    assert main(["run", str(tmp_path / "w.npy"), "-o", str(tmp_path / "d"),
-                 "-q"]) == 0
+    assert main(["run", str(tmp_path / "w.npy"), "-o", str(tmp_path / "d")]) == 0
     assert "this circuit is W itself" in capsys.readouterr().out
 
 

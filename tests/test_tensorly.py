@@ -79,3 +79,31 @@ def test_default_stop_reaches_tensorlys_objective_on_natural_statistics(make):
         return np.linalg.norm(L, "nuc") + dec.lam * np.abs(W - L).sum()
 
     assert feasible(dec.low_rank) <= feasible(D)
+
+
+def test_same_as_tensorly_with_scattered_unobserved_entries():
+    """``observed=`` (True where observed) is tensorly's ``mask`` (1 =
+    observed): the same L everywhere and the same S on observed entries,
+    and the command's file of unobserved entries (1 = unobserved) gives the
+    same split (issue 28: one meaning per name)."""
+    import subprocess
+    import sys
+    import tempfile
+    from pathlib import Path
+
+    W, _, _ = make_planted(80, seed=4)
+    observed = np.random.default_rng(4).random(W.shape) > 0.1
+    dec = robust_pca(W, observed=observed)
+    D, E = _tensorly_pcp(W, dec.lam, mask=observed.astype(float))
+    assert _rel(dec.low_rank, D) < 1e-4
+    assert _rel(dec.sparse[observed], E[observed]) < 1e-4
+    assert not dec.sparse[~observed].any()
+    with tempfile.TemporaryDirectory() as d:
+        d = Path(d)
+        np.save(d / "w.npy", W)
+        np.savetxt(d / "u.csv", (~observed).astype(int), fmt="%d", delimiter=",")
+        subprocess.run([sys.executable, "-m", "eidecomp.cli", "decompose",
+                        str(d / "w.npy"), "--unobserved", str(d / "u.csv"),
+                        "-o", str(d / "dec"), "-q"], check=True)
+        assert np.array_equal(np.load(d / "dec" / "low_rank.npy"), dec.low_rank)
+        assert np.array_equal(np.load(d / "dec" / "observed.npy"), observed)

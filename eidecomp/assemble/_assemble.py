@@ -159,8 +159,10 @@ def _labelled(W_or_dec):
 
 
 def _split(W_or_dec, seed, decompose_kwargs):
-    """(W, L, S, dec, own): W is the array given, or L + S of a decomposition
-    (then a new array, ``own``, which the caller may change in place)."""
+    """(W, L, S, dec, own): W is the array given (its unobserved entries, if
+    the split left some out, completed: Decomposition.completed), or L + S
+    of a decomposition (then a new array, ``own``, which the caller may
+    change in place)."""
     if isinstance(W_or_dec, Decomposition):
         dec = W_or_dec
         W = None
@@ -169,6 +171,7 @@ def _split(W_or_dec, seed, decompose_kwargs):
 
         W = np.asarray(W_or_dec, dtype=float)
         dec = robust_pca(W, seed=seed, **(decompose_kwargs or {}))
+        W = dec.completed(W)
     L = np.asarray(dec.low_rank)       # float32 parts are read as they are:
     S = np.asarray(dec.sparse)         # only W and the sides are float64
     return (np.add(L, S, dtype=float) if W is None else W), L, S, dec, \

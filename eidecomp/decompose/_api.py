@@ -19,6 +19,7 @@ from ..limits import (
     available_memory,
     check_range,
     dense_input,
+    observed_entries,
     size_text,
 )
 from ..names import unit_labels
@@ -94,27 +95,6 @@ def _residual_norm(W, L, S, observed=None):
         r2 += float(np.vdot(R, R))
         w2 += float(np.vdot(Wb, Wb))
     return np.sqrt(r2), np.sqrt(w2)
-
-
-def _check_observed(observed, shape, ignore_diagonal):
-    if observed is None:
-        obs = None
-    else:
-        obs = np.asarray(observed)
-        if obs.shape != shape:
-            raise InputError(f"mask has shape {obs.shape} but W has shape {shape}")
-        if obs.dtype != bool:
-            if not np.isin(obs, (0, 1)).all():
-                raise InputError("mask must hold only 0/1 or True/False")
-            obs = obs.astype(bool)
-    if ignore_diagonal:
-        if shape[0] != shape[1]:
-            raise InputError(f"ignore_diagonal needs a square W, got {shape}")
-        obs = np.ones(shape, bool) if obs is None else obs.copy()
-        np.fill_diagonal(obs, False)
-    if obs is not None and not obs.any():
-        raise InputError("mask leaves no observed entry")
-    return obs
 
 
 def _report(W, L, S, Y, lam, observed, *, nuclear, dual, n_iter, converged,
@@ -284,7 +264,8 @@ def _warn_if_stopped(dec):
                         if stalled else {}))
 
 
-def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
+def robust_pca(W, *, lam=None, method="ialm", observed=None,
+               ignore_diagonal=False,
                target_rank=None, tol=None, max_iter=None, rho=1.5, delta=None,
                low_rank_sign=None, solver="CLARABEL", seed=0, progress=None,
                dtype="float64", check_memory=True, stop="gap", gap_tol=None):
@@ -295,7 +276,8 @@ def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
     .. math:: \min_{L, S} \|L\|_* + \lambda \|P_\Omega S\|_1
               \quad \text{s.t.} \quad P_\Omega(L + S) = P_\Omega(W),
 
-    where :math:`\Omega` are the observed entries (all, unless a mask is given).
+    where :math:`\Omega` are the observed entries (all, unless ``observed`` or
+    ``ignore_diagonal`` leaves some out).
 
     Parameters
     ----------
@@ -309,9 +291,11 @@ def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
         ``"ialm"``: inexact augmented Lagrange multipliers (Lin, Chen, Ma 2010),
         fast, stopped on primal and dual residuals. ``"convex"``: an exact
         convex program solved by cvxpy with ``solver``.
-    mask : array_like of bool or None
-        True where W is *observed*. Unobserved entries are left out of the
-        constraint and of the l1 term; L fills them in and S is zero there.
+    observed : array_like of bool or None
+        W's shape, True where the entry is observed (None: all are).
+        Unobserved entries are left out of the constraint and of the l1
+        term; L fills them in and S is zero there. (The command's
+        ``--unobserved FILE`` holds the opposite, 1 where unobserved.)
     ignore_diagonal : bool
         Treat the diagonal (self-connections) as unobserved.
     target_rank : int or None
@@ -388,7 +372,8 @@ def robust_pca(W, *, lam=None, method="ialm", mask=None, ignore_diagonal=False,
         _check_memory(np.shape(W), dtype, method, solver)
     ids = unit_labels(W)
     W = _check_matrix(W, dtype=dtype)
-    observed = _check_observed(mask, W.shape, ignore_diagonal)
+    observed = observed_entries(observed, W.shape,
+                                ignore_diagonal=ignore_diagonal)
     if method not in METHODS:
         raise InputError(f"unknown method {method!r}; choose one of "
                          f"{', '.join(METHODS)}")
@@ -477,7 +462,7 @@ def _search_rank(solve, lam, k, max_evals=40):
     return best
 
 
-def lambda_path(W, lams=None, *, n_lams=12, mask=None, ignore_diagonal=False,
+def lambda_path(W, lams=None, *, n_lams=12, observed=None, ignore_diagonal=False,
                 tol=None, max_iter=MAX_ITER, seed=0, progress=None, stop="gap",
                 gap_tol=None, until=None):
     """Solve PCP over a range of lam with warm starts (fast ALM solver).
@@ -489,7 +474,7 @@ def lambda_path(W, lams=None, *, n_lams=12, mask=None, ignore_diagonal=False,
         The values of lam. None: ``n_lams`` values log-spaced from a quarter
         to four times the default 1 / sqrt(max(m, n)).
     n_lams : int
-    mask, ignore_diagonal, tol, max_iter, seed, stop, gap_tol
+    observed, ignore_diagonal, tol, max_iter, seed, stop, gap_tol
         As in :func:`robust_pca`: every point is stopped by the same rule
         and certified by its own duality gap.
     progress : callable or None
@@ -520,7 +505,8 @@ def lambda_path(W, lams=None, *, n_lams=12, mask=None, ignore_diagonal=False,
     True
     """
     W = _check_matrix(W)
-    observed = _check_observed(mask, W.shape, ignore_diagonal)
+    observed = observed_entries(observed, W.shape,
+                                ignore_diagonal=ignore_diagonal)
     settings = SolverSettings.resolve(W.shape, tol=tol, max_iter=max_iter,
                                       stop=stop, gap_tol=gap_tol)
     if lams is None:
@@ -560,7 +546,7 @@ def lambda_path(W, lams=None, *, n_lams=12, mask=None, ignore_diagonal=False,
     return points, decs
 
 
-def suggest_lam(W, dec=None, *, n_lams=7, mask=None, ignore_diagonal=False,
+def suggest_lam(W, dec=None, *, n_lams=7, observed=None, ignore_diagonal=False,
                 seed=0, progress=None, points=None):
     """The split's verdict with the lam a coarse lam path suggests.
 
@@ -576,7 +562,7 @@ def suggest_lam(W, dec=None, *, n_lams=7, mask=None, ignore_diagonal=False,
     dec : Decomposition or None
         The split to judge; None judges the path's point nearest the
         default lam.
-    n_lams, mask, ignore_diagonal, seed, progress
+    n_lams, observed, ignore_diagonal, seed, progress
         As in :func:`lambda_path`.
     points : list of PathPoint or None
         A path already solved (the report's): read instead of solving one;
@@ -598,12 +584,12 @@ def suggest_lam(W, dec=None, *, n_lams=7, mask=None, ignore_diagonal=False,
     >>> verdict.fits, verdict.suggested_lam is not None
     (True, True)
     """
-    if mask is None and dec is not None and dec.observed is not None:
-        mask = dec.observed
+    if observed is None and dec is not None and dec.observed is not None:
+        observed = dec.observed
     if points is None:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", ConvergenceWarning)  # a loose path
-            points, decs = lambda_path(W, n_lams=n_lams, mask=mask,
+            points, decs = lambda_path(W, n_lams=n_lams, observed=observed,
                                        ignore_diagonal=ignore_diagonal,
                                        seed=seed, progress=progress,
                                        gap_tol=PATH_GAP_TOL)

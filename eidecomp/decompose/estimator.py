@@ -178,10 +178,11 @@ class RobustPCA(TransformerMixin, BaseEstimator):
         tags.input_tags.sparse = True
         return tags
 
-    def fit(self, X, y=None, *, mask=None, ignore_diagonal=False):
+    def fit(self, X, y=None, *, observed=None, ignore_diagonal=False):
         """Split X into low-rank and sparse parts; returns self.
 
-        ``mask`` (True where X is observed) and ``ignore_diagonal`` are
+        ``observed`` (True where an entry of X is observed) and
+        ``ignore_diagonal`` are
         those of :func:`eidecomp.robust_pca`.
         """
         X = validate_data(self, X, dtype=np.float64, accept_sparse=_SPARSE,
@@ -189,7 +190,7 @@ class RobustPCA(TransformerMixin, BaseEstimator):
         dec = robust_pca(X, lam=self.lam, method=self.method, tol=self.tol,
                          max_iter=self.max_iter, target_rank=self.target_rank,
                          solver=self.solver, seed=_seed(self.random_state),
-                         mask=mask, ignore_diagonal=ignore_diagonal,
+                         observed=observed, ignore_diagonal=ignore_diagonal,
                          stop=self.stop, gap_tol=self.gap_tol)
         self.decomposition_ = dec
         self.low_rank_ = dec.low_rank

@@ -1,6 +1,6 @@
 """Everything eidecomp reads from and writes to disk.
 
-``matrices``  weight matrices, masks and kernels (W[post, pre], checked)
+``matrices``  weight matrices, unobserved entries and kernels (W[post, pre], checked)
 ``text``      numbers in .csv / .tsv / .txt tables
 ``binary``    .npy / .npz / .mat arrays (never unpickled)
 ``units``     the unit table
@@ -19,8 +19,9 @@ from ..limits import (
 from .binary import MATRIX_SUFFIXES, read_npy
 from .bundles import CIRCUIT_FORMAT, CIRCUIT_VERSION, circuit_files, read_circuit
 from .jsondoc import load_json
-from .matrices import file_checksum, read_kernel, read_mask, read_matrix
+from .matrices import file_checksum, read_kernel, read_matrix, read_unobserved
 from .staging import staged_folder, write_file, write_folder
+from .text import require_present
 from .units import read_unit_table, read_units
 
 __all__ = [
@@ -37,11 +38,12 @@ __all__ = [
     "range_stats",
     "read_circuit",
     "read_kernel",
-    "read_mask",
     "read_matrix",
+    "read_unobserved",
     "read_npy",
     "read_unit_table",
     "read_units",
+    "require_present",
     "staged_folder",
     "write_file",
     "write_folder",

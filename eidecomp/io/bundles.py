@@ -9,7 +9,8 @@ byte, so a changed, swapped or truncated file is refused with one line.
 kind                     format (manifest)               data files
 =======================  ==============================  =====================
 decomposition            eidecomp-decomposition          low_rank.npy,
-                         (summary.json)                  sparse.npy
+                         (summary.json)                  sparse.npy; optional
+                                                         observed.npy
 factored decomposition   eidecomp-dask-decomposition     low_rank_U.npy,
                          (summary.json)                  low_rank_s.npy,
                                                          low_rank_Vt.npy,
@@ -116,7 +117,7 @@ class BundleKind:
 
 _POST_PRE = "W[post, pre]: row = target, column = source"
 DECOMPOSITION = BundleKind(
-    "decomposition", "eidecomp-decomposition", 3, "summary.json",
+    "decomposition", "eidecomp-decomposition", 4, "summary.json",
     ("low_rank.npy", "sparse.npy"), "decomposition folder", _POST_PRE)
 FACTORED = BundleKind(
     "factored decomposition", "eidecomp-dask-decomposition", 3, "summary.json",
@@ -356,6 +357,27 @@ def _number(doc, key, where, kinds=float):
     return value
 
 
+def _observed(folder, doc, where, shape):
+    """observed.npy (True where W was observed), checked against the
+    manifest's count of unobserved entries; None when every one was."""
+    block = require(doc, "unobserved", dict, where)
+    n = int(_number(block, "n_unobserved", where, int))
+    obs = _array(folder, doc, "observed.npy", ndim=2)
+    if obs is None:
+        if n:
+            raise InputError(f"{where}: n_unobserved is {n} but observed.npy "
+                             "is not listed")
+        return None
+    if obs.shape != tuple(shape) or not np.isin(obs, (0, 1)).all():
+        raise InputError(f"{Path(folder) / 'observed.npy'}: expected 0/1 "
+                         f"(True/False) of shape {tuple(shape)}")
+    obs = obs.astype(bool)
+    if int((~obs).sum()) != n or n == 0:
+        raise InputError(f"{where}: n_unobserved is {n} but observed.npy "
+                         f"leaves out {int((~obs).sum())} entries")
+    return obs
+
+
 def read_decomposition(folder):
     """(Decomposition, summary) from a decomposition folder."""
     doc = read_bundle(folder, DECOMPOSITION)
@@ -366,7 +388,8 @@ def read_decomposition(folder):
         raise InputError(f"{folder}: low_rank.npy is {L.shape} and sparse.npy "
                          f"{S.shape}; they must agree")
     _check_split_doc(doc, where, L.shape)
-    dec = Decomposition(low_rank=L, sparse=S,
+    observed = _observed(folder, doc, where, L.shape)
+    dec = Decomposition(low_rank=L, sparse=S, observed=observed,
                         rank=int(_number(doc, "rank", where, int)),
                         lam=float(_number(doc, "lam", where)),
                         objective=float(_number(doc, "objective", where)),
@@ -717,19 +740,20 @@ def _split_values(doc, where):
     return {"rank_band": band, "support_density": support}
 
 
-def write_decomposition(out, dec, *, source, parameters, mask=None,
+def write_decomposition(out, dec, *, source, parameters, unobserved=None,
                         force=False, inputs=()):
     """A decomposition folder: low_rank.npy, sparse.npy and summary.json.
 
-    ``source`` describes the input (path, sha256, key, transpose); ``mask``
-    the unobserved entries (path, ignore_diagonal); ``parameters`` the
-    options as given (None: the default).
+    ``source`` describes the input (path, sha256, key, transpose);
+    ``unobserved`` the entries left out (path, ignore_diagonal), whose
+    pattern is kept in observed.npy (True where observed) when there are
+    any; ``parameters`` the options as given (None: the default).
     """
     from ..params import default_lam
 
     n_unobserved = 0 if dec.observed is None else int((~dec.observed).sum())
     doc = {"input": {**source, "shape": list(dec.shape)},
-           "mask": {**(mask or {}), "n_unobserved": n_unobserved},
+           "unobserved": {**(unobserved or {}), "n_unobserved": n_unobserved},
            "parameters": parameters, "lam": dec.lam,
            "lam_default": default_lam(dec.shape), "rank": dec.rank,
            "sparsity": dec.sparsity, "objective": dec.objective,
@@ -737,10 +761,12 @@ def write_decomposition(out, dec, *, source, parameters, mask=None,
            "optimality": {k: json_number(v)
                           for k, v in dec.report.as_dict().items()},
            **split_fields(dec)}
-    return write_bundle(out, DECOMPOSITION,
-                        {"low_rank.npy": np.asarray(dec.low_rank),
-                         "sparse.npy": np.asarray(dec.sparse)},
-                        doc, force=force, inputs=inputs)
+    arrays = {"low_rank.npy": np.asarray(dec.low_rank),
+              "sparse.npy": np.asarray(dec.sparse)}
+    if dec.observed is not None:
+        arrays["observed.npy"] = np.asarray(dec.observed, dtype=bool)
+    return write_bundle(out, DECOMPOSITION, arrays, doc, force=force,
+                        inputs=inputs)
 
 
 def factored_doc(dec, *, source, engine, parameters):

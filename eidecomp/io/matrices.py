@@ -1,4 +1,5 @@
-"""Read weight matrices, masks and kernels, checked at the boundary.
+"""Read weight matrices, files of unobserved entries and kernels, checked
+at the boundary.
 
 Every matrix is W[post, pre]: row = target, column = source. ``transpose=True``
 reads a file stored as [pre, post]. Errors are :class:`~eidecomp.errors.InputError`
@@ -11,11 +12,11 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import InputError
-from ..limits import check_range
+from ..limits import check_range, observed_entries
 from .binary import kind_name, load_array
 from .text import cannot_read, input_file
 
-__all__ = ["file_checksum", "read_kernel", "read_mask", "read_matrix"]
+__all__ = ["file_checksum", "read_kernel", "read_matrix", "read_unobserved"]
 
 
 def file_checksum(path):
@@ -107,31 +108,31 @@ def read_matrix(path, *, key=None, transpose=False, square=True, what="matrix"):
     return W
 
 
-def read_mask(path, shape, *, key=None, transpose=False):
-    """Read a mask of *unobserved* entries; return the *observed* boolean array.
+def read_unobserved(path, shape, *, key=None, transpose=False,
+                    ignore_diagonal=False):
+    """Read a file of *unobserved* entries; return the *observed* boolean array.
 
     The file holds 1 (or True) where an entry is unobserved and 0 where it is
-    observed, with W's shape and orientation.
+    observed, with W's shape and orientation; ``ignore_diagonal`` leaves the
+    diagonal out too. The shape and the "some entry is observed" checks are
+    :func:`eidecomp.limits.observed_entries`', the library's own.
     """
     M = read_matrix(path, key=key, transpose=transpose, square=False,
-                    what="mask")
-    if M.shape != tuple(shape):
-        raise InputError(f"{path}: mask has shape {M.shape} but the matrix has "
-                         f"shape {tuple(shape)}")
-    if not np.isin(M, (0.0, 1.0)).all():
-        raise InputError(f"{path}: mask must hold only 0 (observed) and 1 "
-                         "(unobserved)")
-    observed = M == 0.0
-    if not observed.any():
-        raise InputError(f"{path}: the mask leaves no observed entry (every "
-                         "entry is 1)")
-    return observed
+                    what="file of unobserved entries")
+    name = f"{path}: the file of unobserved entries"
+    if M.shape == tuple(shape):      # else the shape is what is wrong
+        if not np.isin(M, (0.0, 1.0)).all():
+            raise InputError(f"{name} must hold only 0 (observed) and 1 "
+                             "(unobserved)")
+        M = M == 0.0
+    return observed_entries(M, shape, ignore_diagonal=ignore_diagonal,
+                            name=name)
 
 
 def read_kernel(path, *, key=None):
     """A 4-D kernel K[post_feature, pre_feature, dy, dx] from .npy or .npz."""
     path = Path(path)
-    input_file(path, "kernel", missing="kernel file not found")
+    input_file(path, "kernel")
     if path.suffix.lower() not in (".npy", ".npz"):
         raise InputError(f"{path}: a kernel must be a .npy or .npz file")
     arr = np.asarray(load_array(path, key, what="kernel"))

@@ -23,7 +23,7 @@ from ..errors import InputError
 from ..grammar import MAX_NUMBER_TEXT, parse_number
 
 __all__ = ["MAX_NUMBER_CELL", "cannot_read", "input_file", "read_input_bytes",
-           "read_text_table", "show_cell"]
+           "read_text_table", "require_present", "show_cell"]
 
 MAX_NUMBER_CELL = MAX_NUMBER_TEXT
 """The longest cell of a number table (eidecomp.grammar.MAX_NUMBER_TEXT)."""
@@ -42,10 +42,38 @@ def cannot_read(path, exc):
     return InputError(f"{path}: cannot read ({reason})")
 
 
-def input_file(path, what="input", missing="no such file"):
+def _missing(path):
+    return InputError(f"{path}: no such file")
+
+
+def require_present(*paths):
+    """InputError ``{path}: no such file`` for the first of ``paths`` (files
+    or folders; None skipped) where nothing is: the check a job makes on all
+    its inputs before it looks at its output, so that a missing input is
+    named first. Other faults (a folder for a file, a pipe) are left to the
+    reader, which names them.
+
+    >>> require_present("/", None)
+    >>> require_present("/no/such/input.npy")
+    Traceback (most recent call last):
+    ...
+    eidecomp.errors.InputError: /no/such/input.npy: no such file
+    """
+    for path in paths:
+        if path is None:
+            continue
+        try:
+            os.stat(path)
+        except FileNotFoundError:
+            raise _missing(path) from None
+        except (OSError, ValueError):
+            pass
+
+
+def input_file(path, what="input"):
     """``os.stat`` of an input that must be a regular file, else InputError.
 
-    A missing path gives ``{path}: {missing}``, a folder ``{path}: is a
+    A missing path gives ``{path}: no such file``, a folder ``{path}: is a
     folder, expected a {what} file``; a named pipe, device or socket is
     refused before it is opened (opening a pipe blocks until a writer
     comes), and any other OSError (a parent that is not a folder, a loop of
@@ -60,7 +88,7 @@ not a regular file)
     try:
         st = os.stat(path)
     except FileNotFoundError:
-        raise InputError(f"{path}: {missing}") from None
+        raise _missing(path) from None
     except (OSError, ValueError) as exc:  # ValueError: a NUL in the path
         raise cannot_read(path, exc) from None
     if stat.S_ISDIR(st.st_mode):

@@ -67,7 +67,7 @@ def _check_cells(path, rows):
 def _read_rows(path):
     """The records of the unit table at ``path``; owns the file checks, the
     decoding, the empty-table check and the check of every cell."""
-    input_file(path, "unit table", missing="unit table not found")
+    input_file(path, "unit table")
     try:
         text = read_input_bytes(path).decode("utf-8-sig")
     except UnicodeDecodeError:
