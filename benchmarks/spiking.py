@@ -3,7 +3,7 @@
 For each circuit the PyNN export (``eidecomp.export.pynn_script``: integrate-
 and-fire units at an operating point set from their own rheobase, the
 mapping of docs/simulators.md) is written twice, with two seeded drives h_a
-and h_b of the E units (``eidecomp.dynamics.random_drive``, seeds 0 and 1),
+and h_b of the E units (``eidecomp.simulation.random_drive``, seeds 0 and 1),
 and each script is run standalone on PyNN's NEST backend and on its Brian2
 backend. The script prints every unit's rate; the rate model predicts
 
@@ -39,7 +39,7 @@ import numpy as np
 
 from eidecomp import assemble
 from eidecomp.datasets import make_planted_circuit
-from eidecomp.dynamics import random_drive, spectral_abscissa
+from eidecomp.dynamics import spectral_abscissa
 from eidecomp.export._lists import population_taus
 from eidecomp.export.pynn_script import (
     BIAS_RATIO,
@@ -50,6 +50,7 @@ from eidecomp.export.pynn_script import (
 )
 from eidecomp.io import read_circuit
 from eidecomp.params import TAU_E_MS, TAU_I_MS
+from eidecomp.simulation import random_drive
 
 TARGET_R = 0.8
 SIMULATORS = ("nest", "brian2")
@@ -116,8 +117,8 @@ def main():
         tmp = Path(tmp)
         circuits = {"demo": demo_circuit(tmp), "planted 200": planted_circuit()}
         for cname, c in circuits.items():
-            h_a = random_drive(c.n_excitatory, 0)[0]
-            h_b = random_drive(c.n_excitatory, 1)[0]
+            h_a = random_drive(c.n_excitatory, 0).values[:, 0]
+            h_b = random_drive(c.n_excitatory, 1).values[:, 0]
             means, change = predictions(c, h_a, h_b)
             for sim in sims:
                 ra, ta = run_script(c, h_a, sim, args.t_stop, tmp / f"{sim}a")

@@ -18,7 +18,6 @@ from .errors import ConvergenceWarning, InputError, SolverError, WriteError
 from .grammar import parse_integer, parse_number
 from .io.staging import FORCE_RULE
 from .params import (
-    AGREEMENT_RTOL,
     DEFAULT_EE_SUPPORT,
     DEFAULT_EI_RATIO,
     DEFAULT_PERIOD,
@@ -135,12 +134,54 @@ def _add_seed(p):
 
 
 def _add_drive(p):
-    """--input and --seed of the E units' drive: simulate and the script
+    """--input and --seed of the drive of W's units: simulate and the script
     exports (the same drive, so an exported script responds as simulate)."""
-    p.add_argument("--input", default=None, metavar="random|FILE",
-                   help="drive of the E units: random (the default: uniform "
-                   "on [0.5, 1.5], seeded by --seed) or a file of N values")
+    from .simulation import DRIVE_RANGE, RANDOM
+
+    p.add_argument("--input", default=None, metavar=f"{RANDOM}|FILE",
+                   help=f"drive of W's units: {RANDOM} (the default: uniform "
+                   f"on [{DRIVE_RANGE[0]:g}, {DRIVE_RANGE[1]:g}], seeded by "
+                   "--seed) or a file of N values, or N x T (T segments held "
+                   "in turn: time along the columns)")
     _add_seed(p)
+
+
+def _add_gain(p, where=""):
+    """--gain: one name, help and default in simulate and export."""
+    p.add_argument("--gain", type=_positive_float, default=1.0,
+                   help="scale W by this gain (default 1), and the circuit "
+                   "with it: J_EE by the gain, J_EI and J_IE by its square "
+                   f"root (Dale's law kept){where}")
+
+
+_SUGGESTED = {"simulate": ("simulator", "model", "input", "seed", "tau_e",
+                           "tau_i", "gain", "duration"),
+              "export": ("format", "output", "input", "seed", "tau_e", "tau_i",
+                         "gain", "force")}
+"""The options a suggested command repeats (when set away from their
+default): the run as the user asked for it, with the changes advised."""
+
+
+def _suggester(args):
+    """``command(**changes)``: the command as given, with some options
+    changed, as one shell line (eidecomp.simulation.advice prints it)."""
+    import shlex
+
+    sub = _get_parser().subcommands[args.command]
+
+    def command(**changes):
+        words = ["eidecomp", args.command, args.bundle]
+        for dest in _SUGGESTED[args.command]:
+            value = changes.get(dest, getattr(args, dest))
+            if value is None or value is False or (
+                    dest not in changes and value == sub.get_default(dest)):
+                continue
+            flag = "-o" if dest == "output" else "--" + dest.replace("_", "-")
+            words += [flag] if value is True else [
+                flag, f"{value:g}" if isinstance(value, float) else str(value)]
+        return shlex.join(words)
+
+    return command
 
 
 def _add_job_options(p):
@@ -173,7 +214,8 @@ def _add_input(p, matrix_help, kernel_help):
 def _get_parser():
     from .export import FORMATS
     from .io.units import POSITION_UNITS
-    from .pipeline import DECOMPOSE_ENGINES, SIMULATE_MODELS, SIMULATORS
+    from .pipeline import DECOMPOSE_ENGINES
+    from .simulation import MODELS, SIMULATORS
 
     parser = _Parser(prog="eidecomp", description=(
         "Turn a signed lateral weight matrix W[post, pre] into low-rank and "
@@ -286,6 +328,11 @@ def _get_parser():
                      help=_format_help())
     _add_time_constants(exp, " (simulator formats)")
     _add_drive(exp)
+    _add_gain(exp, " (simulator formats)")
+    exp.add_argument("--allow-unstable", action="store_true",
+                     help="simulator formats: write a circuit whose linear "
+                     "dynamics are unstable at this gain and these time "
+                     "constants (refused otherwise), with a warning")
     exp.add_argument("--raw-csv", action="store_true",
                      help="csv: write text cells as they are, without "
                      "neutralising those a spreadsheet would run as formulas")
@@ -313,25 +360,22 @@ def _get_parser():
                          "fixed points of W and of W_eff (linear) or the "
                          "original's final rates (threshold-linear).")
     sim.add_argument("bundle", metavar="CIRCUIT", help="a circuit bundle folder")
-    sim.add_argument("--simulator", choices=tuple(SIMULATORS),
-                     default="internal", help="internal (default: scipy's "
-                     "solve_ivp), nest or brian2 ('--engine' is decompose's "
-                     "solver engine)")
+    sim.add_argument("--simulator", choices=[s.name for s in SIMULATORS],
+                     default=SIMULATORS[0].name, help="; ".join(
+                         f"{s.name}: {s.help}" for s in SIMULATORS)
+                     + f" (default {SIMULATORS[0].name})")
     _add_drive(sim)
     _add_time_constants(sim, "")
-    sim.add_argument("--model", choices=SIMULATE_MODELS, default=SIMULATE_MODELS[0],
-                     help="linear (default): runs to the fixed points, which "
-                     "needs stable linear dynamics; threshold-linear: E units "
-                     "[.]_+, a run of --duration whose final rates are "
-                     "compared, stable or not (internal simulator)")
-    sim.add_argument("--gain", type=_positive_float, default=1.0,
-                     help="scale W by this gain (default 1), and the circuit "
-                     "with it: J_EE by the gain, J_EI and J_IE by its square "
-                     "root (Dale's law kept)")
+    sim.add_argument("--model", choices=[m.name for m in MODELS],
+                     default=MODELS[0].name, help="; ".join(
+                         f"{m.name}: {m.help}" for m in MODELS)
+                     + f" (default {MODELS[0].name})")
+    _add_gain(sim)
     sim.add_argument("--duration", type=_positive_float, metavar="MS",
-                     help="simulated time in ms (default: 40 time constants of "
-                     "the slowest mode; 40 of the slower population's when the "
-                     "linear dynamics are unstable)")
+                     help="simulated time in ms, shared among the drive's "
+                     "segments (default: each segment lasts 40 time constants "
+                     "of the slowest mode; 40 of the slower population's when "
+                     "the linear dynamics are unstable)")
     _add_quiet(sim, result_printed=True)
     return parser
 
@@ -579,7 +623,10 @@ def _export(args):
         path = run_export(args.bundle, args.format, args.output,
                           force=args.force, tau_e=args.tau_e, tau_i=args.tau_i,
                           raw_csv=args.raw_csv, drive=args.input,
-                          seed=args.seed)
+                          seed=args.seed, gain=args.gain,
+                          allow_unstable=args.allow_unstable,
+                          command=_suggester(args),
+                          warn=lambda line: _say(f"eidecomp: warning: {line}"))
     _out(f"written to {path}", written=path, quiet=args.quiet)
     return 0
 
@@ -613,6 +660,7 @@ def _gain_limit(g_star):
 
 def _simulate(args):
     from .pipeline import run_simulate
+    from .simulation import verdict_line
 
     with _progress(args) as progress:
         progress.stage(f"simulating the circuit and the original network "
@@ -621,14 +669,16 @@ def _simulate(args):
                          drive="random" if args.input is None else args.input,
                          tau_e=args.tau_e, tau_i=args.tau_i, seed=args.seed,
                          gain=args.gain, model=args.model,
-                         duration=args.duration)
+                         duration=args.duration, command=_suggester(args))
     rows = [
         ("simulator", r["simulator"]),
         ("model", r["model"]),
         ("gain", f"{r['gain']:g} ({_gain_limit(r['largest_stable_gain'])})"),
         ("drive", r["drive"]),
         ("tau_E, tau_I", f"{r['tau_e_ms']:g} ms, {r['tau_i_ms']:g} ms"),
-        ("simulated", f"{r['t_ms']:.4g} ms"),
+        ("simulated", f"{r['t_ms']:.4g} ms" + (
+            f" ({r['n_segments']} drive segments of {r['segment_ms']:g} ms)"
+            if r["n_segments"] > 1 else "")),
         ("linear growth rate: original, circuit",
          f"{r['original_growth_rate']:.3g}, {r['circuit_growth_rate']:.3g} per ms"),
     ]
@@ -650,18 +700,8 @@ def _simulate(args):
          else "circuit vs original network", f"{r['circuit_vs_original']:.2e}"),
         ("||W - W_eff|| / ||W||", f"{r['reconstruction_error']:.2e}"),
     ]
-    _out(f"{_table(rows)}\n{_verdict(r['circuit_vs_original'])}")
+    _out(f"{_table(rows)}\n{verdict_line(r, _suggester(args))}")
     return 0
-
-
-def _verdict(diff):
-    """The last line of simulate: agrees or differs, against the tolerance."""
-    if diff <= AGREEMENT_RTOL:
-        return (f"verdict: the circuit agrees with the original network "
-                f"(relative difference {diff:.2e} <= {AGREEMENT_RTOL:g})")
-    return (f"verdict: the circuit differs from the original network "
-            f"(relative difference {diff:.2e} > {AGREEMENT_RTOL:g}); compare "
-            "||W - W_eff|| / ||W|| above, or assemble with more interneurons")
 
 
 SUMMARY_LOST = 3

@@ -38,12 +38,13 @@ from scipy.integrate import solve_ivp
 from .errors import InputError
 from .types import BLOCK_NAMES, II_BLOCK_NAMES
 
-__all__ = ["DENSE_MAX_UNITS", "DIVERGED", "MAX_EVALUATIONS", "METHODS", "MODELS",
-           "circuit_abscissa", "compare_with_original", "effective_from_full",
-           "fixed_point",
-           "full_matrix", "jacobian", "jacobian_operator", "largest_stable_gain",
-           "max_stable_tau_ratio", "random_drive", "scaled_circuit", "simulate",
-           "spectral_abscissa", "stability_summary"]
+__all__ = ["DENSE_MAX_UNITS", "DIVERGED", "MAX_EVALUATIONS", "METHODS",
+           "STABILITY_SCAN", "UnsettledRun", "circuit_abscissa",
+           "effective_from_full", "fixed_point", "full_matrix", "jacobian",
+           "jacobian_operator", "largest_stable_circuit_gain",
+           "largest_stable_gain", "max_stable_tau_ratio",
+           "scaled_circuit", "simulate", "spectral_abscissa",
+           "stability_summary"]
 
 
 def full_matrix(circuit):
@@ -391,9 +392,21 @@ DIVERGED = 1e100  # rates beyond this magnitude end a run: it has diverged
 MAX_EVALUATIONS = 1_000_000  # right-hand sides one run may evaluate
 
 
+class UnsettledRun(InputError):
+    """A run whose rates never settled within ``max_evaluations`` steps of
+    the integrator: ``t`` reached of ``t_max`` (the words are the caller's)."""
+
+    def __init__(self, t, t_max, evaluations):
+        super().__init__(f"the rates had not settled at {t:.4g} of {t_max:g} "
+                         f"time units after {evaluations:,} steps of the "
+                         "integrator (an unstable circuit)")
+        self.t, self.t_max, self.evaluations = t, t_max, evaluations
+
+
 def simulate(W_full, h, *, n_e=None, tau_e=1.0, tau_i=1.0, t_max=None,
              nonlinearity="linear", r0=None, rtol=1e-10, atol=1e-12,
-             t_eval=None, max_evaluations=MAX_EVALUATIONS, rectified=None):
+             t_eval=None, max_evaluations=MAX_EVALUATIONS, rectified=None,
+             tau=None):
     """Integrate tau dr/dt = -r + f(W_full r + H) with solve_ivp (LSODA).
 
     Parameters
@@ -406,6 +419,8 @@ def simulate(W_full, h, *, n_e=None, tau_e=1.0, tau_i=1.0, t_max=None,
     n_e : int or None
         Number of E units (the first n_e); None means all units are E.
     tau_e, tau_i : float
+    tau : ndarray (n,) or None
+        Every unit's time constant, in place of tau_e and tau_i.
     t_max : float or None
         End time; None integrates for 40 times the slowest decay time of
         the linearisation (rates within e^-40 of the fixed point).
@@ -422,7 +437,7 @@ def simulate(W_full, h, *, n_e=None, tau_e=1.0, tau_i=1.0, t_max=None,
     max_evaluations : int
         A run that needs more evaluations of the right-hand side (a circuit
         whose rates never settle makes LSODA's steps collapse) stops with
-        an InputError saying so, rather than running on for hours.
+        :class:`UnsettledRun`, rather than running on for hours.
 
     Returns
     -------
@@ -439,7 +454,8 @@ def simulate(W_full, h, *, n_e=None, tau_e=1.0, tau_i=1.0, t_max=None,
         H[:] = h
     else:
         H[:n_e] = h
-    tau = _taus(n, n_e, tau_e, tau_i)
+    tau = (_taus(n, n_e, tau_e, tau_i) if tau is None
+           else np.asarray(tau, dtype=float))
     if nonlinearity not in ("linear", "relu"):
         raise InputError(f"unknown nonlinearity {nonlinearity!r}")
     relu = nonlinearity == "relu"
@@ -456,10 +472,7 @@ def simulate(W_full, h, *, n_e=None, tau_e=1.0, tau_i=1.0, t_max=None,
     def rhs(t, r):
         count[0] += 1
         if count[0] > max_evaluations:
-            raise InputError(
-                f"the rates had not settled at {t:.4g} of {t_max:g} time units "
-                f"after {max_evaluations:,} steps of the integrator (an "
-                f"unstable circuit); lower --gain or --duration")
+            raise UnsettledRun(t, t_max, max_evaluations)
         drive = W_full @ r + H
         if relu:
             drive[:n_rect] = np.maximum(drive[:n_rect], 0.0)
@@ -558,8 +571,8 @@ def _own_stability(circuit, W, a_orig, tau_ratio):
                           f"neurons at tau_I = tau_E, but not at tau_I/tau_E "
                           f"= {tau_ratio:.3g} (growth {a_default:.3g} per "
                           "tau_E): the interneurons' loops need their own "
-                          "time constant; simulate with --tau-i equal to "
-                          "--tau-e")
+                          "time constant; simulate with tau_I equal to "
+                          "tau_E")
     return out
 
 
@@ -617,21 +630,7 @@ def _unstable_because(a_orig, a_eff, max_ratio, tau_ratio, circuit):
             "excitation and inhibition they close")
 
 
-def random_drive(n, seed=0):
-    """A seeded drive of the E units, uniform on [0.5, 1.5], and its name."""
-    return np.random.default_rng(seed).uniform(0.5, 1.5, n), "random U(0.5, 1.5)"
-
-
-def _relative(a, b):
-    return float(np.linalg.norm(a - b) / max(np.linalg.norm(b), 1e-300))
-
-
-# --- the circuit against the original network ----------------------------------
-
-MODELS = {"linear": "linear", "threshold-linear": "relu"}
-"""Rate model of ``eidecomp simulate`` -> the nonlinearity of :func:`simulate`
-(threshold-linear: E units [.]_+, interneurons linear)."""
-
+# --- the gain of W and of the circuit ------------------------------------------
 
 def largest_stable_gain(W):
     """Largest g for which dr/dt = -r + g W r is stable: 1 / max Re eig(W),
@@ -681,172 +680,39 @@ def scaled_circuit(circuit, gain):
         J_TE=root * circuit.J_TE)
 
 
-def _round_down(x, digits):
-    """x rounded down to ``digits`` significant digits, strictly below x."""
-    step = 10.0 ** (math.floor(math.log10(x)) - digits + 1)
-    value = math.floor(x / step) * step
-    if value >= x:
-        value -= step
-    return float(f"{value:.{digits}g}")
+def largest_stable_circuit_gain(circuit, *, tau_e=1.0, tau_i=1.0, rtol=1e-4,
+                                method="auto", seed=0):
+    """The gain g at which the circuit scaled by g (:func:`scaled_circuit`)
+    stops being stable at these time constants, bisected to ``rtol``:
+    stable just below it (inf when stable up to 1e6, 0 when unstable down
+    to 1e-6). From g = 1 the search doubles or halves to a bracket first,
+    so the crossing found is the one nearest 1.
 
-
-def _gain_advice(g_star):
-    return (f"scale W by a gain below {_round_down(g_star, 3):g} (--gain "
-            f"{_round_down(g_star, 2):g}), or run the threshold-linear model "
-            "(--model threshold-linear) for a bounded run")
-
-
-def _refuse_unstable(circuit, a_orig, a_circ, g_star, tau_e, tau_i):
-    """Unstable linear dynamics have no fixed point to reach: what to change."""
-    if not a_orig < 0:
-        raise InputError(f"the original network is unstable (growth rate "
-                         f"{a_orig:.3g} per ms); its fixed point is never "
-                         f"reached: {_gain_advice(g_star)}")
-    if not a_circ < 0 and circuit.own_neurons:
-        raise InputError(f"the circuit is unstable at tau_I/tau_E = "
-                         f"{tau_i / tau_e:g}; its units are W's own neurons, "
-                         "whose dynamics at equal time constants are W's "
-                         f"(stable): give --tau-i {tau_e:g}")
-    if not a_circ < 0:
-        lo, hi, n_grid = STABILITY_SCAN
-        limit = max_stable_tau_ratio(circuit, lo=lo, hi=hi, n_grid=n_grid)
-        raise InputError(f"the circuit is unstable at tau_I/tau_E = "
-                         f"{tau_i / tau_e:g} (stable up to {limit:.3g}); "
-                         "choose a smaller --tau-i")
-
-
-def _duration(a_orig, a_circ, tau_e, tau_i):
-    """40 time constants of the slowest mode when both are stable, else
-    (threshold-linear only) 40 of the slower population's; whole ms, a
-    multiple of every simulator's resolution."""
-    worst = max(a_orig, a_circ)
-    return float(math.ceil(40.0 / -worst if worst < 0 else 40.0 * max(tau_e, tau_i)))
-
-
-def _rate_of_change(W_full, H, tau, r, n_e, relu):
-    """||dr/dt|| / ||r|| at the end of a run, per ms: 0 when settled."""
-    drive = W_full @ r + H
-    if relu:
-        drive[:n_e] = np.maximum(drive[:n_e], 0.0)
-    norm = np.linalg.norm(r)
-    return float(np.linalg.norm((drive - r) / tau) / norm) if norm > 0 else 0.0
-
-
-def _bounded_run(circuit, W, h, tau_e, tau_i, t_ms):
-    """Threshold-linear runs of both networks: the final rates compared."""
-    n_e, W_full = circuit.n_excitatory, circuit.signed_weights()
-    H = circuit.full_drive(h)
-    # W's own neurons are all rectified, as in the original network
-    n_rect = W_full.shape[0] if circuit.own_neurons else n_e
-    _, r = simulate(W_full, H, n_e=n_e, tau_e=tau_e, tau_i=tau_i, t_max=t_ms,
-                    nonlinearity="relu", t_eval=(t_ms,), rectified=n_rect)
-    _, r0 = simulate(W, h, tau_e=tau_e, t_max=t_ms, nonlinearity="relu",
-                     t_eval=(t_ms,))
-    rates, orig = r[:, -1], r0[:, -1]
-    if not (np.abs(rates).max() < DIVERGED and np.abs(orig).max() < DIVERGED):
-        raise InputError(f"the rates diverged (past {DIVERGED:.0e}) within "
-                         f"{t_ms:g} ms; lower --gain or --duration")
-    tau = _taus(len(H), n_e, tau_e, tau_i)
-    return {"circuit_vs_original": _relative(circuit.w_rates(rates), orig),
-            "circuit_rate_of_change": _rate_of_change(W_full, H, tau, rates,
-                                                      n_rect, True),
-            "original_rate_of_change": _rate_of_change(
-                W, h, np.full(len(h), float(tau_e)), orig, len(h), True)}
-
-
-def _linear_run(circuit, W, h, tau_e, tau_i, t_ms, run):
-    """Linear runs of both networks against the fixed points of W_eff, W."""
-    n_e, W_full = circuit.n_excitatory, circuit.signed_weights()
-    H = circuit.full_drive(h)
-    if run is None:
-        _, r = simulate(W_full, H, n_e=n_e, tau_e=tau_e, tau_i=tau_i, t_max=t_ms,
-                        t_eval=(t_ms,))
-        _, r0 = simulate(W, h, tau_e=tau_e, t_max=t_ms, t_eval=(t_ms,))
-        rates, orig = r[:, -1], r0[:, -1]
-    else:
-        tau = _taus(W_full.shape[0], n_e, tau_e, tau_i)
-        rates = run(W_full, H, tau, t_ms)
-        orig = run(W, h, np.full(len(h), float(tau_e)), t_ms)
-    rates = circuit.w_rates(rates)       # W's units, in W's order
-    fp_eff = fixed_point(circuit.reconstruction(), h)
-    fp_W = fixed_point(W, h)
-    return {"circuit_vs_fixed_point_W_eff": _relative(rates, fp_eff),
-            "circuit_vs_fixed_point_W": _relative(rates, fp_W),
-            "original_vs_fixed_point_W": _relative(orig, fp_W),
-            "circuit_vs_original": _relative(rates, orig)}
-
-
-def compare_with_original(circuit, W, h, *, tau_e, tau_i, run=None, gain=1.0,
-                          model="linear", t_ms=None):
-    """Run the circuit and the original network dr/dt = -r + f(W r + h) on
-    the same drive ``h`` and compare the circuit's E rates with them.
-
-    Parameters
-    ----------
-    circuit : Circuit
-    W : ndarray (N, N)
-        The original network, W[post, pre].
-    h : ndarray (N,)
-        Drive of the E units.
-    tau_e, tau_i : float
-        Time constants in ms.
-    run : callable or None
-        ``run(W_full, H, tau, t_ms)`` -> final rates, the simulator of the
-        linear model (None: :func:`simulate`, scipy's solve_ivp).
-    gain : float
-        W is scaled by ``gain`` and the circuit with it
-        (:func:`scaled_circuit`).
-    model : "linear" or "threshold-linear"
-        linear: both runs against the fixed points of W_eff and W; unstable
-        linear dynamics have no fixed point to reach, so InputError, with
-        the largest stable gain (:func:`largest_stable_gain`) and the
-        threshold-linear model as ways on. threshold-linear (E units
-        [.]_+, :func:`simulate` only): a run of ``t_ms``, whose final rates
-        are compared, stable or not.
-    t_ms : float or None
-        Simulated time; None: 40 time constants of the slowest mode when
-        the linear dynamics are stable, else 40 of the slower population's.
-
-    Returns
-    -------
-    dict of the settings, the linear growth rates and the relative errors.
-
-    Examples
-    --------
     >>> import numpy as np
     >>> from eidecomp.types import Circuit
-    >>> c = Circuit(J_EE=np.array([[0.5]]), J_EU=np.array([[1.0]]),
-    ...             J_UE=np.array([[1.0]]), J_ET=np.zeros((1, 0)),
+    >>> c = Circuit(J_EE=np.array([[2.0]]), J_EU=np.zeros((1, 1)),
+    ...             J_UE=np.zeros((1, 1)), J_ET=np.zeros((1, 0)),
     ...             J_TE=np.zeros((0, 1)))
-    >>> r = compare_with_original(c, c.effective_weights(), np.ones(1),
-    ...                           tau_e=10.0, tau_i=5.0)
-    >>> r["circuit_vs_original"] < 1e-8
-    True
+    >>> round(largest_stable_circuit_gain(c), 3)     # -1 + 2 g < 0
+    0.5
     """
-    if model not in MODELS:
-        raise InputError(f"unknown model {model!r} (choose from "
-                         f"{', '.join(MODELS)})")
-    if t_ms is not None and not (t_ms > 0 and math.isfinite(t_ms)):
-        raise InputError(f"the simulated time must be a positive number of ms, "
-                         f"got {t_ms!r}")
-    W = np.asarray(W, dtype=float)
-    a_W = spectral_abscissa(W)
-    g_star = _stable_gain(a_W)
-    circuit, W = scaled_circuit(circuit, gain), gain * W
-    a_orig = (gain * a_W - 1.0) / tau_e
-    a_circ = circuit_abscissa(circuit, tau_e=tau_e, tau_i=tau_i)
-    if model == "linear":
-        _refuse_unstable(circuit, a_orig, a_circ, g_star, tau_e, tau_i)
-    elif run is not None:
-        raise InputError("the threshold-linear model runs on the internal "
-                         "simulator only")
-    t_ms = _duration(a_orig, a_circ, tau_e, tau_i) if t_ms is None else float(t_ms)
-    if model == "linear":
-        errors = _linear_run(circuit, W, h, tau_e, tau_i, t_ms, run)
+    def stable(g):
+        return circuit_abscissa(scaled_circuit(circuit, g), tau_e=tau_e,
+                                tau_i=tau_i, method=method, seed=seed) < 0
+
+    if stable(1.0):
+        lo, hi = 1.0, 2.0
+        while stable(hi):
+            lo, hi = hi, 2 * hi
+            if hi > 1e6:
+                return float("inf")
     else:
-        errors = _bounded_run(circuit, W, h, tau_e, tau_i, t_ms)
-    return {"model": model, "gain": float(gain), "tau_e_ms": tau_e,
-            "tau_i_ms": tau_i, "t_ms": t_ms,
-            "original_growth_rate": a_orig, "circuit_growth_rate": a_circ,
-            "largest_stable_gain": g_star, **errors,
-            "reconstruction_error": _relative(circuit.reconstruction(), W)}
+        lo, hi = 0.5, 1.0
+        while not stable(lo):
+            lo, hi = lo / 2, lo
+            if lo < 1e-6:
+                return 0.0
+    while hi - lo > rtol * lo:
+        mid = math.sqrt(lo * hi)
+        lo, hi = (mid, hi) if stable(mid) else (lo, mid)
+    return hi

@@ -203,7 +203,18 @@ def observed_entries(observed, shape, *, ignore_diagonal=False,
     """
     obs = None
     if observed is not None:
-        obs = np.asarray(observed)
+        if hasattr(observed, "toarray"):             # scipy.sparse
+            observed = observed.toarray()
+        if isinstance(observed, np.ma.MaskedArray):
+            if np.ma.getmaskarray(observed).any():
+                raise InputError(f"{name} is a masked array with masked "
+                                 "entries; give plain True/False")
+            observed = observed.data
+        try:
+            obs = np.asarray(observed)
+        except ValueError:                           # a ragged list
+            raise InputError(f"{name} is not an array of W's shape "
+                             f"{tuple(shape)}") from None
         if obs.shape != tuple(shape):
             raise InputError(f"{name} has shape {obs.shape} but W has shape "
                              f"{tuple(shape)}")

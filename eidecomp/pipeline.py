@@ -46,8 +46,6 @@ from .types import handing_over
 
 __all__ = [
     "DECOMPOSE_ENGINES",
-    "SIMULATE_MODELS",
-    "SIMULATORS",
     "AssembleConfig",
     "MatrixOptions",
     "AssembleResult",
@@ -107,7 +105,11 @@ def _load_matrix(config, *, square, what="weight matrix"):
 
 
 def _load_observed(config, shape):
-    """The observed entries of W (None: all) from --unobserved's file."""
+    """The observed entries of W (None: all) from --unobserved's file; a
+    non-square matrix with --ignore-diagonal named with its file."""
+    if config.ignore_diagonal and shape[0] != shape[1]:
+        raise InputError(f"{config.input}: --ignore-diagonal needs a square "
+                         f"matrix, got {shape[0]}x{shape[1]}")
     if config.unobserved is None:
         return None
     return read_unobserved(config.unobserved, shape, transpose=config.transpose,
@@ -395,6 +397,8 @@ def _read_split_input(config):
     has been read)."""
     if config.input is not None and Path(config.input).is_dir():
         kind = bundles.identify(config.input)
+        if kind is None and (Path(config.input) / DECOMPOSITION.manifest).is_file():
+            bundles.expect_kind(config.input, DECOMPOSITION)  # what is wrong in it
         if kind is not DECOMPOSITION:
             found = (f"a {kind.what}, not a {DECOMPOSITION.what}" if kind
                      else f"not an eidecomp {DECOMPOSITION.what}")
@@ -575,7 +579,8 @@ def run_assemble(config, *, progress=None, stage_progress=None, extra_files=None
 # --- export ------------------------------------------------------------------
 
 def run_export(bundle, fmt, output, *, force=False, tau_e=TAU_E_MS,
-               tau_i=TAU_I_MS, raw_csv=False, drive=None, seed=0):
+               tau_i=TAU_I_MS, raw_csv=False, drive=None, seed=0, gain=1.0,
+               allow_unstable=False, command=None, warn=None):
     """Write a circuit bundle in one export format; returns the path written.
 
     ``fmt`` is a name of :data:`eidecomp.export.FORMATS`: graphml, json,
@@ -588,7 +593,12 @@ def run_export(bundle, fmt, output, *, force=False, tau_e=TAU_E_MS,
     NeuroML2 instance locations and notes), the interneurons' derived from
     their input pools (:func:`eidecomp.analysis.pool_features`), and the
     unit ids data in every format. ``raw_csv`` writes CSV text cells without
-    the CSV-injection quote (eidecomp.export.edges_csv).
+    the CSV-injection quote (eidecomp.export.edges_csv). The script formats
+    take ``gain`` (the circuit scaled as ``simulate --gain`` scales it) and
+    refuse a circuit whose linear dynamics are unstable at that gain and
+    these time constants, naming the largest stable gain and what to run
+    (``command(**changes)``); ``allow_unstable`` writes it anyway, with
+    one line to ``warn``.
     """
     from .export import get_format, render
     from .export.registry import FILE_SUFFIXES, folder_kind
@@ -599,7 +609,8 @@ def run_export(bundle, fmt, output, *, force=False, tau_e=TAU_E_MS,
     spec = get_format(fmt)
     given = {"tau_e": tau_e != TAU_E_MS, "tau_i": tau_i != TAU_I_MS,
              "raw_csv": bool(raw_csv), "drive": drive is not None,
-             "seed": seed != 0}
+             "seed": seed != 0, "gain": gain != 1.0,
+             "allow_unstable": bool(allow_unstable)}
     for option, set_ in given.items():
         if set_ and option not in spec.options:
             raise InputError(f"{_flag(option)} does not apply to the {fmt} "
@@ -610,98 +621,111 @@ def run_export(bundle, fmt, output, *, force=False, tau_e=TAU_E_MS,
         raise InputError(f"{output}: the {fmt} export is a folder (a script "
                          f"and its data), not a {Path(output).suffix} file; "
                          "give a folder name")
-    if not spec.folder:
-        check_output(output, force=force, folder=False,
-                     replaceable=unedited_file, inputs=(bundle,))
+    folder_rule = lambda p: unedited_folder(p, kind=folder_kind(fmt))  # noqa: E731
+    check_output(output, force=force, folder=spec.folder, inputs=(bundle,),
+                 replaceable=folder_rule if spec.folder else unedited_file)
     b = bundles.read_circuit_bundle(bundle)
-    h = None
-    if "drive" in spec.options:        # the same drive as simulate's
-        h, _ = _read_drive("random" if drive is None else drive,
-                           b.circuit.n_w_units, seed)
-    data = render(fmt, b.circuit, features=b.features, positions=b.positions,
+    circuit, extra = b.circuit, {}
+    if "drive" in spec.options:        # the same drive and gain as simulate's
+        circuit, extra = _script_circuit(bundle, fmt, circuit, drive, seed, gain,
+                                         tau_e, tau_i, allow_unstable,
+                                         command, warn)
+    data = render(fmt, circuit, features=b.features, positions=b.positions,
                   unit_ids=b.unit_ids,  # names: data, never code
-                  tau_e=tau_e, tau_i=tau_i, raw_csv=raw_csv, drive=h,
-                  period=b.period)
+                  tau_e=tau_e, tau_i=tau_i, raw_csv=raw_csv, period=b.period,
+                  **extra)
     if not spec.folder:
         return write_file(output, data, force=force,
                           replaceable=unedited_file, inputs=(bundle,))
     return write_folder(output, data, force=force, inputs=(bundle,),
-                        replaceable=lambda p: unedited_folder(
-                            p, kind=folder_kind(fmt)))
+                        replaceable=folder_rule)
+
+
+def _script_circuit(bundle, fmt, circuit, drive, seed, gain, tau_e, tau_i,
+                    allow_unstable, command, warn):
+    """The circuit a script export runs (scaled by ``gain``, checked to be
+    stable unless ``allow_unstable``) and the renderer's options: the drive
+    and, for the rate scripts, eidecomp's own runs of every model."""
+    from .dynamics import scaled_circuit
+    from .simulation import (
+        RANDOM,
+        Unstable,
+        check_stable,
+        circuit_runs,
+        explain,
+        read_drive,
+        rectified_units,
+    )
+
+    d = read_drive(RANDOM if drive is None else drive, circuit.n_w_units, seed)
+    try:
+        check_stable(circuit, gain=gain, tau_e=tau_e, tau_i=tau_i)
+    except Unstable as exc:
+        if not allow_unstable:
+            raise InputError(f"{bundle}: {explain(exc, command)}") from None
+        if warn is not None:
+            warn(f"{bundle}: {exc}; written as asked (--allow-unstable)")
+    circuit = scaled_circuit(circuit, gain)
+    if fmt == "pynn":
+        if d.n_segments != 1:
+            raise InputError(f"{drive}: the pynn export runs one drive (N "
+                             f"values), not {d.n_segments} segments")
+        return circuit, {"drive": d.values[:, 0]}
+    expected, segment = circuit_runs(circuit, d, tau_e=tau_e, tau_i=tau_i)
+    return circuit, {"drive": d, "expected": expected, "segment_ms": segment,
+                     "n_rect": rectified_units(circuit, "threshold-linear")}
 
 
 # --- simulate ----------------------------------------------------------------
 
-def _nest_runner():
-    from .export.nest_builder import run_rate_matrix
+def _advised(bundle, command):
+    """A refusal of a run (simulation.Unstable, Diverged) as one line with
+    the command to run instead (``command(**changes)``, None: words)."""
+    from .simulation import Diverged, Unstable, explain
 
-    return run_rate_matrix
+    class _Catch:
+        def __enter__(self):
+            return self
 
+        def __exit__(self, kind, exc, tb):
+            if isinstance(exc, (Unstable, Diverged)):
+                raise InputError(f"{bundle}: {explain(exc, command)}") from None
+            return False
 
-def _brian2_runner():
-    from .export.brian2_builder import run_rate_matrix
-
-    return run_rate_matrix
-
-
-SIMULATORS = {
-    "internal": (None, None),
-    "nest": ("nest", _nest_runner),
-    "brian2": ("brian2", _brian2_runner),
-}
-"""Simulator name -> (the module it needs, a loader of its runner
-``run(W_full, H, tau, t_ms)``); None: scipy's solve_ivp (eidecomp.dynamics)."""
-
-
-def _read_drive(spec, n, seed):
-    if spec == "random":
-        return dynamics.random_drive(n, seed)
-    h = read_matrix(spec, square=False, what="drive").ravel()
-    if h.size != n:
-        raise InputError(f"{spec}: drive has {h.size} values; it needs one "
-                         f"per unit of W, {n}")
-    return h, str(spec)
-
-
-SIMULATE_MODELS = tuple(dynamics.MODELS)
-"""The rate models ``eidecomp simulate`` runs (:data:`eidecomp.dynamics.MODELS`)."""
+    return _Catch()
 
 
 def run_simulate(bundle, *, simulator="internal", drive="random", tau_e=TAU_E_MS,
-                 tau_i=TAU_I_MS, seed=0, gain=1.0, model="linear", duration=None):
+                 tau_i=TAU_I_MS, seed=0, gain=1.0, model="linear", duration=None,
+                 command=None):
     """Run the circuit and the original network on the same drive.
 
     The original with W = L + S from the bundle, the circuit with W_full,
     both scaled by ``gain`` (J_EE by it, J_EI and J_IE by its square root),
-    simulated by ``simulator`` (a name of :data:`SIMULATORS`):
-    :func:`eidecomp.dynamics.compare_with_original`. ``model`` is one of
-    :data:`SIMULATE_MODELS`: linear (long enough for 40 time constants of
-    the slowest mode, against the fixed points), or threshold-linear (the
-    internal simulator only: a run of ``duration`` ms whose final rates are
-    compared, stable or not). Returns its dict of relative errors, with the
-    simulator and the drive.
+    on ``simulator`` (a name of :data:`eidecomp.simulation.SIMULATORS`)
+    with ``model`` (:data:`eidecomp.simulation.MODELS`):
+    :func:`eidecomp.simulation.compare_with_original`. ``drive`` is
+    "random" (seeded by ``seed``) or a file (N values or (N, T), time along
+    the columns). A run that cannot work is refused in one line that says
+    what to run instead; ``command(**changes)`` renders that command (the
+    command line's), None gives the words alone. Returns the comparison's
+    dict with the drive's source.
     """
-    if simulator not in SIMULATORS:
-        raise InputError(f"unknown simulator {simulator!r} (choose from "
-                         f"{', '.join(SIMULATORS)})")
-    module, loader = SIMULATORS[simulator]
-    if model != "linear" and module is not None:
-        raise InputError(f"--model {model} runs on the internal simulator "
-                         f"only (the {simulator} runner is linear)")
-    if module is not None:
-        from .export import require_module
+    from .simulation import compare_with_original, get_model, get_simulator, read_drive
 
-        require_module(module)
+    sim = get_simulator(simulator)
+    get_model(model)
+    if model not in sim.models:
+        raise InputError(f"the {simulator} simulator does not run the {model} "
+                         "model")
+    sim.check_available()
     b = bundles.read_circuit_bundle(bundle)
-    h, source = _read_drive(drive, b.circuit.n_w_units, seed)
-    try:
-        result = dynamics.compare_with_original(
-            b.circuit, b.original_weights(), h, tau_e=tau_e, tau_i=tau_i,
-            run=None if loader is None else loader(), gain=gain, model=model,
-            t_ms=duration)
-    except InputError as exc:
-        raise InputError(f"{bundle}: {exc}") from None
-    return {"simulator": simulator, "drive": source, **result}
+    d = read_drive(drive, b.circuit.n_w_units, seed)
+    with _advised(bundle, command):
+        result = compare_with_original(
+            b.circuit, b.original_weights(), d, tau_e=tau_e, tau_i=tau_i,
+            simulator=simulator, gain=gain, model=model, t_ms=duration)
+    return {"drive": d.source, **result}
 
 
 # --- report and demo ---------------------------------------------------------

@@ -35,15 +35,16 @@ ALLOWED = {
     "assemble": BASE | {"decompose", "grammar", "kernels", "limits", "names",
                         "params", "progress", "types"},
     "dynamics": BASE | {"types"},
+    "simulation": BASE | {"dynamics", "export", "io", "params", "types"},
     "graph": BASE | {"names", "types"},
     "export": BASE | {"analysis", "graph", "io", "names", "params", "types"},
     "analysis": BASE | {"decompose", "graph", "params", "progress", "types"},
     "datasets": BASE | {"types"},
     "pipeline": BASE | {"analysis", "assemble", "datasets", "decompose",
                         "dynamics", "export", "io", "kernels", "limits",
-                        "params", "progress", "types"},
+                        "params", "progress", "simulation", "types"},
     "cli": BASE | {"decompose", "export", "grammar", "io", "params",
-                   "pipeline", "progress"},
+                   "pipeline", "progress", "simulation"},
     "__init__": BASE | {"assemble", "decompose", "io", "types"},
 }
 
@@ -108,3 +109,17 @@ def test_import_is_light():
     out = subprocess.run([sys.executable, "-c", code], capture_output=True,
                          text=True, check=True).stdout.strip()
     assert out == "False"
+
+
+def test_the_numerics_of_dynamics_name_no_command_line_flag():
+    """dynamics.py keeps the numerics: its errors carry data and its words
+    name quantities (tau_I, the gain), never an option of the command
+    (eidecomp.simulation.advice turns them into commands). Reference: the
+    string constants of its syntax tree (ast)."""
+    import re
+
+    tree = ast.parse((ROOT / "dynamics.py").read_text())
+    flags = [node.value for node in ast.walk(tree)
+             if isinstance(node, ast.Constant) and isinstance(node.value, str)
+             and re.search(r"(^|[\s(`'])--[a-z]", node.value)]
+    assert flags == []

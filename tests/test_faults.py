@@ -190,7 +190,7 @@ def hostile_bundle(tmp_path_factory):
     d = tmp_path_factory.mktemp("hostile")
     W, _, features = make_planted_circuit(30, n_untuned=1, n_tuned=5, pool=3,
                                           seed=4)
-    np.save(d / "w.npy", W)
+    np.save(d / "w.npy", _stable(W))
     names = [HOSTILE.format(d=d) + f"#{i}" for i in range(30)]
     with open(d / "units.csv", "w", newline="", encoding="utf-8") as fh:
         w = csv.writer(fh)
@@ -263,7 +263,7 @@ def test_hostile_names_in_simulator_scripts(hostile_bundle, tmp_path, fmt):
         assert z["unit_ids"].tolist() == names
     if fmt in ("nest", "brian2"):  # run it: the names must run nothing
         require({"nest": "nest", "brian2": "brian2"}[fmt])
-        run = subprocess.run([sys.executable, str(script), "--t-stop", "5"],
+        run = subprocess.run([sys.executable, str(script), "--segment-ms", "5"],
                              cwd=out, capture_output=True, text=True, timeout=600)
         assert run.returncode == 0, run.stderr[-2000:]
     _no_side_effects(d)
@@ -306,11 +306,19 @@ def _small_matrix(folder, name="w.npy", seed=1):
     return folder / name
 
 
+def _stable(W):
+    """W scaled to max Re eig 0.5 (numpy): a network, and a circuit, whose
+    linear dynamics are stable, so that its script exports are written."""
+    return 0.5 * W / max(float(np.linalg.eigvals(W).real.max()), 1e-12)
+
+
 @pytest.fixture(scope="module")
 def small_bundle(tmp_path_factory):
-    """A real circuit bundle (40 units), copied by the tests that need one."""
+    """A real circuit bundle (40 units), copied by the tests that need one;
+    stable, as the script exports require."""
     d = tmp_path_factory.mktemp("small")
-    assert main(["run", str(_small_matrix(d)), "-o", str(d / "c"), "-q"]) == 0
+    np.save(d / "w.npy", _stable(np.load(_small_matrix(d))))
+    assert main(["run", str(d / "w.npy"), "-o", str(d / "c"), "-q"]) == 0
     return d / "c"
 
 
@@ -1593,3 +1601,41 @@ def test_a_folder_split_with_unobserved_entries_assembles_as_the_matrix(tmp_path
                          + np.load(tmp_path / "d" / "sparse.npy"))
     assert sb["original_spectral_abscissa"] == pytest.approx(
         np.linalg.eigvals(completed).real.max() - 1.0, rel=1e-9)
+
+
+def test_observed_from_scipy_sparse_is_its_dense_array():
+    """scipy.sparse holds the same booleans as its toarray(); the split is
+    the same (reference: scipy.sparse's own toarray)."""
+    from scipy import sparse
+
+    import eidecomp
+
+    W = _api_w()
+    obs = ~np.eye(5, dtype=bool)
+    obs[0, 1] = False
+    a = eidecomp.robust_pca(W, observed=obs)
+    b = eidecomp.robust_pca(W, observed=sparse.csr_matrix(obs))
+    np.testing.assert_array_equal(a.low_rank, b.low_rank)
+    np.testing.assert_array_equal(b.observed, obs)
+
+
+@pytest.mark.parametrize(("observed", "message"), [
+    (np.ma.masked_array(np.ones((5, 5), bool), mask=np.eye(5, dtype=bool)),
+     "^observed is a masked array with masked entries"),
+    ([[True] * 5] * 4 + [[True] * 3], r"^observed is not an array of W's shape"),
+])
+def test_observed_that_numpy_would_misread_is_refused(observed, message):
+    import eidecomp
+
+    with pytest.raises(InputError, match=message):
+        eidecomp.robust_pca(_api_w(), observed=observed)
+
+
+def test_suggest_lam_checks_observed_even_with_a_path_given():
+    import eidecomp
+    from eidecomp.decompose import suggest_lam
+
+    W = _api_w()
+    points, decs = eidecomp.lambda_path(W, n_lams=3)
+    with pytest.raises(InputError, match="^observed has shape"):
+        suggest_lam(W, decs[1], observed=np.ones((2, 2), bool), points=points)

@@ -212,8 +212,8 @@ ROWS = [
      "{d}/none.csv: no such file"),
     ("unobserved-wrong-shape", {"w.csv": GOOD, "m.csv": b"0,1\n1,0\n"},
      ["decompose", "{d}/w.csv", "--unobserved", "{d}/m.csv", "-o", "{d}/out"],
-     "{d}/m.csv: the file of unobserved entries has shape (2, 2) but W has "
-     "shape (3, 3)"),
+     "{d}/m.csv: the file of unobserved entries has shape (2, 2) but the "
+     "matrix file has shape (3, 3)"),
     ("unobserved-not-binary", {"w.csv": GOOD, "m.csv": b"0,1,0\n1,0,2\n0,0,0\n"},
      ["decompose", "{d}/w.csv", "--unobserved", "{d}/m.csv", "-o", "{d}/out"],
      "{d}/m.csv: the file of unobserved entries must hold only 0 (observed) "
@@ -1115,6 +1115,32 @@ ROWS += [
      ["export", "{d}/c", "--format", "csv", "-o", "{d}/e.csv"],
      "{d}/c/circuit.json: corrupt JSON (the key 'format' appears twice in one "
      "object)"),
+    # the decomposition folder's record of the entries left out, checked
+    ("dec-unobserved-ignore-diagonal-not-bool",
+     {"DEC": 'hidden-set:ignore_diagonal="yes"'}, ASM_DEC,
+     "{d}/dec/summary.json: key 'ignore_diagonal' must be true or false (got "
+     "a string)"),
+    ("dec-unobserved-path-a-number", {"DEC": "hidden-set:path=5"}, ASM_DEC,
+     "{d}/dec/summary.json: key 'path' must be a string or null (got an "
+     "integer)"),
+    ("dec-unobserved-diagonal-not-left-out",
+     {"DEC": "hidden-set:ignore_diagonal=true"}, ASM_DEC,
+     "{d}/dec/summary.json: ignore_diagonal is true but observed.npy does not "
+     "leave the diagonal out"),
+    ("dec-unobserved-count-disagrees", {"DEC": "hidden-set:n_unobserved=2"},
+     ASM_DEC, "{d}/dec/summary.json: n_unobserved is 2 but observed.npy leaves "
+              "out 1 entries"),
+    ("dec-manifest-duplicate-key", {"DEC": "dup-key"}, ASM_DEC,
+     "{d}/dec/summary.json: corrupt JSON (the key 'format' appears twice in "
+     "one object)"),
+    # a missing circuit bundle is a missing input too
+    ("missing-bundle-export", {}, ["export", "{d}/c", "--format", "json", "-o",
+                                   "{d}/g.json"], "{d}/c: no such file"),
+    ("missing-bundle-report", {"r.html": "mine"},
+     ["report", "{d}/c", "-o", "{d}/r.html", "--force"], "{d}/c: no such file"),
+    ("missing-bundle-simulate", {}, ["simulate", "{d}/c"], "{d}/c: no such file"),
+    ("dangling-link-as-the-bundle", {"c": ("LINK", "gone")},
+     ["simulate", "{d}/c"], "{d}/c: no such file"),
     # a missing input is named before the output is looked at (issue 28)
     ("missing-matrix-before-existing-output", {"out": "DIR"},
      ["decompose", "{d}/nope.csv", "-o", "{d}/out"], "{d}/nope.csv: no such file"),
@@ -1150,8 +1176,24 @@ ROWS += [
     ("unobserved-transposed-shape", {"w.csv": "1,2,3\n4,5,6\n",
                                      "m.csv": "0,0\n0,0\n0,1\n"},
      ["decompose", "{d}/w.csv", "--unobserved", "{d}/m.csv", "-o", "{d}/out"],
-     "{d}/m.csv: the file of unobserved entries has shape (3, 2) but W has "
-     "shape (2, 3)"),
+     "{d}/m.csv: the file of unobserved entries has shape (3, 2) but the "
+     "matrix file has shape (2, 3)"),
+    ("unobserved-in-ws-orientation-with-transpose",
+     {"w.csv": "1,2,3\n4,5,6\n", "m.csv": "0,0\n0,0\n0,1\n"},
+     ["decompose", "{d}/w.csv", "--transpose", "--unobserved", "{d}/m.csv",
+      "-o", "{d}/out"],
+     "{d}/m.csv: the file of unobserved entries has shape (3, 2) but the "
+     "matrix file has shape (2, 3) (both are read transposed)"),
+    ("unobserved-npz-of-two-arrays", {"w.csv": GOOD,
+                                      "m.npz": lambda: zip_of(
+                                          **{"a.npy": npy(np.zeros((3, 3))),
+                                             "b.npy": npy(np.zeros((3, 3)))})},
+     ["decompose", "{d}/w.csv", "--unobserved", "{d}/m.npz", "-o", "{d}/out"],
+     "{d}/m.npz: holds 2 arrays (a, b); a file of unobserved entries holds "
+     "one"),
+    ("ignore-diagonal-of-a-rectangular-matrix", {"w.csv": "1,2,3\n4,5,6\n"},
+     ["decompose", "{d}/w.csv", "--ignore-diagonal", "-o", "{d}/out"],
+     "{d}/w.csv: --ignore-diagonal needs a square matrix, got 2x3"),
     ("unobserved-negative-zero-and-half", {"w.csv": GOOD,
                                            "m.csv": "0,0,0\n0,0.5,0\n0,0,0\n"},
      ["decompose", "{d}/w.csv", "--unobserved", "{d}/m.csv", "-o", "{d}/out"],
@@ -1171,7 +1213,8 @@ def bundle(tmp_path_factory):
 
     d = tmp_path_factory.mktemp("bundle")
     W, _, _ = make_planted_circuit(20, n_untuned=1, n_tuned=4, pool=3, seed=0)
-    np.save(d / "w.npy", W)
+    # scaled to max Re eig 0.5 (numpy): stable, as the script exports require
+    np.save(d / "w.npy", 0.5 * W / np.linalg.eigvals(W).real.max())
     assert main(["run", str(d / "w.npy"), "-o", str(d / "c"), "-q"]) == 0
     return d / "c"
 
@@ -1272,13 +1315,24 @@ def _edit_bundle(c, mode):
 
 
 def _make_decomposition(folder, mode):
-    """A decomposition folder of the GOOD matrix, then one hand edit."""
+    """A decomposition folder of the GOOD matrix (modes "hidden..."): with
+    its (0, 1) entry left out), then one hand edit."""
     folder.parent.mkdir(parents=True, exist_ok=True)
     (folder.parent / "w_for_dec.csv").write_text(GOOD)
+    hidden = []
+    if mode.startswith("hidden"):
+        (folder.parent / "u_for_dec.csv").write_text("0,1,0\n0,0,0\n0,0,0\n")
+        hidden = ["--unobserved", str(folder.parent / "u_for_dec.csv")]
     assert main(["decompose", str(folder.parent / "w_for_dec.csv"), "-o",
-                 str(folder), "-q"]) == 0
+                 str(folder), "-q", *hidden]) == 0
     doc = folder / "summary.json"
-    if mode == "swap":
+    if mode.startswith("hidden-set:"):   # hidden-set:key=JSON in "unobserved"
+        key, value = mode[11:].split("=", 1)
+        _edit_manifest(doc, lambda m: m["unobserved"].__setitem__(
+            key, json.loads(value)))
+    elif mode == "dup-key":     # the format named twice, the second a lie
+        doc.write_text(doc.read_text().replace("{", '{"format": "x", ', 1))
+    elif mode == "swap":
         low = (folder / "low_rank.npy").read_bytes()
         (folder / "low_rank.npy").write_bytes((folder / "sparse.npy").read_bytes())
         (folder / "sparse.npy").write_bytes(low)

@@ -8,6 +8,7 @@ independent RK45 run of the threshold-linear networks, written here).
 """
 
 import re
+import shlex
 
 import numpy as np
 import pytest
@@ -16,15 +17,11 @@ from scipy.integrate import solve_ivp
 from eidecomp.analysis import interneuron_pools
 from eidecomp.cli import main
 from eidecomp.datasets import make_planted_circuit
-from eidecomp.dynamics import (
-    compare_with_original,
-    largest_stable_gain,
-    scaled_circuit,
-    stability_summary,
-)
+from eidecomp.dynamics import largest_stable_gain, scaled_circuit, stability_summary
 from eidecomp.errors import InputError
 from eidecomp.io import bundles
 from eidecomp.pipeline import run_simulate
+from eidecomp.simulation import Unstable, compare_with_original
 from eidecomp.types import AssemblyReport
 
 G_STAR = 0.9737  # the planted network is scaled to max Re eig(W) = 1 / G_STAR
@@ -87,21 +84,37 @@ def test_scaled_circuit_scales_w_eff_and_keeps_dale(unstable):
         scaled_circuit(c, -1.0)
 
 
+def _circuit_gain(c, tau_e=10.0, tau_i=5.0):
+    """The circuit's largest stable gain, bisected here on numpy's
+    eigenvalues of its Jacobian T^-1 (-I + W_full(g))."""
+    tau = np.r_[np.full(c.n_excitatory, tau_e), np.full(c.n_inhibitory, tau_i)]
+
+    def stable(g):
+        s = scaled_circuit(c, g)
+        n = len(tau)
+        return _rightmost((s.signed_weights() - np.eye(n)) / tau[:, None]) < 0
+
+    lo, hi = (0.0, 1.0) if not stable(1.0) else (1.0, 64.0)
+    for _ in range(60):
+        mid = (lo + hi) / 2
+        lo, hi = (mid, hi) if stable(mid) else (lo, mid)
+    return hi
+
+
 def test_refusal_names_the_largest_stable_gain(unstable):
     c, W = unstable
     h = np.random.default_rng(1).uniform(0.5, 1.5, 60)
     g = 1.0 / _rightmost(W)  # numpy.linalg.eigvals
-    with pytest.raises(InputError) as err:
+    with pytest.raises(Unstable) as err:
         compare_with_original(c, W, h, tau_e=10.0, tau_i=5.0)
-    msg = str(err.value)
+    exc, msg = err.value, str(err.value)
+    assert exc.network == "original" and "--" not in msg   # no flag: data
     # growth rate of dr/dt = (-r + W r) / tau_E: (max Re eig(W) - 1) / tau_E
+    assert exc.growth == pytest.approx((1 / g - 1) / 10.0, rel=1e-9)
     growth = float(re.search(r"growth rate ([0-9.e-]+) per ms", msg).group(1))
-    assert growth == pytest.approx((1 / g - 1) / 10.0, rel=1e-2)
-    below = float(re.search(r"gain below ([0-9.]+) \(", msg).group(1))
-    advice = float(re.search(r"--gain ([0-9.]+)\)", msg).group(1))
-    assert (below, advice) == (0.973, 0.97)  # g = 0.9737, rounded down
-    assert advice < below < g < below + 1e-3
-    assert "--model threshold-linear" in msg
+    assert growth == pytest.approx(exc.growth, rel=1e-2)
+    # both networks stable below the smaller of the two gains
+    assert exc.stable_gain == pytest.approx(min(g, _circuit_gain(c)), rel=1e-3)
 
 
 def test_the_advised_gain_runs_to_the_scaled_fixed_point(unstable):
@@ -166,11 +179,16 @@ def test_cli_refuses_with_the_gain_then_runs_with_it(bundle, capsys):
     assert main(["simulate", str(bundle)]) == 2
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and "Traceback" not in err
-    assert "the original network is unstable (growth rate" in err
-    assert "scale W by a gain below 0.973 (--gain 0.97)" in err
-    assert main(["simulate", str(bundle), "--gain", "0.97"]) == 0
+    assert "the original network is unstable at gain 1" in err
+    command = re.search(r"run `eidecomp (simulate [^`]+)`", err).group(1)
+    argv = shlex.split(command)
+    g = float(argv[argv.index("--gain") + 1])
+    c, W = unstable_pair(bundle)
+    assert g < min(1.0 / _rightmost(W), _circuit_gain(c))   # numpy's
+    assert main(argv) == 0                                  # run as printed
     out = capsys.readouterr().out
-    assert re.search(r"gain\s+0\.97 \(the original is stable below 0\.9737\)", out)
+    assert re.search(rf"gain\s+{g:g} \(the original is stable below 0\.9737\)",
+                     out)
     assert re.search(r"model\s+linear", out)
     assert "vs fixed point of W_eff" in out
 
@@ -187,9 +205,7 @@ def test_cli_threshold_linear(bundle, capsys):
 
 
 @pytest.mark.parametrize("argv,message", [
-    (["--model", "threshold-linear", "--simulator", "nest"],
-     "--model threshold-linear runs on the internal simulator only (the "
-     "nest runner is linear)"),
+    (["--simulator", "neuron"], "argument --simulator: invalid choice: 'neuron'"),
     (["--gain", "0"], "argument --gain: must be a positive number: '0'"),
     (["--duration", "-1"], "argument --duration: must be a positive number"),
     (["--model", "cubic"], "argument --model: invalid choice: 'cubic'"),
@@ -197,3 +213,9 @@ def test_cli_threshold_linear(bundle, capsys):
 def test_cli_bad_simulate_options(bundle, capsys, argv, message):
     assert main(["simulate", str(bundle), *argv]) == 2
     assert message in capsys.readouterr().err
+
+
+def unstable_pair(bundle):
+    """The circuit and W = L + S as the bundle holds them."""
+    b = bundles.read_circuit_bundle(bundle)
+    return b.circuit, b.original_weights()

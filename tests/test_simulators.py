@@ -175,8 +175,8 @@ def test_exported_script_runs_the_drive_it_was_given(bundle, tmp_path, engine):
     import sys
 
     from eidecomp.cli import main
-    from eidecomp.dynamics import random_drive
     from eidecomp.io import read_circuit
+    from eidecomp.simulation import random_drive
 
     out = tmp_path / "c"
     assert main(["export", str(bundle), "--format", engine, "-o", str(out),
@@ -187,7 +187,7 @@ def test_exported_script_runs_the_drive_it_was_given(bundle, tmp_path, engine):
     assert run.returncode == 0, run.stderr[-2000:]
     rates = np.array(json.loads(run.stdout)["rates"])   # nothing else on stdout
     c, _ = read_circuit(bundle)
-    h, _ = random_drive(c.n_excitatory, 4)
+    h = random_drive(c.n_w_units, 4).values[:, 0]
     H = np.r_[h, np.zeros(c.n_inhibitory)]
     target = np.linalg.solve(np.eye(H.size) - c.signed_weights(), H)
     assert _rel(rates, target) < 1e-6
@@ -248,7 +248,6 @@ def test_pynn_spiking_rates_follow_the_rate_model(circuit, tmp_path, simulator):
     import subprocess
     import sys
 
-    from eidecomp.dynamics import random_drive
     from eidecomp.export._lists import population_taus
     from eidecomp.export.pynn_script import (
         BIAS_RATIO,
@@ -257,11 +256,12 @@ def test_pynn_spiking_rates_follow_the_rate_model(circuit, tmp_path, simulator):
         rheobase_nA,
         write_pynn,
     )
+    from eidecomp.simulation import random_drive
 
     c, _, W_full, _ = circuit
     rates = []
     for seed in (0, 1):
-        h, _ = random_drive(c.n_excitatory, seed)
+        h = random_drive(c.n_excitatory, seed).values[:, 0]
         folder = tmp_path / str(seed)
         write_pynn(c, folder, h)
         run = subprocess.run([sys.executable, str(folder / "circuit_pynn.py"),
@@ -284,7 +284,8 @@ def test_pynn_spiking_rates_follow_the_rate_model(circuit, tmp_path, simulator):
             start += p.size
             assert np.mean(out["rates_hz"][p.name]) == pytest.approx(
                 predicted, rel=0.05), p.name
-    dh = random_drive(c.n_excitatory, 1)[0] - random_drive(c.n_excitatory, 0)[0]
+    dh = (random_drive(c.n_excitatory, 1).values
+          - random_drive(c.n_excitatory, 0).values)[:, 0]
     n_i = c.n_inhibitory
     predicted = RATE_PER_DRIVE_HZ * np.linalg.solve(
         np.eye(W_full.shape[0]) - W_full, np.r_[dh, np.zeros(n_i)])[:c.n_excitatory]
@@ -355,7 +356,16 @@ def test_unstable_choice_is_refused(tmp_path, capsys):
     capsys.readouterr()
     assert main(["simulate", str(tmp_path / "isn"), "--tau-i", "12"]) == 2
     err = capsys.readouterr().err
-    assert "unstable at tau_I/tau_E = 1.2" in err and "stable up to 1" in err
+    assert "unstable at gain 1 and tau_I/tau_E = 1.2" in err
+    # stable iff tau_I < tau_E (test_dynamics' pair): up to ratio 1
+    assert "stable up to tau_I/tau_E = 1:" in err
+    import re
+    import shlex
+
+    command = re.search(r"run `eidecomp (simulate [^`]+)`", err).group(1)
+    flag, value = shlex.split(command)[2:]
+    assert flag == "--tau-i" and 9 <= float(value) < 10     # below tau_E
+    assert main(shlex.split(command)) == 0          # the advice, as printed
 
 
 # --- one time-constant rule ------------------------------------------------------

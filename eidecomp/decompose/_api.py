@@ -584,6 +584,9 @@ def suggest_lam(W, dec=None, *, n_lams=7, observed=None, ignore_diagonal=False,
     >>> verdict.fits, verdict.suggested_lam is not None
     (True, True)
     """
+    if observed is not None:        # checked, even when a path is given
+        observed = observed_entries(observed, np.shape(W),
+                                    ignore_diagonal=ignore_diagonal)
     if observed is None and dec is not None and dec.observed is not None:
         observed = dec.observed
     if points is None:

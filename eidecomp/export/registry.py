@@ -93,7 +93,8 @@ class ExportFormat:
 
 
 _TAUS = ("tau_e", "tau_i")
-_SCRIPT = _TAUS + ("drive", "seed")  # the simulator scripts take a drive
+_SCRIPT = _TAUS + ("drive", "seed", "gain", "allow_unstable")
+# the simulator scripts take a drive and a gain, and refuse an unstable circuit
 REGISTRY = (
     ExportFormat("graphml", False, graph_files.render_graphml,
                  "neuron-level graph, GraphML (networkx)", suffix=".graphml"),

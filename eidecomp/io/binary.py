@@ -176,7 +176,7 @@ def read_npy(path, *, what="array", ndim=None, max_bytes=None):
         return _np_load_npy(path, what).astype(np.float64, copy=False)
 
 
-def _pick(path, names, key, kind):
+def _pick(path, names, key, kind, key_option="--key", what="array"):
     if key is not None:
         if key not in names:
             raise InputError(f"{path}: no {kind} named {key!r}; it holds "
@@ -184,7 +184,9 @@ def _pick(path, names, key, kind):
         return key
     if len(names) != 1:
         raise InputError(f"{path}: holds {len(names)} {kind}s "
-                         f"({', '.join(sorted(names))}); name one with --key")
+                         f"({', '.join(sorted(names))}); " + (
+                             f"name one with {key_option}" if key_option
+                             else f"a {what} holds one"))
     return next(iter(names))
 
 
@@ -237,7 +239,7 @@ def _probe(path, n=8):
         raise cannot_read(path, exc) from None
 
 
-def _load_npz(path, key, what):
+def _load_npz(path, key, what, key_option="--key"):
     import zipfile
 
     if _probe(path, 2) != b"PK":  # every zip starts so (np.load's own test)
@@ -252,7 +254,7 @@ def _load_npz(path, key, what):
                         else i.filename): i for i in zf.infolist()}
             if key is None and _is_sparse_npz(members):
                 return _load_sparse_npz(path, zf, members, what)
-            name = _pick(path, members, key, "array")
+            name = _pick(path, members, key, "array", key_option, what)
             shape, dtype = _member_header(path, zf, members[name], name)
             _check_memory(f"{path}: array {name!r}", shape, dtype, what)
             return _read_member(path, zf, members[name], name)
@@ -323,7 +325,7 @@ def _mat_error(path, exc):
     return InputError(f"{path}: not a valid .mat file ({_first_line(exc)})")
 
 
-def _load_mat(path, key, what):
+def _load_mat(path, key, what, key_option="--key"):
     import scipy.io
     import scipy.sparse
 
@@ -333,7 +335,7 @@ def _load_mat(path, key, what):
                      in scipy.io.whosmat(path)}
     except Exception as exc:  # scipy raises many kinds on corrupt files
         raise _mat_error(path, exc) from None
-    name = _pick(path, variables, key, "variable")
+    name = _pick(path, variables, key, "variable", key_option, what)
     shape, cls = variables[name]
     if cls not in _MAT_DTYPES:
         raise InputError(f"{path}: variable {name!r} is a MATLAB {cls}; a real "
@@ -351,9 +353,11 @@ def _load_mat(path, key, what):
     return arr
 
 
-def load_array(path, key, *, what="array"):
+def load_array(path, key, *, what="array", key_option="--key"):
     """The array stored in ``path`` (any of MATRIX_SUFFIXES), checked at the
-    boundary; ``key`` names an array of an .npz or a variable of a .mat."""
+    boundary; ``key`` names an array of an .npz or a variable of a .mat (the
+    option that gives it is ``key_option``; None: none can, the file must
+    hold one)."""
     suffix = path.suffix.lower()
     if key is not None and suffix in (".npy", ".csv", ".tsv", ".txt"):
         raise InputError(f"{path}: a {suffix} file holds one array; a key "
@@ -362,10 +366,10 @@ def load_array(path, key, *, what="array"):
         npy_header(path, what=what)
         return _np_load_npy(path, what)
     if suffix == ".npz":
-        return _load_npz(path, key, what)
+        return _load_npz(path, key, what, key_option)
     if suffix in (".csv", ".tsv", ".txt"):
         return read_text_table(path, suffix)
     if suffix == ".mat":
-        return _load_mat(path, key, what)
+        return _load_mat(path, key, what, key_option)
     raise InputError(f"{path}: unknown file type {suffix or '(none)'!r}; "
                      f"expected one of {', '.join(MATRIX_SUFFIXES)}")

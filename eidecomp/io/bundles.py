@@ -64,6 +64,7 @@ from .jsondoc import load_json, require
 from .matrices import file_checksum
 from .provenance import stamp_doc, unedited_folder, verify_doc
 from .staging import check_output, file_bytes, staged_folder
+from .text import require_present
 
 __all__ = [
     "CIRCUIT",
@@ -272,6 +273,7 @@ def circuit_files(circuit):
 
 def _manifest(folder, kind):
     """The parsed manifest of ``folder``, refused unless it is ``kind``'s."""
+    require_present(folder)
     if not folder.is_dir():
         raise InputError(f"{folder}: not a folder (expected a {kind.what})")
     path = folder / kind.manifest
@@ -362,6 +364,8 @@ def _observed(folder, doc, where, shape):
     manifest's count of unobserved entries; None when every one was."""
     block = require(doc, "unobserved", dict, where)
     n = int(_number(block, "n_unobserved", where, int))
+    require(block, "path", (str, type(None)), where)
+    ignored = require(block, "ignore_diagonal", bool, where)
     obs = _array(folder, doc, "observed.npy", ndim=2)
     if obs is None:
         if n:
@@ -375,6 +379,9 @@ def _observed(folder, doc, where, shape):
     if int((~obs).sum()) != n or n == 0:
         raise InputError(f"{where}: n_unobserved is {n} but observed.npy "
                          f"leaves out {int((~obs).sum())} entries")
+    if ignored and (shape[0] != shape[1] or np.diagonal(obs).any()):
+        raise InputError(f"{where}: ignore_diagonal is true but observed.npy "
+                         "does not leave the diagonal out")
     return obs
 
 

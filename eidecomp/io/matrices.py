@@ -38,7 +38,8 @@ def file_checksum(path):
     return h.hexdigest()
 
 
-def read_matrix(path, *, key=None, transpose=False, square=True, what="matrix"):
+def read_matrix(path, *, key=None, transpose=False, square=True, what="matrix",
+                vector=False, key_option="--key"):
     """Read a real 2-D float64 matrix W[post, pre] from ``path``.
 
     Parameters
@@ -52,6 +53,10 @@ def read_matrix(path, *, key=None, transpose=False, square=True, what="matrix"):
         Require a square matrix (a weight matrix among one set of neurons).
     what : str
         Word used in error messages.
+    vector : bool
+        Also take a 1-D array, read as one column (a drive of N values).
+    key_option : str or None
+        The option that names an array (None: the file must hold one).
 
     Returns
     -------
@@ -78,13 +83,15 @@ def read_matrix(path, *, key=None, transpose=False, square=True, what="matrix"):
     path = Path(path)
     if size == 0:
         raise InputError(f"{path}: file is empty")
-    arr = np.asarray(load_array(path, key, what=what))
+    arr = np.asarray(load_array(path, key, what=what, key_option=key_option))
     if arr.dtype.kind not in "biuf":
         raise InputError(f"{path}: holds {kind_name(arr.dtype)} values; a real "
                          f"numeric {what} is needed")
+    if vector and arr.ndim == 1:
+        arr = arr[:, None]
     if arr.ndim != 2:
-        raise InputError(f"{path}: {what} must be 2-D, got {arr.ndim}-D shape "
-                         f"{arr.shape}")
+        raise InputError(f"{path}: {what} must be {'1-D or ' if vector else ''}"
+                         f"2-D, got {arr.ndim}-D shape {arr.shape}")
     if arr.size == 0:
         raise InputError(f"{path}: {what} is empty (shape {arr.shape})")
     # max and min, not abs: abs of the smallest int64 overflows to itself
@@ -108,25 +115,29 @@ def read_matrix(path, *, key=None, transpose=False, square=True, what="matrix"):
     return W
 
 
-def read_unobserved(path, shape, *, key=None, transpose=False,
-                    ignore_diagonal=False):
+def read_unobserved(path, shape, *, transpose=False, ignore_diagonal=False):
     """Read a file of *unobserved* entries; return the *observed* boolean array.
 
     The file holds 1 (or True) where an entry is unobserved and 0 where it is
-    observed, with W's shape and orientation; ``ignore_diagonal`` leaves the
-    diagonal out too. The shape and the "some entry is observed" checks are
+    observed, stored as the matrix file is (``transpose``: both are [pre,
+    post]), one array in it; ``ignore_diagonal`` leaves the diagonal out
+    too. The "some entry is observed" check is
     :func:`eidecomp.limits.observed_entries`', the library's own.
     """
-    M = read_matrix(path, key=key, transpose=transpose, square=False,
-                    what="file of unobserved entries")
     name = f"{path}: the file of unobserved entries"
-    if M.shape == tuple(shape):      # else the shape is what is wrong
-        if not np.isin(M, (0.0, 1.0)).all():
-            raise InputError(f"{name} must hold only 0 (observed) and 1 "
-                             "(unobserved)")
-        M = M == 0.0
-    return observed_entries(M, shape, ignore_diagonal=ignore_diagonal,
-                            name=name)
+    M = read_matrix(path, square=False, what="file of unobserved entries",
+                    key_option=None)
+    stored = tuple(shape)[::-1] if transpose else tuple(shape)
+    if M.shape != stored:
+        raise InputError(f"{name} has shape {M.shape} but the matrix file has "
+                         f"shape {stored}" + (" (both are read transposed)"
+                                              if transpose else ""))
+    if not np.isin(M, (0.0, 1.0)).all():
+        raise InputError(f"{name} must hold only 0 (observed) and 1 "
+                         "(unobserved)")
+    observed = (M == 0.0).T if transpose else M == 0.0
+    return observed_entries(np.ascontiguousarray(observed), shape,
+                            ignore_diagonal=ignore_diagonal, name=name)
 
 
 def read_kernel(path, *, key=None):
