@@ -10,7 +10,10 @@ backend. The script prints every unit's rate; the rate model predicts
 * each population's mean rate: r0 + rate_per_drive (I - W_full)^-1 H, with
   r0 the operating point's rate of each unit (``rate_hz`` at its bias);
 * the change of the E rates between the two drives:
-  rate_per_drive [(I - W_full)^-1 (H_b - H_a)]_E.
+  rate_per_drive [(I - W_full)^-1 (H_b - H_a)]_E (the linear model), and
+  rate_per_drive [r_tl(H_b) - r_tl(H_a)]_E with r_tl the threshold-linear
+  model's settled rates (E units [.]_+: eidecomp.simulation's internal
+  runner), to say which rate model the spiking export follows.
 
 The table gives, per circuit and simulator, the predicted and measured mean
 rate of each population, the number of units that never fired, and the
@@ -21,7 +24,8 @@ of the measured changes regressed on the predicted ones (1 when their size
 matches too).
 
 Targets (issue 16): every population fires; r >= 0.8 on the demo circuit and
-on a planted one, on both simulators.
+on a planted one, on both simulators. Issue 29: r and slope against the
+threshold-linear model too (columns "r tl", "slope tl").
 
     OPENBLAS_NUM_THREADS=2 python benchmarks/spiking.py [--t-stop 3000]
 """
@@ -72,6 +76,23 @@ def planted_circuit():
     return assemble(W, ei_ratio="4:1", seed=3, baselines=False)
 
 
+def threshold_linear_change(c, h_a, h_b):
+    """The threshold-linear model's settled E rate change between the two
+    drives, in Hz (eidecomp.simulation's internal runner, 40 time
+    constants of the slowest mode)."""
+    from eidecomp.dynamics import circuit_abscissa
+    from eidecomp.simulation import get_simulator, rectified_units, settle_time
+
+    n, n_i = c.n_excitatory, c.n_inhibitory
+    tau = np.r_[np.full(n, TAU_E_MS), np.full(n_i, TAU_I_MS)]
+    a = circuit_abscissa(c, tau_e=TAU_E_MS, tau_i=TAU_I_MS)
+    H = np.column_stack([np.r_[h_a, np.zeros(n_i)], np.r_[h_b, np.zeros(n_i)]])
+    run = get_simulator("internal").load()
+    rates = run(c.signed_weights(), H, tau, settle_time(a, a, TAU_E_MS, TAU_I_MS),
+                rectified_units(c, "threshold-linear"))
+    return RATE_PER_DRIVE_HZ * (rates[:n, 1] - rates[:n, 0])
+
+
 def predictions(c, h_a, h_b):
     """(per-population predicted mean rates for h_a, predicted E change)."""
     taus = population_taus(c, TAU_E_MS, TAU_I_MS)
@@ -120,29 +141,42 @@ def main():
             h_a = random_drive(c.n_excitatory, 0).values[:, 0]
             h_b = random_drive(c.n_excitatory, 1).values[:, 0]
             means, change = predictions(c, h_a, h_b)
+            tl_change = threshold_linear_change(c, h_a, h_b)
+            print(f"{cname}: the two rate models' predicted E changes "
+                  f"correlate {np.corrcoef(change, tl_change)[0, 1]:.3f}; "
+                  f"E units whose threshold-linear change is 0: "
+                  f"{int((np.abs(tl_change) < 1e-9).sum())}", flush=True)
             for sim in sims:
-                ra, ta = run_script(c, h_a, sim, args.t_stop, tmp / f"{sim}a")
-                rb, tb = run_script(c, h_b, sim, args.t_stop, tmp / f"{sim}b")
+                where = tmp / f"{cname.replace(' ', '-')}-{sim}"
+                ra, ta = run_script(c, h_a, sim, args.t_stop, where.with_name(
+                    where.name + "-a"))
+                rb, tb = run_script(c, h_b, sim, args.t_stop, where.with_name(
+                    where.name + "-b"))
                 dr = np.array(rb["E"]) - np.array(ra["E"])
                 r = float(np.corrcoef(dr, change)[0, 1])
                 r_ff = float(np.corrcoef(dr, h_b - h_a)[0, 1])
                 slope = float(np.polyfit(change, dr, 1)[0])
+                r_tl = float(np.corrcoef(dr, tl_change)[0, 1])
+                slope_tl = float(np.polyfit(tl_change, dr, 1)[0])
                 silent = {p: int(sum(x == 0 for x in v)) for p, v in ra.items()}
                 fires = all(np.mean(v) > 0 for v in ra.values())
                 ok &= fires and r >= TARGET_R
                 rows.append((cname, sim, means, ra, silent, r, r_ff, slope,
-                             ta + tb))
+                             r_tl, slope_tl, ta + tb))
                 print(f"{cname:12} {sim:7} r = {r:.3f} (drive alone {r_ff:.3f}), "
-                      f"slope {slope:.2f}, {ta + tb:.0f} s", flush=True)
+                      f"slope {slope:.2f}; threshold-linear r = {r_tl:.3f}, "
+                      f"slope {slope_tl:.2f}; {ta + tb:.0f} s", flush=True)
     print(f"\nt_stop {args.t_stop:g} ms per run; rates in Hz, predicted | "
           "measured (silent units)")
     print(f"{'circuit':12} {'sim':7} {'E':>19} {'I_untuned':>19} "
-          f"{'I_tuned':>19} {'r':>6} {'r drive':>7} {'slope':>6} {'s':>5}")
-    for cname, sim, means, ra, silent, r, r_ff, slope, secs in rows:
+          f"{'I_tuned':>19} {'r':>6} {'r drive':>7} {'slope':>6} "
+          f"{'r tl':>6} {'slope tl':>8} {'s':>5}")
+    for cname, sim, means, ra, silent, r, r_ff, slope, r_tl, s_tl, secs in rows:
         cells = [f"{means[p]:6.1f} | {np.mean(ra[p]):6.1f} ({silent[p]})"
                  if p in ra else "-" for p in ("E", "I_untuned", "I_tuned")]
         print(f"{cname:12} {sim:7} {cells[0]:>19} {cells[1]:>19} "
-              f"{cells[2]:>19} {r:6.3f} {r_ff:7.3f} {slope:6.2f} {secs:5.0f}")
+              f"{cells[2]:>19} {r:6.3f} {r_ff:7.3f} {slope:6.2f} "
+              f"{r_tl:6.3f} {s_tl:8.2f} {secs:5.0f}")
     print(f"\n{'PASS' if ok else 'FAIL'}  every population fires and r >= "
           f"{TARGET_R} on every circuit and simulator")
 

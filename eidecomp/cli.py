@@ -216,6 +216,7 @@ def _get_parser():
     from .io.units import POSITION_UNITS
     from .pipeline import DECOMPOSE_ENGINES
     from .simulation import MODELS, SIMULATORS
+    from .simulation import SETTLE_TIME_CONSTANTS as SETTLE
 
     parser = _Parser(prog="eidecomp", description=(
         "Turn a signed lateral weight matrix W[post, pre] into low-rank and "
@@ -373,9 +374,9 @@ def _get_parser():
     _add_gain(sim)
     sim.add_argument("--duration", type=_positive_float, metavar="MS",
                      help="simulated time in ms, shared among the drive's "
-                     "segments (default: each segment lasts 40 time constants "
-                     "of the slowest mode; 40 of the slower population's when "
-                     "the linear dynamics are unstable)")
+                     f"segments (default: each segment lasts {SETTLE} time "
+                     f"constants of the slowest mode; {SETTLE} of the slower "
+                     "population's when the linear dynamics are unstable)")
     _add_quiet(sim, result_printed=True)
     return parser
 

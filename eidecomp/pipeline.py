@@ -76,14 +76,21 @@ def _flag(name):
     return _FLAGS.get(name, "--" + name.replace("_", "-"))
 
 
+def _refuse_set(given, allowed, what):
+    """The one rule of options that do not apply: every option set away from
+    its default (``given``: name -> whether it is) that is not in
+    ``allowed`` is refused in one line, never ignored."""
+    for name, is_set in given.items():
+        if is_set and name not in allowed:
+            raise InputError(f"{_flag(name)} does not apply to {what}")
+
+
 def refuse_inapplicable(config, allowed, what):
-    """Refuse (one line) every option set away from its default that the
-    job does not use for this input, rather than ignore it silently."""
-    for f in dataclasses.fields(config):
-        if f.name in allowed or f.default is dataclasses.MISSING:
-            continue
-        if getattr(config, f.name) != f.default:
-            raise InputError(f"{_flag(f.name)} does not apply to {what}")
+    """:func:`_refuse_set` over a job's config (a dataclass whose defaults
+    are the options' own)."""
+    _refuse_set({f.name: getattr(config, f.name) != f.default
+                 for f in dataclasses.fields(config)
+                 if f.default is not dataclasses.MISSING}, allowed, what)
 
 
 _MATRIX_OPTIONS = ("key", "transpose", "unobserved", "ignore_diagonal", "lam", "tol",
@@ -536,7 +543,7 @@ def _assemble_tiled(config, out, progress):
     F = K.shape[0]
     n_total = (F + inhibitory_count(F, ratio, where=" per site",
                                     units="features")) * grid[0] * grid[1]
-    need = dense_bytes(n_total, arrays=3)
+    need = dense_bytes(n_total, arrays=6)   # the circuit, W's L and S, W
     if config.expand:
         check_fits(need, f"the expanded circuit ({n_total} units)",
                    advice="; drop --expand to keep it as kernels")
@@ -546,12 +553,20 @@ def _assemble_tiled(config, out, progress):
     tiled = assemble_tiled(dec, G, ei_ratio=ratio,
                            untuned_share=config.untuned_share,
                            alpha=config.alpha, seed=config.seed)
-    doc = bundles.tiled_doc(tiled, dec, source=source, expanded_bytes=need)
     if config.expand:
+        from .kernels import expand_full
+
         circuit = tiled.expand()
+        L, S = expand_full(dec.low_rank), expand_full(dec.sparse)
+        stability = dynamics.stability_summary(
+            circuit, L + S, tau_ratio=TAU_I_MS / TAU_E_MS)
+        doc = bundles.tiled_doc(tiled, dec, source=source, expanded_bytes=need,
+                                stability=stability)
         meta = bundles.write_circuit(out, circuit, doc, force=config.force,
-                                     inputs=inputs)
+                                     inputs=inputs,
+                                     arrays={"low_rank": L, "sparse": S})
         return AssembleResult(CIRCUIT, circuit, meta, out)
+    doc = bundles.tiled_doc(tiled, dec, source=source, expanded_bytes=need)
     meta = bundles.write_tiled(out, tiled, doc, force=config.force, inputs=inputs)
     return AssembleResult(TILED, tiled, meta, out)
 
@@ -611,10 +626,7 @@ def run_export(bundle, fmt, output, *, force=False, tau_e=TAU_E_MS,
              "raw_csv": bool(raw_csv), "drive": drive is not None,
              "seed": seed != 0, "gain": gain != 1.0,
              "allow_unstable": bool(allow_unstable)}
-    for option, set_ in given.items():
-        if set_ and option not in spec.options:
-            raise InputError(f"{_flag(option)} does not apply to the {fmt} "
-                             "format")
+    _refuse_set(given, spec.options, f"the {fmt} format")
     spec.check_available()
     bundles.expect_kind(bundle, CIRCUIT)  # a wrong input is named first
     if spec.folder and Path(output).suffix.lower() in FILE_SUFFIXES:
@@ -666,9 +678,9 @@ def _script_circuit(bundle, fmt, circuit, drive, seed, gain, tau_e, tau_i,
         if warn is not None:
             warn(f"{bundle}: {exc}; written as asked (--allow-unstable)")
     circuit = scaled_circuit(circuit, gain)
-    if fmt == "pynn":
+    if fmt in ("pynn", "neuroml"):     # spiking: one constant drive
         if d.n_segments != 1:
-            raise InputError(f"{drive}: the pynn export runs one drive (N "
+            raise InputError(f"{drive}: the {fmt} export runs one drive (N "
                              f"values), not {d.n_segments} segments")
         return circuit, {"drive": d.values[:, 0]}
     expected, segment = circuit_runs(circuit, d, tau_e=tau_e, tau_i=tau_i)

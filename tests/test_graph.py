@@ -417,7 +417,8 @@ def tabled(tmp_path_factory):
     d = tmp_path_factory.mktemp("tabled")
     W, _, features = make_planted_circuit(40, n_untuned=2, n_tuned=8, pool=4,
                                           seed=3)
-    np.save(d / "w.npy", W)
+    # scaled to max Re eig 0.5 (numpy): stable, as the script exports require
+    np.save(d / "w.npy", 0.5 * W / np.linalg.eigvals(W).real.max())
     pos = np.column_stack([np.arange(40) * 12.5, (np.arange(40) % 7) * 20.0])
     with open(d / "units.csv", "w") as fh:
         fh.write("id,feature,x,y\n")

@@ -278,3 +278,78 @@ def seen_settle_advice(asked, bundle):
     least once (gain 4: the runs grow; numpy's eigenvalues of 4 W)."""
     W = bundles.read_circuit_bundle(bundle).original_weights()
     return any("threshold-linear" in a for a in asked) and _rightmost(4 * W) > 1
+
+
+# --- tiled circuits: what to run instead, and an ordinary bundle after ------
+
+def _tiled(tmp_path):
+    from eidecomp.kernels import to_local
+
+    rng = np.random.default_rng(2)
+    F, grid = 4, (6, 6)
+    G = np.outer(rng.standard_normal(F), rng.standard_normal(F))[:, :, None,
+                                                                 None] * 0.1
+    G = G * np.ones((1, 1, *grid))
+    G += (rng.random(G.shape) < 0.05) * rng.choice([-0.3, 0.3], G.shape)
+    np.save(tmp_path / "k.npy", to_local(G, radius=2))
+    assert main(["assemble", "--kernel", str(tmp_path / "k.npy"), "--grid",
+                 "6x6", "-o", str(tmp_path / "t"), "-q"]) == 0
+    return tmp_path / "t"
+
+
+@pytest.mark.filterwarnings("ignore::eidecomp.errors.ConvergenceWarning")
+def test_a_tiled_bundle_says_what_to_run_and_the_run_gives_an_ordinary_one(
+        tmp_path, capsys, monkeypatch):
+    t = _tiled(tmp_path)
+    monkeypatch.chdir(tmp_path)
+    commands = set()
+    for argv in (["report", str(t), "-o", "r.html"], ["simulate", str(t)],
+                 ["export", str(t), "--format", "graphml", "-o", "g.graphml"]):
+        capsys.readouterr()
+        assert main(argv) == 2
+        err = capsys.readouterr().err
+        assert "a tiled circuit bundle, not a circuit bundle" in err
+        commands.add(re.search(r"run `eidecomp ([^`]+)`", err).group(1))
+    assert len(commands) == 1                  # one way on, the same for all
+    argv = shlex.split(commands.pop())
+    assert "--expand" in argv
+    assert main(argv) == 0
+    expanded = tmp_path / argv[argv.index("-o") + 1]
+    doc = json.loads((expanded / "circuit.json").read_text())
+    st = doc["stability"]
+    # W's stability from the expanded L + S (numpy's eigenvalues), recorded
+    L, S = np.load(expanded / "low_rank.npy"), np.load(expanded / "sparse.npy")
+    assert st["original_spectral_abscissa"] == pytest.approx(
+        _rightmost(L + S) - 1.0, rel=1e-9)
+    assert st["circuit_spectral_abscissa_equal_taus"] is not None
+    # every command reads it: it runs, or stops with another, specific line
+    for argv in (["report", str(expanded), "-o", "r.html"],
+                 ["export", str(expanded), "--format", "graphml", "-o",
+                  "g.graphml"], ["simulate", str(expanded)]):
+        capsys.readouterr()
+        code = main(argv)
+        err = capsys.readouterr().err
+        if code == 0:
+            continue
+        assert "a tiled circuit bundle" not in err, (argv, err)
+        again = _suggestion(err, argv[0])           # and its advice works
+        assert main(again) == 0 or capsys.readouterr().err != err
+
+
+def test_the_tiled_bundle_records_its_loops_own_convergence(tmp_path):
+    from eidecomp.assemble import assemble_tiled
+    from eidecomp.decompose import robust_pca_kernel
+    from eidecomp.errors import ConvergenceWarning
+    from eidecomp.kernels import full_grid, to_local
+
+    rng = np.random.default_rng(3)
+    G = full_grid(to_local(rng.normal(0, 0.1, (3, 3, 5, 5)), radius=1), (5, 5))
+    dec = robust_pca_kernel(G, (5, 5), offsets=True)
+    with pytest.warns(ConvergenceWarning, match="tiled circuit refinement"):
+        stopped = assemble_tiled(dec, G, max_iter=1)
+    assert stopped.converged is False
+    done = assemble_tiled(dec, G, max_iter=5000)
+    assert done.converged is True and done.n_iter < 10000
+    doc = bundles.tiled_doc(stopped, dec, source={"path": "k", "grid": [5, 5]},
+                            expanded_bytes=0)
+    assert doc["metrics"]["converged"] is False

@@ -65,8 +65,56 @@ def test_neuroml_validates_and_round_trips(circuit, tmp_path):
     neuroml2.write_neuroml(c, path)
     validate_neuroml2(str(path))  # libNeuroML's own schema check
     blocks = neuroml2.read_blocks(path)
-    for name, J in blocks.items():
-        np.testing.assert_array_equal(J, getattr(c, name))  # bit for bit
+    for name, J in blocks.items():   # through the currents (nA) and back
+        np.testing.assert_allclose(J, getattr(c, name), rtol=1e-13, atol=0)
+
+
+def test_neuroml_is_one_kind_of_spiking_model_and_carries_its_drive(circuit,
+                                                                   tmp_path):
+    """Cells, synapses and inputs all spiking (PyNN's IF_curr_exp,
+    expCurrSynapse, pulse and Poisson inputs: NeuroML2's PyNN-compatible
+    elements); each unit's current is the PyNN export's (bias plus drive),
+    so the drive is in the file. References: libNeuroML's reader and
+    validator, and the PyNN export's own data (numpy's npz reader)."""
+    require("neuroml")
+    import io
+
+    from neuroml.loaders import read_neuroml2_file
+    from neuroml.utils import validate_neuroml2
+
+    from eidecomp.export import render
+    from eidecomp.export.pynn_script import RATE_PER_DRIVE_HZ, gain_hz_per_nA
+
+    c, h, _, _ = circuit
+    path = tmp_path / "c.net.nml"
+    path.write_bytes(render("neuroml", c, drive=h))
+    validate_neuroml2(str(path))
+    doc = read_neuroml2_file(str(path))
+    assert len(doc.IF_curr_exp) == 3 and not doc.iaf_tau_cells
+    assert not doc.linear_graded_synapses and not doc.silent_synapses
+    assert len(doc.exp_curr_synapses) == 3
+    net = doc.networks[0]
+    assert net.projections and not net.continuous_projections
+    currents = {il.populations: np.array([float(i.weight) for i in il.input_ws])
+                for il in net.input_lists if il.id.endswith("_drive")}
+    with np.load(io.BytesIO(render("pynn", c, drive=h)["circuit_pynn_data.npz"]),
+                 allow_pickle=False) as z:
+        np.testing.assert_allclose(np.concatenate(
+            [currents[p] for p in ("E", "I_untuned", "I_tuned")]),
+            z["i_offset"], rtol=1e-15)
+    # the drive's share: rate_per_drive / gain x h on the E units
+    zero = read_neuroml2_file(str(_written(tmp_path / "z.net.nml",
+                                           render("neuroml", c))))
+    base = [np.array([float(i.weight) for i in il.input_ws])
+            for il in zero.networks[0].input_lists if il.id == "E_drive"][0]
+    np.testing.assert_allclose(currents["E"] - base,
+                               RATE_PER_DRIVE_HZ / gain_hz_per_nA(10.0) * h,
+                               rtol=1e-12)
+
+
+def _written(path, data):
+    path.write_bytes(data)
+    return path
 
 
 def test_pynn_script_runs_under_pynn_nest(circuit, tmp_path):
@@ -155,7 +203,7 @@ def test_export_command_simulator_formats(bundle, tmp_path, fmt):
 
         c, _ = read_circuit(bundle)
         for name, J in read_blocks(out).items():
-            np.testing.assert_array_equal(J, getattr(c, name))
+            np.testing.assert_allclose(J, getattr(c, name), rtol=1e-13, atol=0)
     else:
         # the script, its data, and the folder's manifest (README, "Provenance")
         assert sorted(p.name.rsplit(".", 1)[-1] if p.name != "eidecomp-manifest"
@@ -427,10 +475,10 @@ def test_default_time_constants_reach_the_files():
         assert z["tau_ms"].tolist() == [TAU_E_MS, TAU_I_MS, TAU_I_MS]
     require("neuroml")
     root = ET.fromstring(render("neuroml", c))
-    taus = {el.get("id"): el.get("tau") for el in root.iter()
-            if el.tag.endswith("iafTauCell")}
-    assert taus == {"eidecomp_exc_unit": f"{TAU_E_MS!r}ms",
-                    "eidecomp_inh_unit": f"{TAU_I_MS!r}ms"}
+    taus = {el.get("id"): float(el.get("tau_m")) for el in root.iter()
+            if el.tag.endswith("IF_curr_exp")}
+    assert taus == {"E_cell": TAU_E_MS, "I_untuned_cell": TAU_I_MS,
+                    "I_tuned_cell": TAU_I_MS}
 
 
 def test_neuroml_validates_against_the_xsd(circuit):
@@ -492,4 +540,4 @@ def test_neuroml_carries_the_positions_the_user_gave(circuit, tmp_path):
     got = np.array([[i.location.x, i.location.y] for i in E.instances])
     np.testing.assert_allclose(got, xy, rtol=0, atol=1e-9)  # um, as written
     for name, J in read_blocks(path).items():        # the weights unchanged
-        np.testing.assert_array_equal(J, getattr(c, name))
+        np.testing.assert_allclose(J, getattr(c, name), rtol=1e-13, atol=0)

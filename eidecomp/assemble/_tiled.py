@@ -33,6 +33,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..errors import warn_stopped
 from ..kernels import dense_bytes, expand_full
 from ..limits import check_fits
 from ..params import DEFAULT_EI_RATIO, EIRatio
@@ -69,6 +70,8 @@ class TiledCircuit:
     grid: tuple
     params: dict = field(default_factory=dict, repr=False)
     relative_error: float = float("nan")
+    converged: bool = True
+    n_iter: int = 0
 
     @property
     def n_features(self):
@@ -174,6 +177,7 @@ def assemble_tiled(dec, W, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto",
     B = np.concatenate([B_u, B_t], axis=0)
     support = None
     history = []
+    converged = True
     for phase_alpha in (alpha, 0.0):  # refinement, then debiasing
         for _ in range(max_iter):
             AB = compose(A, B)
@@ -186,7 +190,12 @@ def assemble_tiled(dec, W, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto",
             if len(history) > 1 and abs(history[-2] - history[-1]) <= \
                     tol * 0.5 * float(np.vdot(G, G)):
                 break
+        else:                          # the phase met its sweep limit
+            converged = False
         support = J > 0
+    if not converged:
+        warn_stopped("tiled circuit refinement", max_iter, unit="sweeps",
+                     advice="raise assemble_tiled's max_iter")
     J = np.maximum(G + compose(A, B), 0.0) * support
     circuit = TiledCircuit(J_EE=J, J_EU=A[:, :mu], J_UE=B[:mu], J_ET=A[:, mu:],
                            J_TE=B[mu:], grid=tuple(grid),
@@ -195,4 +204,5 @@ def assemble_tiled(dec, W, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto",
     err = float(np.linalg.norm(G - circuit.effective_kernel()) / np.linalg.norm(G))
     return TiledCircuit(**{k: getattr(circuit, k) for k in
                            (*BLOCK_NAMES, "grid",
-                            "params")}, relative_error=err)
+                            "params")}, relative_error=err,
+                        converged=converged, n_iter=len(history))

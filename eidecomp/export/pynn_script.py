@@ -66,9 +66,11 @@ from ..types import BLOCKS
 from ._lists import drive_vector, npz_bytes, population_taus, write_into
 from ._names import unit_id_list
 
-__all__ = ["BACKGROUND_HZ", "BACKGROUND_SD", "BIAS_RATIO", "RATE_PER_DRIVE_HZ",
+__all__ = ["BACKGROUND_HZ", "BACKGROUND_SD", "BIAS_RATIO", "IF_CURR_EXP",
+           "RATE_PER_DRIVE_HZ",
            "SCRIPT", "TAU_SYN_RATIO", "background_weight_nA", "gain_hz_per_nA",
-           "pynn_files", "rate_hz", "render_pynn", "rheobase_nA", "write_pynn"]
+           "pynn_files", "rate_hz", "render_pynn", "rheobase_nA",
+           "spiking_data", "write_pynn"]
 
 SCRIPT = '''"""PyNN model of a circuit assembled by eidecomp (generated file).
 
@@ -163,8 +165,13 @@ if __name__ == "__main__":
 '''
 
 
-# PyNN's IF_curr_exp defaults (pyNN.standardmodels.cells.IF_curr_exp)
-_V_RESET_MV, _V_THRESH_MV, _CM_NF, _T_REFRAC_MS = -65.0, -50.0, 1.0, 0.1
+IF_CURR_EXP = {"cm": 1.0, "tau_refrac": 0.1, "v_rest": -65.0, "v_reset": -65.0,
+               "v_thresh": -50.0}
+"""PyNN's IF_curr_exp defaults (pyNN.standardmodels.cells.IF_curr_exp: nF,
+ms, mV) that the mapping keeps; the PyNN script leaves them to PyNN, the
+NeuroML2 export writes them."""
+_V_RESET_MV, _V_THRESH_MV = IF_CURR_EXP["v_reset"], IF_CURR_EXP["v_thresh"]
+_CM_NF, _T_REFRAC_MS = IF_CURR_EXP["cm"], IF_CURR_EXP["tau_refrac"]
 
 BIAS_RATIO = 2.0        # bias current / rheobase: every unit fires
 TAU_SYN_RATIO = 1.5     # tau_syn / tau_m of the postsynaptic unit
@@ -250,23 +257,35 @@ def _bias(circuit, taus, gain, bias_ratio, coupling):
 
 
 def pynn_files(circuit, h=None, *, tau_e=TAU_E_MS, tau_i=TAU_I_MS,
-               bias_ratio=BIAS_RATIO, tau_syn_ratio=TAU_SYN_RATIO,
-               rate_per_drive=RATE_PER_DRIVE_HZ, coupling=1.0, delay_ms=0.1,
-               timestep_ms=0.1, seed=0, unit_ids=None,
-               background_sd=BACKGROUND_SD, background_hz=BACKGROUND_HZ):
-    """{file name: bytes} of the script and its data (the mapping of the
-    module's docstring; ``coupling`` scales every synapse, 1 for the rate
-    model's own; ``background_sd`` 0 leaves the background out; ``seed``
-    sets the starting potentials and the simulator's random numbers).
+               unit_ids=None, **mapping):
+    """{file name: bytes} of the script and its data (:func:`spiking_data`,
+    whose other keyword arguments ``mapping`` takes).
 
     ``unit_ids`` (the unit table's names) are stored in the data file as a
     string array, ``unit_ids``; the script's text never contains them."""
+    data = spiking_data(circuit, h, tau_e=tau_e, tau_i=tau_i, **mapping)
+    ids = unit_id_list(circuit.named(unit_ids), circuit.n_excitatory)
+    if ids is not None:
+        data["unit_ids"] = np.array(ids, dtype=str)
+    return {"circuit_pynn.py": SCRIPT.encode(),
+            "circuit_pynn_data.npz": npz_bytes(data)}
+
+
+def spiking_data(circuit, h=None, *, tau_e=TAU_E_MS, tau_i=TAU_I_MS,
+                 bias_ratio=BIAS_RATIO, tau_syn_ratio=TAU_SYN_RATIO,
+                 rate_per_drive=RATE_PER_DRIVE_HZ, coupling=1.0, delay_ms=0.1,
+                 timestep_ms=0.1, seed=0, background_sd=BACKGROUND_SD,
+                 background_hz=BACKGROUND_HZ):
+    """The spiking model of the circuit as arrays (the mapping of the
+    module's docstring; ``coupling`` scales every synapse, 1 for the rate
+    model's own; ``background_sd`` 0 leaves the background out; ``seed``
+    sets the starting potentials and the simulator's random numbers): what
+    the PyNN script reads and the NeuroML2 export writes as elements."""
     if not bias_ratio > 1:
         raise ValueError(f"bias_ratio must exceed 1, got {bias_ratio!r}")
     if not (background_sd >= 0 and background_hz >= 0):
         raise ValueError(f"background_sd and background_hz must be >= 0, got "
                          f"{background_sd!r} and {background_hz!r}")
-    ids = unit_id_list(circuit.named(unit_ids), circuit.n_excitatory)
     h = np.zeros(circuit.n_w_units) if h is None else h
     H = drive_vector(circuit, h)
     pops = circuit.populations
@@ -308,10 +327,7 @@ def pynn_files(circuit, h=None, *, tau_e=TAU_E_MS, tau_i=TAU_I_MS,
     data["proj_pre"] = np.array(pres, dtype=str)
     data["proj_post"] = np.array(posts, dtype=str)
     data["proj_receptor"] = np.array(receptors, dtype=str)
-    if ids is not None:
-        data["unit_ids"] = np.array(ids, dtype=str)
-    return {"circuit_pynn.py": SCRIPT.encode(),
-            "circuit_pynn_data.npz": npz_bytes(data)}
+    return data
 
 
 def render_pynn(circuit, *, features=None, positions=None, unit_ids=None,

@@ -107,8 +107,9 @@ REGISTRY = (
                  "population-level table: connection probability and mean "
                  "weight per pair of populations, CSV", suffix=".csv"),
     ExportFormat("neuroml", False, neuroml2.render_neuroml,
-                 "NeuroML2 network (libNeuroML), schema-validated",
-                 requires="neuroml", suffix=".net.nml", options=_TAUS),
+                 "NeuroML2 spiking network with its drive (libNeuroML; the "
+                 "sim extra), schema-validated",
+                 requires="neuroml", suffix=".net.nml", options=_SCRIPT),
     ExportFormat("pynn", True, pynn_script.render_pynn,
                  "folder: PyNN script (spiking) and its data", options=_SCRIPT),
     ExportFormat("nest", True, rate_scripts.render_nest,

@@ -280,6 +280,7 @@ def _manifest(folder, kind):
     if not path.is_file():
         found = identify(folder)
         raise InputError(f"{folder}: " + (f"a {found.what}, not a {kind.what}"
+                                          + _instead(folder, found, kind)
                                           if found else f"no {kind.manifest}; "
                                           f"not a {kind.what}"))
     doc = load_json(path, what=kind.manifest)
@@ -291,6 +292,29 @@ def _manifest(folder, kind):
     doc = verify_doc(doc, path)
     _finite_numbers(doc, path)
     return doc
+
+
+def _instead(folder, found, kind):
+    """What to run instead when a tiled circuit bundle is given where a
+    circuit bundle is read: the exact command that writes it expanded (its
+    kernel, grid and parameters, from tiled.json), or "" for other kinds."""
+    if found is not TILED or kind is not CIRCUIT:
+        return ""
+    import shlex
+
+    try:
+        doc = load_json(Path(folder) / TILED.manifest, what=TILED.manifest)
+        source, p = doc["input"], doc["parameters"]
+        words = ["eidecomp", "assemble", "--kernel", str(source["path"]),
+                 "--grid", "x".join(str(int(g)) for g in source["grid"]),
+                 "--ei-ratio", str(p["ei_ratio"]), "--alpha", repr(p["alpha"]),
+                 "--lam", repr(p["lam"]), "--seed", str(int(p["seed"])),
+                 "--expand", "-o", f"{Path(folder).name}-expanded"]
+    except (InputError, KeyError, TypeError, ValueError):
+        return ("; assemble its kernel again with --expand for an explicit "
+                "circuit bundle")
+    return (f"; its kernels expand to an explicit circuit bundle that every "
+            f"command reads: run `{shlex.join(words)}`")
 
 
 def _check_version(doc, path, kind):
@@ -839,9 +863,11 @@ def write_circuit(out, circuit, doc, *, arrays=None, files=None, force=False,
     return write_bundle(out, CIRCUIT, data, doc, force=force, inputs=inputs)
 
 
-def tiled_doc(tiled, dec, *, source, expanded_bytes):
+def tiled_doc(tiled, dec, *, source, expanded_bytes, stability=None):
     """tiled.json (and circuit.json of an expanded tiled circuit): counts per
-    site and in all, the error, and the memory the expansion takes."""
+    site and in all, the error, the refinement's own convergence, and the
+    memory the expansion takes; ``stability`` (an expanded circuit's, from
+    eidecomp.dynamics.stability_summary) in place of "not computed"."""
     F, mu, mt = tiled.per_site
     h, w = tiled.grid
     per_site = dict(zip((EXCITATORY, UNTUNED, TUNED), tiled.per_site, strict=True))
@@ -853,14 +879,18 @@ def tiled_doc(tiled, dec, *, source, expanded_bytes):
                         "ee_density": float(np.count_nonzero(tiled.J_EE)
                                             / tiled.J_EE.size),
                         "share_rule": f"per site: {mu} untuned, {mt} tuned",
-                        "converged": True, "ee_support": "any"},
+                        "converged": bool(tiled.converged),
+                        "ee_support": "any"},
             "baselines": [], "interneurons": [],
             "decomposition": {"lam": dec.lam, "rank": dec.rank,
                               "converged": dec.converged, "n_iter": dec.n_iter},
-            "stability": {"original_spectral_abscissa": None,
-                          "circuit_spectral_abscissa_equal_taus": None,
-                          "max_stable_tau_ratio": None,
-                          "note": "not computed for tiled circuits"},
+            "stability": ({k: json_number(v) for k, v in stability.items()}
+                          if stability is not None else
+                          {"original_spectral_abscissa": None,
+                           "circuit_spectral_abscissa_equal_taus": None,
+                           "max_stable_tau_ratio": None,
+                           "note": "not computed for tiled circuits (kernels); "
+                                   "computed once expanded (--expand)"}),
             "memory_estimate_expanded_bytes": expanded_bytes,
             "hypothesis": "a model circuit consistent with W, not a measurement"}
 

@@ -16,6 +16,7 @@ eidecomp.dynamics'; this package names no command-line flag except in
 
 from .advice import explain, round_down, verdict_line
 from .compare import (
+    SETTLE_TIME_CONSTANTS,
     Diverged,
     Unstable,
     check_stable,
@@ -42,6 +43,7 @@ __all__ = [
     "MODELS",
     "RANDOM",
     "SEGMENT_STEP_MS",
+    "SETTLE_TIME_CONSTANTS",
     "SIMULATORS",
     "Diverged",
     "Drive",

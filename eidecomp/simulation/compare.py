@@ -28,9 +28,9 @@ from ..errors import InputError
 from .drive import Drive, drive_of
 from .simulators import get_model, get_simulator, segment_length
 
-__all__ = ["Diverged", "Unstable", "check_stable", "circuit_runs",
-           "compare_with_original", "rectified_units", "settle_time",
-           "stable_gains"]
+__all__ = ["SETTLE_TIME_CONSTANTS", "Diverged", "Unstable", "check_stable",
+           "circuit_runs", "compare_with_original", "rectified_units",
+           "settle_time", "stable_gains"]
 
 SETTLE_TIME_CONSTANTS = 40
 """A run lasts this many time constants of the slowest mode (rates within
