@@ -34,6 +34,7 @@ from .params import (
     labels_caveat,
     own_stability_line,
     resolve_tol,
+    tau_ratio_text,
 )
 
 __all__ = ["main"]
@@ -111,6 +112,14 @@ def _add_matrix_options(p):
                    type=str.upper, help="cvxpy solver for --method convex "
                    f"(default {SOLVERS[0]})")
 
+
+EXIT_RULE = ("exit status: 0 done; 1 a solver, a write or memory failed; 2 "
+             "bad input or options; 3 the output was written but its summary "
+             "could not be printed; 129, 130, 143 hung up, interrupted, "
+             "terminated; whatever the status, no partly written output is left "
+             "and an existing one is unchanged unless replaced as asked")
+"""The exit statuses, the same words in README ("When something is wrong")
+and at the end of every --help."""
 
 QUIET_RULE = ("no progress lines and no summary: only warnings and errors, on "
               "standard error; the exit status tells the outcome")
@@ -378,6 +387,8 @@ def _get_parser():
                      f"constants of the slowest mode; {SETTLE} of the slower "
                      "population's when the linear dynamics are unstable)")
     _add_quiet(sim, result_printed=True)
+    for p in (parser, *sub.choices.values()):
+        p.epilog = EXIT_RULE
     return parser
 
 
@@ -536,18 +547,13 @@ def _circuit_table(result):
                      f"{b['relative_error']:>11.4f} {b['ee_density']:>13.4f}"
                      + _convergence_cell(b))
     st = m["stability"]
-    ratio = st.get("max_stable_tau_ratio")
     if st.get("circuit_spectral_abscissa_equal_taus") is None:
         lines.append(f"stability: {st['note']}")
     elif st.get("own_neurons"):
         lines.append(own_stability_line(st))
-    elif ratio == 0.0:
-        lines.append("stability: unstable at every tau_I/tau_E (spectral "
-                     "abscissa of -I + W is "
-                     f"{st['original_spectral_abscissa']:.3g})")
     else:
-        lines.append("stable up to tau_I/tau_E: "
-                     + ("beyond 100" if ratio is None else f"{ratio:.3g}"))
+        lines.append(f"stability: {tau_ratio_text(st)} (spectral abscissa of "
+                     f"-I + W: {st['original_spectral_abscissa']:.3g})")
     if st.get("why"):
         lines.append(f"stability: {st['why']}")
     if guard_line(met):

@@ -36,10 +36,11 @@ import numpy as np
 from scipy.integrate import solve_ivp
 
 from .errors import InputError
+from .params import STABILITY_SCAN
 from .types import BLOCK_NAMES, II_BLOCK_NAMES
 
 __all__ = ["DENSE_MAX_UNITS", "DIVERGED", "MAX_EVALUATIONS", "METHODS",
-           "STABILITY_SCAN", "UnsettledRun", "circuit_abscissa",
+           "UnsettledRun", "circuit_abscissa",
            "effective_from_full", "fixed_point", "full_matrix", "jacobian",
            "jacobian_operator", "largest_stable_circuit_gain",
            "largest_stable_gain", "max_stable_tau_ratio",
@@ -497,7 +498,6 @@ def simulate(W_full, h, *, n_e=None, tau_e=1.0, tau_i=1.0, t_max=None,
 
 # --- summaries the jobs record ---------------------------------------------------
 
-STABILITY_SCAN = (1e-2, 1e2, 9)  # tau_I / tau_E from, to, grid ratios (then bisection)
 
 
 def _method_name(n):

@@ -394,6 +394,33 @@ def guard_line(metrics):
             f"{g['abscissa_before']:.3g} -> {g['abscissa_after']:.3g} per ms)")
 
 
+STABILITY_SCAN = (1e-2, 1e2, 9)
+"""The largest stable tau_I / tau_E is looked for from, to, over this many
+ratios (then narrowed by bracketed root finding): eidecomp.dynamics."""
+
+
+def tau_ratio_text(stability):
+    """The largest stable tau_I / tau_E of circuit.json's stability section
+    in words, the same for the command's summary and the report.
+
+    >>> tau_ratio_text({"circuit_spectral_abscissa_equal_taus": -1.0,
+    ...                 "max_stable_tau_ratio": None})
+    'stable at every tau_I/tau_E from 0.01 to 100'
+    >>> tau_ratio_text({"circuit_spectral_abscissa_equal_taus": 1.0,
+    ...                 "max_stable_tau_ratio": 0.0})
+    'unstable at every tau_I/tau_E from 0.01 to 100'
+    """
+    lo, hi, _ = STABILITY_SCAN
+    ratio = stability.get("max_stable_tau_ratio")
+    if stability.get("circuit_spectral_abscissa_equal_taus") is None:
+        return "largest stable tau_I/tau_E not computed"
+    if ratio is None:
+        return f"stable at every tau_I/tau_E from {lo:g} to {hi:g}"
+    if ratio < lo:
+        return f"unstable at every tau_I/tau_E from {lo:g} to {hi:g}"
+    return f"stable up to tau_I/tau_E = {ratio:.3g}"
+
+
 def own_stability_line(stability):
     """Stability of a circuit of W's own neurons (circuit.json's stability
     section), at equal time constants (W's own dynamics) and at the

@@ -34,7 +34,7 @@ ALLOWED = {
                          "types"},
     "assemble": BASE | {"decompose", "grammar", "kernels", "limits", "names",
                         "params", "progress", "types"},
-    "dynamics": BASE | {"types"},
+    "dynamics": BASE | {"params", "types"},
     "simulation": BASE | {"dynamics", "export", "io", "params", "types"},
     "graph": BASE | {"names", "types"},
     "export": BASE | {"analysis", "graph", "io", "names", "params", "types"},

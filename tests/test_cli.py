@@ -280,3 +280,21 @@ def test_quiet_prints_nothing_but_writes_everything(tmp_path, capsys):
                    for line in err.splitlines()), argv   # warnings only
     for name in ("d", "c", "c2", "g.graphml", "r.html"):
         assert (tmp_path / name).exists(), name
+
+
+# --- the exit statuses: one text, the README's and every --help's ------------
+# Reference: the README's own sentence (issue 28: one owner for the text).
+
+def test_exit_statuses_are_stated_in_the_same_words_everywhere():
+    from pathlib import Path
+
+    from eidecomp.cli import EXIT_RULE, _get_parser
+
+    readme = (Path(__file__).parents[1] / "README.md").read_text("utf-8")
+    assert f"\n{EXIT_RULE}." in readme
+    parser = _get_parser()
+    for command, sub in {"eidecomp": parser, **_subcommands()}.items():
+        assert sub.epilog == EXIT_RULE, command
+        assert " ".join(EXIT_RULE.split()) in " ".join(sub.format_help().split())
+    for status in ("0", "1", "2", "3", "129", "130", "143"):
+        assert f" {status}" in EXIT_RULE

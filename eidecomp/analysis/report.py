@@ -28,6 +28,7 @@ from ..params import (
     guard_line,
     labels_caveat,
     own_stability_line,
+    tau_ratio_text,
 )
 from ..progress import announcer
 from ..types import TUNED, UNTUNED
@@ -289,16 +290,10 @@ def _stability_text(st):
         return (f"spectral abscissa of -I + W: "
                 f"{_fmt(st.get('original_spectral_abscissa'), '.3g')}; "
                 f"{own_stability_line(st)}{why}")
-    if st.get("circuit_spectral_abscissa_equal_taus") is None:
-        limit = "not computed"
-    elif st.get("max_stable_tau_ratio") is None:
-        limit = "beyond 100"
-    else:
-        limit = _fmt(st.get("max_stable_tau_ratio"), ".3g")
     why = f". {st['why']}" if st.get("why") else ""
     return (f"spectral abscissa of -I + W: "
-            f"{_fmt(st.get('original_spectral_abscissa'), '.3g')}; largest "
-            f"stable tau_I/tau_E: {limit}{why}")
+            f"{_fmt(st.get('original_spectral_abscissa'), '.3g')}; "
+            f"{tau_ratio_text(st)}{why}")
 
 
 def _verdict_para(decomposition):

@@ -10,8 +10,7 @@ API) the same words name the quantity to change instead.
 
 import math
 
-from ..dynamics import STABILITY_SCAN
-from ..params import AGREEMENT_RTOL
+from ..params import AGREEMENT_RTOL, STABILITY_SCAN
 from .compare import Diverged, Unstable
 
 __all__ = ["explain", "round_down", "verdict_line"]

@@ -15,7 +15,6 @@ import numpy as np
 
 from ..dynamics import (
     DIVERGED,
-    STABILITY_SCAN,
     UnsettledRun,
     circuit_abscissa,
     fixed_point,
@@ -25,6 +24,7 @@ from ..dynamics import (
     spectral_abscissa,
 )
 from ..errors import InputError
+from ..params import STABILITY_SCAN
 from .drive import Drive, drive_of
 from .simulators import get_model, get_simulator, segment_length
 
