@@ -15,7 +15,7 @@ other one solved the program.
 """
 
 __all__ = ["ConvergenceWarning", "EidecompError", "InputError", "SolverError",
-           "SolverFallbackWarning", "WriteError", "warn_stopped"]
+           "SolverFallbackWarning", "WriteError", "entry", "warn_stopped"]
 
 
 class EidecompError(Exception):
@@ -24,6 +24,22 @@ class EidecompError(Exception):
 
 class InputError(EidecompError, ValueError):
     """Bad input: a file, an array or an option that cannot be used."""
+
+
+def entry(table, name, what):
+    """``table[name]`` of a registry (formats, models, simulators), or the
+    one wording of an unknown name: InputError naming the choices.
+
+    >>> entry({"a": 1}, "b", "model")
+    Traceback (most recent call last):
+    ...
+    eidecomp.errors.InputError: unknown model 'b' (choose from a)
+    """
+    try:
+        return table[name]
+    except (KeyError, TypeError):
+        raise InputError(f"unknown {what} {name!r} (choose from "
+                         f"{', '.join(table)})") from None
 
 
 class SolverError(EidecompError, RuntimeError):

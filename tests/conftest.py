@@ -18,6 +18,27 @@ def rng():
     return np.random.default_rng(20261201)
 
 
+def write_planted_bundle(folder, c, W):
+    """A circuit bundle of a planted circuit ``c`` whose original network is
+    ``W`` (stored as its split: low_rank = -J_EU J_UE, sparse the rest),
+    written by eidecomp's own bundle writer."""
+    from eidecomp.analysis import interneuron_pools
+    from eidecomp.dynamics import stability_summary
+    from eidecomp.io import bundles
+    from eidecomp.types import AssemblyReport
+
+    c = type(c)(J_EE=c.J_EE, J_EU=c.J_EU, J_UE=c.J_UE, J_ET=c.J_ET, J_TE=c.J_TE,
+                report=AssemblyReport(relative_error=0.0, ee_density=0.1,
+                                      share_rule="planted"))
+    low_rank = -c.J_EU @ c.J_UE
+    doc = bundles.circuit_doc(c, source={"path": "planted"}, decomposition={},
+                              stability=stability_summary(c, W),
+                              pools=interneuron_pools(c), parameters={})
+    bundles.write_circuit(folder, c, doc,
+                          arrays={"low_rank": low_rank, "sparse": W - low_rank})
+    return folder
+
+
 def require(module):
     """Import a simulator, or skip; under .ci/run (which installs the sim
     extra) a missing simulator fails instead of skipping."""

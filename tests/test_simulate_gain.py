@@ -12,17 +12,16 @@ import shlex
 
 import numpy as np
 import pytest
+from conftest import write_planted_bundle
 from scipy.integrate import solve_ivp
 
-from eidecomp.analysis import interneuron_pools
 from eidecomp.cli import main
 from eidecomp.datasets import make_planted_circuit
-from eidecomp.dynamics import largest_stable_gain, scaled_circuit, stability_summary
+from eidecomp.dynamics import largest_stable_gain, scaled_circuit
 from eidecomp.errors import InputError
 from eidecomp.io import bundles
 from eidecomp.pipeline import run_simulate
 from eidecomp.simulation import Unstable, compare_with_original
-from eidecomp.types import AssemblyReport
 
 G_STAR = 0.9737  # the planted network is scaled to max Re eig(W) = 1 / G_STAR
 
@@ -46,17 +45,7 @@ def unstable():
 @pytest.fixture(scope="module")
 def bundle(tmp_path_factory, unstable):
     c, W = unstable
-    c = type(c)(J_EE=c.J_EE, J_EU=c.J_EU, J_UE=c.J_UE, J_ET=c.J_ET, J_TE=c.J_TE,
-                report=AssemblyReport(relative_error=0.0, ee_density=0.1,
-                                      share_rule="planted"))
-    low_rank = -c.J_EU @ c.J_UE
-    doc = bundles.circuit_doc(c, source={"path": "planted"}, decomposition={},
-                              stability=stability_summary(c, W),
-                              pools=interneuron_pools(c), parameters={})
-    out = tmp_path_factory.mktemp("gain") / "c"
-    bundles.write_circuit(out, c, doc,
-                          arrays={"low_rank": low_rank, "sparse": W - low_rank})
-    return out
+    return write_planted_bundle(tmp_path_factory.mktemp("gain") / "c", c, W)
 
 
 def test_largest_stable_gain_is_numpy_threshold(unstable):

@@ -18,13 +18,12 @@ import sys
 
 import numpy as np
 import pytest
-from conftest import require
+from conftest import require, write_planted_bundle
 from scipy.integrate import solve_ivp
 
-from eidecomp.analysis import interneuron_pools
 from eidecomp.cli import main
 from eidecomp.datasets import make_planted_circuit
-from eidecomp.dynamics import scaled_circuit, stability_summary
+from eidecomp.dynamics import scaled_circuit
 from eidecomp.errors import InputError
 from eidecomp.io import bundles
 from eidecomp.pipeline import run_simulate
@@ -35,26 +34,12 @@ from eidecomp.simulation import (
     random_drive,
     read_drive,
 )
-from eidecomp.types import AssemblyReport
 
 N = 40
 
 
 def _rightmost(A):
     return float(np.max(np.linalg.eigvals(A).real))
-
-
-def _write_bundle(folder, c, W):
-    c = type(c)(J_EE=c.J_EE, J_EU=c.J_EU, J_UE=c.J_UE, J_ET=c.J_ET, J_TE=c.J_TE,
-                report=AssemblyReport(relative_error=0.0, ee_density=0.1,
-                                      share_rule="planted"))
-    low_rank = -c.J_EU @ c.J_UE
-    doc = bundles.circuit_doc(c, source={"path": "planted"}, decomposition={},
-                              stability=stability_summary(c, W),
-                              pools=interneuron_pools(c), parameters={})
-    bundles.write_circuit(folder, c, doc,
-                          arrays={"low_rank": low_rank, "sparse": W - low_rank})
-    return folder
 
 
 def _planted(seed, scale):
@@ -69,13 +54,13 @@ def _planted(seed, scale):
 @pytest.fixture(scope="module")
 def stable(tmp_path_factory):
     c, W = _planted(5, 0.6)
-    return _write_bundle(tmp_path_factory.mktemp("stable") / "c", c, W), c, W
+    return write_planted_bundle(tmp_path_factory.mktemp("stable") / "c", c, W), c, W
 
 
 @pytest.fixture(scope="module")
 def unstable(tmp_path_factory):
     c, W = _planted(6, 1.3)
-    return _write_bundle(tmp_path_factory.mktemp("unstable") / "c", c, W), c, W
+    return write_planted_bundle(tmp_path_factory.mktemp("unstable") / "c", c, W), c, W
 
 
 def _rel(a, b):

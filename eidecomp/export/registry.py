@@ -36,7 +36,7 @@ import importlib.util
 from collections.abc import Callable
 from dataclasses import dataclass
 
-from ..errors import InputError
+from ..errors import InputError, entry
 from ..io.provenance import stamp_folder
 from ..io.staging import file_bytes
 from . import edges_csv, graph_files, neuroml2, pynn_script, rate_scripts
@@ -135,11 +135,7 @@ FOLDER_FORMATS = tuple(f.name for f in REGISTRY if f.folder)
 
 def get_format(name):
     """The :class:`ExportFormat` called ``name``, or InputError."""
-    try:
-        return _BY_NAME[name]
-    except (KeyError, TypeError):
-        raise InputError(f"unknown export format {name!r} (choose from "
-                         f"{', '.join(FORMATS)})") from None
+    return entry(_BY_NAME, name, "export format")
 
 
 def render(name, circuit, **options):

@@ -16,7 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..errors import InputError
+from ..errors import InputError, entry
 
 __all__ = ["MODELS", "SEGMENT_STEP_MS", "SIMULATORS", "RateModel", "Simulator",
            "get_model", "get_simulator", "segment_length"]
@@ -53,11 +53,7 @@ _MODELS = {m.name: m for m in MODELS}
 
 def get_model(name):
     """The :class:`RateModel` called ``name``, or InputError."""
-    try:
-        return _MODELS[name]
-    except (KeyError, TypeError):
-        raise InputError(f"unknown model {name!r} (choose from "
-                         f"{', '.join(_MODELS)})") from None
+    return entry(_MODELS, name, "model")
 
 
 def _internal():
@@ -128,11 +124,7 @@ _SIMULATORS = {s.name: s for s in SIMULATORS}
 
 def get_simulator(name):
     """The :class:`Simulator` called ``name``, or InputError."""
-    try:
-        return _SIMULATORS[name]
-    except (KeyError, TypeError):
-        raise InputError(f"unknown simulator {name!r} (choose from "
-                         f"{', '.join(_SIMULATORS)})") from None
+    return entry(_SIMULATORS, name, "simulator")
 
 
 def segment_length(duration_ms, n_segments):
