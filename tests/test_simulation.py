@@ -338,3 +338,32 @@ def test_the_tiled_bundle_records_its_loops_own_convergence(tmp_path):
     doc = bundles.tiled_doc(stopped, dec, source={"path": "k", "grid": [5, 5]},
                             expanded_bytes=0)
     assert doc["metrics"]["converged"] is False
+
+
+def test_the_command_and_the_report_say_the_same_of_stability(tmp_path, capsys):
+    """The largest stable tau_I/tau_E in the same words in the run's summary
+    and in the report (issue 29: '0' in one, 'unstable at every' in the
+    other), on partial correlations of photograph patches (scikit-learn's
+    sample images) assembled without the stability guard; the words
+    against numpy's eigenvalues of the circuit's Jacobian at both ends of
+    the scanned range."""
+    import html
+
+    from eidecomp.datasets import patch_partial_correlations
+    from eidecomp.params import STABILITY_SCAN, tau_ratio_text
+
+    np.save(tmp_path / "w.npy", patch_partial_correlations(6, n_patches=5000))
+    assert main(["run", str(tmp_path / "w.npy"), "-o", str(tmp_path / "c"),
+                 "--report", "--no-stability-guard"]) == 0
+    out = capsys.readouterr().out
+    st = json.loads((tmp_path / "c" / "circuit.json").read_text())["stability"]
+    words = tau_ratio_text(st)
+    assert words in out
+    page = html.unescape((tmp_path / "c" / "report.html").read_text("utf-8"))
+    assert words in " ".join(page.split())
+    assert words.startswith("unstable at every")
+    b = bundles.read_circuit_bundle(tmp_path / "c").circuit
+    M = b.signed_weights()
+    for r in STABILITY_SCAN[:2]:
+        tau = np.r_[np.full(b.n_excitatory, 1.0), np.full(b.n_inhibitory, r)]
+        assert _rightmost((M - np.eye(len(M))) / tau[:, None]) > 0
