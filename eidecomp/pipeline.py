@@ -9,6 +9,7 @@ library (decompose, assemble, dynamics, analysis).
 
 import dataclasses
 import importlib.util
+import os
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -291,7 +292,8 @@ def _load_kernel(config):
     boundary = getattr(config, "boundary", "periodic")
     K = check_kernel(read_kernel(config.kernel, key=config.key), grid, boundary,
                      name=str(config.kernel))
-    source = {"path": str(config.kernel), "sha256": file_checksum(config.kernel),
+    source = {"path": str(config.kernel), "abspath": os.path.abspath(config.kernel),
+              "key": config.key, "sha256": file_checksum(config.kernel),
               "kernel_shape": list(K.shape), "grid": list(grid),
               "boundary": boundary}
     return K, grid, source
@@ -661,6 +663,7 @@ def _script_circuit(bundle, fmt, circuit, drive, seed, gain, tau_e, tau_i,
     from .dynamics import scaled_circuit
     from .simulation import (
         RANDOM,
+        TooSlow,
         Unstable,
         check_stable,
         circuit_runs,
@@ -672,7 +675,7 @@ def _script_circuit(bundle, fmt, circuit, drive, seed, gain, tau_e, tau_i,
     d = read_drive(RANDOM if drive is None else drive, circuit.n_w_units, seed)
     try:
         check_stable(circuit, gain=gain, tau_e=tau_e, tau_i=tau_i)
-    except Unstable as exc:
+    except (Unstable, TooSlow) as exc:
         if not allow_unstable:
             raise InputError(f"{bundle}: {explain(exc, command)}") from None
         if warn is not None:
@@ -693,14 +696,14 @@ def _script_circuit(bundle, fmt, circuit, drive, seed, gain, tau_e, tau_i,
 def _advised(bundle, command):
     """A refusal of a run (simulation.Unstable, Diverged) as one line with
     the command to run instead (``command(**changes)``, None: words)."""
-    from .simulation import Diverged, Unstable, explain
+    from .simulation import Diverged, TooSlow, Unstable, explain
 
     class _Catch:
         def __enter__(self):
             return self
 
         def __exit__(self, kind, exc, tb):
-            if isinstance(exc, (Unstable, Diverged)):
+            if isinstance(exc, (Unstable, Diverged, TooSlow)):
                 raise InputError(f"{bundle}: {explain(exc, command)}") from None
             return False
 

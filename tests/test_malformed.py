@@ -1133,6 +1133,11 @@ ROWS += [
     ("dec-manifest-duplicate-key", {"DEC": "dup-key"}, ASM_DEC,
      "{d}/dec/summary.json: corrupt JSON (the key 'format' appears twice in "
      "one object)"),
+    # a seed seeds the random drive only
+    ("simulate-seed-with-a-drive-file", {"BUNDLE": "ok", "h.csv": "1\n" * 20},
+     ["simulate", "{d}/c", "--input", "{d}/h.csv", "--seed", "3"],
+     "{d}/h.csv: a seed (3) applies to the random drive only, not to a drive "
+     "file"),
     # a missing circuit bundle is a missing input too
     ("missing-bundle-export", {}, ["export", "{d}/c", "--format", "json", "-o",
                                    "{d}/g.json"], "{d}/c: no such file"),

@@ -367,3 +367,70 @@ def test_the_command_and_the_report_say_the_same_of_stability(tmp_path, capsys):
     for r in STABILITY_SCAN[:2]:
         tau = np.r_[np.full(b.n_excitatory, 1.0), np.full(b.n_inhibitory, r)]
         assert _rightmost((M - np.eye(len(M))) / tau[:, None]) > 0
+
+
+# --- advice at the edges the second adversarial pass found (issue 29) ------
+
+def test_a_barely_stable_run_is_refused_with_a_gain_that_settles(stable, capsys):
+    """At 0.9999 of the largest stable gain the slowest mode decays at 1e-5
+    per ms: a run to its fixed point would last 4e6 ms. Refused, with a gain
+    at most 0.9 of the boundary (numpy's eigenvalues), which runs as printed."""
+    bundle, c, W = stable
+    g_star = min(1.0 / _rightmost(W), 1.0 / _rightmost(c.effective_weights()))
+    g = 0.9999 * g_star
+    assert main(["simulate", str(bundle), "--gain", repr(g)]) == 2
+    err = capsys.readouterr().err
+    assert "a run to the fixed point would last" in err
+    argv = _suggestion(err, "simulate")
+    advised = float(argv[argv.index("--gain") + 1])
+    assert advised <= 0.9 * g_star
+    assert main(argv) == 0
+
+
+@pytest.mark.parametrize("model", ["linear", "threshold-linear"])
+def test_a_run_too_short_to_settle_says_so_and_advises_the_default(stable, capsys,
+                                                                    model):
+    bundle, _, _ = stable
+    assert main(["simulate", str(bundle), "--model", model, "--duration",
+                 "0.5"]) == 0
+    last = capsys.readouterr().out.splitlines()[-1]
+    assert last.startswith("verdict: none: the runs had not settled")
+    argv = _suggestion(last, "simulate")
+    assert "--duration" not in argv and argv[argv.index("--model") + 1] == model \
+        if model != "linear" else "--duration" not in argv
+    assert main(argv) == 0
+    assert "agrees" in capsys.readouterr().out.splitlines()[-1]
+
+
+def test_the_expand_command_keeps_every_option_and_works_from_elsewhere(
+        tmp_path, capsys, monkeypatch):
+    """Three features at 4:1 give one interneuron per site (16 on a 4x4
+    grid, where 48 / 4 would be 12); the kernel stored under a key, an
+    untuned share asked for: the printed command, run from another folder,
+    writes the expanded circuit every command reads."""
+    from eidecomp.kernels import to_local
+
+    rng = np.random.default_rng(4)
+    G = np.outer(rng.standard_normal(3), rng.standard_normal(3))[:, :, None,
+                                                                 None] * 0.1
+    G = G * np.ones((1, 1, 4, 4))
+    G += (rng.random(G.shape) < 0.1) * rng.choice([-0.3, 0.3], G.shape)
+    np.savez(tmp_path / "k.npz", other=np.zeros(3), kern=to_local(G, radius=1))
+    assert main(["assemble", "--kernel", str(tmp_path / "k.npz"), "--key", "kern",
+                 "--grid", "4x4", "--untuned-share", "1", "-o",
+                 str(tmp_path / "t"), "-q"]) == 0
+    elsewhere = tmp_path / "elsewhere"
+    elsewhere.mkdir()
+    monkeypatch.chdir(elsewhere)
+    capsys.readouterr()
+    assert main(["simulate", "../t"]) == 2
+    argv = shlex.split(re.search(r"run `eidecomp ([^`]+)`",
+                                 capsys.readouterr().err).group(1))
+    assert argv[argv.index("--key") + 1] == "kern" and "--untuned-share" in argv
+    assert main(argv + ["-q"]) == 0
+    expanded = tmp_path / "t-expanded"
+    doc = json.loads((expanded / "circuit.json").read_text())
+    assert doc["counts"] == {"excitatory": 48, "untuned": 16, "tuned": 0}
+    for command in (["report", str(expanded), "-o", "r.html"],
+                    ["export", str(expanded), "--format", "csv", "-o", "e.csv"]):
+        assert main(command + ["-q"]) == 0, command

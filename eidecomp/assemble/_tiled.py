@@ -200,6 +200,7 @@ def assemble_tiled(dec, W, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto",
     circuit = TiledCircuit(J_EE=J, J_EU=A[:, :mu], J_UE=B[:mu], J_ET=A[:, mu:],
                            J_TE=B[mu:], grid=tuple(grid),
                            params={"ei_ratio": ratio.text, "per_site": [F, mu, mt],
+                                   "untuned_share": untuned_share,
                                    "alpha": alpha, "seed": seed})
     err = float(np.linalg.norm(G - circuit.effective_kernel()) / np.linalg.norm(G))
     return TiledCircuit(**{k: getattr(circuit, k) for k in

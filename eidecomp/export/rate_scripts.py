@@ -60,11 +60,18 @@ MODELS = ("linear", "threshold-linear")
 RTOL = {rtol!r}
 
 
+def positive(text):
+    value = float(text)
+    if not (value > 0 and value < float("inf")):
+        raise argparse.ArgumentTypeError("must be a positive number of ms")
+    return value
+
+
 def load():
     d = np.load(HERE / "circuit_rate_data.npz", allow_pickle=False)
     ap = argparse.ArgumentParser()
     ap.add_argument("--model", choices=MODELS, default=MODELS[0])
-    ap.add_argument("--segment-ms", type=float, default=float(d["segment_ms"]),
+    ap.add_argument("--segment-ms", type=positive, default=float(d["segment_ms"]),
                     help="length of each drive segment in ms (default: the "
                     "export's, 40 time constants of the slowest mode)")
     return ap.parse_args(), d

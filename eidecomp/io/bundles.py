@@ -305,11 +305,17 @@ def _instead(folder, found, kind):
     try:
         doc = load_json(Path(folder) / TILED.manifest, what=TILED.manifest)
         source, p = doc["input"], doc["parameters"]
-        words = ["eidecomp", "assemble", "--kernel", str(source["path"]),
+        words = ["eidecomp", "assemble", "--kernel",
+                 str(source.get("abspath", source["path"])),
+                 *(["--key", str(source["key"])] if source.get("key") else []),
                  "--grid", "x".join(str(int(g)) for g in source["grid"]),
-                 "--ei-ratio", str(p["ei_ratio"]), "--alpha", repr(p["alpha"]),
-                 "--lam", repr(p["lam"]), "--seed", str(int(p["seed"])),
-                 "--expand", "-o", f"{Path(folder).name}-expanded"]
+                 "--ei-ratio", str(p["ei_ratio"]),
+                 *(["--untuned-share", repr(float(p["untuned_share"]))]
+                   if p.get("untuned_share", "auto") != "auto" else []),
+                 "--alpha", repr(p["alpha"]), "--lam", repr(p["lam"]),
+                 "--seed", str(int(p["seed"])), "--expand", "-o",
+                 str(Path(folder).resolve().with_name(
+                     f"{Path(folder).resolve().name}-expanded"))]
     except (InputError, KeyError, TypeError, ValueError):
         return ("; assemble its kernel again with --expand for an explicit "
                 "circuit bundle")
@@ -550,7 +556,15 @@ def _check_counts(doc, where, circuit):
         raise InputError(f"{where}: parameters: 'n_inhibitory' is "
                          f"{params['n_inhibitory']!r} but the blocks hold "
                          f"{n_i} interneurons")
-    if "ei_ratio" in params:
+    if "ei_ratio" in params and "per_site" in doc:   # an expanded tiled circuit:
+        per_site = require(doc, "per_site", dict, where)   # the ratio per site
+        sites = circuit.n_excitatory // max(int(per_site.get(EXCITATORY, 1)), 1)
+        expected = sites * (int(per_site.get(UNTUNED, 0))
+                            + int(per_site.get(TUNED, 0)))
+        if expected != n_i:
+            raise InputError(f"{where}: per_site gives {expected} interneurons, "
+                             f"but the blocks hold {n_i}")
+    elif "ei_ratio" in params:
         ratio = EIRatio.parse(require(params, "ei_ratio", str,
                                       f"{where}: parameters"))
         if ratio.interneurons(circuit.n_excitatory) != n_i:

@@ -18,6 +18,7 @@ from .advice import explain, round_down, verdict_line
 from .compare import (
     SETTLE_TIME_CONSTANTS,
     Diverged,
+    TooSlow,
     Unstable,
     check_stable,
     circuit_runs,
@@ -49,6 +50,7 @@ __all__ = [
     "Drive",
     "RateModel",
     "Simulator",
+    "TooSlow",
     "Unstable",
     "check_stable",
     "circuit_runs",

@@ -11,9 +11,14 @@ API) the same words name the quantity to change instead.
 import math
 
 from ..params import AGREEMENT_RTOL, STABILITY_SCAN
-from .compare import Diverged, Unstable
+from .compare import Diverged, TooSlow, Unstable
 
-__all__ = ["explain", "round_down", "verdict_line"]
+__all__ = ["GAIN_SHARE", "explain", "round_down", "verdict_line"]
+
+GAIN_SHARE = 0.9
+"""An advised gain is at most this share of the largest stable one, so the
+slowest mode of the advised run decays at least 0.1 / tau and the run
+settles within 400 time constants."""
 
 
 def round_down(x, digits=2):
@@ -36,14 +41,18 @@ def _run(command, what, **changes):
     return f"run `{command(**changes)}`"
 
 
-def _gain(exc, command):
-    g = round_down(exc.stable_gain)
-    return _run(command, f"scale W by a gain below {exc.stable_gain:.4g}", gain=g)
+def _gain(exc, command, **more):
+    g = round_down(GAIN_SHARE * exc.stable_gain)
+    return _run(command, f"scale W by a gain below {exc.stable_gain:.4g}",
+                gain=g, **more)
 
 
 def explain(exc, command=None):
     """The line for an :class:`Unstable` or :class:`Diverged` refusal:
     what happened and what to run instead."""
+    if isinstance(exc, TooSlow):
+        return (f"the linear dynamics are stable at gain {exc.gain:g} but "
+                f"barely: {exc}: {_gain(exc, command)}")
     if isinstance(exc, Diverged):
         return (f"the rates diverged (past 1e+100) within {exc.t_ms:g} ms at "
                 f"gain {exc.gain:g}; at a gain below {exc.stable_gain:.4g} the "
@@ -59,7 +68,7 @@ def explain(exc, command=None):
     if exc.network == "original":
         return (f"{head}; {exc.gain_of} are stable below gain "
                 f"{exc.stable_gain:.4g}: {_gain(exc, command)}")
-    if exc.own_neurons and exc.tau_i != exc.tau_e:
+    if exc.own_neurons and exc.tau_i != exc.tau_e and exc.equal_taus_stable:
         return (f"{head}; its units are W's own neurons, whose dynamics at "
                 f"equal time constants are W's: "
                 f"{_run(command, 'give tau_I = tau_E', tau_i=exc.tau_e)}")
@@ -85,12 +94,22 @@ def verdict_line(result, command=None):
         rate = max(result["circuit_rate_of_change"],
                    result["original_rate_of_change"])
         g = result["stable_gain"]
-        exc = Diverged(result["t_ms"], result["gain"], g)
-        return (f"verdict: none: the runs had not settled (rates still "
+        head = (f"verdict: none: the runs had not settled (rates still "
                 f"changing by {rate:.2g} per ms at the end), so their final "
-                f"rates say nothing of the circuit; at a gain below {g:.4g} "
-                f"the linear dynamics of both networks are stable: "
-                f"{_gain(exc, command)}")
+                f"rates say nothing of the circuit; ")
+        if result.get("duration_given") and result.get("linear_stable"):
+            return head + ("the default duration runs 40 time constants of "
+                           "the slowest mode: " + _run(
+                               command, "leave the duration to its default",
+                               duration=None))
+        if result["gain"] < GAIN_SHARE * g:         # a gain will not help
+            t = 10 * result["t_ms"]
+            return head + "a longer run may settle them: " + _run(
+                command, f"run for {t:g} ms", duration=t)
+        exc = Diverged(result["t_ms"], result["gain"], g)
+        return head + (f"at a gain below {g:.4g} the linear dynamics of both "
+                       f"networks are stable: "
+                       f"{_gain(exc, command, duration=None)}")
     if diff <= AGREEMENT_RTOL:
         return (f"verdict: the circuit agrees with the original network "
                 f"(relative difference {diff:.2e} <= {AGREEMENT_RTOL:g})")

@@ -28,7 +28,8 @@ from ..params import STABILITY_SCAN
 from .drive import Drive, drive_of
 from .simulators import get_model, get_simulator, segment_length
 
-__all__ = ["SETTLE_TIME_CONSTANTS", "Diverged", "Unstable", "check_stable",
+__all__ = ["MAX_SETTLE_MS", "SETTLE_TIME_CONSTANTS", "Diverged", "TooSlow",
+           "Unstable", "check_stable",
            "circuit_runs", "compare_with_original", "rectified_units",
            "settle_time", "stable_gains"]
 
@@ -37,6 +38,11 @@ SETTLE_TIME_CONSTANTS = 40
 e^-40 of the fixed point), or of the slower population when the linear
 dynamics are unstable."""
 
+
+MAX_SETTLE_MS = 1e5
+"""The longest run to a fixed point (100 s simulated): a network whose
+slowest mode would need more is too close to instability to settle in a
+run, and is refused with the gain that settles it."""
 
 SETTLED_RATE = 1e-6
 """A run has settled when ||dr/dt|| / ||r|| at its end is at most this, per
@@ -53,17 +59,33 @@ class Unstable(InputError):
     eidecomp.simulation.advice's."""
 
     def __init__(self, network, *, growth, gain, tau_e, tau_i, stable_gain,
-                 stable_ratio=None, own_neurons=False, gain_of="both networks"):
+                 stable_ratio=None, own_neurons=False, gain_of="both networks",
+                 equal_taus_stable=True):
         self.network, self.growth, self.gain = network, growth, gain
         self.tau_e, self.tau_i = tau_e, tau_i
         self.stable_gain, self.stable_ratio = stable_gain, stable_ratio
         self.own_neurons, self.gain_of = own_neurons, gain_of
+        self.equal_taus_stable = equal_taus_stable
         super().__init__(
             f"the {network} {'network ' if network == 'original' else ''}is "
             f"unstable at gain {gain:g} and tau_I/tau_E = {tau_i / tau_e:g} "
             f"(growth rate {growth:.3g} per ms); its fixed point is never "
             f"reached; {gain_of} {'are' if gain_of.endswith('s') else 'is'} "
             f"stable below gain {stable_gain:.4g}")
+
+
+class TooSlow(InputError):
+    """Stable linear dynamics whose slowest mode (``growth`` per ms) would
+    need ``settle_ms`` to reach the fixed point, more than MAX_SETTLE_MS;
+    ``stable_gain`` as in :class:`Unstable`."""
+
+    def __init__(self, settle_ms, growth, gain, stable_gain):
+        self.settle_ms, self.growth = settle_ms, growth
+        self.gain, self.stable_gain = gain, stable_gain
+        super().__init__(f"the slowest mode decays at {-growth:.3g} per ms, so "
+                         f"a run to the fixed point would last {settle_ms:.3g} "
+                         f"ms (at most {MAX_SETTLE_MS:g}); the networks are "
+                         f"stable below gain {stable_gain:.4g}")
 
 
 class Diverged(InputError):
@@ -195,8 +217,12 @@ def compare_with_original(circuit, W, drive, *, tau_e, tau_i, simulator="interna
     if not rule.rectified and not (a_orig < 0 and a_circ < 0):
         _refuse(circuit, W, a_orig, a_circ, gain, tau_e, tau_i)
     T = drive.n_segments
+    settle = settle_time(a_orig, a_circ, tau_e, tau_i)
+    if t_ms is None and settle > MAX_SETTLE_MS:
+        raise TooSlow(settle, max(a_orig, a_circ), gain,
+                      _both_gain(circuit, W, gain, tau_e, tau_i))
     segment = (segment_length(t_ms, T) if t_ms is not None
-               else segment_length(settle_time(a_orig, a_circ, tau_e, tau_i), 1))
+               else segment_length(settle, 1))
     run = sim.load()
     n_rect = rectified_units(circuit, model)
     W_full, h = circuit.signed_weights(), drive.values
@@ -220,18 +246,20 @@ def compare_with_original(circuit, W, drive, *, tau_e, tau_i, simulator="interna
            "original_growth_rate": a_orig, "circuit_growth_rate": a_circ,
            "largest_stable_gain": 1.0 / a_W if a_W > 0 else math.inf,
            "circuit_vs_original": _worst((mine[:, k], orig[:, k]) for k in cols),
-           "reconstruction_error": _relative(circuit.reconstruction(), W)}
-    if rule.rectified:
-        out["circuit_rate_of_change"] = max(
-            _rate_of_change(W_full, H[:, -1], tau, rates[:, -1], n_rect), 0.0)
-        out["original_rate_of_change"] = _rate_of_change(
-            W, h[:, -1], np.full(W.shape[0], float(tau_e)), orig[:, -1],
-            W.shape[0])
-        out["settled"] = max(out["circuit_rate_of_change"],
-                             out["original_rate_of_change"]) <= SETTLED_RATE
-        if not out["settled"]:     # what would make them settle
-            out["stable_gain"] = _both_gain(circuit, W, gain, tau_e, tau_i)
-    else:
+           "reconstruction_error": _relative(circuit.reconstruction(), W),
+           "duration_given": t_ms is not None,
+           "linear_stable": bool(a_orig < 0 and a_circ < 0)}
+    tau_w = np.full(W.shape[0], float(tau_e))
+    out["circuit_rate_of_change"] = max(
+        _rate_of_change(W_full, H[:, k], tau, rates[:, k], n_rect) for k in cols)
+    out["original_rate_of_change"] = max(
+        _rate_of_change(W, h[:, k], tau_w, orig[:, k],
+                        W.shape[0] if rule.rectified else 0) for k in cols)
+    out["settled"] = max(out["circuit_rate_of_change"],
+                         out["original_rate_of_change"]) <= SETTLED_RATE
+    if not out["settled"]:     # what would make them settle
+        out["stable_gain"] = _both_gain(circuit, W, gain, tau_e, tau_i)
+    if not rule.rectified:
         W_eff = circuit.reconstruction()
         fp_eff = [fixed_point(W_eff, h[:, k]) for k in cols]
         fp_W = [fixed_point(W, h[:, k]) for k in cols]
@@ -272,15 +300,21 @@ def check_stable(circuit, *, gain=1.0, tau_e, tau_i):
     scaled = scaled_circuit(circuit, gain)
     a = circuit_abscissa(scaled, tau_e=tau_e, tau_i=tau_i)
     if a < 0:
+        settle = settle_time(a, a, tau_e, tau_i)
+        if settle > MAX_SETTLE_MS:
+            g = largest_stable_circuit_gain(scaled, tau_e=tau_e, tau_i=tau_i)
+            raise TooSlow(settle, a, gain, gain * g)
         return
     ratio = None
     if not circuit.own_neurons:
         lo, hi, n_grid = STABILITY_SCAN
         ratio = max_stable_tau_ratio(scaled, lo=lo, hi=hi, n_grid=n_grid)
     g = largest_stable_circuit_gain(scaled, tau_e=tau_e, tau_i=tau_i)
+    equal = circuit_abscissa(scaled, tau_e=tau_e, tau_i=tau_e) < 0
     raise Unstable("circuit", growth=a, gain=gain, tau_e=tau_e, tau_i=tau_i,
                    stable_gain=gain * g, stable_ratio=ratio,
-                   own_neurons=circuit.own_neurons, gain_of="the circuit")
+                   own_neurons=circuit.own_neurons, gain_of="the circuit",
+                   equal_taus_stable=equal)
 
 
 def circuit_runs(circuit, drive, *, tau_e, tau_i, simulator="internal"):
@@ -294,7 +328,8 @@ def circuit_runs(circuit, drive, *, tau_e, tau_i, simulator="internal"):
 
     run = get_simulator(simulator).load()
     a = circuit_abscissa(circuit, tau_e=tau_e, tau_i=tau_i)
-    segment = segment_length(settle_time(a, a, tau_e, tau_i), 1)
+    segment = segment_length(min(settle_time(a, a, tau_e, tau_i), MAX_SETTLE_MS),
+                             1)
     values = drive.values if isinstance(drive, Drive) else np.asarray(drive, float)
     H = _full_drive(circuit, values.reshape(circuit.n_w_units, -1))
     W_full, tau = circuit.signed_weights(), _tau(circuit, tau_e, tau_i)

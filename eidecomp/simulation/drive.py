@@ -94,13 +94,17 @@ per unit of W, 2
 def read_drive(spec, n, seed=0):
     """The drive named by ``spec``: :data:`RANDOM` (seeded by ``seed``), or a
     file (.npy, .npz, .csv, .tsv, .txt, .mat) of N values, (N, 1) or (N, T)
-    with time along the columns; every value finite.
+    with time along the columns; every value finite (a seed other than 0
+    with a file is refused: it would seed nothing).
 
     >>> read_drive("random", 2, seed=1).source
     'random U(0.5, 1.5), seed 1'
     """
     if spec == RANDOM:
         return random_drive(n, seed)
+    if seed != 0:
+        raise InputError(f"{spec}: a seed ({seed}) applies to the random drive "
+                         "only, not to a drive file")
     from ..io import read_matrix
 
     values = read_matrix(spec, square=False, what="drive", vector=True)
