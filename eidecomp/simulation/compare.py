@@ -39,8 +39,8 @@ e^-40 of the fixed point), or of the slower population when the linear
 dynamics are unstable."""
 
 
-MAX_SETTLE_MS = 1e5
-"""The longest run to a fixed point (100 s simulated): a network whose
+MAX_SETTLE_MS = 1e6
+"""The longest run to a fixed point (1,000 s simulated): a network whose
 slowest mode would need more is too close to instability to settle in a
 run, and is refused with the gain that settles it."""
 
