@@ -1,10 +1,7 @@
 """The ``eidecomp`` command: a parser and ``main``; the work is in pipeline.
 
-Exit status: 0 on success, 2 for bad input or options (one line on stderr, no
-traceback, nothing written), 1 when a solver fails or an output cannot be
-written (a full disk: nothing is left half-written), 3 when the output was
-written but standard output could not take its summary, 130 on an
-interrupt.
+Exit statuses: :data:`EXIT_RULE`, the words the README and every --help
+give (0, 1, 2, 3, 129, 130, 143).
 """
 
 import argparse
@@ -327,11 +324,12 @@ def _get_parser():
                        "figures as SVG) in the same pass")
         _add_matrix_options(p)
         _add_job_options(p)
-    exp = sub.add_parser("export", help="write a circuit as a graph file",
-                         description="Write the neuron-level graph of a "
-                         "circuit bundle (edges pre -> post, nonnegative weights, "
-                         "synapse kind) as GraphML, node-link JSON or a CSV edge "
-                         "list.")
+    exp = sub.add_parser("export", help="write a circuit in an export format",
+                         description="Write a circuit bundle in one export "
+                         "format (--format): the neuron-level graph (edges pre "
+                         "-> post, nonnegative weights, synapse kind), a table "
+                         "per population pair, NeuroML2, or a simulator script "
+                         "with its data.")
     _add_bundle_job(exp, "FILE_OR_DIR", "the file (graph and model formats) or "
                     "folder (simulator scripts) to write")
     exp.add_argument("--format", required=True, choices=FORMATS,
@@ -401,10 +399,10 @@ def _add_time_constants(p, where):
 
 
 def _format_help():
-    from .export import FORMATS
+    """Every export format with its registry line (export/registry.py)."""
+    from .export import REGISTRY
 
-    return ", ".join(FORMATS) + ": graph and model files (one file) or " \
-        "simulator scripts with their data (a folder)"
+    return "; ".join(f"{f.name}: {f.help}" for f in REGISTRY)
 
 
 def _nonnegative_float(text):

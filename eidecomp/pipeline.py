@@ -34,6 +34,7 @@ from .io.bundles import (
     TILED,
     check_bundle_output,
 )
+from .io.units import POSITION_UNITS
 from .params import (
     DEFAULT_EE_SUPPORT,
     DEFAULT_EI_RATIO,
@@ -169,7 +170,7 @@ class DecomposeConfig(MatrixOptions):
 
     max_iter: int | None = None
     boundary: str = "periodic"
-    engine: str = "memory"
+    engine: str = DECOMPOSE_ENGINES[0]
     scheduler: str | None = None
 
 
@@ -206,9 +207,11 @@ def _decompose_dense(config, out, progress):
         out, dec, source=source,
         unobserved={"path": config.unobserved,
                     "ignore_diagonal": config.ignore_diagonal},
-        parameters=_parameters(config, ("lam", "target_rank", "method", "solver",
-                                        "tol", "stop", "gap_tol", "max_iter",
-                                        "seed", "dtype")),
+        parameters={**_parameters(config, ("lam", "target_rank", "method",
+                                           "tol", "stop", "gap_tol", "max_iter",
+                                           "seed", "dtype")),
+                    # the cvxpy solver of the convex method; none for the ALM
+                    "solver": config.solver if config.method == "convex" else None},
         force=config.force, inputs=inputs)
     return DecomposeResult(DECOMPOSITION, dec, summary, out)
 
@@ -383,7 +386,7 @@ class AssembleConfig(MatrixOptions):
     no_own_neurons: bool = False
     units: str | None = None
     period: float = DEFAULT_PERIOD
-    position_unit: str = "um"
+    position_unit: str = POSITION_UNITS[0]
     magnification: float | None = None
     report: bool = False
     expand: bool = False

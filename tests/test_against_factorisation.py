@@ -2,7 +2,7 @@
 
 Reference: scikit-learn's NMF (sklearn.decomposition.NMF), an independent
 nonnegative factorisation of W's negative side with the circuit's number of
-interneurons: where the note claims that baseline (d) reproduces W better at
+interneurons: where the note claims that the nmf baseline reproduces W better at
 equal J_EE density, scikit-learn's factorisation must do better than the
 circuit at that density too; on a planted low-rank plus sparse circuit
 (make_planted_circuit, where the split is the truth) there is no such note.

@@ -5,7 +5,7 @@ assembler takes a randomized SVD for NNDSVD
 (checked against numpy.linalg.svd), a greedy sparse start for the tuned
 factorisation and accelerated HALS for the untuned one (checked against
 the Karush-Kuhn-Tucker conditions of nonnegative least squares, Gillis
-2014, section 3.1, with numpy); above NMF_MAX_UNITS baseline (d) is left
+2014, section 3.1, with numpy); above NMF_MAX_UNITS the nmf baseline is left
 out with a note. The planted circuits (eidecomp.datasets) have a pool and
 targets for every interneuron by construction; pools are matched with
 scipy.optimize.linear_sum_assignment.
@@ -88,7 +88,7 @@ def test_the_large_path_builds_a_planted_circuit(large_path, monkeypatch, n,
     assert jac[r, k].mean() >= 0.85
     names = {b.name for b in c.report.baselines}
     assert "nmf" not in names and {"private", "global", "drop"} <= names
-    assert any("baseline (d)" in note for note in c.report.notes)
+    assert any("the nmf baseline" in note for note in c.report.notes)
 
 
 def test_an_assembly_that_will_not_fit_is_refused_before_it_starts():

@@ -298,3 +298,45 @@ def test_exit_statuses_are_stated_in_the_same_words_everywhere():
         assert " ".join(EXIT_RULE.split()) in " ".join(sub.format_help().split())
     for status in ("0", "1", "2", "3", "129", "130", "143"):
         assert f" {status}" in EXIT_RULE
+
+
+def test_export_help_lists_every_format_with_its_registry_line():
+    """The export registry is the one owner of each format's help (issue 30:
+    --help listed 3 of the 8); reference: the registry's own entries."""
+    from eidecomp.export import REGISTRY
+
+    text = " ".join(_subcommands()["export"].format_help().split())
+    for f in REGISTRY:
+        assert f"{f.name}: {' '.join(f.help.split())}" in text, f.name
+
+
+def test_a_report_written_with_its_bundle_names_the_version(tmp_path):
+    """run --report renders the page before the bundle exists; the version
+    shown is the one that writes it (reference: eidecomp.__version__)."""
+    import html
+
+    W, _, _ = make_planted(30, rank=2, corruption=0.05, seed=4)
+    np.save(tmp_path / "w.npy", W)
+    assert main(["run", str(tmp_path / "w.npy"), "-o", str(tmp_path / "c"),
+                 "--report", "-q"]) == 0
+    page = html.unescape((tmp_path / "c" / "report.html").read_text("utf-8"))
+    assert f"<td>eidecomp</td><td>{__version__}</td>" in page.replace("\n", "")
+
+
+def test_the_solver_is_recorded_only_where_one_ran(planted, tmp_path):
+    """summary.json names a cvxpy solver for the convex method and none for
+    the ALM (issue 30: CLARABEL was recorded for ialm runs); reference:
+    cvxpy's installed solvers (cvxpy.installed_solvers)."""
+    import cvxpy as cp
+
+    path, _, _ = planted
+    assert main(["decompose", str(path), "-o", str(tmp_path / "a"), "-q"]) == 0
+    doc = json.loads((tmp_path / "a" / "summary.json").read_text())
+    assert doc["parameters"]["method"] == "ialm"
+    assert doc["parameters"]["solver"] is None
+    small = tmp_path / "s.npy"
+    np.save(small, make_planted(20, seed=2)[0])
+    assert main(["decompose", str(small), "-o", str(tmp_path / "b"), "-q",
+                 "--method", "convex"]) == 0
+    doc = json.loads((tmp_path / "b" / "summary.json").read_text())
+    assert doc["parameters"]["solver"] in cp.installed_solvers()

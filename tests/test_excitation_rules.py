@@ -9,7 +9,7 @@ project:
   grid;
 * scikit-learn's NMF: the swap search ends at an objective no worse than
   scikit-learn's coordinate-descent NMF of the same matrix and rank, and
-  baseline (d) is scikit-learn's NMF, reproduced here;
+  the nmf baseline is scikit-learn's NMF, reproduced here;
 * scipy.linalg.eigvals: the stability line's figures are the eigenvalues
   of the Jacobian T^-1 (-I + W_full), computed here;
 * the registry package cect (through eidecomp.datasets.signed_connectome):

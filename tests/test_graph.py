@@ -678,3 +678,23 @@ def test_dataframe_labels_follow_the_unit_id_rules():
     odd = [f"u{k}" for k in range(19)] + ["bell\x07"]
     with pytest.raises(InputError, match="unit 19 .*U\\+0007"):
         robust_pca(pd.DataFrame(W, index=odd, columns=odd))
+
+
+def test_the_readme_names_the_edge_attributes_the_files_carry(tabled, tmp_path):
+    """README: edges carry `weight` and `synapse` (issue 30: it said "kind");
+    reference: networkx's GraphML reader on the exported file."""
+    from pathlib import Path
+
+    from networkx import read_graphml
+
+    from eidecomp.cli import main
+
+    d, _, _, _ = tabled
+    out = tmp_path / "g.graphml"
+    assert main(["export", str(d / "c"), "--format", "graphml", "-o", str(out),
+                 "-q"]) == 0
+    keys = set().union(*(data for _, _, data in read_graphml(out).edges(data=True)))
+    readme = (Path(__file__).parents[1] / "README.md").read_text("utf-8")
+    assert {"weight", "synapse"} <= keys
+    assert "nonnegative `weight` and its `synapse` attribute" in " ".join(
+        readme.split())

@@ -19,6 +19,7 @@ from urllib.parse import quote
 
 import numpy as np
 
+from .._version import __version__
 from ..errors import ConvergenceWarning
 from ..params import (
     DEFAULT_PERIOD,
@@ -349,7 +350,9 @@ def _sections(meta, rules, med, have_units):
             ["rank of L", par.get("rank", "-")],
             ["certified duality gap",
              _fmt(meta.get("decomposition", {}).get("duality_gap"), ".2e")],
-            ["eidecomp", meta.get("eidecomp_version", "-")]]),
+            # a bundle's own version; before it is written (run --report,
+            # demo), the running one, which writes it
+            ["eidecomp", meta.get("eidecomp_version", __version__)]]),
         "<h2>Assembly against the baselines</h2>",
         f"<p>{c.get('excitatory', 0)} excitatory, {active_text(meta, UNTUNED)} "
         f"untuned and {active_text(meta, TUNED)} tuned inhibitory units"

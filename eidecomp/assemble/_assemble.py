@@ -100,7 +100,7 @@ RESTART_RTOL = 1e-3    # a new start needs a piece of unexplained inhibition
                        # whose largest path is this x max|W| (less is noise)
 
 
-LOSS_MARGIN = 1e-3     # baseline (d) beats the circuit by more than this in
+LOSS_MARGIN = 1e-3     # the nmf baseline beats the circuit by more than this in
                        # relative error at equal density: the report says so
 STAND_IN_EXTRA = 10    # rank of the untuned factorisation's stand-in for
                        # max(-L, 0): 2 n_u + this
@@ -588,7 +588,7 @@ def _scored_baselines(W, n_i, J_EE, A, B, n_u, err, dens, seed, refit):
     if not nmf_scored(max(W.shape)):
         base = score_baselines(W, n_i, circuit_error=err,
                                circuit_density=dens, seed=seed)
-        return base, (f"baseline (d), a plain nonnegative factorisation, was "
+        return base, (f"the nmf baseline, a plain nonnegative factorisation, was "
                       f"not scored above {NMF_MAX_UNITS} units (its dense "
                       "factorisation costs about N^3 / 2 per sweep)",)
     plain = plain_factorisation(np.maximum(-W, 0.0), n_i, seed)
@@ -672,7 +672,7 @@ def comparison_line(err, dens, baselines):
 
 
 def _against_nmf(base, err, dens):
-    """A note when the plain factorisation, baseline (d), reproduces W better
+    """A note when the plain factorisation, the nmf baseline, reproduces W better
     than this circuit at equal J_EE density (the sparser of the two, the
     other pruned to it), with what to try."""
     nmf = [p for p in equal_density_pairs(err, dens, base)
@@ -682,14 +682,14 @@ def _against_nmf(base, err, dens):
     ours, theirs = nmf[0]
     if not theirs.relative_error < ours.relative_error - LOSS_MARGIN:
         return ()
-    return (f"the plain nonnegative factorisation (baseline d, "
+    return (f"the plain nonnegative factorisation (the nmf baseline, "
             f"{theirs.n_inhibitory} interneurons, no low-rank/sparse split) "
             f"reproduces W better at equal J_EE density "
             f"{theirs.ee_density:.3g}: relative error "
             f"{theirs.relative_error:.3g} against this circuit's "
             f"{ours.relative_error:.3g}. W's inhibition is not well described "
             "as low-rank plus sparse at these settings: try a smaller alpha "
-            "(--alpha) or another lam, or read baseline (d) as the better "
+            "(--alpha) or another lam, or read the nmf baseline as the better "
             "hypothesis (its interneurons are neither untuned nor tuned)",)
 
 

@@ -113,7 +113,7 @@ def _prune_to_density(J_EE, density):
 
 
 NMF_MAX_UNITS = 2000
-"""Above this many units baseline (d) is not scored: a dense factorisation
+"""Above this many units the nmf baseline is not scored: a dense factorisation
 with N / 4 components costs about N^3 / 2 per sweep (hours at 10,000
 units), and the report says so."""
 
@@ -216,7 +216,7 @@ def plain_factorisation(M, k, seed=0, max_iter=None):
 
 
 def nmf_scored(n):
-    """Whether baseline (d) is scored for n units (n <= NMF_MAX_UNITS)."""
+    """Whether the nmf baseline is scored for n units (n <= NMF_MAX_UNITS)."""
     return n <= NMF_MAX_UNITS
 
 

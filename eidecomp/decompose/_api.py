@@ -207,7 +207,7 @@ def _convex_decomposition(W, lam, observed, *, program, solver, max_iter):
     return _judged(dec, W, observed, sv)
 
 
-def memory_estimate(shape, dtype=np.float64, method="ialm", solver="CLARABEL"):
+def memory_estimate(shape, dtype=np.float64, method=METHODS[0], solver=SOLVERS[0]):
     """Bytes robust_pca needs for a matrix of this shape: W and at most four
     more m x n arrays (S, Y, the SVT's argument, then L) for the ALM; for the
     convex programs, the solver's own problem (:func:`._convex.convex_bytes`,
@@ -218,7 +218,7 @@ def memory_estimate(shape, dtype=np.float64, method="ialm", solver="CLARABEL"):
     return 5 * m * n * np.dtype(dtype).itemsize
 
 
-def _check_memory(shape, dtype, method, solver="CLARABEL"):
+def _check_memory(shape, dtype, method, solver=SOLVERS[0]):
     if len(shape) != 2:
         return  # _check_matrix gives the message
     if method == "convex":
@@ -264,10 +264,10 @@ def _warn_if_stopped(dec):
                         if stalled else {}))
 
 
-def robust_pca(W, *, lam=None, method="ialm", observed=None,
+def robust_pca(W, *, lam=None, method=METHODS[0], observed=None,
                ignore_diagonal=False,
                target_rank=None, tol=None, max_iter=None, rho=1.5, delta=None,
-               low_rank_sign=None, solver="CLARABEL", seed=0, progress=None,
+               low_rank_sign=None, solver=SOLVERS[0], seed=0, progress=None,
                dtype="float64", check_memory=True, stop="gap", gap_tol=None):
     r"""Split W into a low-rank part L and a sparse part S by robust PCA.
 

@@ -8,7 +8,8 @@ from sklearn.utils.validation import check_is_fitted, validate_data
 
 from ..limits import dense_input
 from ..params import default_lam
-from ._api import robust_pca
+from ._api import METHODS, robust_pca
+from ._convex import SOLVERS
 
 __all__ = ["RobustPCA", "robust_projection"]
 
@@ -159,8 +160,8 @@ class RobustPCA(TransformerMixin, BaseEstimator):
     True
     """
 
-    def __init__(self, lam=None, *, method="ialm", tol=None, max_iter=None,
-                 target_rank=None, solver="CLARABEL", random_state=None,
+    def __init__(self, lam=None, *, method=METHODS[0], tol=None, max_iter=None,
+                 target_rank=None, solver=SOLVERS[0], random_state=None,
                  stop="gap", gap_tol=None):
         self.lam = lam
         self.method = method

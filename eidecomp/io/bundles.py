@@ -137,11 +137,15 @@ CIRCUIT = BundleKind(
     tuple(f"{b}.npy" for b in BLOCK_NAMES), "circuit bundle",
     "blocks are nonnegative magnitudes, [post, pre]; the sign is the "
     "presynaptic population's")
+TILED_LAYOUT = "full-grid kernels (P, Q, H, W), [post, pre, offset mod grid]"
+"""How a tiled bundle's kernels are laid out (its convention and tiled.json)."""
+HYPOTHESIS = "a model circuit consistent with W, not a measurement"
+"""What every circuit bundle says it is (circuit.json and tiled.json)."""
 TILED = BundleKind(
     "tiled circuit", "eidecomp-tiled-circuit", 3, "tiled.json",
     tuple(f"{b}_kernel.npy" for b in BLOCK_NAMES), "tiled circuit bundle",
-    "full-grid kernels (P, Q, H, W), [post, pre, offset mod grid]; "
-    "nonnegative magnitudes, the sign the presynaptic population's")
+    f"{TILED_LAYOUT}; nonnegative magnitudes, the sign the presynaptic "
+    "population's")
 KINDS = (DECOMPOSITION, FACTORED, KERNEL_DECOMPOSITION, CIRCUIT, TILED)
 _BY_FORMAT = {k.format: k for k in KINDS}
 CIRCUIT_FORMAT, CIRCUIT_VERSION = CIRCUIT.format, CIRCUIT.version
@@ -861,7 +865,7 @@ def circuit_doc(circuit, *, source, decomposition, stability, pools,
             "unit_ids": unit_ids,
             "w_index": (None if circuit.w_index is None
                         else list(circuit.w_index)),
-            "hypothesis": "a model circuit consistent with W, not a measurement"}
+            "hypothesis": HYPOTHESIS}
 
 
 def write_circuit(out, circuit, doc, *, arrays=None, files=None, force=False,
@@ -906,7 +910,7 @@ def tiled_doc(tiled, dec, *, source, expanded_bytes, stability=None):
                            "note": "not computed for tiled circuits (kernels); "
                                    "computed once expanded (--expand)"}),
             "memory_estimate_expanded_bytes": expanded_bytes,
-            "hypothesis": "a model circuit consistent with W, not a measurement"}
+            "hypothesis": HYPOTHESIS}
 
 
 def write_tiled(out, tiled, doc, *, force=False, inputs=()):
@@ -914,6 +918,5 @@ def write_tiled(out, tiled, doc, *, force=False, inputs=()):
     return write_bundle(out, TILED,
                         {f"{b}_kernel.npy": np.asarray(getattr(tiled, b))
                          for b in BLOCK_NAMES},
-                        {**doc, "layout": "full-grid kernels (P, Q, H, W), "
-                                          "[post, pre, offset mod grid]"},
+                        {**doc, "layout": TILED_LAYOUT},
                         force=force, inputs=inputs)
