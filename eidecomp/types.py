@@ -787,12 +787,20 @@ class Circuit:
 
     def full_drive(self, h):
         """The drive of every unit of the full matrix from a drive ``h`` of
-        W's units: h on the E units and 0 on added interneurons, or each
-        unit's own for a circuit of W's neurons."""
+        W's units (N values, or N x T: one column a segment): h on the E
+        units and 0 on added interneurons, or each unit's own for a circuit
+        of W's neurons."""
         h = np.asarray(h, dtype=float)
         if self.w_index is None:
-            return np.r_[h, np.zeros(self.n_inhibitory)]
+            return np.concatenate([h, np.zeros((self.n_inhibitory,)
+                                               + h.shape[1:])])
         return h[np.asarray(self.w_index)]
+
+    def unit_taus(self, tau_e, tau_i):
+        """The time constant of every unit of the full matrix: ``tau_e`` for
+        the E units, ``tau_i`` for the interneurons."""
+        return np.r_[np.full(self.n_excitatory, float(tau_e)),
+                     np.full(self.n_inhibitory, float(tau_i))]
 
     def w_rates(self, rates):
         """W's units' rates from the rates of the full matrix's units: the E

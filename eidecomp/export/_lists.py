@@ -54,8 +54,7 @@ def tau_vector(circuit, tau_e=TAU_E_MS, tau_i=TAU_I_MS):
     >>> tau_vector(c)
     array([10., 10.,  5.])
     """
-    sizes = [p.size for p in circuit.populations]
-    return np.repeat(population_taus(circuit, tau_e, tau_i), sizes)
+    return circuit.unit_taus(tau_e, tau_i)
 
 
 def npz_bytes(arrays):

@@ -14,10 +14,10 @@ import numpy as np
 from ..params import TAU_E_MS, TAU_I_MS
 from ._lists import drive_vector, tau_vector
 
-__all__ = ["build_rate", "build_rate_matrix", "read_weights", "run_rate",
-           "run_segments"]
+__all__ = ["RATE_EQUATIONS", "build_rate", "build_rate_matrix", "read_weights",
+           "run_rate", "run_segments"]
 
-_EQS = """
+RATE_EQUATIONS = """
 dr/dt = (-r + rect * 0.5 * (x + abs(x)) + (1 - rect) * x) / tau : 1
 x = s + h : 1
 s : 1
@@ -25,6 +25,8 @@ h : 1
 rect : 1 (constant)
 tau : second (constant)
 """
+"""The Brian2 equations of both rate models (``rect`` 1: [.]_+), the one
+text the in-process runner and the exported script use."""
 
 
 def build_rate_matrix(W_full, drive, tau, *, rectified=0, dt_ms=0.1):
@@ -35,7 +37,7 @@ def build_rate_matrix(W_full, drive, tau, *, rectified=0, dt_ms=0.1):
     b2.prefs.codegen.target = "numpy"
     W_full = np.asarray(W_full, dtype=float)
     n = W_full.shape[0]
-    G = b2.NeuronGroup(n, _EQS, method="euler", dt=dt_ms * b2.ms,
+    G = b2.NeuronGroup(n, RATE_EQUATIONS, method="euler", dt=dt_ms * b2.ms,
                        name="eidecomp_units")
     G.h = np.asarray(drive, float)
     G.tau = np.asarray(tau, float) * b2.ms

@@ -22,8 +22,9 @@ where the model rectifies, and agreement with eidecomp's rates to
 import numpy as np
 
 from ..params import DEFAULT_PERIOD, TAU_E_MS, TAU_I_MS
-from ._lists import connection_list, npz_bytes, write_into
+from ._lists import connection_list, npz_bytes, tau_vector, write_into
 from ._names import unit_id_list
+from .brian2_builder import RATE_EQUATIONS
 
 __all__ = ["ENGINES", "SCRIPT_RTOL", "rate_script_files", "render_brian2",
            "render_nest", "write_rate_script"]
@@ -158,14 +159,7 @@ def main():
     n, H = int(d["n"]), d["H"]
     k = int(d["n_rect"]) if args.model != "linear" else 0
     dt = float(d["dt_ms"]) * b2.ms
-    G = b2.NeuronGroup(n, """
-        dr/dt = (-r + rect * 0.5 * (x + abs(x)) + (1 - rect) * x) / tau : 1
-        x = s + h : 1
-        s : 1
-        h : 1
-        rect : 1 (constant)
-        tau : second (constant)
-        """, method="euler", dt=dt)
+    G = b2.NeuronGroup(n, """{equations}""", method="euler", dt=dt)
     G.tau = d["tau_ms"] * b2.ms
     G.rect = (np.arange(n) < k).astype(float)
     S = b2.Synapses(G, G, "w : 1\\ns_post = w * r_pre : 1 (summed)", dt=dt)
@@ -189,7 +183,8 @@ if __name__ == "__main__":
 def script_text(engine):
     name = f"circuit_{engine}.py"
     body = {"nest": _NEST, "brian2": _BRIAN2}[engine]
-    return (_HEAD + body).format(name=name, rtol=SCRIPT_RTOL)
+    return (_HEAD + body).format(name=name, rtol=SCRIPT_RTOL,
+                                 equations=RATE_EQUATIONS)
 
 
 def rate_script_files(circuit, engine, drive=None, *, tau_e=TAU_E_MS,
@@ -210,13 +205,12 @@ def rate_script_files(circuit, engine, drive=None, *, tau_e=TAU_E_MS,
     h = (np.zeros((circuit.n_w_units, 1)) if drive is None
          else np.asarray(getattr(drive, "values", drive), dtype=float))
     h = h.reshape(circuit.n_w_units, -1)
-    H = np.column_stack([circuit.full_drive(h[:, k]) for k in range(h.shape[1])])
+    H = circuit.full_drive(h)
     pre, post, w = connection_list(circuit)
     n_e = circuit.n_excitatory
-    tau = np.r_[np.full(n_e, float(tau_e)), np.full(circuit.n_inhibitory,
-                                                     float(tau_i))]
     data = {"n": np.array(H.shape[0]), "pre": pre, "post": post, "weight": w,
-            "tau_ms": tau, "H": H, "dt_ms": np.array(dt_ms),
+            "tau_ms": tau_vector(circuit, tau_e, tau_i), "H": H,
+            "dt_ms": np.array(dt_ms),
             "segment_ms": np.array(2000.0 if segment_ms is None else segment_ms),
             "n_rect": np.array(n_e if n_rect is None else n_rect)}
     for model, rates in (expected or {}).items():

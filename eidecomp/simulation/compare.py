@@ -144,16 +144,6 @@ def _rate_of_change(W_full, H, tau, r, n_rect):
     return float(np.linalg.norm((drive - r) / tau) / norm) if norm > 0 else 0.0
 
 
-def _full_drive(circuit, values):
-    return np.column_stack([circuit.full_drive(values[:, k])
-                            for k in range(values.shape[1])])
-
-
-def _tau(circuit, tau_e, tau_i):
-    n_e, n_i = circuit.n_excitatory, circuit.n_inhibitory
-    return np.r_[np.full(n_e, float(tau_e)), np.full(n_i, float(tau_i))]
-
-
 def compare_with_original(circuit, W, drive, *, tau_e, tau_i, simulator="internal",
                           gain=1.0, model="linear", t_ms=None):
     """Run the circuit and the original network on the same drive and
@@ -226,8 +216,8 @@ def compare_with_original(circuit, W, drive, *, tau_e, tau_i, simulator="interna
     run = sim.load()
     n_rect = rectified_units(circuit, model)
     W_full, h = circuit.signed_weights(), drive.values
-    H = _full_drive(circuit, h)
-    tau = _tau(circuit, tau_e, tau_i)
+    H = circuit.full_drive(h)
+    tau = circuit.unit_taus(tau_e, tau_i)
     try:
         rates = run(W_full, H, tau, segment, n_rect)
         orig = run(W, h, np.full(W.shape[0], float(tau_e)), segment,
@@ -331,8 +321,8 @@ def circuit_runs(circuit, drive, *, tau_e, tau_i, simulator="internal"):
     segment = segment_length(min(settle_time(a, a, tau_e, tau_i), MAX_SETTLE_MS),
                              1)
     values = drive.values if isinstance(drive, Drive) else np.asarray(drive, float)
-    H = _full_drive(circuit, values.reshape(circuit.n_w_units, -1))
-    W_full, tau = circuit.signed_weights(), _tau(circuit, tau_e, tau_i)
+    H = circuit.full_drive(values.reshape(circuit.n_w_units, -1))
+    W_full, tau = circuit.signed_weights(), circuit.unit_taus(tau_e, tau_i)
     out = {}
     for m in MODELS:
         try:
