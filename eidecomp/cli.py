@@ -220,9 +220,9 @@ def _add_input(p, matrix_help, kernel_help):
 def _get_parser():
     from .export import FORMATS
     from .io.units import POSITION_UNITS
+    from .params import SETTLE_TIME_CONSTANTS as SETTLE
     from .pipeline import DECOMPOSE_ENGINES
     from .simulation import MODELS, SIMULATORS
-    from .simulation import SETTLE_TIME_CONSTANTS as SETTLE
 
     parser = _Parser(prog="eidecomp", description=(
         "Turn a signed lateral weight matrix W[post, pre] into low-rank and "

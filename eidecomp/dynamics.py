@@ -36,7 +36,7 @@ import numpy as np
 from scipy.integrate import solve_ivp
 
 from .errors import InputError
-from .params import STABILITY_SCAN
+from .params import SETTLE_TIME_CONSTANTS, STABILITY_SCAN
 from .types import BLOCK_NAMES, II_BLOCK_NAMES
 
 __all__ = ["DENSE_MAX_UNITS", "DIVERGED", "MAX_EVALUATIONS", "METHODS",
@@ -423,8 +423,9 @@ def simulate(W_full, h, *, n_e=None, tau_e=1.0, tau_i=1.0, t_max=None,
     tau : ndarray (n,) or None
         Every unit's time constant, in place of tau_e and tau_i.
     t_max : float or None
-        End time; None integrates for 40 times the slowest decay time of
-        the linearisation (rates within e^-40 of the fixed point).
+        End time; None integrates for
+        :data:`~eidecomp.params.SETTLE_TIME_CONSTANTS` times the slowest
+        decay time of the linearisation.
     nonlinearity : "linear" or "relu"
         f for the E units; interneurons are linear (unless ``rectified``).
     rectified : int or None
@@ -466,7 +467,7 @@ def simulate(W_full, h, *, n_e=None, tau_e=1.0, tau_i=1.0, t_max=None,
         if not a < 0:
             raise InputError("the linear dynamics are not stable (spectral "
                              f"abscissa {a:.3g}); give t_max explicitly")
-        t_max = 40.0 / -a
+        t_max = SETTLE_TIME_CONSTANTS / -a
 
     count = [0]
 

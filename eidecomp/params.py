@@ -26,6 +26,7 @@ from .grammar import NUMBER_BODY
 __all__ = [
     "AGREEMENT_RTOL",
     "DEFAULT_PERIOD",
+    "SETTLE_TIME_CONSTANTS",
     "CONNECTION_RTOL",
     "DEFAULT_EI_RATIO",
     "DTYPES",
@@ -482,6 +483,12 @@ TAU_E_MS = 10.0
 TAU_I_MS = 5.0
 """Time constant of the interneurons, ms: faster than E cells (common
 practice)."""
+
+SETTLE_TIME_CONSTANTS = 40
+"""A run to a fixed point lasts this many time constants of the slowest
+mode (rates within e^-40 of the fixed point), or of the slower population
+when the linear dynamics are unstable: eidecomp.dynamics.simulate, the
+simulation package and the exported rate scripts."""
 
 MARGINAL_ABSCISSA = 1e-9
 """W counts as stable (for the stability guard and the benchmark's targets)

@@ -189,18 +189,18 @@ def test_the_smallest_dale_w_worked_by_hand():
                         baselines=False).own_neurons
 
 
-@pytest.mark.parametrize("engine", ["nest", "brian2"])
-def test_simulators_run_the_circuit_to_ws_fixed_point(engine):
+@pytest.mark.parametrize("simulator", ["nest", "brian2"])
+def test_simulators_run_the_circuit_to_ws_fixed_point(simulator):
     # NEST's and Brian2's rate runs of the exported circuit (scaled to a
     # stable gain) against numpy's fixed point of the original network
     from conftest import require
 
-    require(engine)
+    require(simulator)
     from importlib import import_module
 
     from eidecomp.dynamics import scaled_circuit
 
-    runner = import_module(f"eidecomp.export.{engine}_builder")
+    runner = import_module(f"eidecomp.export.{simulator}_builder")
     W, _ = signed_connectome("WitvlietDataReader8")
     g = 0.5 * largest_stable_gain(W)
     c = scaled_circuit(assemble(W), g)

@@ -168,19 +168,19 @@ def test_every_runner_runs_both_models_alike(simulator, rectified):
 
 # --- the exported scripts: either model, their own verdict ---------------------
 
-@pytest.mark.parametrize("engine", ["nest", "brian2"])
+@pytest.mark.parametrize("simulator", ["nest", "brian2"])
 @pytest.mark.parametrize("model", ["linear", "threshold-linear"])
-def test_exported_scripts_run_either_model_and_say_so(stable, tmp_path, engine,
+def test_exported_scripts_run_either_model_and_say_so(stable, tmp_path, simulator,
                                                       model):
-    require(engine)
+    require(simulator)
     bundle, c, _ = stable
     H = np.random.default_rng(2).uniform(-1.0, 1.5, (N, 2))
     np.save(tmp_path / "h.npy", H)
     out = tmp_path / "x"
-    assert main(["export", str(bundle), "--format", engine, "-o", str(out), "-q",
+    assert main(["export", str(bundle), "--format", simulator, "-o", str(out), "-q",
                  "--input", str(tmp_path / "h.npy")]) == 0
     env = {k: v for k, v in os.environ.items() if k != "PYNEST_QUIET"}
-    run = subprocess.run([sys.executable, str(out / f"circuit_{engine}.py"),
+    run = subprocess.run([sys.executable, str(out / f"circuit_{simulator}.py"),
                           "--model", model], capture_output=True, text=True,
                          timeout=600, env=env)
     assert run.returncode == 0, run.stderr[-2000:]

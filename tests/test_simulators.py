@@ -141,9 +141,9 @@ def test_pynn_script_runs_under_pynn_nest(circuit, tmp_path):
     assert all(n > 0 for n in out["spikes"].values()), out
 
 
-@pytest.mark.parametrize("engine", ["nest", "brian2"])
-def test_standalone_rate_scripts(circuit, tmp_path, engine):
-    require(engine)
+@pytest.mark.parametrize("simulator", ["nest", "brian2"])
+def test_standalone_rate_scripts(circuit, tmp_path, simulator):
+    require(simulator)
     import json
     import os
     import subprocess
@@ -152,8 +152,8 @@ def test_standalone_rate_scripts(circuit, tmp_path, engine):
     from eidecomp.export import rate_scripts
 
     c, h, _, target = circuit
-    rate_scripts.write_rate_script(c, tmp_path, engine, h)
-    run = subprocess.run([sys.executable, str(tmp_path / f"circuit_{engine}.py")],
+    rate_scripts.write_rate_script(c, tmp_path, simulator, h)
+    run = subprocess.run([sys.executable, str(tmp_path / f"circuit_{simulator}.py")],
                          capture_output=True, text=True, timeout=600,
                          env={**os.environ, "PYNEST_QUIET": "1"})
     assert run.returncode == 0, run.stderr[-2000:]
@@ -172,20 +172,20 @@ def bundle(tmp_path_factory, circuit):
     return d / "c"
 
 
-@pytest.mark.parametrize("engine", ["internal", "nest", "brian2"])
-def test_simulate_command(bundle, engine, capsys):
-    if engine != "internal":
-        require(engine)
+@pytest.mark.parametrize("simulator", ["internal", "nest", "brian2"])
+def test_simulate_command(bundle, simulator, capsys):
+    if simulator != "internal":
+        require(simulator)
     from eidecomp.cli import main
     from eidecomp.pipeline import run_simulate
 
-    r = run_simulate(bundle, simulator=engine, tau_i=5.0)
+    r = run_simulate(bundle, simulator=simulator, tau_i=5.0)
     assert r["circuit_vs_fixed_point_W_eff"] < 1e-6
     assert r["original_vs_fixed_point_W"] < 1e-6
     # the circuit reproduces the original responses as well as it
     # reproduces W (both small on this planted circuit)
     assert r["circuit_vs_original"] < 0.05
-    assert main(["simulate", str(bundle), "--simulator", engine]) == 0
+    assert main(["simulate", str(bundle), "--simulator", simulator]) == 0
     assert "vs fixed point of W_eff" in capsys.readouterr().out
 
 
@@ -211,12 +211,12 @@ def test_export_command_simulator_formats(bundle, tmp_path, fmt):
             "eidecomp-manifest.json", "npz", "py"]
 
 
-@pytest.mark.parametrize("engine", ["nest", "brian2"])
-def test_exported_script_runs_the_drive_it_was_given(bundle, tmp_path, engine):
+@pytest.mark.parametrize("simulator", ["nest", "brian2"])
+def test_exported_script_runs_the_drive_it_was_given(bundle, tmp_path, simulator):
     # the export takes simulate's drive options; run standalone in a clean
     # environment, the script's stdout is its JSON alone and its rates are
     # the analytic fixed point (I - W_full)^-1 H of that drive (numpy)
-    require(engine)
+    require(simulator)
     import json
     import os
     import subprocess
@@ -227,10 +227,10 @@ def test_exported_script_runs_the_drive_it_was_given(bundle, tmp_path, engine):
     from eidecomp.simulation import random_drive
 
     out = tmp_path / "c"
-    assert main(["export", str(bundle), "--format", engine, "-o", str(out),
+    assert main(["export", str(bundle), "--format", simulator, "-o", str(out),
                  "-q", "--input", "random", "--seed", "4"]) == 0
     env = {k: v for k, v in os.environ.items() if k != "PYNEST_QUIET"}
-    run = subprocess.run([sys.executable, str(out / f"circuit_{engine}.py")],
+    run = subprocess.run([sys.executable, str(out / f"circuit_{simulator}.py")],
                          capture_output=True, text=True, timeout=600, env=env)
     assert run.returncode == 0, run.stderr[-2000:]
     rates = np.array(json.loads(run.stdout)["rates"])   # nothing else on stdout

@@ -1,6 +1,7 @@
 """Standalone NEST and Brian2 scripts of the rate models, data beside them.
 
-``rate_script_files(circuit, engine, drive)`` gives ``circuit_<engine>.py``
+``rate_script_files(circuit, simulator, drive)`` gives
+``circuit_<simulator>.py``
 (fixed code, the same for every circuit) and ``circuit_rate_data.npz``:
 the signed connection list (pre, post, weight); every unit's time constant;
 the drive H (units x segments: time along the columns) and each segment's
@@ -21,19 +22,21 @@ where the model rectifies, and agreement with eidecomp's rates to
 
 import numpy as np
 
-from ..params import DEFAULT_PERIOD, TAU_E_MS, TAU_I_MS
+from ..params import DEFAULT_PERIOD, SETTLE_TIME_CONSTANTS, TAU_E_MS, TAU_I_MS
 from ._lists import connection_list, npz_bytes, tau_vector, write_into
 from ._names import unit_id_list
 from .brian2_builder import RATE_EQUATIONS
 
-__all__ = ["ENGINES", "SCRIPT_RTOL", "rate_script_files", "render_brian2",
+__all__ = ["SCRIPT_SIMULATORS", "SCRIPT_RTOL", "rate_script_files", "render_brian2",
            "render_nest", "write_rate_script"]
 
-ENGINES = ("nest", "brian2")
+SCRIPT_SIMULATORS = ("nest", "brian2")
+"""The simulators a standalone rate script is written for."""
 
 SCRIPT_RTOL = 1e-6
 """A script's rates agree with eidecomp's when ||r - r_eidecomp|| /
-||r_eidecomp|| is at most this (both runs settled: 40 time constants)."""
+||r_eidecomp|| is at most this (both runs settled:
+eidecomp.params.SETTLE_TIME_CONSTANTS time constants of the slowest mode)."""
 
 _HEAD = '''"""Rate models of a circuit assembled by eidecomp (generated file).
 
@@ -74,7 +77,7 @@ def load():
     ap.add_argument("--model", choices=MODELS, default=MODELS[0])
     ap.add_argument("--segment-ms", type=positive, default=float(d["segment_ms"]),
                     help="length of each drive segment in ms (default: the "
-                    "export's, 40 time constants of the slowest mode)")
+                    "export's, {settle} time constants of the slowest mode)")
     return ap.parse_args(), d
 
 
@@ -89,7 +92,7 @@ def verdict(args, d, rates):
         ref = d[key]
         diff = float(np.linalg.norm(rates - ref) / max(np.linalg.norm(ref), 1e-300))
     holds = finite and nonnegative is not False and (diff is None or diff <= RTOL)
-    print(json.dumps({{"engine": ENGINE, "model": args.model,
+    print(json.dumps({{"simulator": SIMULATOR, "model": args.model,
                       "segment_ms": args.segment_ms,
                       "rates": list(map(float, rates[:, -1])),
                       "rates_by_segment": rates.T.tolist(),
@@ -100,7 +103,7 @@ def verdict(args, d, rates):
 '''
 
 _NEST = '''
-ENGINE = "nest"
+SIMULATOR = "nest"
 
 
 def main():
@@ -148,7 +151,7 @@ if __name__ == "__main__":
 '''
 
 _BRIAN2 = '''
-ENGINE = "brian2"
+SIMULATOR = "brian2"
 
 
 def main():
@@ -180,17 +183,18 @@ if __name__ == "__main__":
 '''
 
 
-def script_text(engine):
-    name = f"circuit_{engine}.py"
-    body = {"nest": _NEST, "brian2": _BRIAN2}[engine]
+def script_text(simulator):
+    name = f"circuit_{simulator}.py"
+    body = {"nest": _NEST, "brian2": _BRIAN2}[simulator]
     return (_HEAD + body).format(name=name, rtol=SCRIPT_RTOL,
+                                 settle=SETTLE_TIME_CONSTANTS,
                                  equations=RATE_EQUATIONS)
 
 
-def rate_script_files(circuit, engine, drive=None, *, tau_e=TAU_E_MS,
+def rate_script_files(circuit, simulator, drive=None, *, tau_e=TAU_E_MS,
                       tau_i=TAU_I_MS, dt_ms=0.1, unit_ids=None, expected=None,
                       segment_ms=None, n_rect=None):
-    """{file name: bytes} of the script for ``engine`` and its data.
+    """{file name: bytes} of the script for ``simulator`` and its data.
 
     ``drive``: the drive of W's units, N values or (N, T) (None: zero, one
     segment); ``expected``: {model name: rates (n, T)} of eidecomp's own
@@ -199,8 +203,8 @@ def rate_script_files(circuit, engine, drive=None, *, tau_e=TAU_E_MS,
     threshold-linear model rectifies (default the E units). ``unit_ids``
     (the unit table's names) are stored in the data file as a string
     array; the script's text never contains them."""
-    if engine not in ENGINES:
-        raise ValueError(f"unknown engine {engine!r}")
+    if simulator not in SCRIPT_SIMULATORS:
+        raise ValueError(f"unknown simulator {simulator!r}")
     ids = unit_id_list(circuit.named(unit_ids), circuit.n_excitatory)
     h = (np.zeros((circuit.n_w_units, 1)) if drive is None
          else np.asarray(getattr(drive, "values", drive), dtype=float))
@@ -217,7 +221,7 @@ def rate_script_files(circuit, engine, drive=None, *, tau_e=TAU_E_MS,
         data["expected_" + model.replace("-", "_")] = np.asarray(rates, float)
     if ids is not None:
         data["unit_ids"] = np.array(ids, dtype=str)
-    return {f"circuit_{engine}.py": script_text(engine).encode(),
+    return {f"circuit_{simulator}.py": script_text(simulator).encode(),
             "circuit_rate_data.npz": npz_bytes(data)}
 
 
@@ -245,7 +249,7 @@ def render_brian2(circuit, *, features=None, positions=None, unit_ids=None,
                              segment_ms=segment_ms, n_rect=n_rect)
 
 
-def write_rate_script(circuit, folder, engine, h=None, **kwargs):
-    """Write the script for ``engine`` ("nest" or "brian2") and its data."""
-    return write_into(folder, rate_script_files(circuit, engine, h, **kwargs),
-                      engine)
+def write_rate_script(circuit, folder, simulator, h=None, **kwargs):
+    """Write the script for ``simulator`` ("nest" or "brian2") and its data."""
+    return write_into(folder, rate_script_files(circuit, simulator, h, **kwargs),
+                      simulator)

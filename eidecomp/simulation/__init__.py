@@ -16,7 +16,6 @@ eidecomp.dynamics'; this package names no command-line flag except in
 
 from .advice import explain, round_down, verdict_line
 from .compare import (
-    SETTLE_TIME_CONSTANTS,
     Diverged,
     TooSlow,
     Unstable,
@@ -44,7 +43,6 @@ __all__ = [
     "MODELS",
     "RANDOM",
     "SEGMENT_STEP_MS",
-    "SETTLE_TIME_CONSTANTS",
     "SIMULATORS",
     "Diverged",
     "Drive",

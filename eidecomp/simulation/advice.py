@@ -10,7 +10,7 @@ API) the same words name the quantity to change instead.
 
 import math
 
-from ..params import AGREEMENT_RTOL, STABILITY_SCAN
+from ..params import AGREEMENT_RTOL, SETTLE_TIME_CONSTANTS, STABILITY_SCAN
 from .compare import Diverged, TooSlow, Unstable
 
 __all__ = ["GAIN_SHARE", "explain", "round_down", "verdict_line"]
@@ -98,8 +98,8 @@ def verdict_line(result, command=None):
                 f"changing by {rate:.2g} per ms at the end), so their final "
                 f"rates say nothing of the circuit; ")
         if result.get("duration_given") and result.get("linear_stable"):
-            return head + ("the default duration runs 40 time constants of "
-                           "the slowest mode: " + _run(
+            return head + (f"the default duration runs {SETTLE_TIME_CONSTANTS} "
+                           "time constants of the slowest mode: " + _run(
                                command, "leave the duration to its default",
                                duration=None))
         if result["gain"] < GAIN_SHARE * g:         # a gain will not help

@@ -24,19 +24,14 @@ from ..dynamics import (
     spectral_abscissa,
 )
 from ..errors import InputError
-from ..params import STABILITY_SCAN
+from ..params import SETTLE_TIME_CONSTANTS, STABILITY_SCAN
 from .drive import Drive, drive_of
 from .simulators import get_model, get_simulator, segment_length
 
-__all__ = ["MAX_SETTLE_MS", "SETTLE_TIME_CONSTANTS", "Diverged", "TooSlow",
+__all__ = ["MAX_SETTLE_MS", "Diverged", "TooSlow",
            "Unstable", "check_stable",
            "circuit_runs", "compare_with_original", "rectified_units",
            "settle_time", "stable_gains"]
-
-SETTLE_TIME_CONSTANTS = 40
-"""A run lasts this many time constants of the slowest mode (rates within
-e^-40 of the fixed point), or of the slower population when the linear
-dynamics are unstable."""
 
 
 MAX_SETTLE_MS = 1e6
@@ -310,9 +305,10 @@ def check_stable(circuit, *, gain=1.0, tau_e, tau_i):
 def circuit_runs(circuit, drive, *, tau_e, tau_i, simulator="internal"):
     """The circuit alone on ``drive`` under every model: ({model name: rates
     of every unit (n, T) at the end of each segment}, segment length in
-    ms). Each segment lasts :func:`settle_time` of the circuit (40 time
-    constants of its slowest mode); a model whose run diverges, or never
-    settles, is left out. What an exported script compares itself with.
+    ms). Each segment lasts :func:`settle_time` of the circuit
+    (:data:`~eidecomp.params.SETTLE_TIME_CONSTANTS` of its slowest mode); a
+    model whose run diverges, or never settles, is left out. What an
+    exported script compares itself with.
     """
     from .simulators import MODELS
 
