@@ -362,8 +362,8 @@ def test_pynn_background_current_has_the_stated_sd(tau_m):
     # reference: NEST's own iaf_psc_exp driven by two poisson_generators with
     # the export's weights (the threshold out of reach, so the unit never
     # fires); the recorded synaptic currents' sd against BACKGROUND_SD x the
-    # rheobase, which background_weight_nA derives from Campbell's theorem on
-    # NEST's 0.1 ms grid
+    # rheobase, which background_weight_nA derives from Campbell's theorem
+    # (the variance of shot noise, common practice) on NEST's 0.1 ms grid
     nest = require("nest")
     from eidecomp.export.pynn_script import (
         BACKGROUND_HZ,
