@@ -16,8 +16,8 @@ Remedies (docs/robust_pca.md, "What was tried"):
 * ``relax``     the same with over-relaxation alpha = 1.6 (Eckstein and
   Bertsekas 1992; Boyd et al. 2011, section 3.4.3);
 * ``anderson``  type-II Anderson acceleration of the map (depth 10, restart
-  on growth) with balancing (factor 2, band 3) from the first step (Zhang,
-  O'Donoghue, Boyd 2020);
+  on growth; Walker and Ni 2011) with balancing (factor 2, band 3) from the
+  first step;
 * ``fixed8``    a fixed penalty of 8 mu_0 with the same acceleration;
 * ``library``   eidecomp's solver as shipped: growth for at most 20 steps,
   then balancing and acceleration.

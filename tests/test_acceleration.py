@@ -5,8 +5,9 @@ References, named test by test: numpy (linear solves, SVDs, norms, a
 textbook type-II Anderson step written out with numpy's least squares after
 Walker and Ni 2011, SIAM J. Numer. Anal. 49(4)), cvxpy with the Clarabel
 interior-point solver (PCP optima and ranks), the KKT conditions of PCP
-(Candes, Li, Ma, Wright 2011; /work/shared/MATH.md section 1) and
-threadpoolctl's ``threadpool_info`` (BLAS thread counts).
+(Candes, Li, Ma, Wright 2011; written out in docs/robust_pca.md, "When a
+solution is optimal") and threadpoolctl's ``threadpool_info`` (BLAS thread
+counts).
 
 Clarabel costs about 2 s at 30 x 30 here and over a minute at 60 x 60, so
 the live convex comparisons are at n <= 30; the 60 x 60 Gaussian is checked
@@ -166,7 +167,7 @@ def test_depth_for_refuses_a_history_that_does_not_fit():
 @pytest.mark.parametrize("masked", [False, True])
 def test_split_point_inverts_q(masked):
     # Reference: the soft threshold sign(q) max(|q| - thr, 0) computed here
-    # with numpy (Candes et al. 2011, the shrinkage operator of section 5),
+    # with numpy (the shrinkage operator of the ALM, Lin, Chen and Ma 2010),
     # and the identity q = S + Y/mu on the observed entries.
     rng = np.random.default_rng(7 + masked)
     q = 3 * rng.standard_normal((40, 30))
@@ -209,8 +210,9 @@ def _check_truncated(W, dec):
                           (0.30, 0), (0.30, 1), (0.30, 2), (0.30, 3)])
 def test_planted_200_rank_is_the_planted_rank(corruption, seed):
     # Reference: the planted rank-10 L0 (numpy.linalg.matrix_rank), which
-    # the solve recovers (Candes et al. 2011, Theorem 1.1 and the section
-    # 4.1 experiments; recovery checked here with numpy norms), so the
+    # the solve recovers (Candes et al. 2011, Theorem 1.1 and their
+    # experiments, section 4.1 from memory; recovery checked here with numpy
+    # norms), so the
     # optimum's rank is 10; and numpy's SVD of the returned L. Clarabel is
     # too slow at 200 x 200 (the convex comparison is the n = 30 test below).
     W, L0, _ = make_planted(200, rank=10, corruption=corruption, seed=seed)
@@ -240,9 +242,10 @@ def test_rank_matches_clarabel(case):
 
 def test_unplanted_60_rank_matches_recorded_clarabel():
     # Reference: Clarabel's solution of this problem (default_rng(1) 60 x 60
-    # Gaussian, lam = 1/sqrt(60)), recorded once because it takes about 70 s:
-    # robust_pca(W, method="convex") gave rank 34 and objective 329.775774
-    # (MATH.md section 1 records 329.7758, on which Clarabel and SCS agree).
+    # Gaussian, lam = 1/sqrt(60)), recorded because it takes over a minute:
+    # robust_pca(W, method="convex") with cvxpy 1.9.3 and Clarabel 0.11.1
+    # gave rank 34 and objective 329.775774; SCS 3.3.1 (solver="SCS") gave
+    # rank 34 and 329.775777.
     W = np.random.default_rng(1).standard_normal((60, 60))
     dec = robust_pca(W)
     assert dec.converged
@@ -257,7 +260,8 @@ def test_unplanted_60_rank_matches_recorded_clarabel():
 @pytest.mark.parametrize(("n", "method"), [(400, "lanczos"), (100, "svd")])
 def test_multiplier_bound_and_kkt(n, method):
     # Reference: numpy.linalg.norm(Y, 2) for the bound; the KKT conditions of
-    # PCP (MATH.md section 1, Candes et al. 2011): ||Y||_2 <= 1 and
+    # PCP (Candes et al. 2011; written out in docs/robust_pca.md, "When a
+    # solution is optimal"): ||Y||_2 <= 1 and
     # ||Y||_max <= lam at the optimum.
     W = make_planted(n, seed=0)[0]
     lam = default_lam(W.shape)

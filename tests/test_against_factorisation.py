@@ -75,7 +75,7 @@ def _nmf_to_the_measured_stop(M, k):
     """Baseline (d)'s documented stop (docs/assembly.md, "(d) nmf") written
     out over scikit-learn's NMF (solver "cd", nndsvda, its own stop off):
     100 sweeps at a time, each from the last, until the projected gradient
-    (Lin 2007, eq. 8) relative to the data term is at most 1e-3 for both
+    (Lin 2007, eq. 8, from memory) relative to the data term is at most 1e-3 for both
     factors and the error fell by less than 1e-4 of itself over the chunk,
     or 5,000 sweeps."""
     def chunk(init, start=None):

@@ -115,7 +115,7 @@ def test_the_numerics_of_dynamics_name_no_command_line_flag():
     """dynamics.py keeps the numerics: its errors carry data and its words
     name quantities (tau_I, the gain), never an option of the command
     (eidecomp.simulation.advice turns them into commands). Reference: the
-    string constants of its syntax tree (ast)."""
+    string constants of its syntax tree (Python's ast module)."""
     import re
 
     tree = ast.parse((ROOT / "dynamics.py").read_text())

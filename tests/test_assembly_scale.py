@@ -5,7 +5,7 @@ assembler takes a randomized SVD for NNDSVD
 (checked against numpy.linalg.svd), a greedy sparse start for the tuned
 factorisation and accelerated HALS for the untuned one (checked against
 the Karush-Kuhn-Tucker conditions of nonnegative least squares, Gillis
-2014, section 3.1, with numpy); above NMF_MAX_UNITS the nmf baseline is left
+2014, section 3.1 from memory, with numpy); above NMF_MAX_UNITS the nmf baseline is left
 out with a note. The planted circuits (eidecomp.datasets) have a pool and
 targets for every interneuron by construction; pools are matched with
 scipy.optimize.linear_sum_assignment.

@@ -4,7 +4,8 @@ Outside references: cvxpy with Clarabel (the optimum of PCP, Candes, Li, Ma,
 Wright 2011, eq. 1.1) for the duality gap; numpy's SVD for the rank rule on
 matrices built with known spectra; scikit-learn's sample photographs (an
 open dataset the registry package ships) for natural-statistics matrices;
-the planted problems of Candes et al. 2011, section 4.1 (datasets.make_planted).
+the planted problems of Candes et al. 2011, section 4.1 from memory
+(datasets.make_planted).
 """
 
 import json
@@ -52,9 +53,10 @@ def _small_cases():
 @pytest.mark.parametrize("name", list(_small_cases()))
 @pytest.mark.parametrize("max_iter", [8, 25, 400])
 def test_gap_bounds_the_distance_to_clarabels_optimum(name, max_iter):
-    # weak duality (Boyd & Vandenberghe 2004, section 5.2): dual <= f* <=
-    # primal of the feasible split, so the relative gap bounds how far that
-    # split is from Clarabel's optimum, however early the solver stopped
+    # weak duality (Boyd & Vandenberghe 2004, section 5.2, from memory):
+    # dual <= f* <= primal of the feasible split, so the relative gap bounds
+    # how far that split is from Clarabel's optimum, however early the
+    # solver stopped
     W = _small_cases()[name]
     lam = 1 / np.sqrt(max(W.shape))
     with warnings.catch_warnings():

@@ -220,7 +220,8 @@ def test_help_states_every_unit(command):
 
 
 # --- --force: one rule, in the same words in the README and every --help ------
-# Reference: the README's own sentence (issue 28: one owner for the text).
+# Reference: the project's own text (a consistency check, no outside
+# source): the README's sentence (issue 28: one owner for the text).
 
 def test_force_is_explained_in_the_same_words_everywhere():
     from pathlib import Path
@@ -239,8 +240,9 @@ def test_force_is_explained_in_the_same_words_everywhere():
 
 
 # --- -q: one rule, in the same words in the README and every --help ----------
-# Reference: the README's own sentence (issue 28: `-q` said "progress only"
-# and still printed the summary).
+# Reference: the project's own text (a consistency check, no outside
+# source): the README's sentence (issue 28: `-q` said "progress only" and
+# still printed the summary).
 
 def test_quiet_is_explained_in_the_same_words_everywhere():
     from pathlib import Path
@@ -283,7 +285,8 @@ def test_quiet_prints_nothing_but_writes_everything(tmp_path, capsys):
 
 
 # --- the exit statuses: one text, the README's and every --help's ------------
-# Reference: the README's own sentence (issue 28: one owner for the text).
+# Reference: the project's own text (a consistency check, no outside
+# source): the README's sentence (issue 28: one owner for the text).
 
 def test_exit_statuses_are_stated_in_the_same_words_everywhere():
     from pathlib import Path

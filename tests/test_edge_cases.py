@@ -1,11 +1,11 @@
 """Edge cases that must work: zeros, no inhibition, tiny sizes, rank one,
 extreme scales, a UTF-8 byte-order mark.
 
-References: exact answers known in closed form for each case (the
+References: positive homogeneity of PCP (Candes et al. 2011, eq. 1.1) for
+the scales; exact answers known in closed form for each case (the
 definition of the circuit, W_eff = J_EE - J_EI J_IE, and of a nonnegative
 rank-one factorisation: -a b^T with a, b > 0 is one interneuron with input
-weights b and output weights a); positive homogeneity of PCP (Candes et al.
-2011, eq. 1.1) for the scales; the UTF-8 signature as Python's "utf-8-sig"
+weights b and output weights a); the UTF-8 signature as Python's "utf-8-sig"
 codec defines it.
 """
 

@@ -236,7 +236,7 @@ def test_baseline_d_is_scikit_learns_nmf_with_its_kkt_residual():
                     random_state=0)
         P = model.fit_transform(M)
     np.testing.assert_allclose(A @ B, P @ model.components_, atol=1e-12)
-    # the projected gradient (Lin 2007, eq. 8) written out here
+    # the projected gradient (Lin 2007, eq. 8, from memory) written out here
     R = A @ B - M
     gA = R @ B.T
     pg = np.where(A > 0, gA, np.minimum(gA, 0))

@@ -1529,7 +1529,8 @@ def test_a_nan_label_is_refused():
 
 
 # --- which entries count: one check for the library and the command (issue 28)
-# Reference: the W[post, pre] convention and the names' own meaning:
+# Reference: the project's own text (a consistency check, no outside
+# source): the W[post, pre] convention and the names' own meaning:
 # ``observed=`` is True where observed; the command's file is 1 where
 # unobserved (README, "Decomposing a matrix").
 

@@ -1,4 +1,5 @@
-"""Planted recovery, in the setting of Candes, Li, Ma, Wright (2011), section 4.1.
+"""Planted recovery, in the setting of Candes, Li, Ma, Wright (2011),
+section 4.1 (from memory).
 
 Their Table 1 (from memory of the setting, not of its digits): square n x n,
 rank(L0) = 0.05 n with L0 = X Y^T, X, Y ~ N(0, 1/n); 5 % of entries corrupted
@@ -26,8 +27,9 @@ def test_planted_n500_exact_recovery():
     assert dec.rank == 25
     assert _rel(dec.low_rank, L0) < 1e-6
     assert _rel(dec.sparse, S0) < 1e-6
-    # KKT certificate (Candes et al. 2011, section 2.1): ||Y||_2 <= 1 and
-    # ||Y||_max <= lam, up to the dual residual
+    # the optimality (KKT) conditions of PCP, eq. 1.1 of Candes et al. 2011
+    # (subgradients of the nuclear and l1 norms, common practice):
+    # ||Y||_2 <= 1 and ||Y||_max <= lam, up to the dual residual
     assert dec.report.multiplier_spectral_norm < 1 + 1e-5
     assert dec.report.multiplier_max_norm_over_lam <= 1 + 1e-12
 
@@ -57,7 +59,8 @@ def test_planted_small(n, seed):
 
 
 def test_rectangular_planted():
-    # Theorem 1.1 holds for n1 x n2 with lam = 1/sqrt(max(n1, n2))
+    # Candes et al. 2011, Theorem 1.1: it holds for n1 x n2 with
+    # lam = 1/sqrt(max(n1, n2))
     W, L0, _ = make_planted(200, m=120, rank=4, seed=3)
     dec = robust_pca(W)
     assert dec.lam == pytest.approx(1 / np.sqrt(200))

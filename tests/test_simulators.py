@@ -241,6 +241,20 @@ def test_exported_script_runs_the_drive_it_was_given(bundle, tmp_path, simulator
     assert _rel(rates, target) < 1e-6
 
 
+def test_if_curr_exp_defaults_are_pynns():
+    # reference: PyNN's own default parameters of its standard cell model
+    # (pyNN.standardmodels.cells.IF_curr_exp.default_parameters), read here,
+    # against the copy the exports keep (the NeuroML2 export writes them,
+    # the rheobase and rate formulas use them)
+    require("pyNN")
+    from pyNN.standardmodels.cells import IF_curr_exp
+
+    from eidecomp.export.pynn_script import IF_CURR_EXP
+
+    defaults = IF_curr_exp.default_parameters
+    assert {k: defaults[k] for k in IF_CURR_EXP} == IF_CURR_EXP
+
+
 @pytest.mark.parametrize("tau_m", [10.0, 5.0])
 def test_pynn_operating_point_rate_is_nests(tau_m):
     # reference: NEST's iaf_psc_exp with PyNN's IF_curr_exp defaults (c_m
@@ -348,8 +362,8 @@ def test_pynn_background_current_has_the_stated_sd(tau_m):
     # reference: NEST's own iaf_psc_exp driven by two poisson_generators with
     # the export's weights (the threshold out of reach, so the unit never
     # fires); the recorded synaptic currents' sd against BACKGROUND_SD x the
-    # rheobase, which background_weight_nA derives from Campbell's theorem on
-    # NEST's 0.1 ms grid
+    # rheobase, which background_weight_nA derives from Campbell's theorem
+    # (the variance of shot noise, common practice) on NEST's 0.1 ms grid
     nest = require("nest")
     from eidecomp.export.pynn_script import (
         BACKGROUND_HZ,

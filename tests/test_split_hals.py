@@ -2,7 +2,7 @@
 
 References: the Karush-Kuhn-Tucker conditions of nonnegative least squares
 (Gillis 2014, "The why and how of nonnegative matrix factorization",
-section 3.1: at a minimiser the gradient is zero where a factor is positive
+section 3.1, from memory: at a minimiser the gradient is zero where a factor is positive
 and nonnegative where it is zero), evaluated with numpy; scipy.sparse and
 numpy products for the path matrix and the objective; plain HALS written
 out in numpy here, one component at a time in the order the split sweep
@@ -43,7 +43,7 @@ def _problem(seed, m=40, n=35, k=7, density=0.3):
 
 
 def _reference_sweep(M, A, B, n_u, l1, mask_a, mask_b, order_a, order_b):
-    """Plain HALS in numpy (Gillis 2014, section 3.1.3): one column of A, then
+    """Plain HALS in numpy (Gillis 2014, section 3.1.3, from memory): one column of A, then
     one row of B, at a time, in the given orders, each set to the exact
     minimiser max((M B^T - A B B^T + a_j g_jj - l1)_j / g_jj, 0); then the
     pairs rescaled as the split sweep does (equal norms untuned, equal sums

@@ -114,7 +114,8 @@ def test_arpack_agrees_with_dense_on_an_assembled_circuit(assembled):
 
 
 def _ginibre(n, seed):
-    # circular law: eigenvalues fill the unit disc, the rightmost on its rim
+    # circular law (Girko 1984; Tao and Vu 2010 for general i.i.d. entries,
+    # from memory): eigenvalues fill the unit disc, the rightmost near its rim
     return np.random.default_rng(seed).standard_normal((n, n)) / np.sqrt(n)
 
 

@@ -6,8 +6,8 @@ m x n array q = S + Y/mu (the Douglas-Rachford form of ADMM; docs/robust_pca.md)
     S = shrink_{lam/mu}(q),  Y/mu = clip_{lam/mu}(q),
     L = SVT_{1/mu}(W - S + Y/mu),   F(q) = W - L + Y/mu.
 
-Type-II Anderson acceleration (Walker and Ni 2011, SIAM J. Numer. Anal.
-49(4); for ADMM, Zhang, O'Donoghue and Boyd 2020, SIAM J. Optim. 30(4))
+Type-II Anderson acceleration (Anderson 1965; in the least-squares form of
+Walker and Ni 2011, SIAM J. Numer. Anal. 49(4))
 replaces the plain step q <- F(q) by the combination of the last ``depth``
 steps whose residual g = F(q) - q is smallest in the least-squares sense:
 
@@ -17,7 +17,11 @@ with dX, dG the differences of successive iterates and residuals. The
 safeguard is a restart: when ||g|| grows from one step to the next, the
 history is dropped and the plain step taken, so an extrapolation that does
 not help costs one step. The penalty changes the map, so every change of mu
-restarts too (``reset``).
+restarts too (``reset``). This is not the type-I scheme of Zhang,
+O'Donoghue and Boyd (2020, SIAM J. Optim. 30(4)), which approximates the
+Jacobian itself and adds Powell-type regularisation and its own safeguard
+to prove global convergence for nonexpansive maps: no such guarantee is
+claimed here, and the restart rule is this module's own.
 
 Memory: 2 * depth arrays of q's size; ``depth_for`` chooses the depth from a
 byte budget, and the solvers run without acceleration when fewer than two

@@ -271,13 +271,16 @@ def robust_pca(W, *, lam=None, method=METHODS[0], observed=None,
                dtype="float64", check_memory=True, stop="gap", gap_tol=None):
     r"""Split W into a low-rank part L and a sparse part S by robust PCA.
 
-    Solves Principal Component Pursuit (Candes, Li, Ma, Wright 2011, eq. 1.1)
+    Solves Principal Component Pursuit
 
     .. math:: \min_{L, S} \|L\|_* + \lambda \|P_\Omega S\|_1
               \quad \text{s.t.} \quad P_\Omega(L + S) = P_\Omega(W),
 
-    where :math:`\Omega` are the observed entries (all, unless ``observed`` or
-    ``ignore_diagonal`` leaves some out).
+    where :math:`\Omega` are the observed entries: all of them unless
+    ``observed`` or ``ignore_diagonal`` leaves some out, and then the
+    problem is Candes, Li, Ma and Wright's (2011) eq. 1.1. With entries
+    left out it is their principal component pursuit with missing entries
+    (their Theorem 1.2, from memory).
 
     Parameters
     ----------
@@ -286,11 +289,20 @@ def robust_pca(W, *, lam=None, method=METHODS[0], observed=None,
         or a pandas DataFrame (whose index, when its columns are the same
         labels, becomes the result's ``unit_ids``).
     lam : float or None
-        Weight of the l1 term. None: 1 / sqrt(max(m, n)) (Theorem 1.1).
+        Weight of the l1 term. None: 1 / sqrt(max(m, n)), the weight of
+        Candes et al.'s (2011) Theorem 1.1 for a fully observed matrix,
+        whatever ``observed`` and ``ignore_diagonal`` leave out: the
+        default is not rescaled by the observed share. Their
+        missing-entries result (from memory) is stated for an n x n matrix
+        observed at rate 0.1 with lam = 1 / sqrt(0.1 n), sqrt(10) times
+        this default. With only the diagonal left out (observed share
+        1 - 1/n), scaling lam by 1/sqrt(share) would change it by less
+        than 1/n.
     method : {"ialm", "convex"}
         ``"ialm"``: inexact augmented Lagrange multipliers (Lin, Chen, Ma 2010),
-        fast, stopped on primal and dual residuals. ``"convex"``: an exact
-        convex program solved by cvxpy with ``solver``.
+        fast, stopped on primal and dual residuals. ``"convex"``: the same
+        convex program solved by cvxpy with ``solver``, to that solver's
+        tolerance.
     observed : array_like of bool or None
         W's shape, True where the entry is observed (None: all are).
         Unobserved entries are left out of the constraint and of the l1

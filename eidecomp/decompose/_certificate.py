@@ -1,12 +1,13 @@
 """A certificate for any PCP iterate: the relative duality gap.
 
-The dual of Principal Component Pursuit (Candes, Li, Ma, Wright 2011,
-eq. 1.1, with Omega the observed entries) is
+The dual of Principal Component Pursuit with Omega the observed entries
+(Candes, Li, Ma, Wright 2011: eq. 1.1 when every entry is observed, their
+missing-entries problem, Theorem 1.2 from memory, otherwise) is
 
     maximise <Y, P_Omega W>  subject to  ||Y||_2 <= 1,  ||Y||_max <= lam,
                                           Y = 0 off Omega,
 
-and weak duality (Boyd & Vandenberghe 2004, section 5.2) makes the value of
+and weak duality (Boyd & Vandenberghe 2004, section 5.2, from memory) makes the value of
 any feasible Y a lower bound on the optimum. A multiplier iterate Y of the
 ALM is made feasible by zeroing it off Omega and dividing it by
 s = max(1, ||Y||_2, ||Y||_max / lam), with ||Y||_2 taken from above

@@ -7,9 +7,11 @@ so that  tau dX/dt = -X + mu + phi(sum_j w_ij X_j):
 * linear units are ``lin_rate_ipn`` (phi the identity) with mu = the unit's
   drive: the linear rate model of eidecomp.dynamics;
 * rectified units (threshold-linear model) are ``threshold_lin_rate_ipn``
-  (phi(x) = max(x, 0) at theta = 0), whose drive must sit inside phi: each
-  gets mu = 0 and one driver node, a ``lin_rate_ipn`` held at its drive
-  (mu = rate = h, no input), connected with weight 1, so that
+  (phi(x) = max(x, 0): NEST's defaults theta = 0 and alpha = inf, no
+  saturation, left as they are; NEST 3.10 has them), whose drive must sit
+  inside phi: each gets mu = 0 and one driver node, a ``lin_rate_ipn``
+  held at its drive (mu = rate = h, tau 1 ms, no input), connected with
+  weight 1, so that
   tau dX/dt = -X + [sum_j w_ij X_j + h]_+.
 
 Synapses are ``rate_connection_instantaneous`` with the signed weight, one

@@ -169,7 +169,9 @@ IF_CURR_EXP = {"cm": 1.0, "tau_refrac": 0.1, "v_rest": -65.0, "v_reset": -65.0,
                "v_thresh": -50.0}
 """PyNN's IF_curr_exp defaults (pyNN.standardmodels.cells.IF_curr_exp: nF,
 ms, mV) that the mapping keeps; the PyNN script leaves them to PyNN, the
-NeuroML2 export writes them."""
+NeuroML2 export writes them. Checked against PyNN 0.13's
+``IF_curr_exp.default_parameters`` by
+tests/test_simulators.py::test_if_curr_exp_defaults_are_pynns."""
 _V_RESET_MV, _V_THRESH_MV = IF_CURR_EXP["v_reset"], IF_CURR_EXP["v_thresh"]
 _CM_NF, _T_REFRAC_MS = IF_CURR_EXP["cm"], IF_CURR_EXP["tau_refrac"]
 
