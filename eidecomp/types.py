@@ -451,7 +451,7 @@ class AssemblyReport:
     ee_density : float
         Fraction of nonzero entries of J_EE.
     share_rule : str
-        How the untuned/tuned split was chosen, in words.
+        How the untuned/tuned share was chosen, in words.
     baselines : tuple of BaselineResult
     n_iter : int
         Sweeps of the joint refinement.

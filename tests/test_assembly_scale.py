@@ -24,14 +24,14 @@ from eidecomp.datasets import make_planted_circuit
 asm = import_module("eidecomp.assemble._assemble")
 bl = import_module("eidecomp.assemble._baselines")
 nmf = import_module("eidecomp.assemble._nmf")
-split = import_module("eidecomp.assemble._split_hals")
+mixed = import_module("eidecomp.assemble._mixed_hals")
 
 
 @pytest.fixture
 def large_path(monkeypatch):
     monkeypatch.setattr(nmf, "EXACT_SVD_MAX", 50)
     monkeypatch.setattr(asm, "EXACT_SVD_MAX", 50)
-    monkeypatch.setattr(split, "SPARSE_MIN_UNITS", 0)   # sparse sweeps too
+    monkeypatch.setattr(mixed, "SPARSE_MIN_UNITS", 0)   # sparse sweeps too
 
 
 def test_randomized_nndsvd_matches_the_exact_one(large_path):

@@ -40,7 +40,7 @@ from eidecomp.types import Circuit
 
 asm = import_module("eidecomp.assemble._assemble")
 sup = import_module("eidecomp.assemble._support")
-sh = import_module("eidecomp.assemble._split_hals")
+sh = import_module("eidecomp.assemble._mixed_hals")
 
 
 def _cancelling_w(seed, n=30):
@@ -136,14 +136,14 @@ def test_the_swap_search_beats_scikit_learns_nmf_on_merged_pools():
     dec = robust_pca(W, seed=0)
     M = asm._inhibitory_side(dec.sparse, float(np.abs(W).max()))
     A, B = asm.nndsvd(M, 95)
-    A, B, _ = sh.hals_split(M, A, B, 0, max_iter=500, tol=1e-6)
+    A, B, _ = sh.hals_mixed(M, A, B, 0, max_iter=500, tol=1e-6)
 
     def objective(a, b):
         return 0.5 * float(np.linalg.norm(M - a @ b) ** 2)
 
     before = objective(A, B)
     A2, B2, kept = sup.swap_search(
-        M, A, B, lambda a, b: sh.hals_split(M, a, b, 0, max_iter=50,
+        M, A, B, lambda a, b: sh.hals_mixed(M, a, b, 0, max_iter=50,
                                             tol=1e-6)[:2], objective)
     after = objective(A2, B2)
     assert kept >= 1 and after < before
@@ -176,10 +176,10 @@ def test_a_widened_pool_is_divided_to_cover_the_one_left_out(monkeypatch):
     A[:, 20] *= np.arange(m) % 8 >= 4
     A[40 + np.arange(4), 9], A[44 + np.arange(4), 11] = 0.5, 0.5
     B[9, 120 + np.arange(4)], B[11, 124 + np.arange(4)] = 0.5, 0.5
-    A, B, _ = sh.hals_split(M, A, B, 0, l1=l1, max_iter=2000, tol=1e-9)
+    A, B, _ = sh.hals_mixed(M, A, B, 0, l1=l1, max_iter=2000, tol=1e-9)
 
     def fit(a, b):
-        return sh.hals_split(M, a, b, 0, l1=l1, max_iter=50, tol=1e-6)[:2]
+        return sh.hals_mixed(M, a, b, 0, l1=l1, max_iter=50, tol=1e-6)[:2]
 
     def objective(a, b):
         return 0.5 * float(np.linalg.norm(M - a @ b) ** 2)

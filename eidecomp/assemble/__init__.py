@@ -7,10 +7,10 @@ from ._assemble import (
     excitation_audit,
 )
 from ._baselines import baselines
-from ._counts import inhibitory_count, parse_ratio, split_counts
+from ._counts import inhibitory_count, parse_ratio, interneuron_counts
 from ._nmf import hals, nndsvd
 from ._tiled import TiledCircuit, assemble_tiled
 
 __all__ = ["TiledCircuit", "assemble", "assemble_tiled", "baselines",
            "dale_columns", "equal_density_pairs", "excitation_audit", "hals",
-           "inhibitory_count", "nndsvd", "parse_ratio", "split_counts"]
+           "inhibitory_count", "nndsvd", "parse_ratio", "interneuron_counts"]

@@ -64,15 +64,15 @@ from ._baselines import (
     plain_factorisation,
 )
 from ._baselines import baselines as score_baselines
-from ._counts import inhibitory_count, split_counts
+from ._counts import inhibitory_count, interneuron_counts
 from ._dale import dale_head, own_circuit, own_report, why_not_own
 from ._nmf import EXACT_SVD_MAX, Factored, hals, leading_svd, nndsvd
-from ._split_hals import (
+from ._mixed_hals import (
     SPARSE_MIN_UNITS,
-    hals_split,
-    objective_split,
+    hals_mixed,
+    objective_mixed,
     paths,
-    sweep_split,
+    sweep_mixed,
     tuned_parts,
 )
 from ._stability import guarded
@@ -158,7 +158,7 @@ def _labelled(W_or_dec):
     return unit_labels(W_or_dec, square=True), dense_input(W_or_dec)
 
 
-def _split(W_or_dec, seed, decompose_kwargs):
+def _decomposed(W_or_dec, seed, decompose_kwargs):
     """(W, L, S, dec, own): W is the array given (its unobserved entries, if
     the split left some out, completed: Decomposition.completed), or L + S
     of a decomposition (then a new array, ``own``, which the caller may
@@ -365,7 +365,7 @@ def _descend(W, A, B, n_u, masks, alpha, ee_support, max_iter, tol,
         J_EE = _excitation(W, A, B, n_u, alpha, ee_support, parts, out=J_EE,
                            cap=cap)
         J_EE -= W                        # the sweep fits J_EE - W ~ A B
-        parts = sweep_split(J_EE, A, B, n_u, by_cost=True,
+        parts = sweep_mixed(J_EE, A, B, n_u, by_cost=True,
                             mask_a=masks[0],
                             mask_b=masks[1], A_sp=parts[0], B_sp=parts[1],
                             cache=cache)
@@ -460,7 +460,7 @@ def _tuned_fit(M_t, M_sp, A_t, B_t, l1, max_iter, tell):
     """Step 3 from one start: l1 HALS, new starts for emptied pools, then
     the swap search (up to SWAP_MAX_UNITS). Returns A_t, B_t and the number
     of pools started again."""
-    A_t, B_t, _ = hals_split(M_sp, A_t, B_t, 0, l1=l1, max_iter=max_iter,
+    A_t, B_t, _ = hals_mixed(M_sp, A_t, B_t, 0, l1=l1, max_iter=max_iter,
                              tol=1e-6, by_cost=True)
     restarted = 0
     for _ in range(RESTART_ROUNDS):  # the l1 term can empty a pool: start it
@@ -470,16 +470,16 @@ def _tuned_fit(M_t, M_sp, A_t, B_t, l1, max_iter, tell):
         if not started:
             break
         restarted += len(started)
-        A_t, B_t, _ = hals_split(M_sp, A_t, B_t, 0, l1=l1, max_iter=max_iter,
+        A_t, B_t, _ = hals_mixed(M_sp, A_t, B_t, 0, l1=l1, max_iter=max_iter,
                                  tol=1e-6, by_cost=True)
     if max(M_t.shape) <= SWAP_MAX_UNITS and A_t.shape[1] > 1:
         tell("tuned factorisation: swaps")
         A_t, B_t, _ = swap_search(
             M_t, A_t, B_t,
-            lambda a, b: hals_split(M_sp, a, b, 0, l1=l1,
+            lambda a, b: hals_mixed(M_sp, a, b, 0, l1=l1,
                                     max_iter=SWAP_SWEEPS, tol=1e-6,
                                     by_cost=True)[:2],
-            lambda a, b: objective_split(M_sp, a, b, 0, l1), l1=l1)
+            lambda a, b: objective_mixed(M_sp, a, b, 0, l1), l1=l1)
     return A_t, B_t, restarted
 
 
@@ -523,7 +523,7 @@ def _first_factorisations(L, S, unit, n_u, n_t, start, seed, max_iter, tell):
         A_t, B_t = _fill_dead(A_t, B_t, start, rng)
         A_t, B_t, restarted = _tuned_fit(M_t, M_sp, A_t, B_t, l1, max_iter,
                                          tell)
-        value = objective_split(M_sp, A_t, B_t, 0, l1)
+        value = objective_mixed(M_sp, A_t, B_t, 0, l1)
         if best is None or value < best[0] * (1 - START_MARGIN):
             best = value, A_t, B_t, restarted
         del A_t, B_t
@@ -800,7 +800,7 @@ def assemble(W_or_dec, *, ei_ratio=None, untuned_share="auto",
         raise InputError(f"ee_support must be one of {', '.join(EE_SUPPORTS)},"
                          f" got {ee_support!r}")
     ids, W_or_dec = _labelled(W_or_dec)
-    W, L, S, dec, own = _split(W_or_dec, seed, decompose_kwargs)
+    W, L, S, dec, own = _decomposed(W_or_dec, seed, decompose_kwargs)
     if W.ndim != 2 or W.shape[0] != W.shape[1]:
         raise InputError(f"W must be square to build a circuit, got {W.shape}")
     n = W.shape[0]
@@ -844,7 +844,7 @@ def assemble(W_or_dec, *, ei_ratio=None, untuned_share="auto",
         W /= unit
     else:
         W = W / unit
-    n_u, n_t, rule = split_counts(n_i, untuned_share, dec.rank,
+    n_u, n_t, rule = interneuron_counts(n_i, untuned_share, dec.rank,
                                   bool((S < 0).any()))
     start = 1e-3 if scale > 0 else 0.0  # of empty factor columns
 

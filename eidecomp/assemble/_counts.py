@@ -6,7 +6,7 @@ from ..errors import InputError
 from ..grammar import parse_number
 from ..params import EIRatio
 
-__all__ = ["inhibitory_count", "parse_ratio", "split_counts"]
+__all__ = ["inhibitory_count", "parse_ratio", "interneuron_counts"]
 
 def parse_ratio(spec):
     """E:I ratio from ``"4:1"``, ``"4"`` or a number, as excitatory units per
@@ -43,16 +43,16 @@ def inhibitory_count(n_e, ratio, *, where="", units="excitatory units"):
     return n_i
 
 
-def split_counts(n_i, share, rank_low, has_tuned):
+def interneuron_counts(n_i, share, rank_low, has_tuned):
     """(n_untuned, n_tuned, rule) for a share in [0, 1] or ``"auto"``.
 
     ``"auto"`` gives the untuned population one unit per dimension of the
     low-rank part (its rank), leaving at least one tuned interneuron when the
     sparse part inhibits anything.
 
-    >>> split_counts(100, "auto", 5, True)[:2]
+    >>> interneuron_counts(100, "auto", 5, True)[:2]
     (5, 95)
-    >>> split_counts(10, 0.25, 5, True)[:2]
+    >>> interneuron_counts(10, 0.25, 5, True)[:2]
     (2, 8)
     """
     if isinstance(share, str):

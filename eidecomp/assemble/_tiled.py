@@ -39,7 +39,7 @@ from ..limits import check_fits
 from ..params import DEFAULT_EI_RATIO, EIRatio
 from ..types import BLOCK_NAMES, Circuit
 from ._assemble import default_alpha
-from ._counts import inhibitory_count, split_counts
+from ._counts import inhibitory_count, interneuron_counts
 
 __all__ = ["TiledCircuit", "assemble_tiled"]
 
@@ -159,7 +159,7 @@ def assemble_tiled(dec, W, *, ei_ratio=DEFAULT_EI_RATIO, untuned_share="auto",
     m = inhibitory_count(F, ratio, where=" per site", units="features")
     L, S = np.asarray(dec.low_rank), np.asarray(dec.sparse)
     Mu, Mt = np.maximum(-L, 0.0), np.maximum(-S, 0.0)
-    mu, mt, _ = split_counts(m, untuned_share, int(np.max(dec.ranks)),
+    mu, mt, _ = interneuron_counts(m, untuned_share, int(np.max(dec.ranks)),
                              bool(Mt.any()))
     rng = np.random.default_rng(seed)
     alpha = default_alpha(G) if alpha is None else float(alpha)

@@ -44,7 +44,7 @@ and it is lopsided where it matters (planted sheets: the sparse path 3x to
 the constants need only their order of magnitude on another machine."""
 
 __all__ = ["SPARSE_MIN_UNITS", "SWEEP_COST_NS", "colouring", "dense_pays",
-           "hals_split", "objective_split", "paths", "sweep_split",
+           "hals_mixed", "objective_mixed", "paths", "sweep_mixed",
            "tuned_parts", "update_order"]
 
 
@@ -270,7 +270,7 @@ def tuned_parts(A, B, n_u):
     return sparse.csc_matrix(A[:, n_u:]), sparse.csr_matrix(B[n_u:])
 
 
-def sweep_split(M, A, B, n_u, *, l1=0.0, mask_a=None, mask_b=None, B_sp=None,
+def sweep_mixed(M, A, B, n_u, *, l1=0.0, mask_a=None, mask_b=None, B_sp=None,
                 A_sp=None, cache=None, by_cost=False):
     """One HALS sweep in place over dense untuned (first ``n_u``) and sparse
     tuned components, minimising 0.5 ||M - A B||_F^2 + l1 (sum of the tuned
@@ -299,7 +299,7 @@ def sweep_split(M, A, B, n_u, *, l1=0.0, mask_a=None, mask_b=None, B_sp=None,
     >>> M = A0 @ B0
     >>> A, B = A0 + 0.1, B0 + 0.1
     >>> before = np.linalg.norm(M - A @ B)
-    >>> _ = sweep_split(M, A, B, 1)
+    >>> _ = sweep_mixed(M, A, B, 1)
     >>> bool(np.linalg.norm(M - A @ B) <= before)
     True
     """
@@ -434,7 +434,7 @@ def paths(A, B, n_u, parts=None, out=None):
     return P
 
 
-def objective_split(M, A, B, n_u, l1=0.0, m_norm2=None, parts=None):
+def objective_mixed(M, A, B, n_u, l1=0.0, m_norm2=None, parts=None):
     """0.5 ||M - A B||_F^2 + l1 (sum of the tuned factors), without forming
     A B (M dense or sparse): ||M||^2 - 2 <A^T M, B> + <A^T A, B B^T>.
     ``parts`` are the tuned parts (A_sp, B_sp) when the caller has them."""
@@ -453,27 +453,27 @@ def objective_split(M, A, B, n_u, l1=0.0, m_norm2=None, parts=None):
     return 0.5 * max(m2 - 2 * cross + gram, 0.0) + tuned
 
 
-def hals_split(M, A, B, n_u, *, l1=0.0, mask_a=None, mask_b=None,
+def hals_mixed(M, A, B, n_u, *, l1=0.0, mask_a=None, mask_b=None,
                max_iter=500, tol=1e-7, scale=None, by_cost=False):
     """:func:`eidecomp.assemble._nmf.hals` with dense untuned and sparse
     tuned components (l1 on the tuned ones only); M dense or scipy.sparse.
     It stops when a sweep lowers the objective by less than ``tol`` times
     ``scale`` (by default the objective at the start); ``by_cost`` as in
-    :func:`sweep_split`.
+    :func:`sweep_mixed`.
     Returns A, B (copies) and the same ``info``."""
     A = np.array(A, dtype=float, copy=True, order="F")  # columns contiguous
     B = np.array(B, dtype=float, copy=True)
     m2 = float(M.multiply(M).sum() if _is_sparse(M) else np.vdot(M, M))
     parts = tuned_parts(A, B, n_u)
-    history = [objective_split(M, A, B, n_u, l1, m2, parts)]
+    history = [objective_mixed(M, A, B, n_u, l1, m2, parts)]
     converged = A.shape[1] == 0 or history[0] == 0
     cache = {"m2": m2}
     while not converged and len(history) <= max_iter:
-        parts = sweep_split(M, A, B, n_u, l1=l1, mask_a=mask_a, mask_b=mask_b,
+        parts = sweep_mixed(M, A, B, n_u, l1=l1, mask_a=mask_a, mask_b=mask_b,
                             A_sp=parts[0], B_sp=parts[1], cache=cache,
                             by_cost=by_cost)
         loss = cache.pop("loss", None)
-        history.append(objective_split(M, A, B, n_u, l1, m2, parts)
+        history.append(objective_mixed(M, A, B, n_u, l1, m2, parts)
                        if loss is None
                        else loss + l1 * (parts[0].sum() + parts[1].sum()))
         converged = history[-2] - history[-1] <= tol * (

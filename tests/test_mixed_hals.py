@@ -5,8 +5,8 @@ References: the Karush-Kuhn-Tucker conditions of nonnegative least squares
 section 3.1, from memory: at a minimiser the gradient is zero where a factor is positive
 and nonnegative where it is zero), evaluated with numpy; scipy.sparse and
 numpy products for the path matrix and the objective; plain HALS written
-out in numpy here, one component at a time in the order the split sweep
-reports, whose iterates the split sweep must reproduce (its tuned
+out in numpy here, one component at a time in the order the mixed sweep
+reports, whose iterates the mixed sweep must reproduce (its tuned
 components go a colour class of non-overlapping components at a time).
 """
 
@@ -17,22 +17,22 @@ import pytest
 from scipy import sparse
 
 from eidecomp.assemble._nmf import nndsvd
-from eidecomp.assemble._split_hals import (
-    hals_split,
-    objective_split,
+from eidecomp.assemble._mixed_hals import (
+    hals_mixed,
+    objective_mixed,
     paths,
-    sweep_split,
+    sweep_mixed,
     update_order,
 )
 
-split = import_module("eidecomp.assemble._split_hals")
+mixed = import_module("eidecomp.assemble._mixed_hals")
 
 
 @pytest.fixture(autouse=True)
 def sparse_path(monkeypatch):
     """These small problems take the sparse path under test (below
     SPARSE_MIN_UNITS the sweep would hand them to the dense one)."""
-    monkeypatch.setattr(split, "SPARSE_MIN_UNITS", 0)
+    monkeypatch.setattr(mixed, "SPARSE_MIN_UNITS", 0)
 
 
 def _problem(seed, m=40, n=35, k=7, density=0.3):
@@ -46,7 +46,7 @@ def _reference_sweep(M, A, B, n_u, l1, mask_a, mask_b, order_a, order_b):
     """Plain HALS in numpy (Gillis 2014, section 3.1.3, from memory): one column of A, then
     one row of B, at a time, in the given orders, each set to the exact
     minimiser max((M B^T - A B B^T + a_j g_jj - l1)_j / g_jj, 0); then the
-    pairs rescaled as the split sweep does (equal norms untuned, equal sums
+    pairs rescaled as the mixed sweep does (equal norms untuned, equal sums
     tuned: the product is unchanged)."""
     k = A.shape[1]
     l1s = np.r_[np.zeros(n_u), np.full(k - n_u, l1)]
@@ -90,7 +90,7 @@ def test_tuned_sweeps_reproduce_plain_hals(seed, as_sparse, n_u, l1):
     Mx = sparse.csr_matrix(M) if as_sparse else M
     cache, parts = {}, (None, None)
     for _ in range(10):
-        parts = sweep_split(Mx, A2, B2, n_u, l1=l1, A_sp=parts[0],
+        parts = sweep_mixed(Mx, A2, B2, n_u, l1=l1, A_sp=parts[0],
                             B_sp=parts[1], cache=cache)
         _reference_sweep(M, A1, B1, n_u, l1, None, None, *_orders(cache, n_u))
     assert np.abs(A1 - A2).max() <= 1e-12
@@ -108,10 +108,10 @@ def test_a_component_that_dies_keeps_its_other_factor():
         A[lo:lo + 10, j] = 1.0
         B[j, lo:lo + 10] = 100.0 if j == 3 else 1.0
     cache = {}
-    parts = sweep_split(M, A, B, 1, l1=0.5, cache=cache)
+    parts = sweep_mixed(M, A, B, 1, l1=0.5, cache=cache)
     assert not B[3].any() and A[:, 3].any()          # dead after sweep 1
     kept = A[:, 3].copy()
-    sweep_split(M, A, B, 1, l1=0.5, A_sp=parts[0], B_sp=parts[1], cache=cache)
+    sweep_mixed(M, A, B, 1, l1=0.5, A_sp=parts[0], B_sp=parts[1], cache=cache)
     np.testing.assert_array_equal(A[:, 3], kept)
     assert 3 - 1 not in update_order(cache["a"])   # tuned index of component 3
 
@@ -127,7 +127,7 @@ def test_mixed_components_with_masks_reproduce_plain_hals(seed):
     A2, B2 = A1.copy(), B1.copy()
     for _ in range(10):
         cache = {}
-        sweep_split(M, A2, B2, 2, mask_a=ma, mask_b=mb, cache=cache)
+        sweep_mixed(M, A2, B2, 2, mask_a=ma, mask_b=mb, cache=cache)
         _reference_sweep(M, A1, B1, 2, 0.0, ma, mb, *_orders(cache, 2))
     assert np.abs(A1 - A2).max() <= 1e-12
     assert np.abs(B1 - B2).max() <= 1e-12
@@ -153,7 +153,7 @@ def test_pool_structured_factors_update_a_class_at_a_time():
     A2, B2 = A1.copy(), B1.copy()
     for _ in range(5):
         cache = {}
-        sweep_split(M, A2, B2, n_u, mask_a=ma, mask_b=mb, l1=0.01,
+        sweep_mixed(M, A2, B2, n_u, mask_a=ma, mask_b=mb, l1=0.01,
                     cache=cache)
         _reference_sweep(M, A1, B1, n_u, 0.01, ma, mb, *_orders(cache, n_u))
         for key, G in (("a", B2[n_u:] @ B2[n_u:].T),
@@ -174,7 +174,7 @@ def test_converged_factors_meet_the_kkt_conditions(as_sparse):
     M, A0, B0, _ = _problem(5)
     l1 = 0.02
     Mx = sparse.csr_matrix(M) if as_sparse else M
-    A, B, info = hals_split(Mx, A0, B0, 0, l1=l1, max_iter=5000, tol=1e-13)
+    A, B, info = hals_mixed(Mx, A0, B0, 0, l1=l1, max_iter=5000, tol=1e-13)
     assert info["converged"]
     h = np.asarray(info["history"])
     assert (np.diff(h) <= 1e-12 * h[0]).all()          # never increases
@@ -186,7 +186,7 @@ def test_converged_factors_meet_the_kkt_conditions(as_sparse):
     assert gA[A == 0].min() >= -1e-5 * scale
     assert gB[B == 0].min() >= -1e-5 * scale
     direct = 0.5 * np.linalg.norm(M - A @ B) ** 2 + l1 * (A.sum() + B.sum())
-    assert objective_split(Mx, A, B, 0, l1) == pytest.approx(direct, rel=1e-10)
+    assert objective_mixed(Mx, A, B, 0, l1) == pytest.approx(direct, rel=1e-10)
 
 
 def _dense_pools(seed, m=60, k=12, n_u=2):
@@ -204,11 +204,11 @@ def test_the_cost_model_sends_dense_pools_to_plain_hals():
     sweep weighs every component alike), and one over ring pools keeps the
     class order of the sparse path."""
     M, A0, B0, n_u = _dense_pools(3)
-    assert split.dense_pays(A0, B0, n_u)
+    assert mixed.dense_pays(A0, B0, n_u)
     A1, B1, A2, B2 = A0.copy(), B0.copy(), A0.copy(), B0.copy()
     order = np.arange(A0.shape[1])
     for _ in range(5):
-        sweep_split(M, A2, B2, n_u, by_cost=True)
+        sweep_mixed(M, A2, B2, n_u, by_cost=True)
         _reference_sweep(M, A1, B1, n_u, 0.0, None, None, order, order)
     assert np.abs(A1 - A2).max() <= 1e-12
     assert np.abs(B1 - B2).max() <= 1e-12
@@ -229,9 +229,9 @@ def test_the_cost_model_keeps_ring_pools_sparse():
     rng = np.random.default_rng(4)
     A, B, n_u = _ring_pools(4)
     m, k = A.shape
-    assert not split.dense_pays(A, B, n_u)
+    assert not mixed.dense_pays(A, B, n_u)
     A[:, n_u:] = rng.random((m, k - n_u))       # the same sizes, pools dense
-    assert split.dense_pays(A, B, n_u)
+    assert mixed.dense_pays(A, B, n_u)
 
 
 @pytest.mark.parametrize("dense", [False, True])
@@ -240,5 +240,5 @@ def test_paths_is_the_product_numpy(dense):
     to the untuned one, or one BLAS call for dense tuned parts), against
     numpy's product."""
     A, B, n_u = _dense_pools(6)[1:] if dense else _ring_pools(6)
-    assert split.dense_pays(A, B, n_u) == dense   # the route under test
+    assert mixed.dense_pays(A, B, n_u) == dense   # the route under test
     np.testing.assert_allclose(paths(A, B, n_u), A @ B, rtol=0, atol=1e-12)
