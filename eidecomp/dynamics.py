@@ -39,7 +39,7 @@ from .errors import InputError
 from .params import SETTLE_TIME_CONSTANTS, STABILITY_SCAN
 from .types import BLOCK_NAMES, II_BLOCK_NAMES
 
-__all__ = ["DENSE_MAX_UNITS", "DIVERGED", "MAX_EVALUATIONS", "METHODS",
+__all__ = ["DENSE_MAX_UNITS", "DIVERGED", "MAX_EVALUATIONS", "EIGEN_METHODS",
            "UnsettledRun", "circuit_abscissa",
            "effective_from_full", "fixed_point", "full_matrix", "jacobian",
            "jacobian_operator", "largest_stable_circuit_gain",
@@ -242,16 +242,16 @@ def _abscissa_dense(A):
     return float(np.max(np.linalg.eigvals(_dense(A)).real))
 
 
-METHODS = ("auto", "dense", "arpack")
+EIGEN_METHODS = ("auto", "dense", "arpack")
 """How :func:`spectral_abscissa` solves: auto picks dense up to
 :data:`DENSE_MAX_UNITS` units and ARPACK above."""
 
 
 def _abscissa(A, method="auto", seed=0):
     """The spectral abscissa of an array, sparse matrix or operator."""
-    if method not in METHODS:
+    if method not in EIGEN_METHODS:
         raise InputError(f"unknown eigenvalue method {method!r} (choose from "
-                         f"{', '.join(METHODS)})")
+                         f"{', '.join(EIGEN_METHODS)})")
     n = A.shape[0]
     if n == 0:
         return -np.inf

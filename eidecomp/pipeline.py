@@ -44,7 +44,7 @@ from .params import (
     EIRatio,
 )
 from .progress import announcer
-from .types import handing_over
+from .types import adopting_arrays
 
 __all__ = [
     "DECOMPOSE_ENGINES",
@@ -237,7 +237,7 @@ def _with_suggestion(W, dec, config, progress, points=None):
         return dec
     verdict, _ = suggest_lam(W, dec, observed=dec.observed, seed=config.seed,
                              progress=progress, points=points)
-    with handing_over():
+    with adopting_arrays():
         return dataclasses.replace(dec, verdict=verdict)
 
 
@@ -758,16 +758,16 @@ def run_report(bundle, output, *, force=False, progress=None):
     from .io.staging import check_output, file_bytes, fill_folder
 
     bundles.expect_kind(bundle, CIRCUIT)  # a wrong input is named first
-    keep = unedited_file
+    replaceable_page = unedited_file
 
-    def keep_figures(path):
+    def replaceable_figures(path):
         return unedited_folder(path, kind=REPORT_FIGURES_KIND)
-    out = check_output(output, force=force, folder=False, replaceable=keep,
+    out = check_output(output, force=force, folder=False, replaceable=replaceable_page,
                        inputs=(bundle,))
     figures = report_figures_folder(out)
 
     try:
-        check_output(figures, force=force, replaceable=keep_figures,
+        check_output(figures, force=force, replaceable=replaceable_figures,
                      inputs=(bundle,))
     except InputError as exc:   # a path the user did not type: say what it is
         raise InputError(f"{exc} (the folder of the report's SVG figures, "
@@ -785,13 +785,13 @@ def run_report(bundle, output, *, force=False, progress=None):
     # the page is written while the new figures wait under a temporary name:
     # a failed write of either leaves the old page and figures as they were
     # (only the folder's own rename comes after the page's)
-    with staged_folder(figures, force=force, replaceable=keep_figures,
+    with staged_folder(figures, force=force, replaceable=replaceable_figures,
                        inputs=(bundle,)) as staged:
         fill_folder(staged, stamp_folder(
             {name: file_bytes(svg) for name, svg in svgs.items()},
             kind=REPORT_FIGURES_KIND))
         return write_file(out, stamp(file_bytes(page), "xml"),
-                          force=force, replaceable=keep, inputs=(bundle,))
+                          force=force, replaceable=replaceable_page, inputs=(bundle,))
 
 
 REPORT_FIGURES_KIND = "eidecomp report figures"

@@ -6,6 +6,7 @@ objects are made read-only, so a result cannot be changed after the fact.
 """
 
 from contextlib import contextmanager
+from contextvars import ContextVar
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -32,30 +33,31 @@ __all__ = [
 ]
 
 
-_OWNED = [False]  # set by handing_over(): arrays are the solver's own
+_ADOPTING = ContextVar("eidecomp_adopting_arrays", default=False)
 
 
 @contextmanager
-def handing_over():
-    """Within this block, results take their arrays without copying them.
+def adopting_arrays():
+    """Within this block, results adopt their arrays without copying them.
 
     For eidecomp's own solvers, which build the arrays and drop every other
     reference: a copy of a 20,000-unit matrix is 3.2 GB. Outside it (the
     default) the arrays are copied, so a caller's later change to its own
-    array cannot reach a result.
+    array cannot reach a result. The setting is a context variable: it holds
+    in this thread (or task) only.
     """
-    _OWNED[0] = True
+    token = _ADOPTING.set(True)
     try:
         yield
     finally:
-        _OWNED[0] = False
+        _ADOPTING.reset(token)
 
 
 def _freeze(obj, *names):
     for name in names:
         value = getattr(obj, name)
         if value is not None:
-            if _OWNED[0] and isinstance(value, np.ndarray):
+            if _ADOPTING.get() and isinstance(value, np.ndarray):
                 arr = value
             else:
                 arr = np.array(value, copy=True)

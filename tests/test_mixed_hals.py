@@ -16,7 +16,6 @@ import numpy as np
 import pytest
 from scipy import sparse
 
-from eidecomp.assemble._nmf import nndsvd
 from eidecomp.assemble._mixed_hals import (
     hals_mixed,
     objective_mixed,
@@ -24,6 +23,7 @@ from eidecomp.assemble._mixed_hals import (
     sweep_mixed,
     update_order,
 )
+from eidecomp.assemble._nmf import nndsvd
 
 mixed = import_module("eidecomp.assemble._mixed_hals")
 
@@ -43,8 +43,9 @@ def _problem(seed, m=40, n=35, k=7, density=0.3):
 
 
 def _reference_sweep(M, A, B, n_u, l1, mask_a, mask_b, order_a, order_b):
-    """Plain HALS in numpy (Gillis 2014, section 3.1.3, from memory): one column of A, then
-    one row of B, at a time, in the given orders, each set to the exact
+    """Plain HALS in numpy (Gillis 2014, section 3.1.3, from memory): one
+    column of A, then one row of B, at a time, in the given orders, each set
+    to the exact
     minimiser max((M B^T - A B B^T + a_j g_jj - l1)_j / g_jj, 0); then the
     pairs rescaled as the mixed sweep does (equal norms untuned, equal sums
     tuned: the product is unchanged)."""

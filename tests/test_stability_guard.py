@@ -69,7 +69,11 @@ def test_the_guard_makes_the_circuit_stable_and_reports_its_cost(photo):
     assert g.error_after == pytest.approx(err, rel=1e-9)
     assert g.error_before == pytest.approx(free.report.relative_error,
                                            rel=1e-9)
-    assert g.error_after >= g.error_before   # stability is paid for
+    # stability is paid for when the free fit stopped at a local optimum;
+    # a free refinement cut off at its sweep limit can still descend, and the
+    # guard's descent may then end below it (seen with scipy 1.17.1 and
+    # scikit-learn 1.9.1 on the 6 x 6 patches)
+    assert g.error_after >= g.error_before or not free.report.converged
     assert "stability guard: relative error" in guard_line(
         guarded.report.as_dict())
 

@@ -7,7 +7,7 @@ from ._assemble import (
     excitation_audit,
 )
 from ._baselines import baselines
-from ._counts import inhibitory_count, parse_ratio, interneuron_counts
+from ._counts import inhibitory_count, interneuron_counts, parse_ratio
 from ._nmf import hals, nndsvd
 from ._tiled import TiledCircuit, assemble_tiled
 

@@ -54,7 +54,7 @@ from ..types import (
     BaselineResult,
     Circuit,
     Decomposition,
-    handing_over,
+    adopting_arrays,
 )
 from . import _stability
 from ._baselines import (
@@ -66,7 +66,6 @@ from ._baselines import (
 from ._baselines import baselines as score_baselines
 from ._counts import inhibitory_count, interneuron_counts
 from ._dale import dale_head, own_circuit, own_report, why_not_own
-from ._nmf import EXACT_SVD_MAX, Factored, hals, leading_svd, nndsvd
 from ._mixed_hals import (
     SPARSE_MIN_UNITS,
     hals_mixed,
@@ -75,6 +74,7 @@ from ._mixed_hals import (
     sweep_mixed,
     tuned_parts,
 )
+from ._nmf import EXACT_SVD_MAX, Factored, hals, leading_svd, nndsvd
 from ._stability import guarded
 from ._support import (
     apply_floor,
@@ -305,13 +305,13 @@ def excitation_audit(W, J_EE, zero=0.0):
     return autapses, float(J_EE[W <= zero].sum()) / total
 
 
-def _dropped(W, J_EE, unit=1.0):
-    """(left out, all, largest left out, times ``unit``) of W's positive
+def _dropped(W, J_EE, w_scale=1.0):
+    """(left out, all, largest left out, times ``w_scale``) of W's positive
     entries."""
     pos = W > 0
     out = pos & (J_EE <= 0)
     return (int(out.sum()), int(pos.sum()),
-            float(W[out].max()) * unit if out.any() else 0.0)
+            float(W[out].max()) * w_scale if out.any() else 0.0)
 
 
 def _residual(W, J_EE, A, B, n_u, parts=None):
@@ -383,7 +383,7 @@ def _descend(W, A, B, n_u, masks, alpha, ee_support, max_iter, tol,
         converged
 
 
-def _owed(W, J_EE, A, B, n_u):
+def _missing_inhibition(W, J_EE, A, B, n_u):
     """The inhibition W asks for and the circuit does not give, >= 0 (one
     new N x N array)."""
     R = _residual(W, J_EE, A, B, n_u)
@@ -425,9 +425,9 @@ def _refine(W, A, B, mask_a, mask_b, alpha, allowed, n_u, max_iter, tol,
         if not silent.size:
             break
         tell("new starts for emptied interneurons")
-        started = restart(_owed(W, J_EE, A, B, n_u), A, B,
+        started = restart(_missing_inhibition(W, J_EE, A, B, n_u), A, B,
                           silent[silent < n_u], floor=RESTART_RTOL, copy=False)
-        owed = _owed(W, J_EE, A, B, n_u)
+        owed = _missing_inhibition(W, J_EE, A, B, n_u)
         started += restart(owed, A, B, silent[silent >= n_u],
                            l1=TUNED_L1 * float(owed.max()), mask_a=mask_a,
                            mask_b=mask_b, floor=RESTART_RTOL, copy=False)
@@ -448,11 +448,11 @@ def _unexplained(M, A, B):
     return R
 
 
-def _inhibitory_side(X, unit):
-    """max(-X, 0) / unit, in one new float64 array."""
+def _inhibitory_side(X, w_scale):
+    """max(-X, 0) / w_scale, in one new float64 array."""
     M = np.negative(X, dtype=float)
     np.maximum(M, 0.0, out=M)
-    M /= unit
+    M /= w_scale
     return M
 
 
@@ -483,15 +483,15 @@ def _tuned_fit(M_t, M_sp, A_t, B_t, l1, max_iter, tell):
     return A_t, B_t, restarted
 
 
-def _first_factorisations(L, S, unit, n_u, n_t, start, seed, max_iter, tell):
+def _first_factorisations(L, S, w_scale, n_u, n_t, start, seed, max_iter, tell):
     """Steps 2-3: NNDSVD + HALS of the inhibitory sides of L (dense, untuned
     pools) and of S (l1, tuned pools, their supports then fixed), in units
-    of ``unit``. Returns the stacked factors A (E x I), B (I x E), the masks
+    of ``w_scale``. Returns the stacked factors A (E x I), B (I x E), the masks
     of their supports and the number of tuned pools that emptied and were
     started again. One N x N side is held at a time."""
     tell("untuned factorisation")
     rng = np.random.default_rng(seed)
-    M_u = _inhibitory_side(L, unit)
+    M_u = _inhibitory_side(L, w_scale)
     # the untuned side comes from a low-rank L: its HALS runs on the leading
     # 2 n_u + STAND_IN_EXTRA triplets of max(-L, 0), a stand-in whose
     # products cost O(N q) per component (the refinement then fits W itself)
@@ -505,7 +505,7 @@ def _first_factorisations(L, S, unit, n_u, n_t, start, seed, max_iter, tell):
                            tol=1e-6)
     del M_u
     tell("tuned factorisation")
-    M_t = _inhibitory_side(S, unit)
+    M_t = _inhibitory_side(S, w_scale)
     l1 = tuned_l1(M_t)
     # two starts, the better kept: each leaves merged pools that the other
     # avoids on some planted sheets (docs/assembly.md, "Tuned pools"); both
@@ -700,7 +700,7 @@ def _own_neurons(W, L, S, dec, inhibitory, ratio, zero, ids, ee_support,
     blocks, index, n_u, text, notes = own_circuit(W, L, S, inhibitory, ratio,
                                                   zero)
     e = np.flatnonzero(~inhibitory)
-    with handing_over():                # every block is a new array of ours
+    with adopting_arrays():                # every block is a new array of ours
         circuit = Circuit(**blocks, w_index=index,
                           unit_ids=None if ids is None
                           else tuple(ids[i] for i in e))
@@ -835,22 +835,22 @@ def assemble(W_or_dec, *, ei_ratio=None, untuned_share="auto",
     # Work in units of max|W| and scale back at the end: every step is then
     # homogeneous, so c W gives c J_EE and sqrt(c) J_EI, sqrt(c) J_IE (the
     # inhibitory paths J_EI J_IE scale by c), whatever c.
-    unit = scale if scale > 0 else 1.0
+    w_scale = scale if scale > 0 else 1.0
     no_inhibition = bool(W.min() >= 0)
     alpha = default_alpha(W) if alpha is None else float(alpha)
     if not np.isfinite(alpha) or alpha < 0:
         raise InputError(f"alpha must be a nonnegative number, got {alpha!r}")
     if own:                             # L + S: ours to scale in place
-        W /= unit
+        W /= w_scale
     else:
-        W = W / unit
+        W = W / w_scale
     n_u, n_t, rule = interneuron_counts(n_i, untuned_share, dec.rank,
                                   bool((S < 0).any()))
     start = 1e-3 if scale > 0 else 0.0  # of empty factor columns
 
     tell = announcer(progress)
     A, B, mask_a, mask_b, first_starts = _first_factorisations(
-        L, S, unit, n_u, n_t, start, seed, max_iter, tell)
+        L, S, w_scale, n_u, n_t, start, seed, max_iter, tell)
     A = np.asfortranarray(A)   # the sweeps update A by columns
 
     # 4-5. joint refinement, then debiasing on the support of J_EE
@@ -860,7 +860,7 @@ def assemble(W_or_dec, *, ei_ratio=None, untuned_share="auto",
         J_EE, n_iter, converged, counts = W.copy(), 0, True, (0, 0)
     else:
         J_EE, n_iter, converged, counts = _refine(
-            W, A, B, mask_a, mask_b, alpha / unit,
+            W, A, B, mask_a, mask_b, alpha / w_scale,
             _allowed(W, dec.observed, ee_support, zero), n_u, max_iter, tol,
             history, progress, tell)
     if not converged:
@@ -875,7 +875,7 @@ def assemble(W_or_dec, *, ei_ratio=None, untuned_share="auto",
         tell("baselines")
         base, base_notes = _scored_baselines(
             W, n_i, J_EE, A, B, n_u, err, dens, seed,
-            (alpha / unit, _allowed(W, dec.observed, ee_support, zero), max_iter,
+            (alpha / w_scale, _allowed(W, dec.observed, ee_support, zero), max_iter,
              tol))
     comparison = comparison_line(err, dens, base) if baselines else ""
     guard = None
@@ -885,12 +885,12 @@ def assemble(W_or_dec, *, ei_ratio=None, untuned_share="auto",
             at most W's positive side: the guard's start."""
             A0, B0 = np.array(A, order="F"), B.copy()
             J0, _, _, _ = _refine(
-                W, A0, B0, mask_a, mask_b, alpha / unit,
+                W, A0, B0, mask_a, mask_b, alpha / w_scale,
                 _allowed(W, dec.observed, ee_support, zero), n_u, max_iter,
                 tol, [], None, tell, cap=np.maximum(W, 0.0))
             return J0, A0, B0
 
-        J_EE, A, B, guard = guarded(W, J_EE, A, B, mask_a, mask_b, unit=unit,
+        J_EE, A, B, guard = guarded(W, J_EE, A, B, mask_a, mask_b, w_scale=w_scale,
                                     start=capped_start, tell=tell)
     if guard is not None:
         err = guard.error_after
@@ -911,7 +911,7 @@ def assemble(W_or_dec, *, ei_ratio=None, untuned_share="auto",
                                    + diagonal + base_notes),
                             restarted=int(first_starts + counts[0]),
                             floored=int(counts[1]),
-                            dropped=_dropped(W, J_EE, unit),
+                            dropped=_dropped(W, J_EE, w_scale),
                             ee_support=ee_support,
                             autapses=audit[0], cancelling_share=audit[1],
                             comparison=comparison, guard=guard,
@@ -925,13 +925,13 @@ def assemble(W_or_dec, *, ei_ratio=None, untuned_share="auto",
               "tol": tol, "seed": seed,
               "n_inhibitory": n_i, "lam": dec.lam, "rank": dec.rank,
               "decomposition_converged": dec.converged}
-    root = np.sqrt(unit)
+    root = np.sqrt(w_scale)
     if no_inhibition:                   # J_EE = W exactly
         J_EE = (np.add(L, S, dtype=float) if own
                 else np.array(W_or_dec, dtype=float))
     else:
-        J_EE *= unit                    # back to W's units, in place
-    with handing_over():                # every block is a new array of ours
+        J_EE *= w_scale                    # back to W's units, in place
+    with adopting_arrays():                # every block is a new array of ours
         return Circuit(J_EE=J_EE,
                        J_EU=A[:, :n_u] * root, J_UE=B[:n_u] * root,
                        J_ET=A[:, n_u:] * root, J_TE=B[n_u:] * root,

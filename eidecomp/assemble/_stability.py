@@ -68,20 +68,20 @@ def _taus(n, n_i, tau_e, tau_i):
     return np.r_[np.full(n, float(tau_e)), np.full(n_i, float(tau_i))]
 
 
-def full_signed(J_EE, A, B, unit=1.0):
+def full_signed(J_EE, A, B, w_scale=1.0):
     """The circuit's signed matrix W_full[post, pre] in W's units, from the
-    blocks in units of max|W| (J_EE times ``unit``, A and B times its
+    blocks in units of max|W| (J_EE times ``w_scale``, A and B times its
     square root, as the assembler scales them back)."""
     n, n_i = A.shape
-    root = np.sqrt(unit)
+    root = np.sqrt(w_scale)
     M = np.zeros((n + n_i, n + n_i))
-    M[:n, :n] = J_EE * unit
+    M[:n, :n] = J_EE * w_scale
     M[:n, n:] = -A * root
     M[n:, :n] = B * root
     return M
 
 
-def abscissa(J_EE, A, B, unit=1.0, tau_e=TAU_E_MS, tau_i=TAU_I_MS):
+def abscissa(J_EE, A, B, w_scale=1.0, tau_e=TAU_E_MS, tau_i=TAU_I_MS):
     """The rightmost real part of the eigenvalues of T^-1 (-I + W_full),
     per ms (dense).
 
@@ -89,7 +89,7 @@ def abscissa(J_EE, A, B, unit=1.0, tau_e=TAU_E_MS, tau_i=TAU_I_MS):
     ...          tau_e=1.0, tau_i=1.0)
     -1.0
     """
-    M = full_signed(J_EE, A, B, unit)
+    M = full_signed(J_EE, A, B, w_scale)
     tau = _taus(*A.shape, tau_e, tau_i)
     J = (M - np.eye(M.shape[0])) / tau[:, None]
     return float(np.linalg.eigvals(J).real.max())
@@ -110,7 +110,7 @@ def penalty_gradient(M, tau, margin):
     return 0.5 * float(hit @ hit), G, float(lam.real.max())
 
 
-def guard(W, J_EE, A, B, mask_a, mask_b, *, unit, margin,
+def guard(W, J_EE, A, B, mask_a, mask_b, *, w_scale, margin,
           tau_e=TAU_E_MS, tau_i=TAU_I_MS):
     """Run the guard on the refined blocks (units of max|W|; W likewise),
     J_EE kept on its support and A, B on ``mask_a``, ``mask_b``. Returns
@@ -118,7 +118,7 @@ def guard(W, J_EE, A, B, mask_a, mask_b, *, unit, margin,
     changed."""
     n, n_i = A.shape
     tau = _taus(n, n_i, tau_e, tau_i)
-    root = np.sqrt(unit)
+    root = np.sqrt(w_scale)
     where = (np.flatnonzero(J_EE > 0), np.flatnonzero(mask_a),
              np.flatnonzero(mask_b))
     sizes = np.cumsum([w.size for w in where])
@@ -136,8 +136,8 @@ def guard(W, J_EE, A, B, mask_a, mask_b, *, unit, margin,
         count[0] += 1
         E, Af, Bf = blocks(x)
         R = W - E + Af @ Bf
-        p, G, _ = penalty_gradient(full_signed(E, Af, Bf, unit), tau, margin)
-        gE = -R / norm + mu * unit * G[:n, :n]
+        p, G, _ = penalty_gradient(full_signed(E, Af, Bf, w_scale), tau, margin)
+        gE = -R / norm + mu * w_scale * G[:n, :n]
         gA = R @ Bf.T / norm - mu * root * G[:n, n:]
         gB = Af.T @ R / norm + mu * root * G[n:, :n]
         grad = np.concatenate([g.flat[w] for g, w
@@ -146,14 +146,14 @@ def guard(W, J_EE, A, B, mask_a, mask_b, *, unit, margin,
 
     x = np.concatenate([blk.flat[w] for blk, w
                         in zip((J_EE, A, B), where, strict=True)])
-    before = abscissa(J_EE, A, B, unit, tau_e, tau_i)
+    before = abscissa(J_EE, A, B, w_scale, tau_e, tau_i)
     for mu in GUARD_PENALTIES:
         x = minimize(value_and_gradient, x, args=(mu,), jac=True,
                      method="L-BFGS-B", bounds=[(0.0, None)] * x.size,
                      options={"maxiter": GUARD_MAX_ITER, "ftol": 1e-12}).x
         E, Af, Bf = blocks(x)
         apply_floor(E, Af, Bf)          # as the refinement ends
-        after = abscissa(E, Af, Bf, unit, tau_e, tau_i)
+        after = abscissa(E, Af, Bf, w_scale, tau_e, tau_i)
         if after < 0:
             break
     nw = np.sqrt(norm)
@@ -176,8 +176,8 @@ def guard_margin(tau_e=TAU_E_MS):
     return STABILITY_MARGIN / tau_e
 
 
-def guarded(W, J_EE, A, B, mask_a, mask_b, *, unit, start, tell=None):
-    """The guard where it applies: W (units of max|W|, times ``unit`` in
+def guarded(W, J_EE, A, B, mask_a, mask_b, *, w_scale, start, tell=None):
+    """The guard where it applies: W (units of max|W|, times ``w_scale`` in
     its own) stable, the refined circuit not stable at the default time
     constants, and at most GUARD_MAX_UNITS units in all. It runs from two
     starts and keeps the stable end with the smaller error (neither stable:
@@ -193,8 +193,8 @@ def guarded(W, J_EE, A, B, mask_a, mask_b, *, unit, start, tell=None):
     n, n_i = A.shape
     if n + n_i > GUARD_MAX_UNITS or not B.any():
         return J_EE, A, B, None
-    w_abscissa = unit * float(np.linalg.eigvals(W).real.max()) - 1.0
-    before = abscissa(J_EE, A, B, unit)
+    w_abscissa = w_scale * float(np.linalg.eigvals(W).real.max()) - 1.0
+    before = abscissa(J_EE, A, B, w_scale)
     if not w_abscissa < -MARGINAL_ABSCISSA or before < 0:
         return J_EE, A, B, None
     error = float(np.linalg.norm(W - J_EE + A @ B)
@@ -207,7 +207,7 @@ def guarded(W, J_EE, A, B, mask_a, mask_b, *, unit, start, tell=None):
     for name, blocks in starts:
         if tell is not None:
             tell(f"stability guard {name}")
-        out = guard(W, *blocks(), mask_a, mask_b, unit=unit,
+        out = guard(W, *blocks(), mask_a, mask_b, w_scale=w_scale,
                     margin=guard_margin())
         evaluations += out[3].evaluations
         if out[3].stable and (best is None

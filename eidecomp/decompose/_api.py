@@ -35,7 +35,7 @@ from ..params import (
     resolve_dtype,
 )
 from ..progress import announcer
-from ..types import Decomposition, OptimalityReport, PathPoint, handing_over
+from ..types import Decomposition, OptimalityReport, PathPoint, adopting_arrays
 from ._certificate import duality_gap, row_blocks, sum_abs
 from ._convex import SOLVERS, ConvexPCP, convex_bytes, largest_convex, solver_name
 from ._ialm import ialm
@@ -122,7 +122,7 @@ def _judged(dec, W, observed, sv):
     support = support_density(dec.sparse, max_abs(W, observed), observed)
     verdict = judge_split(rank, W.shape, support, band, dec.lam,
                           converged=dec.converged)
-    with handing_over():
+    with adopting_arrays():
         return dataclasses.replace(dec, rank=rank, rank_band=band,
                                    support_density=support, verdict=verdict)
 
@@ -176,7 +176,7 @@ def _ialm_decomposition(W, lam, observed, *, tol, max_iter, rho, seed,
                      certificate=info["certificate"],
                      stop=by if info["converged"] else
                      ("residuals" if gap_tol is None else "gap"))
-    with handing_over():  # L and S are this solve's own: no copies
+    with adopting_arrays():  # L and S are this solve's own: no copies
         dec = Decomposition(low_rank=L, sparse=S, rank=len(sv), lam=float(lam),
                             objective=report.objective, n_iter=info["n_iter"],
                             converged=info["converged"], history=tuple(hist),
@@ -431,7 +431,7 @@ def robust_pca(W, *, lam=None, method=METHODS[0], observed=None,
                                int(_check_rank(target_rank, W.shape)))
     _warn_if_stopped(dec)
     if ids is not None:
-        with handing_over():  # the same (read-only) arrays, now labelled
+        with adopting_arrays():  # the same (read-only) arrays, now labelled
             dec = dataclasses.replace(dec, unit_ids=ids)
     return dec
 

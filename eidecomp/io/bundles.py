@@ -56,7 +56,7 @@ from ..types import (
     Circuit,
     Decomposition,
     KernelDecomposition,
-    handing_over,
+    adopting_arrays,
 )
 from . import staging
 from .binary import npy_header, read_npy
@@ -204,7 +204,7 @@ def check_bundle_output(out, kind, *, force=False, inputs=()):
 
 # --- writing ----------------------------------------------------------------------
 
-class _Pending:
+class _BundleWriter:
     """The files of a bundle being written into its temporary folder."""
 
     def __init__(self, tmp):
@@ -249,7 +249,7 @@ def staged_bundle(out, kind, *, force=False, inputs=()):
     """
     with staged_folder(out, force=force, replaceable=replaceable_by(kind),
                        inputs=inputs) as tmp:
-        pending = _Pending(tmp)
+        pending = _BundleWriter(tmp)
         pending.doc = {}
         yield pending
         pending.manifest = pending.seal(kind, pending.doc)
@@ -686,7 +686,7 @@ def read_circuit_bundle(folder):
     _check_circuit_doc(doc, where, circuit.n_excitatory)
     _check_counts(doc, where, circuit)
     if doc.get("unit_ids") is not None:   # checked above: one per E unit
-        with handing_over():              # the blocks just read, now named
+        with adopting_arrays():              # the blocks just read, now named
             circuit = dataclasses.replace(circuit, unit_ids=doc["unit_ids"])
     n, n_w = circuit.n_excitatory, circuit.n_w_units
     extra = {name: _array(folder, doc, f"{name}.npy")
