@@ -448,7 +448,7 @@ def _kernel_rows(result):
             ("objective", _num(s["objective"], ".10g"))]
 
 
-def _factored_rows(result):
+def _dask_rows(result):
     s = result.summary
     return [("engine", f"dask ({s['engine']['scheduler']})"),
             ("shape", _shape(s)), ("lam", _num(s["lam"], ".6g")),
@@ -485,10 +485,10 @@ def _verdict_line(summary):
 
 
 def _summary_table(result):
-    from .io.bundles import FACTORED, KERNEL_DECOMPOSITION
+    from .io.bundles import DASK_DECOMPOSITION, KERNEL_DECOMPOSITION
 
     rows = {KERNEL_DECOMPOSITION: _kernel_rows,
-            FACTORED: _factored_rows}.get(result.kind, _dense_rows)(result)
+            DASK_DECOMPOSITION: _dask_rows}.get(result.kind, _dense_rows)(result)
     s = result.summary
     table = _table(rows + [("iterations", str(s["n_iter"])),
                            ("converged", "yes" if s["converged"] else "NO"),

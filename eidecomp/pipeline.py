@@ -28,8 +28,8 @@ from .io import (
 )
 from .io.bundles import (
     CIRCUIT,
+    DASK_DECOMPOSITION,
     DECOMPOSITION,
-    FACTORED,
     KERNEL_DECOMPOSITION,
     TILED,
     check_bundle_output,
@@ -263,26 +263,26 @@ def _decompose_dask(config, out, progress):
     from .decompose import robust_pca_dask
 
     inputs = _inputs(config.input)
-    check_bundle_output(out, FACTORED, force=config.force, inputs=inputs)
-    with bundles.staged_bundle(out, FACTORED, force=config.force,
+    check_bundle_output(out, DASK_DECOMPOSITION, force=config.force, inputs=inputs)
+    with bundles.staged_bundle(out, DASK_DECOMPOSITION, force=config.force,
                                inputs=inputs) as b:
         dec = robust_pca_dask(config.input, lam=config.lam, tol=config.tol,
                               max_iter=config.max_iter, dtype=config.dtype,
                               scheduler=config.scheduler, seed=config.seed,
                               progress=progress,
                               sparse_out=b.folder / "sparse.npy")
-        for name, factor in zip(FACTORED.required[:3], dec.low_rank_factors,
+        for name, factor in zip(DASK_DECOMPOSITION.required[:3], dec.low_rank_factors,
                                 strict=True):
             b.add(name, np.asarray(factor))
         b.placed("sparse.npy")
-        b.doc = bundles.factored_doc(
+        b.doc = bundles.dask_decomposition_doc(
             dec, source={"path": str(config.input),
                          "sha256": file_checksum(config.input)},
             engine={"name": "dask", "scheduler": config.scheduler
                     or "local cluster, 2 workers"},
             parameters=_parameters(config, ("lam", "tol", "max_iter", "dtype")))
         del dec  # release the memory map of sparse.npy before the rename
-    return DecomposeResult(FACTORED, None, b.manifest, out)
+    return DecomposeResult(DASK_DECOMPOSITION, None, b.manifest, out)
 
 
 def _load_kernel(config):

@@ -5,28 +5,10 @@ and version and holds the SHA-256 of every other file in the folder; the
 readers check the format, the version and every checksum before they use a
 byte, so a changed, swapped or truncated file is refused with one line.
 
-=======================  ==============================  =====================
-kind                     format (manifest)               data files
-=======================  ==============================  =====================
-decomposition            eidecomp-decomposition          low_rank.npy,
-                         (summary.json)                  sparse.npy; optional
-                                                         observed.npy
-factored decomposition   eidecomp-dask-decomposition     low_rank_U.npy,
-                         (summary.json)                  low_rank_s.npy,
-                                                         low_rank_Vt.npy,
-                                                         sparse.npy
-kernel decomposition     eidecomp-kernel-decomposition   low_rank_kernel.npy,
-                         (summary.json)                  sparse_kernel.npy,
-                                                         ranks.npy
-circuit                  eidecomp-circuit                J_EE.npy ... J_TE.npy;
-                         (circuit.json)                  optional low_rank.npy,
-                                                         sparse.npy,
-                                                         features.npy,
-                                                         positions.npy,
-                                                         report.html, inputs
-tiled circuit            eidecomp-tiled-circuit          J_EE_kernel.npy ...
-                         (tiled.json)                    J_TE_kernel.npy
-=======================  ==============================  =====================
+The five kinds are the :class:`BundleKind` constants below (:data:`KINDS`:
+DECOMPOSITION, DASK_DECOMPOSITION, KERNEL_DECOMPOSITION, CIRCUIT, TILED),
+each with its format name, version, manifest and the files it must hold;
+the files a kind may also hold are listed by its writer.
 
 Every array is stored [post, pre] (W[post, pre]: row = target, column =
 source); circuit blocks are nonnegative magnitudes whose sign is that of the
@@ -71,7 +53,7 @@ __all__ = [
     "CIRCUIT_FORMAT",
     "CIRCUIT_VERSION",
     "DECOMPOSITION",
-    "FACTORED",
+    "DASK_DECOMPOSITION",
     "KERNEL_DECOMPOSITION",
     "KINDS",
     "TILED",
@@ -81,14 +63,14 @@ __all__ = [
     "circuit_doc",
     "circuit_files",
     "expect_kind",
-    "factored_doc",
+    "dask_decomposition_doc",
     "identify",
     "json_number",
     "read_bundle",
     "read_circuit",
     "read_circuit_bundle",
     "read_decomposition",
-    "read_factored",
+    "read_dask_decomposition",
     "read_kernel_decomposition",
     "read_tiled",
     "replaceable_by",
@@ -120,8 +102,8 @@ _POST_PRE = "W[post, pre]: row = target, column = source"
 DECOMPOSITION = BundleKind(
     "decomposition", "eidecomp-decomposition", 4, "summary.json",
     ("low_rank.npy", "sparse.npy"), "decomposition folder", _POST_PRE)
-FACTORED = BundleKind(
-    "factored decomposition", "eidecomp-dask-decomposition", 3, "summary.json",
+DASK_DECOMPOSITION = BundleKind(
+    "dask decomposition", "eidecomp-dask-decomposition", 3, "summary.json",
     ("low_rank_U.npy", "low_rank_s.npy", "low_rank_Vt.npy", "sparse.npy"),
     "decomposition folder (dask engine)",
     _POST_PRE + "; L = (U * s) @ Vt from the three low_rank_*.npy factors")
@@ -146,7 +128,7 @@ TILED = BundleKind(
     tuple(f"{b}_kernel.npy" for b in BLOCK_NAMES), "tiled circuit bundle",
     f"{TILED_LAYOUT}; nonnegative magnitudes, the sign the presynaptic "
     "population's")
-KINDS = (DECOMPOSITION, FACTORED, KERNEL_DECOMPOSITION, CIRCUIT, TILED)
+KINDS = (DECOMPOSITION, DASK_DECOMPOSITION, KERNEL_DECOMPOSITION, CIRCUIT, TILED)
 _BY_FORMAT = {k.format: k for k in KINDS}
 CIRCUIT_FORMAT, CIRCUIT_VERSION = CIRCUIT.format, CIRCUIT.version
 
@@ -456,10 +438,10 @@ def _check_split_doc(doc, where, shape):
                          f"{min(shape)} for a {shape[0]} x {shape[1]} matrix")
 
 
-def read_factored(folder):
+def read_dask_decomposition(folder):
     """((U, s, Vt), S, summary) from a dask-engine decomposition folder;
     S is memory-mapped (read only)."""
-    doc = read_bundle(folder, FACTORED)
+    doc = read_bundle(folder, DASK_DECOMPOSITION)
     U = _array(folder, doc, "low_rank_U.npy", ndim=2)
     s = _array(folder, doc, "low_rank_s.npy", ndim=1)
     Vt = _array(folder, doc, "low_rank_Vt.npy", ndim=2)
@@ -818,7 +800,7 @@ def write_decomposition(out, dec, *, source, parameters, unobserved=None,
                         inputs=inputs)
 
 
-def factored_doc(dec, *, source, engine, parameters):
+def dask_decomposition_doc(dec, *, source, engine, parameters):
     """summary.json of a dask-engine folder (its files are placed by the
     solver: see :func:`staged_bundle`)."""
     return {"input": {**source, "shape": list(dec.sparse.shape)},
