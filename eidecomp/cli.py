@@ -15,6 +15,7 @@ from .errors import ConvergenceWarning, InputError, SolverError, WriteError
 from .grammar import parse_integer, parse_number
 from .io.staging import FORCE_RULE
 from .params import (
+    ALPHA_RULE,
     DEFAULT_EE_SUPPORT,
     DEFAULT_EI_RATIO,
     DEFAULT_PERIOD,
@@ -104,7 +105,8 @@ def _add_matrix_options(p):
                    "--lam; default: no search)")
     p.add_argument("--method", choices=METHODS, default=METHODS[0],
                    help=f"{METHODS[0]} (default): the fast ALM solver; "
-                   "convex: the exact convex program (cvxpy; small matrices)")
+                   "convex: the convex program, solved by cvxpy to its "
+                   "solver's tolerance (small matrices)")
     p.add_argument("--solver", choices=SOLVERS, default=SOLVERS[0],
                    type=str.upper, help="cvxpy solver for --method convex "
                    f"(default {SOLVERS[0]})")
@@ -286,8 +288,7 @@ def _get_parser():
                        help="fraction of interneurons that are untuned; 'auto' "
                        "(default) takes the rank of the low-rank part")
         p.add_argument("--alpha", type=_nonnegative_float,
-                       help="weight of ||J_EE||_1 (default 0.02 times the 95th "
-                       "percentile of W's positive entries)")
+                       help=f"weight of ||J_EE||_1 (default {ALPHA_RULE})")
         p.add_argument("--ee-support", choices=EE_SUPPORTS,
                        default=DEFAULT_EE_SUPPORT,
                        help="where J_EE may carry weight: 'positive' (default:"

@@ -321,8 +321,9 @@ def _crossing(growth, a, b, rtol):
     return float(a)
 
 
-def max_stable_tau_ratio(circuit, *, lo=1e-3, hi=1e3, n_grid=13, rtol=1e-4,
-                         method="auto", seed=0):
+def max_stable_tau_ratio(circuit, *, lo=STABILITY_SCAN.lo,
+                         hi=STABILITY_SCAN.hi, n_grid=STABILITY_SCAN.n_grid,
+                         rtol=STABILITY_SCAN.rtol, method="auto", seed=0):
     """Largest tau_I / tau_E up to which the linear circuit stays stable.
 
     Checks ``n_grid`` ratios spaced evenly in log from ``lo`` to ``hi``,
@@ -527,12 +528,12 @@ def stability_summary(circuit, W, *, tau_ratio=None):
     >>> s["original_spectral_abscissa"], s["max_stable_tau_ratio"]
     (-1.5, None)
     """
-    lo, hi, n_grid = STABILITY_SCAN
+    lo, hi, n_grid, rtol = STABILITY_SCAN
     a_orig = spectral_abscissa(np.asarray(W, dtype=float)) - 1.0
     if circuit.own_neurons:
         return _own_stability(circuit, W, a_orig, tau_ratio)
     known = {1.0: circuit_abscissa(circuit)}  # equal taus: on the scan's grid
-    ratio = _stable_ratio(circuit, lo, hi, n_grid, 1e-3, "auto", 0, known)
+    ratio = _stable_ratio(circuit, lo, hi, n_grid, rtol, "auto", 0, known)
     a_circ = known[1.0]
     a_eff = spectral_abscissa(circuit.reconstruction()) - 1.0
     n_total = circuit.n_excitatory + circuit.n_inhibitory
@@ -544,7 +545,8 @@ def stability_summary(circuit, W, *, tau_ratio=None):
             "why": None if tau_ratio is None else instability_line(
                 a_orig, a_eff, ratio, tau_ratio, circuit),
             "note": f"tau_I / tau_E checked at {n_grid} ratios over "
-                    f"[{lo:g}, {hi:g}], the crossing then narrowed to 0.1 %; "
+                    f"[{lo:g}, {hi:g}], the crossing then narrowed to "
+                    f"{100 * rtol:g} %; "
                     "null means stable over the whole range"}
 
 

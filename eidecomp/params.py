@@ -17,6 +17,7 @@ Imports nothing of eidecomp but its errors, so every layer may import it.
 import math
 import re
 from dataclasses import dataclass
+from typing import NamedTuple
 
 import numpy as np
 
@@ -26,7 +27,12 @@ from .grammar import NUMBER_BODY
 __all__ = [
     "AGREEMENT_RTOL",
     "DEFAULT_PERIOD",
+    "ALPHA_DEFAULT",
+    "ALPHA_QUANTILE",
+    "ALPHA_RULE",
     "SETTLE_TIME_CONSTANTS",
+    "STABILITY_SCAN",
+    "StabilityScan",
     "CONNECTION_RTOL",
     "DEFAULT_EI_RATIO",
     "DTYPES",
@@ -395,9 +401,20 @@ def guard_line(metrics):
             f"{g['abscissa_before']:.3g} -> {g['abscissa_after']:.3g} per ms)")
 
 
-STABILITY_SCAN = (1e-2, 1e2, 9)
-"""The largest stable tau_I / tau_E is looked for from, to, over this many
-ratios (then narrowed by bracketed root finding): eidecomp.dynamics."""
+class StabilityScan(NamedTuple):
+    """Where the largest stable tau_I / tau_E is looked for: ``n_grid``
+    ratios spaced evenly in log from ``lo`` to ``hi``, the crossing then
+    narrowed to a factor 1 + ``rtol`` (eidecomp.dynamics.max_stable_tau_ratio)."""
+
+    lo: float
+    hi: float
+    n_grid: int
+    rtol: float
+
+
+STABILITY_SCAN = StabilityScan(lo=1e-2, hi=1e2, n_grid=9, rtol=1e-3)
+"""The scan of every stability summary, refusal and report (our choice: two
+decades either side of equal time constants)."""
 
 
 def tau_ratio_text(stability):
@@ -411,7 +428,7 @@ def tau_ratio_text(stability):
     ...                 "max_stable_tau_ratio": 0.0})
     'unstable at every tau_I/tau_E from 0.01 to 100'
     """
-    lo, hi, _ = STABILITY_SCAN
+    lo, hi = STABILITY_SCAN.lo, STABILITY_SCAN.hi
     ratio = stability.get("max_stable_tau_ratio")
     if stability.get("circuit_spectral_abscissa_equal_taus") is None:
         return "largest stable tau_I/tau_E not computed"
@@ -475,6 +492,17 @@ def labels_caveat(meta, before, after):
         return ""
     return (f"{before}W is not low-rank plus sparse here, so 'untuned' and "
             f"'tuned' only name the two parts of this split{after}")
+
+# --- the assembler's l1 weight on J_EE ---------------------------------------------
+
+ALPHA_DEFAULT = 0.02
+"""The default l1 weight on J_EE, times :data:`ALPHA_QUANTILE` of W's
+positive entries (eidecomp.assemble's default_alpha; our choice)."""
+ALPHA_QUANTILE = 0.95
+"""The quantile of W's positive entries that scales the default alpha."""
+ALPHA_RULE = (f"{ALPHA_DEFAULT:g} times the {ALPHA_QUANTILE:g} quantile of "
+              "W's positive entries")
+"""The default alpha in words, for the command's help and the docs."""
 
 # --- time constants -------------------------------------------------------------
 

@@ -39,14 +39,14 @@ from ..errors import InputError, warn_stopped
 from ..limits import check_fits, dense_input
 from ..names import unit_labels
 from ..params import (
+    ALPHA_DEFAULT,
+    ALPHA_QUANTILE,
     CONNECTION_RTOL,
     DEFAULT_EE_SUPPORT,
     DEFAULT_EI_RATIO,
     EE_SUPPORTS,
+    SUPPORT_RTOL,
     EIRatio,
-)
-from ..params import (
-    SUPPORT_RTOL as SUPPORT_ZERO,
 )
 from ..progress import announcer
 from ..types import (
@@ -87,23 +87,30 @@ from ._support import (
 __all__ = ["assemble", "assembly_bytes", "comparison_line", "dale_columns",
            "equal_density_pairs", "excitation_audit"]
 
-ALPHA_DEFAULT = 0.02   # l1 weight on J_EE, times ALPHA_QUANTILE of W's
-ALPHA_QUANTILE = 0.95  # positive entries (default_alpha)
-TUNED_L1 = 0.005       # l1 weight on the tuned factors, times max(-S) / max|W|
-SUPPORT_RTOL = 1e-6    # factor entries below this x their column max are zero
-START_MARGIN = 1e-9    # the second start must beat the first by this share,
-                       # so rounding (c W for any c) never flips the choice
-SWAP_MAX_UNITS = EXACT_SVD_MAX  # the tuned swap search runs up to this N
-SWAP_SWEEPS = 50       # (each of its trials forms M - A B, N x N)
-RESTART_ROUNDS = 3     # new starts for emptied interneurons, then refinement
-RESTART_RTOL = 1e-3    # a new start needs a piece of unexplained inhibition
-                       # whose largest path is this x max|W| (less is noise)
-
-
-LOSS_MARGIN = 1e-3     # the nmf baseline beats the circuit by more than this in
-                       # relative error at equal density: the report says so
-STAND_IN_EXTRA = 10    # rank of the untuned factorisation's stand-in for
-                       # max(-L, 0): 2 n_u + this
+TUNED_L1 = 0.005
+"""The l1 weight on the tuned factors, times max(-S) / max|W|."""
+FACTOR_ZERO_RTOL = 1e-6
+"""Factor entries below this times their column's largest are zero."""
+START_MARGIN = 1e-9
+"""The second start must beat the first by this share, so that rounding
+(c W for any c) never flips the choice."""
+SWAP_MAX_UNITS = EXACT_SVD_MAX
+"""The tuned swap search runs up to this many units (each of its trials
+forms M - A B, N x N)."""
+SWAP_SWEEPS = 50
+"""Sweeps of each trial of the tuned swap search."""
+RESTART_ROUNDS = 3
+"""Rounds of new starts for emptied interneurons, each followed by a
+refinement."""
+RESTART_RTOL = 1e-3
+"""A new start needs a piece of unexplained inhibition whose largest path
+is this times max|W| (less is noise)."""
+LOSS_MARGIN = 1e-3
+"""The report says the nmf baseline beats the circuit when it does so by
+more than this in relative error at equal density."""
+STAND_IN_EXTRA = 10
+"""The rank of the untuned factorisation's stand-in for max(-L, 0) is
+2 n_u plus this."""
 
 
 def tuned_l1(M_t):
@@ -112,8 +119,8 @@ def tuned_l1(M_t):
 
 
 def default_alpha(W):
-    """The default l1 weight on J_EE: 0.02 times the 95th percentile of W's
-    positive entries (0 when there are none).
+    """The default l1 weight on J_EE: :data:`~eidecomp.params.ALPHA_RULE`
+    (0 when W has no positive entry).
 
     J_EE reproduces W's positive side, so its weight scales with that side,
     not with max|W| (set by the inhibition on planted circuits, and by a few
@@ -190,7 +197,7 @@ def _fill_dead(A, B, scale, rng):
 
 def _support(F, axis):
     peak = F.max(axis=axis, keepdims=True)
-    return F > SUPPORT_RTOL * np.where(peak > 0, peak, np.inf)
+    return F > FACTOR_ZERO_RTOL * np.where(peak > 0, peak, np.inf)
 
 
 def dale_columns(W, zero=0.0):
@@ -272,7 +279,7 @@ def _zero_level(from_split):
     Dale's-law check: 0 for a W given as an array; for L + S of a
     decomposition, params.SUPPORT_RTOL (the split's own support rule), since
     L + S equals W only to the solver's tolerance."""
-    return SUPPORT_ZERO if from_split else 0.0
+    return SUPPORT_RTOL if from_split else 0.0
 
 
 def _allowed(W, observed, ee_support, zero=0.0):
@@ -736,8 +743,8 @@ def assemble(W_or_dec, *, ei_ratio=None, untuned_share="auto",
         Fraction of the interneurons that are untuned; "auto" takes the rank
         of the low-rank part.
     alpha : float or None
-        Weight of ||J_EE||_1; None means :func:`default_alpha` (0.02 times
-        the 95th percentile of W's positive entries).
+        Weight of ||J_EE||_1; None means :func:`default_alpha`
+        (:data:`~eidecomp.params.ALPHA_RULE`).
     ee_support : {"positive", "any"}
         Where J_EE may carry weight (``params.EE_SUPPORTS``): "positive"
         (default), only where W_ij > 0, so no excitation is made that

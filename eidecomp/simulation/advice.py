@@ -72,7 +72,7 @@ def explain(exc, command=None):
         return (f"{head}; its units are W's own neurons, whose dynamics at "
                 f"equal time constants are W's: "
                 f"{_run(command, 'give tau_I = tau_E', tau_i=exc.tau_e)}")
-    lo = STABILITY_SCAN[0]
+    lo = STABILITY_SCAN.lo
     if exc.stable_ratio is not None and exc.stable_ratio >= lo:
         tau_i = round_down(exc.stable_ratio * exc.tau_e)
         return (f"{head}; it is stable up to tau_I/tau_E = "

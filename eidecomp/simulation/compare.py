@@ -24,7 +24,7 @@ from ..dynamics import (
     spectral_abscissa,
 )
 from ..errors import InputError
-from ..params import SETTLE_TIME_CONSTANTS, STABILITY_SCAN
+from ..params import SETTLE_TIME_CONSTANTS
 from .drive import Drive, drive_of
 from .simulators import get_model, get_simulator, segment_length
 
@@ -270,8 +270,7 @@ def _refuse(circuit, W, a_orig, a_circ, gain, tau_e, tau_i):
                        tau_i=tau_i, stable_gain=both)
     ratio = None
     if not circuit.own_neurons:
-        lo, hi, n_grid = STABILITY_SCAN
-        ratio = max_stable_tau_ratio(circuit, lo=lo, hi=hi, n_grid=n_grid)
+        ratio = max_stable_tau_ratio(circuit)
     raise Unstable("circuit", growth=a_circ, gain=gain, tau_e=tau_e,
                    tau_i=tau_i, stable_gain=both, stable_ratio=ratio,
                    own_neurons=circuit.own_neurons)
@@ -292,8 +291,7 @@ def check_stable(circuit, *, gain=1.0, tau_e, tau_i):
         return
     ratio = None
     if not circuit.own_neurons:
-        lo, hi, n_grid = STABILITY_SCAN
-        ratio = max_stable_tau_ratio(scaled, lo=lo, hi=hi, n_grid=n_grid)
+        ratio = max_stable_tau_ratio(scaled)
     g = largest_stable_circuit_gain(scaled, tau_e=tau_e, tau_i=tau_i)
     equal = circuit_abscissa(scaled, tau_e=tau_e, tau_i=tau_e) < 0
     raise Unstable("circuit", growth=a, gain=gain, tau_e=tau_e, tau_i=tau_i,
