@@ -220,6 +220,7 @@ def _add_input(p, matrix_help, kernel_help):
 
 
 def _get_parser():
+    from .decompose import LOCAL_WORKERS
     from .export import FORMATS
     from .io.units import POSITION_UNITS
     from .params import SETTLE_TIME_CONSTANTS as SETTLE
@@ -259,7 +260,7 @@ def _get_parser():
                      "Dask cluster, S and Y kept on disk beside OUT")
     dec.add_argument("--scheduler", metavar="ADDRESS",
                      help="dask scheduler address (default: start a local "
-                     "cluster of two workers)")
+                     f"cluster of {LOCAL_WORKERS} workers)")
     _add_job_options(dec)
     asm = sub.add_parser("assemble", help="Dale's-law circuit from a matrix",
                          description="Build an excitatory / untuned-inhibitory "

@@ -16,7 +16,7 @@ from pathlib import Path
 import numpy as np
 
 from . import datasets, dynamics
-from .decompose import METHODS, SOLVERS
+from .decompose import LOCAL_WORKERS, METHODS, SOLVERS
 from .errors import InputError
 from .io import (
     bundles,
@@ -279,7 +279,7 @@ def _decompose_dask(config, out, progress):
             dec, source={"path": str(config.input),
                          "sha256": file_checksum(config.input)},
             engine={"name": "dask", "scheduler": config.scheduler
-                    or "local cluster, 2 workers"},
+                    or f"local cluster, {LOCAL_WORKERS} workers"},
             parameters=_parameters(config, ("lam", "tol", "max_iter", "dtype")))
         del dec  # release the memory map of sparse.npy before the rename
     return DecomposeResult(DASK_DECOMPOSITION, None, b.manifest, out)

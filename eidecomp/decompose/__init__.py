@@ -19,7 +19,7 @@ from ._api import (
     suggest_lam,
 )
 from ._convex import SOLVERS
-from ._dask_api import DaskDecomposition, robust_pca_dask
+from ._dask_api import LOCAL_WORKERS, DaskDecomposition, robust_pca_dask
 from ._kernel_api import robust_pca_kernel
 from ._svt import leading_triplets
 from ._verdict import judge_split, settled_lam
@@ -34,7 +34,8 @@ def __getattr__(name):
         return RobustPCA
     raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
-__all__ = ["METHODS", "SOLVERS", "DaskDecomposition", "RobustPCA", "default_lam",
+__all__ = ["LOCAL_WORKERS", "METHODS", "SOLVERS", "DaskDecomposition", "RobustPCA",
+           "default_lam",
            "judge_split", "lambda_path", "leading_triplets", "pcp_objective",
            "robust_pca", "robust_pca_dask", "robust_pca_kernel", "settled_lam",
            "suggest_lam"]

@@ -83,8 +83,13 @@ def _source(W, workdir, chunks):
     return str(target), W.shape
 
 
+LOCAL_WORKERS = 2
+"""Workers of the local cluster started when no scheduler is given (one per
+core of the project's 2-core machine), each single-threaded."""
+
+
 def robust_pca_dask(W, *, lam=None, tol=None, max_iter=None, dtype="float64",
-                    scheduler=None, n_workers=2, memory_limit="auto",
+                    scheduler=None, n_workers=LOCAL_WORKERS, memory_limit="auto",
                     chunks=(2000, 2000), seed=0, progress=None, client=None,
                     sparse_out=None, workdir=None):
     """Robust PCA of W on a Dask cluster, with no N x N array in memory.
