@@ -195,17 +195,29 @@ def _suggester(args):
 def _add_job_options(p):
     """--seed, --force and -q: the same for every job that writes a folder."""
     _add_seed(p)
-    p.add_argument("--force", action="store_true", help=FORCE_RULE)
+    _add_force(p)
     _add_quiet(p)
 
 
 def _add_bundle_job(p, target, what):
     """A job that reads a circuit bundle and writes one output."""
     p.add_argument("bundle", metavar="CIRCUIT", help="a circuit bundle folder")
-    p.add_argument("-o", "--output", required=True, metavar=target,
-                   help=f"{what} (must not exist, unless --force)")
-    p.add_argument("--force", action="store_true", help=FORCE_RULE)
+    _add_output(p, target, what)
+    _add_force(p)
     _add_quiet(p)
+
+
+def _add_output(p, metavar, what, default=None):
+    """-o/--output: what the job writes; it must not exist (--force)."""
+    p.add_argument("-o", "--output", required=default is None,
+                   default=default, metavar=metavar,
+                   help=f"{what} (" + ("" if default is None else
+                                       f"default {default}; ")
+                   + "must not exist, unless --force)")
+
+
+def _add_force(p):
+    p.add_argument("--force", action="store_true", help=FORCE_RULE)
 
 
 def _add_input(p, matrix_help, kernel_help):
@@ -247,8 +259,7 @@ def _get_parser():
                      help="periodic (default): structured solver on the "
                      "kernel; zero: expanded to the dense matrix (memory "
                      "permitting)")
-    dec.add_argument("-o", "--output", required=True, metavar="OUT",
-                     help="folder to write (must not exist, unless --force)")
+    _add_output(dec, "OUT", "folder to write")
     _add_matrix_options(dec)
     dec.add_argument("--max-iter", type=_count, metavar="N",
                      help=f"iteration limit (default {MAX_ITER} for the ALM; "
@@ -278,9 +289,7 @@ def _get_parser():
     run.add_argument("matrix", help="W[post, pre] (as for decompose) or "
                      "'example'")
     for p in (asm, run):
-        p.add_argument("-o", "--output", required=True, metavar="CIRCUIT",
-                       help="bundle folder to write (must not exist, unless "
-                       "--force)")
+        _add_output(p, "CIRCUIT", "bundle folder to write")
         p.add_argument("--ei-ratio", metavar="E:I",
                        help="excitatory units per interneuron, e.g. 9:2 "
                        f"(default {DEFAULT_EI_RATIO}; for a W that already "
@@ -359,9 +368,8 @@ def _get_parser():
                           description="Write an invented demo matrix and unit "
                           "table, and run decompose, assemble and report on "
                           "them into one folder.")
-    demo.add_argument("-o", "--output", default="eidecomp-demo", metavar="DIR",
-                      help="folder to write (default eidecomp-demo)")
-    demo.add_argument("--force", action="store_true", help=FORCE_RULE)
+    _add_output(demo, "DIR", "folder to write", default="eidecomp-demo")
+    _add_force(demo)
     _add_quiet(demo)
     sim = sub.add_parser("simulate", help="run the circuit and the original "
                          "network", description="Simulate the circuit's rate "
