@@ -22,7 +22,7 @@ import threading
 import time
 
 __all__ = ["FIRST_AFTER", "LIVE_EVERY", "LOGGER", "LOG_EVERY", "Progress",
-           "announcer"]
+           "announcer", "solver_labeller"]
 
 FIRST_AFTER = 1.0   # seconds of work before the first line
 LIVE_EVERY = 0.5    # seconds between rewrites of the live line (a terminal)
@@ -50,6 +50,27 @@ def announcer(progress):
     if progress is None:
         return lambda stage: LOGGER.info("stage: %s", stage)
     return lambda stage: progress(stage, 0, math.nan)
+
+
+def solver_labeller(callback):
+    """The function that says what a solver's iterations are solving, beside
+    its per-iteration ``callback``: the ``label`` method of the object the
+    callback is bound to when it has one (``Progress.solver`` ->
+    ``Progress.label``, which puts the text in each iteration's line), else
+    the ``eidecomp`` logger at level INFO, so a plain function of the
+    solver's five arguments is never called with a label.
+
+    >>> seen = []
+    >>> class Lines:
+    ...     def solver(self, *args): pass
+    ...     def label(self, text): seen.append(text)
+    >>> solver_labeller(Lines().solver)("target rank 3, lam 0.1")
+    >>> seen
+    ['target rank 3, lam 0.1']
+    >>> solver_labeller(print)("logged: print has no label method")
+    """
+    label = getattr(getattr(callback, "__self__", None), "label", None)
+    return label if callable(label) else announcer(None)
 
 
 class Progress:
@@ -94,6 +115,7 @@ class Progress:
         self.width = 0                 # of the live line on screen
         self.trail = []                # (iteration, time, log10 residual)
         self.current = None            # (text, since when) of the stage
+        self.context = ""              # what the solver solves (label)
         self._lock = threading.Lock()
         self._stop = threading.Event()
         self._beat = None
@@ -105,8 +127,14 @@ class Progress:
         now = self.clock()
         eta = self._eta(it, max(primal, dual), now)
         left = "" if eta is None else f", ~{eta:.0f} s left"
-        self._show(now, f"robust PCA: iteration {it}, primal {primal:.2e}, "
+        self._show(now, f"robust PCA{self.context}: iteration {it}, "
+                        f"primal {primal:.2e}, "
                         f"dual {dual:.2e}, rank {rank}{left}")
+
+    def label(self, text):
+        """What the solver's next iterations solve, named in their lines
+        (``robust PCA, TEXT: iteration ...``); None or "" for none."""
+        self.context = f", {text}" if text else ""
 
     def stage(self, stage, step=0, objective=float("nan")):
         """A stage starts (``step`` 0) or makes a step (a sweep and its

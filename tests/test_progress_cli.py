@@ -70,3 +70,36 @@ def test_simulate_ends_with_a_verdict_and_q_silences_it(piped_demo, capsys):
     last = captured.out.strip().splitlines()[-1]
     assert last.startswith("verdict: the circuit agrees with the original")
     assert f"<= {AGREEMENT_RTOL:g}" in last
+
+
+
+def test_a_target_rank_search_names_the_lam_of_each_iteration_line():
+    """--target-rank: every iteration line names the target and the lam being
+    tried (and the rank the previous lam gave); the lam of the last line is
+    the one returned, whose L has rank 3 by numpy's own count
+    (numpy.linalg.matrix_rank at the reported rank's tolerance) on a planted
+    rank-3 matrix. A clock that moves 10 s a call shows every line."""
+    import re
+
+    import numpy as np
+
+    from eidecomp import robust_pca
+    from eidecomp.datasets import make_planted
+    from eidecomp.params import REPORTED_RANK_RTOL
+
+    W = make_planted(60, rank=3, seed=11)[0]
+    ticks = itertools.count(0.0, 10.0)
+    out = io.StringIO()
+    lines = Progress(out, live=False, clock=lambda: next(ticks))
+    dec = robust_pca(W, target_rank=3, lam=0.02, progress=lines.solver)
+    text = out.getvalue().splitlines()
+    solver_lines = [t for t in text if "robust PCA" in t]
+    assert solver_lines and all("target rank 3, lam " in t for t in solver_lines)
+    lams = [float(x) for x in re.findall(r"target rank 3, lam ([\d.e+-]+)",
+                                          out.getvalue())]
+    assert len(set(lams)) >= 2 and "gave rank" in solver_lines[-1]
+    assert lams[-1] == pytest.approx(dec.lam, rel=1e-3)
+    L = np.asarray(dec.low_rank)
+    s = np.linalg.svd(L, compute_uv=False)
+    assert dec.rank == 3
+    assert np.linalg.matrix_rank(L, tol=REPORTED_RANK_RTOL * s[0]) == 3

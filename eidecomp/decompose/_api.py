@@ -34,7 +34,7 @@ from ..params import (
     default_lam,
     resolve_dtype,
 )
-from ..progress import announcer
+from ..progress import announcer, solver_labeller
 from ..types import Decomposition, OptimalityReport, PathPoint, adopting_arrays
 from ._certificate import duality_gap, row_blocks, sum_abs
 from ._convex import SOLVERS, ConvexPCP, convex_bytes, largest_convex, solver_name
@@ -428,7 +428,8 @@ def robust_pca(W, *, lam=None, method=METHODS[0], observed=None,
             dec, _ = solve(lam)
         else:
             dec = _search_rank(solve, lam,
-                               int(_check_rank(target_rank, W.shape)))
+                               int(_check_rank(target_rank, W.shape)),
+                               tell=solver_labeller(progress))
     _warn_if_stopped(dec)
     if ids is not None:
         with adopting_arrays():  # the same (read-only) arrays, now labelled
@@ -443,14 +444,19 @@ def _check_rank(k, shape):
     return k
 
 
-def _search_rank(solve, lam, k, max_evals=40):
-    """Bisect log(lam) until rank(L) == k; rank grows with lam."""
-    cache = {}
+def _search_rank(solve, lam, k, max_evals=40, tell=lambda text: None):
+    """Bisect log(lam) until rank(L) == k; rank grows with lam. ``tell``
+    names each lam tried, and the rank the last one gave, as progress."""
+    cache, tried = {}, []
 
     def at(lam_):
+        last = (f" (lam {tried[-1].lam:.4g} gave rank {tried[-1].rank})"
+                if tried else "")
+        tell(f"target rank {k}, lam {lam_:.4g}{last}")
         near = min(cache, key=lambda x: abs(math.log(x / lam_)), default=None)
         dec, state = solve(lam_, init=None if near is None else cache[near][1])
         cache[lam_] = (dec, state)
+        tried.append(dec)
         return dec
 
     lo = hi = None
