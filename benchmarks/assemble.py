@@ -21,8 +21,8 @@ total, and assembly / split), the peak resident memory, the relative error
 recovered J_EE support, the mean Jaccard index of the tuned input pools
 matched one to one to the planted ones (scipy's linear_sum_assignment), the
 silent interneurons (no input or no target: an all-zero column of J_EI or
-row of J_IE), the error of baseline (d), a plain nonnegative factorisation
-with the same n_I, and the J_EE density that baseline (b) needs at the
+row of J_IE), the error of the nmf baseline, a plain nonnegative factorisation
+with the same n_I, and the J_EE density that the global baseline needs at the
 circuit's error.
 
 Peak memory is VmHWM of the child (benchmarks/_peak.py). The high-water mark
@@ -173,7 +173,7 @@ def _score(c, truth, W, baselines, steps):
                          circuit_density=r.ee_density,
                          max_iter=c.params["max_iter"])
         b = {x.name: x for x in base}
-        # baseline (d) is not scored above NMF_MAX_UNITS (its own cost)
+        # the nmf baseline is not scored above NMF_MAX_UNITS (its own cost)
         out["nmf_error"] = b["nmf"].relative_error if "nmf" in b else None
         out["global_density"] = b["global@error"].ee_density
     return out

@@ -472,8 +472,9 @@ def _assemble_dense(config, out, progress, stage_progress, extra_files):
                             magnification=config.magnification)
     path = None  # the report's lam path, solved once
     if dec is None:  # every input read and checked: now the work
-        if config.dtype == "float32":   # W is kept for the stability and
-            W = W.astype(np.float32)    # report: at the split's precision
+        # W is kept for the stability and the report at the split's precision
+        if config.dtype == "float32":
+            W = W.astype(np.float32)
         dec = robust_pca(W, lam=config.lam, observed=observed,
                          ignore_diagonal=config.ignore_diagonal, tol=config.tol,
                          target_rank=config.target_rank, method=config.method,

@@ -72,7 +72,7 @@ def test_a_planted_circuit_gets_no_such_note():
 
 
 def _nmf_to_the_measured_stop(M, k):
-    """Baseline (d)'s documented stop (docs/assembly.md, "(d) nmf") written
+    """The nmf baseline's documented stop (docs/assembly.md, "nmf") written
     out over scikit-learn's NMF (solver "cd", nndsvda, its own stop off):
     100 sweeps at a time, each from the last, until the projected gradient
     (Lin 2007, eq. 8, from memory) relative to the data term is at most 1e-3 for both

@@ -470,8 +470,9 @@ def _tuned_fit(M_t, M_sp, A_t, B_t, l1, max_iter, tell):
     A_t, B_t, _ = hals_mixed(M_sp, A_t, B_t, 0, l1=l1, max_iter=max_iter,
                              tol=1e-6, by_cost=True)
     restarted = 0
-    for _ in range(RESTART_ROUNDS):  # the l1 term can empty a pool: start it
-        dead = inactive(A_t, B_t)    # again on the largest piece left
+    # the l1 term can empty a pool: start it again on the largest piece left
+    for _ in range(RESTART_ROUNDS):
+        dead = inactive(A_t, B_t)
         started = restart(_unexplained(M_t, A_t, B_t), A_t, B_t, dead, l1=l1,
                           floor=RESTART_RTOL, copy=False) if dead.size else []
         if not started:
@@ -519,8 +520,8 @@ def _first_factorisations(L, S, w_scale, n_u, n_t, start, seed, max_iter, tell):
     # are made first, while no sparse copy of M_t is held (the greedy start
     # works on a dense copy)
     starts = [("a greedy start", greedy_start(M_t, n_t, l1, RESTART_RTOL))]
-    if max(M_t.shape) <= EXACT_SVD_MAX:  # above, an SVD with N / 4
-        starts.insert(0, ("NNDSVD", nndsvd(M_t, n_t)))  # components costs
+    if max(M_t.shape) <= EXACT_SVD_MAX:  # above, its SVD of N / 4 components
+        starts.insert(0, ("NNDSVD", nndsvd(M_t, n_t)))  # costs too much
     # the sweeps are dense below SPARSE_MIN_UNITS: M_t itself, not a copy
     M_sp = M_t if max(M_t.shape) < SPARSE_MIN_UNITS else sparse.csr_matrix(M_t)
     best = None                          # more than all the rest
@@ -937,7 +938,7 @@ def assemble(W_or_dec, *, ei_ratio=None, untuned_share="auto",
         J_EE = (np.add(L, S, dtype=float) if own
                 else np.array(W_or_dec, dtype=float))
     else:
-        J_EE *= w_scale                    # back to W's units, in place
+        J_EE *= w_scale                 # back to W's units, in place
     with adopting_arrays():                # every block is a new array of ours
         return Circuit(J_EE=J_EE,
                        J_EU=A[:, :n_u] * root, J_UE=B[:n_u] * root,

@@ -118,20 +118,22 @@ with N / 4 components costs about N^3 / 2 per sweep (hours at 10,000
 units), and the report says so."""
 
 
-NMF_MAX_ITER = 5000   # sweeps; a baseline stopped here says so
-NMF_KKT_TOL = 1e-3    # a relative KKT residual above this is not converged
-NMF_CHUNK = 100       # sweeps between two checks of the measured stop
-NMF_STALL = 1e-4      # ... which needs the error to fall by less than this
-                      # share of itself over a chunk (its KKT residual at
-                      # most NMF_KKT_TOL too): on the lateral weights of a
-                      # 512-atom sparse-coding dictionary (128 components)
-                      # scikit-learn's own stop (tol 1e-4) is not met in
-                      # 5,000 sweeps, 45 s, while the error is within 0.02 %
-                      # of its 3,000-sweep value after 1,800
+NMF_MAX_ITER = 5000
+"""Sweeps of the nmf baseline; a baseline stopped here says so."""
+NMF_KKT_TOL = 1e-3
+"""A relative KKT residual above this is not converged."""
+NMF_CHUNK = 100
+"""Sweeps between two checks of the measured stop."""
+NMF_STALL = 1e-4
+"""The measured stop: the error falls by less than this share of itself over
+a chunk, and the KKT residual is at most NMF_KKT_TOL. On the lateral weights
+of a 512-atom sparse-coding dictionary (128 components) scikit-learn's own
+stop (tol 1e-4) is not met in 5,000 sweeps, 45 s, while the error is within
+0.02 % of its 3,000-sweep value after 1,800."""
 
 
 class PlainFit(NamedTuple):
-    """Baseline (d)'s factorisation M ~ A B and how it stopped."""
+    """The nmf baseline's factorisation M ~ A B and how it stopped."""
 
     A: np.ndarray
     B: np.ndarray
@@ -160,7 +162,7 @@ def kkt_residual(M, A, B):
 
 
 def plain_factorisation(M, k, seed=0, max_iter=None):
-    """Baseline (d)'s factorisation M >= 0 ~ A B with k components, a
+    """The nmf baseline's factorisation M >= 0 ~ A B with k components, a
     :class:`PlainFit`: scikit-learn's NMF, solver "cd", init "nndsvda" (a
     seeded random start where NNDSVD is undefined), run NMF_CHUNK sweeps at
     a time, each chunk started from the last (init "custom": the same
@@ -198,10 +200,12 @@ def plain_factorisation(M, k, seed=0, max_iter=None):
 
     try:
         A, model = first("nndsvda")
-    except FloatingPointError:  # NNDSVD divides by a zero norm when M has
-        with np.errstate(divide="ignore", invalid="ignore"):  # fewer nonzero
+    except FloatingPointError:
+        # NNDSVD divides by a zero norm when M has fewer nonzero singular
+        # values than k
+        with np.errstate(divide="ignore", invalid="ignore"):
             A, model = fit_plain("random", min(NMF_CHUNK, budget))
-    B, sweeps = model.components_, model.n_iter_  # singular values than k
+    B, sweeps = model.components_, model.n_iter_
     error = float(np.linalg.norm(M - A @ B))
     kkt = kkt_residual(M, A, B)
     while sweeps < budget and not kkt == 0.0:
@@ -227,9 +231,9 @@ def baselines(W, n_i, *, circuit_error=None, circuit_density=None, seed=0,
 
     Returns a tuple of BaselineResult; with ``circuit_error`` and
     ``circuit_density``, two more rows score (b) and (d) at the circuit's
-    error and density. ``plain``: (d)'s factorisation when the caller has
+    error and density. ``plain``: the nmf baseline's factorisation when the caller has
     it (:func:`plain_factorisation` of max(-W, 0) with ``n_i``);
-    ``max_iter``: (d)'s sweeps (default NMF_MAX_ITER).
+    ``max_iter``: the nmf baseline's sweeps (default NMF_MAX_ITER).
     """
     exact, dens = _exact_rows(W, circuit_error)
     if exact["global"][0] > 1e-9:

@@ -169,9 +169,11 @@ def _omega(M, Y_sp, l1, mask_t):
         cols, rows = np.nonzero(P > l1)
         return rows, cols, P[cols, rows]
     cols, rows = np.nonzero(mask_t.T)
-    lens = np.diff(Y_sp.indptr)[cols]      # the sampled product, from the
-    pos = _ragged(Y_sp.indptr[cols], lens)  # (entry, nonzero of Y) pairs: no
-    owner = np.repeat(np.arange(rows.size), lens)   # more than Y_sp.nnz * m
+    # the sampled product, from the (entry, nonzero of Y) pairs: no more
+    # than Y_sp.nnz * m of them
+    lens = np.diff(Y_sp.indptr)[cols]
+    pos = _ragged(Y_sp.indptr[cols], lens)
+    owner = np.repeat(np.arange(rows.size), lens)
     vals = np.bincount(owner, weights=M[rows[owner], Y_sp.indices[pos]]
                        * Y_sp.data[pos], minlength=rows.size)
     return rows, cols, vals
@@ -440,9 +442,9 @@ def objective_mixed(M, A, B, n_u, l1=0.0, m_norm2=None, parts=None):
     ``parts`` are the tuned parts (A_sp, B_sp) when the caller has them."""
     A_sp, B_sp = tuned_parts(A, B, n_u) if parts is None else parts
     tuned = l1 * (A_sp.sum() + B_sp.sum())
-    if not _is_sparse(M):                # the same identity, dense: no
-        m2 = float(np.vdot(M, M)) if m_norm2 is None else m_norm2  # N x N
-        cross = float(np.vdot(M @ B.T, A))                         # array
+    if not _is_sparse(M):  # the same identity, dense: no N x N array
+        m2 = float(np.vdot(M, M)) if m_norm2 is None else m_norm2
+        cross = float(np.vdot(M @ B.T, A))
         gram = float(np.vdot(A.T @ A, B @ B.T))
         return 0.5 * max(m2 - 2 * cross + gram, 0.0) + tuned
     m2 = float(M.multiply(M).sum()) if m_norm2 is None else m_norm2

@@ -49,7 +49,7 @@ def solver_name(solver):
     return name
 
 
-def convex_bytes(shape, solver="CLARABEL"):
+def convex_bytes(shape, solver=SOLVERS[0]):
     """Bytes one convex PCP solve with ``solver`` needs for a matrix of
     ``shape`` (the measured model above, rounded up).
 
@@ -65,7 +65,7 @@ def convex_bytes(shape, solver="CLARABEL"):
     return int(_CLARABEL_BYTES_PER_D2 * d * d)
 
 
-def largest_convex(limit, solver="CLARABEL"):
+def largest_convex(limit, solver=SOLVERS[0]):
     """The largest n whose n x n convex program fits in ``limit`` bytes.
 
     >>> largest_convex(2**30, "CLARABEL")
@@ -122,7 +122,7 @@ class ConvexPCP:
                                   constraints)
         self.equality = delta is None
 
-    def solve(self, lam, *, solver="CLARABEL", max_iter=None, verbose=False,
+    def solve(self, lam, *, solver=SOLVERS[0], max_iter=None, verbose=False,
               fallback=True):
         """Solve at ``lam``; returns (L, S, Y or None, info).
 
@@ -196,7 +196,7 @@ class ConvexPCP:
 
 
 def solve_convex(W, lam, *, observed=None, delta=None, low_rank_sign=None,
-                 solver="CLARABEL", max_iter=None):
+                 solver=SOLVERS[0], max_iter=None):
     """Build and solve one convex PCP program; see :class:`ConvexPCP`."""
     program = ConvexPCP(W, observed=observed, delta=delta,
                         low_rank_sign=low_rank_sign)

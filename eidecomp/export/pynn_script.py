@@ -318,8 +318,8 @@ def spiking_data(circuit, h=None, *, tau_e=TAU_E_MS, tau_i=TAU_I_MS,
             continue
         k = per_unit[b.post_name]          # the receiving unit sets the scale
         nA = coupling / (gain[k] * tau_syn[k] * 1e-3)
-        if synapse_kind(b) == "inhibitory":  # PyNN's convention: current-
-            nA = -nA                          # based inhibitory weights < 0
+        if synapse_kind(b) == "inhibitory":
+            nA = -nA  # PyNN's convention: current-based inhibitory weights < 0
         data[f"proj_{len(pres)}"] = np.column_stack(
             [j, i, nA * J[i, j], np.full(len(i), float(delay_ms))])
         pres.append(b.pre_name)

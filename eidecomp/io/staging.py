@@ -329,10 +329,13 @@ def _check(out, force, folder, replaceable, inputs, sweep=True):
             raise InputError(f"{out}: already exists; use --force to replace it")
         _check_existing(out, target, folder, replaceable)
     _check_not_inside_ours(out, target)
-    if sweep:                 # only once the write may go ahead: a refusal
-        _sweep(target)        # changes nothing
-        if not existed and os.path.lexists(target):  # a killed run's output,
-            return _check(out, force, folder, replaceable, inputs,  # put back
+    # stale temporaries are swept only once the write may go ahead, so that
+    # a refusal changes nothing; a killed run's output that the sweep put
+    # back is checked again
+    if sweep:
+        _sweep(target)
+        if not existed and os.path.lexists(target):
+            return _check(out, force, folder, replaceable, inputs,
                           sweep=False)
     return target, existed
 
