@@ -43,7 +43,7 @@ def test_the_local_dask_cluster_has_the_size_its_owner_gives():
 
 def test_a_run_lasts_the_time_constants_its_owner_gives():
     text = _text("docs/simulators.md")
-    said = re.findall(r"(?:lasts|length \()(\d+) time constants", text)
+    said = re.findall(r"(?:lasts |length \()(\d+) time constants", text)
     assert len(said) == 2 and {int(n) for n in said} == {SETTLE_TIME_CONSTANTS}
 
 
