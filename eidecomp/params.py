@@ -6,7 +6,7 @@ into one of these objects, which is then passed down:
 
 - :func:`default_lam`, :func:`resolve_tol`, :data:`MAX_ITER`,
   :func:`resolve_dtype` and :class:`SolverSettings`: the robust PCA
-  settings of every engine (dense, kernel, dask);
+  settings of every robust PCA solver (dense, kernel, dask);
 - :class:`EIRatio`: the E:I ratio, parsed once, stored and shown in one form;
 - :data:`TAU_E_MS`, :data:`TAU_I_MS`: the time constants of exports and
   simulations.
@@ -78,7 +78,7 @@ TOL = {"float64": 1e-8, "float32": 1e-6}
 """Default tolerance on the ALM's relative primal and dual residuals, by
 working dtype: float32 residuals bottom out near 1e-7."""
 RANK_RTOL = {"float64": 1e-5, "float32": 1e-3}
-"""The numerical-rank rule of every method and engine (docs/robust_pca.md):
+"""The numerical-rank rule of every method and solver (docs/robust_pca.md):
 a singular value of L at or below RANK_RTOL times the largest is zero, and L
 is truncated to the values above it. A thousand times the dtype's TOL:
 residuals of 1e-8 left L 7e-7 from the planted L0 on one planted matrix

@@ -319,7 +319,7 @@ def test_blas_thread_limit_inside_robust_pca():
         assert _blas_threads() == outside  # and nothing leaks out
 
 
-# --- the kernel engine -------------------------------------------------------------
+# --- the kernel solver -------------------------------------------------------------
 
 
 def _kernel_and_dense(F, grid, seed):
@@ -336,7 +336,7 @@ def _kernel_and_dense(F, grid, seed):
     return kdec, dense, M, balanced
 
 
-def test_kernel_engine_equals_dense_on_a_balancing_problem():
+def test_kernel_solver_equals_dense_on_a_balancing_problem():
     # Reference: the dense ALM on the tiled 90 x 90 matrix (itself checked
     # against Clarabel in the next test and in test_against_cvxpy.py) and
     # numpy's norms of that matrix (pcp_objective).
@@ -349,7 +349,7 @@ def test_kernel_engine_equals_dense_on_a_balancing_problem():
     assert int(kdec.ranks.sum()) == dense.rank
 
 
-def test_kernel_engine_and_dense_match_clarabel():
+def test_kernel_solver_and_dense_match_clarabel():
     # Reference: cvxpy/Clarabel (robust_pca(method="convex")) on the tiled
     # 24 x 24 matrix of a Gaussian kernel, F = 2 on a 4 x 3 torus (a 6 x 5
     # grid gives 90 x 90, beyond Clarabel's time here).

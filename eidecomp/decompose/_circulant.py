@@ -120,7 +120,7 @@ def kernel_ialm(G, lam, *, tol=TOL["float64"], max_iter=MAX_ITER, rho=1.5,
             np.linalg.norm(Y), norm_W, tol=tol, rho=rho, mu_max=mu_max)
         if converged:
             break
-        if q is not None:  # the dense engine's acceleration, on kernels
+        if q is not None:  # the dense solver's acceleration, on kernels
             _accelerate(accel, q, S, Y, mu_was, mu, lam)
     # ranks at every frequency of the full grid: f and -f share a rank
     ranks = np.zeros(grid, int)

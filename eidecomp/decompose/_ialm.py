@@ -85,7 +85,7 @@ _MU_MAX_FACTOR = 1e10  # mu never exceeds this multiple of its start
 
 
 def next_penalty(mu, history, polishing, *, tol, rho, mu_max):
-    """The penalty schedule every ALM engine shares; returns (mu, balancing).
+    """The penalty schedule every ALM solver shares; returns (mu, balancing).
 
     ``history`` holds one row (primal, dual, rank, mu) per step so far.
     Growth by rho for at most ``GROW_STEPS`` steps, or until the primal
@@ -107,7 +107,7 @@ def next_penalty(mu, history, polishing, *, tol, rho, mu_max):
 
 def end_step(history, callback, it, rank, mu, polishing, dY, dS, nY, norm_W,
              *, tol, rho, mu_max):
-    """The end of one ALM step, shared by every engine: the residuals from
+    """The end of one ALM step, shared by every ALM solver: the residuals from
     ||Y+ - Y||, ||S+ - S|| and ||Y+||, the history row, the callback, the
     stopping rule (both residuals below tol) and the penalty schedule.
 
