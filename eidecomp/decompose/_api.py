@@ -276,11 +276,11 @@ def robust_pca(W, *, lam=None, method=METHODS[0], observed=None,
     .. math:: \min_{L, S} \|L\|_* + \lambda \|P_\Omega S\|_1
               \quad \text{s.t.} \quad P_\Omega(L + S) = P_\Omega(W),
 
-    where :math:`\Omega` are the observed entries: all of them unless
-    ``observed`` or ``ignore_diagonal`` leaves some out, and then the
-    problem is Candes, Li, Ma and Wright's (2011) eq. 1.1. With entries
-    left out it is their principal component pursuit with missing entries
-    (their Theorem 1.2, from memory).
+    where :math:`\Omega` are the observed entries. With every entry observed
+    (the default) this is Candes, Li, Ma and Wright's (2011) eq. 1.1; with
+    entries left out (``observed``, ``ignore_diagonal``) it is their
+    principal component pursuit with missing entries (their Theorem 1.2,
+    from memory).
 
     Parameters
     ----------

@@ -1,10 +1,12 @@
-"""Principal Component Pursuit and its variants as exact convex programs (cvxpy).
+"""Principal Component Pursuit and its variants as convex programs, solved by
+cvxpy to the chosen solver's tolerance.
 
 Three programs, all over L, S of W's shape, with Omega the observed entries:
 
-* PCP (Candes, Li, Ma, Wright 2011, eq. 1.1):
+* PCP (Candes, Li, Ma, Wright 2011: eq. 1.1 with every entry observed, their
+  missing-entries program, Theorem 1.2 from memory, with some left out):
   min ||L||_* + lam ||P_Omega S||_1  s.t.  P_Omega(L + S) = P_Omega(W);
-* stable PCP (Zhou, Li, Wright, Candes, Ma 2010, eq. 4):
+* stable PCP (Zhou, Li, Wright, Candes, Ma 2010; the program from memory):
   the same objective s.t. ||P_Omega(W - L - S)||_F <= delta;
 * sign-constrained PCP: PCP with L <= 0 entrywise, a low-rank part that may
   only inhibit (what the circuit builder maps onto interneurons).

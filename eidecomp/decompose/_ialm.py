@@ -1,8 +1,9 @@
 """Principal Component Pursuit by the inexact augmented Lagrange multiplier method.
 
 Solves  min ||L||_* + lam ||P_Omega(S)||_1  subject to  P_Omega(L + S) = P_Omega(W)
-(Candes, Li, Ma, Wright 2011, eq. 1.1; Omega the observed entries) by the inexact
-ALM of Lin, Chen and Ma (2010, arXiv:1009.5055, Algorithm 5):
+(Candes, Li, Ma, Wright 2011: eq. 1.1 with every entry observed; with some left
+out, their missing-entries program, Theorem 1.2 from memory; Omega the observed
+entries) by the inexact ALM of Lin, Chen and Ma (2010, arXiv:1009.5055, Algorithm 5):
 
     L   <- SVT_{1/mu}(W - S + Y/mu)
     S   <- shrink_{lam/mu}(W - L + Y/mu)      (on Omega; off Omega unpenalised)
