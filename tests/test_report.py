@@ -20,13 +20,13 @@ import pytest
 from conftest import require_browser
 
 from eidecomp.analysis import plotting
+from eidecomp.analysis.profiles import Profile, fit_space_constant
 from eidecomp.analysis.report import (
     PATH_LAMS,
     PROFILES_TITLE,
     render_report,
     report_lam_path,
 )
-from eidecomp.analysis.rules import Profile, fit_space_constant
 from eidecomp.cli import main
 from eidecomp.datasets import make_planted_circuit
 
@@ -201,8 +201,8 @@ def test_every_figure_function_returns_its_ax(bundle):
         (plotting.plot_spectrum, (np.array([3.0, 2.0, 1e-9]), 2)),
         (plotting.plot_error_density, (meta["metrics"], meta["baselines"])),
         (plotting.plot_population_graph, (population_graph(c),)),
-        (plotting.plot_rule, (prof, {"sigma": 1.0, "p0": 0.5})),
-        (plotting.plot_rule, (prof, {"sigma": 1.0, "p0": 0.5,
+        (plotting.plot_profile, (prof, {"sigma": 1.0, "p0": 0.5})),
+        (plotting.plot_profile, (prof, {"sigma": 1.0, "p0": 0.5,
                                      "status": "not determined"})),
         (plotting.plot_tuning, ([0.5, 0.7], [0.1, None])),
         (plotting.plot_lambda_path, (report_lam_path(np.load(
@@ -220,15 +220,18 @@ def _sections(page):
 
 
 def test_section_is_called_connection_profiles(bundle):
-    # NEST's documentation (connection management, "Connection Rules") uses
-    # "connection rule" for a wiring algorithm (conn_spec rules one_to_one,
-    # pairwise_bernoulli, ...); the report's binned probabilities are
-    # profiles, the word analysis/rules.py uses (feature_profile,
-    # distance_profile)
+    # NEST's documentation (connection management) calls its wiring
+    # algorithms rules (conn_spec rules one_to_one, pairwise_bernoulli, ...);
+    # the report's binned probabilities are profiles, the word
+    # analysis/profiles.py uses (feature_profile, distance_profile). "Split"
+    # is kept for W = L + S (Candes et al. 2011, eq. 1.1): the parameter row
+    # of the untuned share is its own name
     page = (bundle / "report.html").read_text(encoding="utf-8")
     assert PROFILES_TITLE == "Connection profiles"
     assert PROFILES_TITLE in _sections(page)
-    assert not re.search("connection rules?", page, re.IGNORECASE)
+    assert not re.search(r"connection\s+rules?", page, re.IGNORECASE)
+    rows = re.findall(r"<tr><td>([^<]*)</td>", page)
+    assert "untuned/tuned share rule" in rows and "split rule" not in rows
 
 
 def _distance_profile(sigma, n_pairs, span, seed):

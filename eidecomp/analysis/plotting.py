@@ -6,7 +6,7 @@ backend (the report uses Agg, so no display is needed).
 import numpy as np
 
 __all__ = ["plot_error_density", "plot_lambda_path", "plot_matrix",
-           "plot_population_graph", "plot_rule", "plot_spectrum",
+           "plot_population_graph", "plot_profile", "plot_spectrum",
            "plot_tuning"]
 
 _EXC, _INH, _NEUTRAL = "#b8433a", "#2d6a9f", "#555555"
@@ -167,7 +167,7 @@ def plot_population_graph(ax, P):
     return ax
 
 
-def plot_rule(ax, profile, fit=None, title=""):
+def plot_profile(ax, profile, fit=None, title=""):
     """Connection probability against a binned difference, with a fit.
 
     A Gaussian fit (a ``SpaceConstant`` dict) is drawn solid with its sigma

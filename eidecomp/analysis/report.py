@@ -34,14 +34,14 @@ from ..params import (
 from ..progress import announcer
 from ..types import TUNED, UNTUNED
 from . import plotting
-from .rules import circuit_rules
+from .profiles import circuit_profiles
 from .tuning import interneuron_pools
 
 __all__ = ["PATH_MAX_UNITS", "PROFILES_TITLE", "REPORT_TITLE", "render_report",
            "render_report_files", "report_lam_path", "svg_name"]
 
 REPORT_TITLE = "eidecomp circuit report"  # also how --force tells a report
-PROFILES_TITLE = "Connection profiles"  # not "rules": simulators' word for wiring
+PROFILES_TITLE = "Connection profiles"
 PATH_MAX_UNITS = 600  # the lam path re-solves robust PCA 8 times
 PATH_LAMS = 8  # from a quarter to four times the default lam
 PATH_BREAKDOWN = 0.5  # no larger lam once L holds more than this share of rank
@@ -197,7 +197,7 @@ def _ratio_text(text):
         return str(text)
 
 
-def _figures(circuit, meta, W, L, path_points, rules, cv, tell, svg=False):
+def _figures(circuit, meta, W, L, path_points, profiles, cv, tell, svg=False):
     """(title, base64 PNG, SVG bytes or None) of every figure of the report."""
     from ..graph import population_graph
 
@@ -228,12 +228,12 @@ def _figures(circuit, meta, W, L, path_points, rules, cv, tell, svg=False):
         ax, meta.get("metrics", {}), meta.get("baselines", [])))
     P = population_graph(circuit)
     fig("population graph", lambda ax: plotting.plot_population_graph(ax, P))
-    for cls, row in rules.items():
+    for cls, row in profiles.items():
         if "feature_profile" in row:
-            fig(f"{cls}: feature", lambda ax, r=row, c=cls: plotting.plot_rule(
+            fig(f"{cls}: feature", lambda ax, r=row, c=cls: plotting.plot_profile(
                 ax, r["feature_profile"], title=f"{c}: by feature difference"))
         if "distance_profile" in row:
-            fig(f"{cls}: distance", lambda ax, r=row, c=cls: plotting.plot_rule(
+            fig(f"{cls}: distance", lambda ax, r=row, c=cls: plotting.plot_profile(
                 ax, r["distance_profile"], r.get("space_constant"),
                 title=f"{c}: by distance"))
     if cv is not None:
@@ -244,8 +244,8 @@ def _figures(circuit, meta, W, L, path_points, rules, cv, tell, svg=False):
 
 def _sigma_text(row):
     """sigma [95 % CI] when the data bound it, else what the fit found
-    (analysis.rules.SpaceConstant.status)."""
-    from .rules import DETERMINED, NO_FIT
+    (analysis.profiles.SpaceConstant.status)."""
+    from .profiles import DETERMINED, NO_FIT
 
     sc = row.get("space_constant") or {}
     status = sc.get("status", NO_FIT if sc.get("sigma") is None else DETERMINED)
@@ -316,17 +316,17 @@ def _notes_list(notes):
     return f"<p>Notes:</p><ul>{items}</ul>"
 
 
-def _sections(meta, rules, med, have_units):
-    """The page up to its figures: inputs, assembly, rules, tuning, stability."""
+def _sections(meta, profiles, med, have_units):
+    """The page up to its figures: inputs, assembly, profiles, tuning, stability."""
     met = meta.get("metrics", {})
     c = meta.get("counts", {})
     assembly = [["this circuit", c.get(UNTUNED, 0) + c.get(TUNED, 0),
                  _fmt(met.get("relative_error")), _fmt(met.get("ee_density"))]]
     assembly += [[b["name"], b["n_inhibitory"], _fmt(b["relative_error"]),
                   _fmt(b["ee_density"])] for b in meta.get("baselines", [])]
-    rule_rows = [[cls, _fmt(row["probability"]),
-                  _fmt(row.get("like_to_like_index"), ".3g"), _sigma_text(row)]
-                 for cls, row in rules.items()]
+    profile_rows = [[cls, _fmt(row["probability"]),
+                     _fmt(row.get("like_to_like_index"), ".3g"), _sigma_text(row)]
+                    for cls, row in profiles.items()]
     st = meta.get("stability", {})
     inp = meta.get("input", {})
     par = meta.get("parameters", {})
@@ -345,7 +345,7 @@ def _sections(meta, rules, med, have_units):
             ["unit table", inp.get("units") or "-"],
             ["E:I ratio", _ratio_text(par.get("ei_ratio"))],
             ["untuned share", par.get("untuned_share", "-")],
-            ["split rule", met.get("share_rule", "-")],
+            ["untuned/tuned share rule", met.get("share_rule", "-")],
             ["alpha", _fmt(par.get("alpha"))], ["lam", _fmt(par.get("lam"))],
             ["rank of L", par.get("rank", "-")],
             ["certified duality gap",
@@ -373,7 +373,7 @@ def _sections(meta, rules, med, have_units):
         "times those distances. Interneurons take the feature and position of "
         "their input pool.</p>",
         _table(["class", "probability", "like-to-like", "sigma [95 % CI]"],
-               rule_rows),
+               profile_rows),
         "<h2>Interneuron tuning</h2>",
         "<p>Median circular variance of the input pool: untuned "
         f"{_fmt(med[0], '.3f')}, tuned {_fmt(med[1], '.3f')}"
@@ -443,16 +443,16 @@ def _render(circuit, meta, W, low_rank, features, positions, path_points,
     tell = announcer(progress)
     tell("report: connection profiles")
     period = float(meta.get("parameters", {}).get("period", DEFAULT_PERIOD))
-    rules = circuit_rules(circuit, W, features=features, positions=positions,
-                          period=period)
+    profiles = circuit_profiles(circuit, W, features=features,
+                                positions=positions, period=period)
     pools = interneuron_pools(circuit, features, period)
     cv = {kind: [p["circular_variance"] for p in pools if p["kind"] == kind]
           for kind in (UNTUNED, TUNED)}
-    figs = _figures(circuit, meta, W, low_rank, path_points, rules,
+    figs = _figures(circuit, meta, W, low_rank, path_points, profiles,
                     cv if features is not None else None, tell, svg=svg)
     med = [np.median([x for x in v if x is not None]) if any(
         x is not None for x in v) else None for v in cv.values()]
-    parts = _sections(meta, rules, med, features is not None)
+    parts = _sections(meta, profiles, med, features is not None)
     parts.append("<h2>Figures</h2>")
     parts.append(f"<p>{html.escape(_path_note(path_points, W))}</p>")
     files = {}
@@ -469,7 +469,7 @@ def _render(circuit, meta, W, low_rank, features, positions, path_points,
                      f"src='data:image/png;base64,{data}'><figcaption>"
                      f"{caption}</figcaption></figure>")
     parts.append("<h2>Data</h2><details><summary>connection profiles (JSON)"
-                 "</summary><pre>" + html.escape(json.dumps(rules, indent=1))
+                 "</summary><pre>" + html.escape(json.dumps(profiles, indent=1))
                  + "</pre></details>")
     parts.append(_ONLOAD + "</body></html>")
     return "\n".join(parts), files

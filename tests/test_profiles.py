@@ -1,4 +1,4 @@
-"""Connection rules and circular statistics.
+"""Connection profiles and circular statistics.
 
 References: scipy.stats.circmean and circvar (circular statistics on the
 same data); scipy.optimize.curve_fit inside the space-constant fit is
@@ -21,7 +21,7 @@ from eidecomp.analysis import (
     circular_variance,
     orientation_selectivity,
 )
-from eidecomp.analysis.rules import (
+from eidecomp.analysis.profiles import (
     distance_profile,
     feature_profile,
     fit_space_constant,

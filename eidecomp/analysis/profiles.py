@@ -1,6 +1,6 @@
 """Connection profiles: connection probability and mean weight against the
 difference in preferred feature and against distance, per connection class
-(the report's "Connection profiles"; not a simulator's connection rule).
+(the report's "Connection profiles"; not a simulator's wiring algorithm).
 
 For a block J[post, pre] (nonnegative magnitudes) and a property of the
 post and pre units, every (post, pre) pair falls in one bin of the
@@ -33,7 +33,7 @@ from ..types import active_interneurons
 from .circular import circular_difference
 
 __all__ = ["CLASSES", "DETERMINED", "NOT_DETERMINED", "NO_DECAY", "NO_FIT",
-           "Profile", "SpaceConstant", "circuit_rules", "connection_classes",
+           "Profile", "SpaceConstant", "circuit_profiles", "connection_classes",
            "distance_profile", "feature_profile", "fit_space_constant",
            "like_to_like_index", "space_constant_status"]
 
@@ -265,8 +265,9 @@ def connection_classes(circuit, W):
     return out
 
 
-def circuit_rules(circuit, W, *, features=None, positions=None, period=DEFAULT_PERIOD,
-                  n_feature_bins=6, n_distance_bins=25):
+def circuit_profiles(circuit, W, *, features=None, positions=None,
+                     period=DEFAULT_PERIOD, n_feature_bins=6,
+                     n_distance_bins=25):
     """Connection profiles and fits of every class, as plain dicts (JSON-ready).
 
     Interneurons have no feature or position of their own; each gets the
