@@ -676,7 +676,7 @@ def test_coincident_constructions_are_drawn_apart():
     assert len(markers) == 4                  # and each has its own shape
 
 
-def test_lam_path_text_has_one_owner():
+def test_lam_path_text_has_one_owner(bundle):
     # the report's text about the lam path figure is the one
     # docs/analysis.md holds, and README points there instead of repeating it
     from pathlib import Path
@@ -689,5 +689,8 @@ def test_lam_path_text_has_one_owner():
     readme = " ".join((root / "README.md").read_text().split())
     assert "log-spaced from a quarter" not in readme
     assert "cold-started" not in readme
+    page = (bundle / "report.html").read_text(encoding="utf-8")
+    assert page.count(html.escape(LAM_PATH_TEXT)) == 1
     page = render_report(*_tiny_circuit(), path_points=None)
     assert "lam path: not computed." in page
+    assert html.escape(LAM_PATH_TEXT) not in page

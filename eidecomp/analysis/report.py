@@ -293,11 +293,12 @@ def _counts_text(row):
 
 
 def _path_note(points, W):
-    """What the lam path figure shows, or why it is missing."""
+    """What this lam path did (the figure itself: :data:`LAM_PATH_TEXT`),
+    or why it is missing."""
     if not points:
         return (f"lam path: left out above {PATH_MAX_UNITS} units (it re-solves "
-                f"robust PCA at {PATH_LAMS} lam); eidecomp.lambda_path computes it on "
-                "request." if np.shape(W)[0] > PATH_MAX_UNITS else
+                f"robust PCA at {PATH_LAMS} lam); eidecomp.lambda_path computes "
+                "it on request." if np.shape(W)[0] > PATH_MAX_UNITS else
                 "lam path: not computed.")
     stopped = [p for p in points if not p.converged]
     text = (f"lam path: {len(points)} lam from {points[0].lam:.3g} to "
@@ -314,7 +315,7 @@ def _path_note(points, W):
     if stopped:
         text += (f"; {len(stopped)} stopped before reaching that gap "
                  f"({PATH_GAP_TOL:g}, hollow markers)")
-    return f"{LAM_PATH_TEXT} {text}."
+    return text + "."
 
 
 def _stability_text(st):
@@ -493,6 +494,8 @@ def _render(circuit, meta, W, low_rank, features, positions, path_points,
         x is not None for x in v) else None for v in cv.values()]
     parts = _sections(meta, profiles, med, features is not None)
     parts.append("<h2>Figures</h2>")
+    if path_points:
+        parts.append(f"<p>{html.escape(LAM_PATH_TEXT)}</p>")
     parts.append(f"<p>{html.escape(_path_note(path_points, W))}</p>")
     files = {}
     for k, (title, data, vector) in enumerate(figs, start=1):
