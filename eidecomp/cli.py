@@ -358,7 +358,7 @@ def _get_parser():
     rep = sub.add_parser("report", help="an HTML report of a circuit",
                          description="Write one self-contained HTML file with "
                          "the inputs, parameters, the assembly against the "
-                         "baselines, connection rules, tuning, stability and "
+                         "baselines, connection profiles, tuning, stability and "
                          "figures, and each figure as an SVG file in the "
                          "folder FILE's name without its suffix + '-figures' "
                          "beside it (report.html: report-figures/).")

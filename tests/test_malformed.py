@@ -234,7 +234,15 @@ ROWS = [
      "{d}/u.csv: row 2, column 'feature': -5 is outside [0, 180)"),
     ("units-no-feature", {"w.csv": GOOD, "u.csv": b"id,x\na,0\nb,1\nc,2\n"},
      UNITS,
-     "{d}/u.csv: unit table has no 'feature' column (columns: id, x)"),
+     "{d}/u.csv: unit table has no 'feature' column (no column name is close "
+     "to it)"),
+    # the closest of the user's names (difflib.get_close_matches, Python's
+    # standard library), as spelled
+    ("units-feature-misspelt",
+     {"w.csv": GOOD, "u.csv": b"ID,Featur,Feat_deg,X\na,0,0,0\nb,1,1,1\nc,2,2,2\n"},
+     UNITS,
+     "{d}/u.csv: unit table has no 'feature' column (closest: 'Featur', "
+     "'Feat_deg')"),
     ("units-text-position",
      {"w.csv": GOOD, "u.csv": b"feature,x\n0,1\n60,far\n120,3\n"},
      UNITS,

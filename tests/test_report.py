@@ -3,12 +3,19 @@
 References: headless Chromium (Debian's package) renders the report and
 counts the figures that decoded (naturalWidth > 0); matplotlib draws every
 figure on a Figure with the Agg renderer, and its text extents
-(Text.get_window_extent) say whether labels overlap; scipy.optimize.curve_fit
-gives the space constant's interval independently of eidecomp; the planted
-circuit's tuned and untuned interneurons are compared as in the assembler
-benchmark.
+(Text.get_window_extent) say whether labels overlap, its artists are read
+back for colours, labels, limits and marker positions, and its colour
+conversion (matplotlib.colors.rgb_to_hsv) tells red and blue;
+scipy.optimize.curve_fit gives the space constant's interval independently
+of eidecomp; scipy.stats.binomtest(...).proportion_ci(method="exact"), the
+Clopper & Pearson (1934) interval, gives the error bars and the like-to-like
+bound; numpy counts the connections the population graph labels; the
+planted circuit's tuned and untuned interneurons are compared as in the
+assembler benchmark.
 """
 
+import html
+import json
 import os
 import re
 import subprocess
@@ -20,13 +27,13 @@ import pytest
 from conftest import require_browser
 
 from eidecomp.analysis import plotting
+from eidecomp.analysis.profiles import Profile, fit_space_constant
 from eidecomp.analysis.report import (
     PATH_LAMS,
     PROFILES_TITLE,
     render_report,
     report_lam_path,
 )
-from eidecomp.analysis.rules import Profile, fit_space_constant
 from eidecomp.cli import main
 from eidecomp.datasets import make_planted_circuit
 
@@ -58,6 +65,15 @@ def bundle(tmp_path_factory):
 def test_report_is_self_contained(bundle):
     page = (bundle / "report.html").read_text(encoding="utf-8")
     assert "model hypothesis" in page and "not measurements" in page
+    # the cautions of README ("What the numbers mean, and what they do not"):
+    # hypothesis, identifiability, and what the relative error measures
+    from eidecomp.analysis.report import CAUTIONS
+
+    assert len(CAUTIONS) == 3
+    for text in CAUTIONS:
+        assert html.escape(text) in page
+    assert "cannot be told apart" in CAUTIONS[1]
+    assert "not whether the circuit is biological" in CAUTIONS[2]
     assert not re.search(r"(src|href)=['\"]https?:", page)  # nothing fetched
     assert page.count("data:image/png;base64,") >= 15
     for section in ("Assembly against the baselines", "Connection profiles",
@@ -201,8 +217,8 @@ def test_every_figure_function_returns_its_ax(bundle):
         (plotting.plot_spectrum, (np.array([3.0, 2.0, 1e-9]), 2)),
         (plotting.plot_error_density, (meta["metrics"], meta["baselines"])),
         (plotting.plot_population_graph, (population_graph(c),)),
-        (plotting.plot_rule, (prof, {"sigma": 1.0, "p0": 0.5})),
-        (plotting.plot_rule, (prof, {"sigma": 1.0, "p0": 0.5,
+        (plotting.plot_profile, (prof, {"sigma": 1.0, "p0": 0.5})),
+        (plotting.plot_profile, (prof, {"sigma": 1.0, "p0": 0.5,
                                      "status": "not determined"})),
         (plotting.plot_tuning, ([0.5, 0.7], [0.1, None])),
         (plotting.plot_lambda_path, (report_lam_path(np.load(
@@ -220,15 +236,18 @@ def _sections(page):
 
 
 def test_section_is_called_connection_profiles(bundle):
-    # NEST's documentation (connection management, "Connection Rules") uses
-    # "connection rule" for a wiring algorithm (conn_spec rules one_to_one,
-    # pairwise_bernoulli, ...); the report's binned probabilities are
-    # profiles, the word analysis/rules.py uses (feature_profile,
-    # distance_profile)
+    # NEST's documentation (connection management) calls its wiring
+    # algorithms rules (conn_spec rules one_to_one, pairwise_bernoulli, ...);
+    # the report's binned probabilities are profiles, the word
+    # analysis/profiles.py uses (feature_profile, distance_profile). "Split"
+    # is kept for W = L + S (Candes et al. 2011, eq. 1.1): the parameter row
+    # of the untuned share is its own name
     page = (bundle / "report.html").read_text(encoding="utf-8")
     assert PROFILES_TITLE == "Connection profiles"
     assert PROFILES_TITLE in _sections(page)
-    assert not re.search("connection rules?", page, re.IGNORECASE)
+    assert not re.search(r"connection\s+rules?", page, re.IGNORECASE)
+    rows = re.findall(r"<tr><td>([^<]*)</td>", page)
+    assert "untuned/tuned share rule" in rows and "split rule" not in rows
 
 
 def _distance_profile(sigma, n_pairs, span, seed):
@@ -273,9 +292,10 @@ def test_space_constant_wider_than_the_sheet_is_not_determined():
 
 def test_space_constant_bounded_by_the_data_is_a_number():
     # sigma = 100 um, within the 85-114 um that Levy & Reyes 2012 (J Neurosci
-    # 32:5609) fitted for all cell types in slices of mouse primary auditory
-    # cortex, on many pairs: scipy's interval is narrow and the report shows
-    # "sigma [low, high]" with the same numbers
+    # 32:5609) fitted for all cell types (pyramidal, fast-spiking and
+    # non-fast-spiking interneurons) in slices of mouse primary auditory
+    # cortex, principal input layer, on many pairs: scipy's interval is
+    # narrow and the report shows "sigma [low, high]" with the same numbers
     from eidecomp.analysis.report import _sigma_text
 
     prof = _distance_profile(100.0, 20000, 500.0, seed=4)
@@ -310,6 +330,17 @@ def test_demo_names_its_inputs_by_their_copies_in_the_bundle(tmp_path):
     assert rows == {"matrix": "demo_weights.npy", "unit table": "demo_units.csv"}
     assert (out / rows["matrix"]).is_file() and (out / rows["unit table"]).is_file()
     assert tempfile.gettempdir() + "/tmp" not in page
+
+
+def _tiny_circuit():
+    from eidecomp import assemble
+    from eidecomp.decompose import robust_pca
+
+    W, _, _ = make_planted_circuit(40, n_untuned=2, n_tuned=8, pool=4, seed=0)
+    c = assemble(robust_pca(W), ei_ratio="4:1", baselines=False)
+    meta = {"metrics": {"relative_error": c.report.relative_error,
+                        "ee_density": c.report.ee_density}}
+    return c, meta, W
 
 
 def _overlaps(texts, renderer):
@@ -451,3 +482,215 @@ def test_report_and_circuit_carry_the_verdict_on_the_split(bundle):
     assert page.index("W is low-rank plus sparse") < page.index(
         "<h2>Inputs and parameters</h2>")
     assert "certified duality gap" in page
+
+
+# --- error bars, bounds and colours (issue 30) -------------------------------
+
+def _profiles_json(page):
+    """The connection profiles as the page's Data section gives them."""
+    m = re.search(r"connection profiles \(JSON\)</summary><pre>(.*?)</pre>",
+                  page, re.S)
+    return json.loads(html.unescape(m.group(1)))
+
+
+def _profile_rows(page):
+    """{class: cells} of the connection profiles table."""
+    table = page[page.index(f"<h2>{PROFILES_TITLE}</h2>"):]
+    table = table[:table.index("</table>")]
+    rows = re.findall(r"<tr>(<td>.*?)</tr>", table)
+    cells = [[html.unescape(c) for c in re.findall(r"<td>(.*?)</td>", r)]
+             for r in rows]
+    return {c[0]: c[1:] for c in cells}
+
+
+def test_like_to_like_shows_its_bound_and_counts(tmp_path):
+    # the demo's most selective classes connect no orthogonal pair: the
+    # table shows ">= x", x the same-feature probability over the one-sided
+    # 95 % upper Clopper-Pearson bound of 0/n (scipy.stats.binomtest,
+    # alternative "less"), and the counts k/n of both bins
+    from scipy import stats
+
+    out = tmp_path / "demo"
+    assert main(["demo", "-o", str(out), "-q"]) == 0
+    page = (out / "report.html").read_text(encoding="utf-8")
+    data, rows = _profiles_json(page), _profile_rows(page)
+    bounded = [c for c, r in data.items() if r.get("like_to_like_bound")]
+    assert bounded                      # the demo has such a class
+    for cls, row in data.items():
+        if "like_to_like_counts" not in row:
+            continue
+        k0, n0, k1, n1 = row["like_to_like_counts"]
+        prof = row["feature_profile"]
+        assert [k0, n0, k1, n1] == [prof["n_connected"][0], prof["n_pairs"][0],
+                                    prof["n_connected"][-1], prof["n_pairs"][-1]]
+        assert rows[cls][2] == f"{k0}/{n0}, {k1}/{n1}"
+        if cls in bounded:
+            assert k1 == 0 < k0
+            upper = stats.binomtest(0, n1, alternative="less").proportion_ci(
+                0.95, method="exact").high
+            x = (k0 / n0) / upper
+            assert row["like_to_like_bound"] == pytest.approx(x, rel=1e-9)
+            assert rows[cls][1] == f">= {x:.3g}"
+        assert rows[cls][1] != "-" or k0 == 0 or n1 == 0
+
+
+def test_extrapolated_space_constant_is_marked_in_table_and_figure():
+    # sigma 600 um on distances binned to 400 um: the fit is bounded
+    # (scipy.optimize.curve_fit's interval is narrow) but lies beyond the
+    # binned distances; the table cell and the figure's legend say so
+    from eidecomp.analysis.profiles import extrapolated_text
+    from eidecomp.analysis.report import _sigma_text
+
+    prof = _distance_profile(600.0, 200000, 400.0, seed=5)
+    low, high = _scipy_interval(prof)
+    assert high - low < 400.0 and low > 400.0
+    fit = fit_space_constant(prof)
+    row = {"space_constant": fit.as_dict(), "distance_profile": prof.as_dict()}
+    assert _sigma_text(row) == (f"{fit.sigma:.3g} [{low:.3g}, {high:.3g}], "
+                                f"{extrapolated_text(400.0)}")
+    fig, ax, _ = _drawn("E->E: distance", lambda ax: plotting.plot_profile(
+        ax, row["distance_profile"], row["space_constant"]))
+    labels = [t.get_text() for t in ax.get_legend().get_texts()]
+    assert any(extrapolated_text(400.0) in t for t in labels)
+
+
+def test_profile_figure_has_binomial_error_bars_from_zero():
+    # every bin's bar spans scipy.stats.binomtest(k, n).proportion_ci's
+    # exact (Clopper-Pearson) interval; the probability axis starts at 0
+    from scipy import stats
+
+    prof = _distance_profile(150.0, 40, 500.0, seed=6)
+    _, ax, _ = _drawn("E->E: distance", lambda ax: plotting.plot_profile(
+        ax, prof.as_dict(), fit_space_constant(prof).as_dict()))
+    assert ax.get_ylim()[0] == 0.0
+    bars = [c for c in ax.collections if len(c.get_segments()) == 25]
+    assert len(bars) == 1
+    for seg, k, n in zip(bars[0].get_segments(), prof.n_connected,
+                         prof.n_pairs, strict=True):
+        ref = stats.binomtest(int(k), int(n)).proportion_ci(0.95, method="exact")
+        assert sorted(seg[:, 1]) == pytest.approx([ref.low, ref.high], abs=1e-9)
+
+
+def _hue_is_red_or_blue(color):
+    """Red (hue within 20 degrees of 0) or blue (200-250 degrees), by
+    matplotlib's own conversion; greys (saturation < 0.25) are neither
+    (common practice: the hue bands of the colour wheel)."""
+    from matplotlib.colors import rgb_to_hsv, to_rgb
+
+    h, s, _ = rgb_to_hsv(to_rgb(color))
+    return s >= 0.25 and (h * 360 <= 20 or h * 360 >= 340
+                          or 200 <= h * 360 <= 250)
+
+
+def _artist_colors(ax):
+    from matplotlib.colors import to_hex
+
+    out = set()
+    for line in ax.get_lines():
+        out.add(to_hex(line.get_color()))
+    for coll in ax.collections:
+        for rgba in list(coll.get_facecolors()) + list(coll.get_edgecolors()):
+            if rgba[3] > 0:
+                out.add(to_hex(rgba))
+    for patch in ax.patches:
+        out.add(to_hex(patch.get_facecolor()))
+    return out
+
+
+def test_red_and_blue_mean_excitatory_and_inhibitory_alone(bundle):
+    # the population colours are red (E) and blues (I); every other series
+    # of every figure is drawn in SERIES_COLORS, none red or blue
+    from eidecomp.graph import population_graph
+    from eidecomp.io import read_circuit
+    from eidecomp.types import EXCITATORY, TUNED, UNTUNED
+
+    P_COL, SERIES = plotting.POPULATION_COLORS, plotting.SERIES_COLORS
+    assert _hue_is_red_or_blue(P_COL[EXCITATORY])
+    assert _hue_is_red_or_blue(P_COL[UNTUNED]) and _hue_is_red_or_blue(P_COL[TUNED])
+    assert not any(_hue_is_red_or_blue(c) for c in SERIES)
+    c, meta = read_circuit(bundle)
+    prof = _distance_profile(100.0, 500, 500.0, seed=7)
+    others = [
+        ("spectrum", lambda ax: plotting.plot_spectrum(ax, [3.0, 2.0, 1e-3], 2)),
+        ("lam path", lambda ax: plotting.plot_lambda_path(
+            ax, report_lam_path(np.load(bundle.parent / "w.npy")), 0.09)),
+        ("error against J_EE density", lambda ax: plotting.plot_error_density(
+            ax, meta["metrics"], meta["baselines"])),
+        ("E->E: distance", lambda ax: plotting.plot_profile(
+            ax, prof.as_dict(), fit_space_constant(prof).as_dict())),
+    ]
+    for title, draw in others:
+        _, ax, _ = _drawn(title, draw)
+        axes = ax.figure.axes  # the lam path's twin axis too
+        colors = set().union(*(_artist_colors(a) for a in axes))
+        assert colors and colors <= set(SERIES), (title, colors)
+    _, ax, _ = _drawn("population graph",
+                      lambda ax: plotting.plot_population_graph(
+                          ax, population_graph(c)))
+    assert _artist_colors(ax) <= set(P_COL.values())
+    _, ax, _ = _drawn("interneuron tuning", lambda ax: plotting.plot_tuning(
+        ax, [0.5, 0.7], [0.1, 0.2]))
+    assert _artist_colors(ax) == {P_COL[UNTUNED], P_COL[TUNED]}
+
+
+def test_population_graph_edges_carry_probability_and_count(bundle):
+    # each edge's label: its connection probability and the number of
+    # connections, the nonzeros of the circuit's block (numpy)
+    from eidecomp.graph import population_graph
+    from eidecomp.io import read_circuit
+    from eidecomp.types import BLOCKS
+
+    c, _ = read_circuit(bundle)
+    _, ax, r = _drawn("population graph",
+                      lambda ax: plotting.plot_population_graph(
+                          ax, population_graph(c)))
+    texts = {t.get_text() for t in ax.texts}
+    for b in BLOCKS:
+        J = getattr(c, b.name)
+        k = int(np.count_nonzero(J))
+        if k:
+            assert f"p {k / J.size:.2g}, n {k}" in texts, b.name
+    assert "connection probability" in ax.get_title()
+
+
+def test_coincident_constructions_are_drawn_apart():
+    # three constructions at one point and one elsewhere: matplotlib's own
+    # display positions of the markers (offsets through each collection's
+    # transform) are at least a marker apart, and the far one is where its
+    # data put it
+    rows = [{"name": n, "ee_density": 0.05, "relative_error": 0.14}
+            for n in ("nmf", "nmf@density")]
+    rows.append({"name": "global", "ee_density": 0.99, "relative_error": 0.0})
+    fig, ax, _ = _drawn("error against J_EE density",
+                        lambda ax: plotting.plot_error_density(
+                            ax, {"ee_density": 0.05, "relative_error": 0.14},
+                            rows))
+    shown = [c.get_offset_transform().transform(c.get_offsets())[0]
+             for c in ax.collections]
+    assert len(shown) == 4
+    for a, b in combinations(shown[:3], 2):
+        assert np.hypot(*(a - b)) >= 8.0   # pixels at the report's 90 dpi
+    np.testing.assert_allclose(shown[3], ax.transData.transform((0.99, 0.0)))
+    assert ax.get_legend().get_title().get_text()  # says they are spread
+    markers = {c.get_paths()[0].vertices.tobytes() for c in ax.collections}
+    assert len(markers) == 4                  # and each has its own shape
+
+
+def test_lam_path_text_has_one_owner(bundle):
+    # the report's text about the lam path figure is the one
+    # docs/analysis.md holds, and README points there instead of repeating it
+    from pathlib import Path
+
+    from eidecomp.analysis.report import LAM_PATH_TEXT
+
+    root = Path(__file__).resolve().parent.parent
+    docs = " ".join((root / "docs" / "analysis.md").read_text().split())
+    assert LAM_PATH_TEXT in docs
+    readme = " ".join((root / "README.md").read_text().split())
+    assert "log-spaced from a quarter" not in readme
+    assert "cold-started" not in readme
+    page = (bundle / "report.html").read_text(encoding="utf-8")
+    assert page.count(html.escape(LAM_PATH_TEXT)) == 1
+    page = render_report(*_tiny_circuit(), path_points=None)
+    assert "lam path: not computed." in page
+    assert html.escape(LAM_PATH_TEXT) not in page

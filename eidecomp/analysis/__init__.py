@@ -1,4 +1,4 @@
-"""What a circuit predicts: connection rules, interneuron tuning, figures, the
+"""What a circuit predicts: connection profiles, interneuron tuning, figures, the
 report. plotting.py is the only module that imports matplotlib."""
 
 from .circular import (

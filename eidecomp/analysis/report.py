@@ -34,30 +34,40 @@ from ..params import (
 from ..progress import announcer
 from ..types import TUNED, UNTUNED
 from . import plotting
-from .rules import circuit_rules
+from .profiles import circuit_profiles, extrapolated_text
 from .tuning import interneuron_pools
 
-__all__ = ["PATH_MAX_UNITS", "PROFILES_TITLE", "REPORT_TITLE", "render_report",
-           "render_report_files", "report_lam_path", "svg_name"]
+__all__ = ["CAUTIONS", "LAM_PATH_TEXT", "PATH_MAX_UNITS", "PROFILES_TITLE",
+           "REPORT_TITLE", "render_report", "render_report_files",
+           "report_lam_path", "svg_name"]
 
 REPORT_TITLE = "eidecomp circuit report"  # also how --force tells a report
-PROFILES_TITLE = "Connection profiles"  # not "rules": simulators' word for wiring
+PROFILES_TITLE = "Connection profiles"
 PATH_MAX_UNITS = 600  # the lam path re-solves robust PCA 8 times
 PATH_LAMS = 8  # from a quarter to four times the default lam
 PATH_BREAKDOWN = 0.5  # no larger lam once L holds more than this share of rank
+
+LAM_PATH_TEXT = (
+    f"The lam path figure re-solves robust PCA at {PATH_LAMS} lam, log-spaced "
+    "from a quarter to four times the default 1/sqrt(n), each started from "
+    "its neighbour's solution (or from scratch where that is faster) and "
+    f"stopped at a certified duality gap of {PATH_GAP_TOL:g}. A solve that "
+    "stops before reaching that gap is drawn hollow: its rank and sparsity "
+    "are those of its best certified iterate, not settled. Once a converged "
+    f"solve gives L more than {PATH_BREAKDOWN * 100:g} % of full rank, the split "
+    "has broken down (L holds most of W) and the larger, costlier lams are "
+    f"not solved. The figure is left out above {PATH_MAX_UNITS} units.")
+"""What the lam path figure is: the report shows it under the figures, and
+docs/analysis.md ("The lam path") holds the same text."""
 
 
 def report_lam_path(W, *, progress=None):
     """The lam path drawn in the report, or None above :data:`PATH_MAX_UNITS`.
 
-    Eight lams, log-spaced from a quarter to four times the default
-    1/sqrt(n), solved by :func:`eidecomp.lambda_path` from one to the next
-    (warm starts), each stopped at the certified duality gap of
-    :data:`eidecomp.params.PATH_GAP_TOL` (the rank and support it
-    draws have settled there; docs/robust_pca.md, "The rank"). Once a
-    converged solve gives L more than half of full rank, the split has broken
-    down (L holds most of W) and the larger lams, costlier still, are not
-    solved; the page says so. ``progress`` names each lam.
+    :data:`LAM_PATH_TEXT` says what it is; the lams are solved by
+    :func:`eidecomp.lambda_path` (the rank and support it draws have
+    settled at :data:`eidecomp.params.PATH_GAP_TOL`; docs/robust_pca.md,
+    "The rank"). ``progress`` names each lam.
 
     >>> W = np.random.default_rng(0).standard_normal((30, 30))
     >>> pts = report_lam_path(W)
@@ -96,10 +106,18 @@ def _broken_down(point, W):
     return point.rank > PATH_BREAKDOWN * min(np.shape(W))
 
 
-CAUTION = ("This circuit is a model hypothesis: one of many Dale's-law circuits "
-           "consistent with the matrix it was built from. Its connection "
-           "profiles and interneuron types are predictions to test against "
-           "anatomy and physiology, not measurements.")
+CAUTIONS = (
+    "This circuit is a model hypothesis: one of many Dale's-law circuits "
+    "consistent with the matrix it was built from. Its connection profiles "
+    "and interneuron types are predictions to test against anatomy and "
+    "physiology, not measurements.",
+    "Where excitation and tuned inhibition target the same pairs, W holds "
+    "only their sum there, and the two cannot be told apart "
+    "(docs/assembly.md, identifiability).",
+    "The relative error measures only how well the circuit reproduces W, "
+    "not whether the circuit is biological.",
+)
+"""The cautions at the top of every report, in order."""
 
 _CSS = """body{font-family:sans-serif;max-width:1100px;margin:2em auto;color:#222}
 table{border-collapse:collapse;margin:1em 0}td,th{border:1px solid #bbb;
@@ -118,12 +136,10 @@ _MARGINS = {"left": 0.16, "right": 0.95, "bottom": 0.13, "top": 0.91}
 def _figure(draw, figsize=(5.2, 4.0), **margins):
     """One Axes on a Figure (Agg canvas) with fixed margins, drawn by ``draw``.
 
-    No layout engine: constrained layout measured every text twice and
-    took half of the report's drawing time; the figures are of known shape,
-    so their margins are set here and in :data:`_LAYOUT` (checked on the
-    rendered PNGs and by tests/test_report.py). A fixed title height
-    (axes.titley) skips matplotlib's search for the top of the tick labels,
-    another fifth of the time.
+    No layout engine: the figures are of known shape, so their margins are
+    set here and in :data:`_LAYOUT` (checked by tests/test_report.py), and
+    a fixed title height (axes.titley) places each title without measuring
+    the tick labels below it.
     """
     import matplotlib as mpl
     from matplotlib.backends.backend_agg import FigureCanvasAgg
@@ -197,7 +213,7 @@ def _ratio_text(text):
         return str(text)
 
 
-def _figures(circuit, meta, W, L, path_points, rules, cv, tell, svg=False):
+def _figures(circuit, meta, W, L, path_points, profiles, cv, tell, svg=False):
     """(title, base64 PNG, SVG bytes or None) of every figure of the report."""
     from ..graph import population_graph
 
@@ -228,12 +244,12 @@ def _figures(circuit, meta, W, L, path_points, rules, cv, tell, svg=False):
         ax, meta.get("metrics", {}), meta.get("baselines", [])))
     P = population_graph(circuit)
     fig("population graph", lambda ax: plotting.plot_population_graph(ax, P))
-    for cls, row in rules.items():
+    for cls, row in profiles.items():
         if "feature_profile" in row:
-            fig(f"{cls}: feature", lambda ax, r=row, c=cls: plotting.plot_rule(
+            fig(f"{cls}: feature", lambda ax, r=row, c=cls: plotting.plot_profile(
                 ax, r["feature_profile"], title=f"{c}: by feature difference"))
         if "distance_profile" in row:
-            fig(f"{cls}: distance", lambda ax, r=row, c=cls: plotting.plot_rule(
+            fig(f"{cls}: distance", lambda ax, r=row, c=cls: plotting.plot_profile(
                 ax, r["distance_profile"], r.get("space_constant"),
                 title=f"{c}: by distance"))
     if cv is not None:
@@ -244,8 +260,9 @@ def _figures(circuit, meta, W, L, path_points, rules, cv, tell, svg=False):
 
 def _sigma_text(row):
     """sigma [95 % CI] when the data bound it, else what the fit found
-    (analysis.rules.SpaceConstant.status)."""
-    from .rules import DETERMINED, NO_FIT
+    (analysis.profiles.SpaceConstant.status); a sigma beyond the largest
+    binned distance is marked "extrapolated"."""
+    from .profiles import DETERMINED, NO_FIT
 
     sc = row.get("space_constant") or {}
     status = sc.get("status", NO_FIT if sc.get("sigma") is None else DETERMINED)
@@ -253,22 +270,39 @@ def _sigma_text(row):
         return "-"
     if status != DETERMINED:
         return status
-    return (f"{sc['sigma']:.3g} [{_fmt(sc.get('ci_low'), '.3g')}, "
+    text = (f"{sc['sigma']:.3g} [{_fmt(sc.get('ci_low'), '.3g')}, "
             f"{_fmt(sc.get('ci_high'), '.3g')}]")
+    if sc.get("extrapolated"):
+        text += f", {extrapolated_text(sc['span'])}"
+    return text
+
+
+def _like_text(row):
+    """The like-to-like index; where none of the orthogonal pairs is
+    connected, its lower bound (analysis.profiles.like_to_like_bound) as
+    ">= x"; "-" where it is undefined."""
+    if row.get("like_to_like_bound") is not None:
+        return f">= {row['like_to_like_bound']:.3g}"
+    return _fmt(row.get("like_to_like_index"), ".3g")
+
+
+def _counts_text(row):
+    """Connected / all pairs at the same feature and at the orthogonal one."""
+    c = row.get("like_to_like_counts")
+    return "-" if not c else f"{c[0]}/{c[1]}, {c[2]}/{c[3]}"
 
 
 def _path_note(points, W):
-    """What the lam path figure shows, or why it is missing."""
+    """What this lam path did (the figure itself: :data:`LAM_PATH_TEXT`),
+    or why it is missing."""
     if not points:
         return (f"lam path: left out above {PATH_MAX_UNITS} units (it re-solves "
-                "robust PCA at eight lam); eidecomp.lambda_path computes it on "
-                "request." if np.shape(W)[0] > PATH_MAX_UNITS else
+                f"robust PCA at {PATH_LAMS} lam); eidecomp.lambda_path computes "
+                "it on request." if np.shape(W)[0] > PATH_MAX_UNITS else
                 "lam path: not computed.")
     stopped = [p for p in points if not p.converged]
     text = (f"lam path: {len(points)} lam from {points[0].lam:.3g} to "
-            f"{points[-1].lam:.3g}, each started from its neighbour's solution "
-            "(or from scratch where that was faster) and stopped at a "
-            f"certified duality gap of {PATH_GAP_TOL:g}")
+            f"{points[-1].lam:.3g}")
     grid = _path_lams(W)
     done = len(points)
     if done < len(grid) and np.allclose([p.lam for p in points], grid[:done]):
@@ -280,8 +314,7 @@ def _path_note(points, W):
                     if last.converged else "its last iterate, not converged)"))
     if stopped:
         text += (f"; {len(stopped)} stopped before reaching that gap "
-                 "(hollow markers: the rank and sparsity of the best "
-                 "certified iterate, not settled)")
+                 f"({PATH_GAP_TOL:g}, hollow markers)")
     return text + "."
 
 
@@ -316,17 +349,17 @@ def _notes_list(notes):
     return f"<p>Notes:</p><ul>{items}</ul>"
 
 
-def _sections(meta, rules, med, have_units):
-    """The page up to its figures: inputs, assembly, rules, tuning, stability."""
+def _sections(meta, profiles, med, have_units):
+    """The page up to its figures: inputs, assembly, profiles, tuning, stability."""
     met = meta.get("metrics", {})
     c = meta.get("counts", {})
     assembly = [["this circuit", c.get(UNTUNED, 0) + c.get(TUNED, 0),
                  _fmt(met.get("relative_error")), _fmt(met.get("ee_density"))]]
     assembly += [[b["name"], b["n_inhibitory"], _fmt(b["relative_error"]),
                   _fmt(b["ee_density"])] for b in meta.get("baselines", [])]
-    rule_rows = [[cls, _fmt(row["probability"]),
-                  _fmt(row.get("like_to_like_index"), ".3g"), _sigma_text(row)]
-                 for cls, row in rules.items()]
+    profile_rows = [[cls, _fmt(row["probability"]), _like_text(row),
+                     _counts_text(row), _sigma_text(row)]
+                    for cls, row in profiles.items()]
     st = meta.get("stability", {})
     inp = meta.get("input", {})
     par = meta.get("parameters", {})
@@ -334,7 +367,8 @@ def _sections(meta, rules, med, have_units):
         "<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>",
         f"<title>{REPORT_TITLE}</title>", f"<style>{_CSS}</style>",
         "</head><body>", "<h1>Circuit report</h1>",
-        f"<p class='caution'>{html.escape(CAUTION)}</p>",
+        "<div class='caution'>" + "".join(
+            f"<p>{html.escape(text)}</p>" for text in CAUTIONS) + "</div>",
         *([f"<p><b>{html.escape(met['comparison'])}</b></p>"]
           if met.get("comparison") else []),
         *_verdict_para(meta.get("decomposition", {})),
@@ -345,7 +379,7 @@ def _sections(meta, rules, med, have_units):
             ["unit table", inp.get("units") or "-"],
             ["E:I ratio", _ratio_text(par.get("ei_ratio"))],
             ["untuned share", par.get("untuned_share", "-")],
-            ["split rule", met.get("share_rule", "-")],
+            ["untuned/tuned share rule", met.get("share_rule", "-")],
             ["alpha", _fmt(par.get("alpha"))], ["lam", _fmt(par.get("lam"))],
             ["rank of L", par.get("rank", "-")],
             ["certified duality gap",
@@ -365,15 +399,21 @@ def _sections(meta, rules, med, have_units):
         _notes_list(met.get("notes", ())),
         f"<h2>{PROFILES_TITLE}</h2>",
         "<p>Connection probability per class; like-to-like index = probability "
-        "at the same feature / at the orthogonal one; space constant sigma of a "
+        "at the same feature / at the orthogonal one, with the connected pairs "
+        "of each (k/n); where no orthogonal pair is connected, the lower bound "
+        "'>= x' the counts support: the same-feature probability over the "
+        "one-sided 95 % upper Clopper-Pearson bound of the orthogonal one "
+        "(Clopper &amp; Pearson 1934). Space constant sigma of a "
         "Gaussian fit of probability against distance, with its 95 % interval, "
         "given as a number only where the data bound it: 'not determined' "
         "where the interval is wider than the distances the profile covers or "
         "reaches zero, 'no decay' where the fitted sigma is more than ten "
-        "times those distances. Interneurons take the feature and position of "
-        "their input pool.</p>",
-        _table(["class", "probability", "like-to-like", "sigma [95 % CI]"],
-               rule_rows),
+        "times those distances, 'extrapolated' where it lies beyond the "
+        "largest binned distance (in um). Interneurons take the feature and "
+        "position of their input pool.</p>",
+        _table(["class", "probability", "like-to-like",
+                "connected: same, orthogonal", "sigma [95 % CI]"],
+               profile_rows),
         "<h2>Interneuron tuning</h2>",
         "<p>Median circular variance of the input pool: untuned "
         f"{_fmt(med[0], '.3f')}, tuned {_fmt(med[1], '.3f')}"
@@ -443,17 +483,19 @@ def _render(circuit, meta, W, low_rank, features, positions, path_points,
     tell = announcer(progress)
     tell("report: connection profiles")
     period = float(meta.get("parameters", {}).get("period", DEFAULT_PERIOD))
-    rules = circuit_rules(circuit, W, features=features, positions=positions,
-                          period=period)
+    profiles = circuit_profiles(circuit, W, features=features,
+                                positions=positions, period=period)
     pools = interneuron_pools(circuit, features, period)
     cv = {kind: [p["circular_variance"] for p in pools if p["kind"] == kind]
           for kind in (UNTUNED, TUNED)}
-    figs = _figures(circuit, meta, W, low_rank, path_points, rules,
+    figs = _figures(circuit, meta, W, low_rank, path_points, profiles,
                     cv if features is not None else None, tell, svg=svg)
     med = [np.median([x for x in v if x is not None]) if any(
         x is not None for x in v) else None for v in cv.values()]
-    parts = _sections(meta, rules, med, features is not None)
+    parts = _sections(meta, profiles, med, features is not None)
     parts.append("<h2>Figures</h2>")
+    if path_points:
+        parts.append(f"<p>{html.escape(LAM_PATH_TEXT)}</p>")
     parts.append(f"<p>{html.escape(_path_note(path_points, W))}</p>")
     files = {}
     for k, (title, data, vector) in enumerate(figs, start=1):
@@ -469,7 +511,7 @@ def _render(circuit, meta, W, low_rank, features, positions, path_points,
                      f"src='data:image/png;base64,{data}'><figcaption>"
                      f"{caption}</figcaption></figure>")
     parts.append("<h2>Data</h2><details><summary>connection profiles (JSON)"
-                 "</summary><pre>" + html.escape(json.dumps(rules, indent=1))
+                 "</summary><pre>" + html.escape(json.dumps(profiles, indent=1))
                  + "</pre></details>")
     parts.append(_ONLOAD + "</body></html>")
     return "\n".join(parts), files

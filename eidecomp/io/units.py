@@ -10,6 +10,7 @@ NeuroML2, which cannot carry them.
 """
 
 import csv
+import difflib
 import io as _io
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -95,12 +96,30 @@ def looks_like_unit_table(header):
     return "feature" in names and set(names) <= set(UNIT_COLUMNS)
 
 
-def _check_header(path, header, n_rows, n_units):
+def _missing_feature(path, names):
+    """The one-line refusal of a header without 'feature': the user's column
+    names closest to it (difflib, case ignored), as the user spelled them.
+
+    >>> print(_missing_feature("u.csv", ["ID", "Featur", "X"]).args[0])
+    u.csv: unit table has no 'feature' column (closest: 'Featur')
+    >>> print(_missing_feature("u.csv", ["id", "x"]).args[0])
+    u.csv: unit table has no 'feature' column (no column name is close to it)
+    """
+    spelled = {}
+    for name in names:
+        spelled.setdefault(name.strip().lower(), name.strip())
+    close = difflib.get_close_matches("feature", list(spelled), n=3)
+    said = (f"closest: {', '.join(show_cell(spelled[c]) for c in close)}"
+            if close else "no column name is close to it")
+    return InputError(f"{path}: unit table has no 'feature' column ({said})")
+
+
+def _check_header(path, header, n_rows, n_units, names=None):
     """Refuse a header without 'feature' or with a repeated name, and a
-    table whose number of data rows is not W's number of units."""
+    table whose number of data rows is not W's number of units. ``header``
+    is lowercased; ``names`` are the columns as the user spelled them."""
     if "feature" not in header:
-        raise InputError(f"{path}: unit table has no 'feature' column "
-                         f"(columns: {', '.join(header)})")
+        raise _missing_feature(path, header if names is None else names)
     if len(set(header)) != len(header):
         raise InputError(f"{path}: unit table has a repeated column name")
     if n_rows != n_units:
@@ -174,7 +193,7 @@ def read_units(path, n_units, *, period=DEFAULT_PERIOD):
     path = Path(path)
     header = [c.strip().lower() for c in rows[0]]
     body = rows[1:]
-    _check_header(path, header, len(body), n_units)
+    _check_header(path, header, len(body), n_units, rows[0])
     _check_widths(path, header, body)
     out = {name: _number_column(path, body, header.index(name), name)
            for name in ("feature", "x", "y") if name in header}

@@ -1,6 +1,6 @@
 """Connection profiles: connection probability and mean weight against the
 difference in preferred feature and against distance, per connection class
-(the report's "Connection profiles"; not a simulator's connection rule).
+(the report's "Connection profiles"; not a simulator's wiring algorithm).
 
 For a block J[post, pre] (nonnegative magnitudes) and a property of the
 post and pre units, every (post, pre) pair falls in one bin of the
@@ -15,12 +15,21 @@ connected ones. Self-pairs of a square block (the same unit) are left out.
   (sigma +- 1.96 se). A sigma is reported as a number only when the data
   bound it (``SpaceConstant.status``): an interval wider than the distances
   the profile covers, or reaching zero, is "not determined", and a sigma ten
-  times beyond the largest binned distance is "no decay".
+  times beyond the largest binned distance is "no decay". A sigma beyond
+  the largest binned distance, but not ten times beyond, is marked
+  ``extrapolated``: the fit places it where no pair was binned.
+* Every bin's probability carries its 95 % Clopper-Pearson interval
+  (Clopper & Pearson 1934, Biometrika 26:404), the exact binomial interval
+  that ``scipy.stats.binomtest(k, n).proportion_ci(method="exact")`` gives.
 * Feature: the like-to-like index is the probability in the first bin
   (the same feature) over that in the last (the orthogonal one, half a
-  period away). Pairs with the same preferred orientation connect about
-  twice as often as orthogonal ones in mouse V1 (Ko et al. 2011, Nature
-  473:87), a check value, not an input.
+  period away). Where no orthogonal pair is connected the index has no
+  finite value; :func:`like_to_like_bound` gives the lower bound the counts
+  support, the same-feature probability over the one-sided 95 % upper
+  Clopper-Pearson bound of the orthogonal one (0 of n connected).
+  Pairs with the same preferred orientation connect about twice as often
+  as orthogonal ones in mouse V1 (Ko et al. 2011, Nature 473:87), a check
+  value, not an input.
 """
 
 import warnings
@@ -32,10 +41,44 @@ from ..params import DEFAULT_PERIOD
 from ..types import active_interneurons
 from .circular import circular_difference
 
-__all__ = ["CLASSES", "DETERMINED", "NOT_DETERMINED", "NO_DECAY", "NO_FIT",
-           "Profile", "SpaceConstant", "circuit_rules", "connection_classes",
-           "distance_profile", "feature_profile", "fit_space_constant",
-           "like_to_like_index", "space_constant_status"]
+__all__ = ["CLASSES", "CONFIDENCE", "DETERMINED", "NOT_DETERMINED", "NO_DECAY",
+           "NO_FIT", "Profile", "SpaceConstant", "circuit_profiles",
+           "clopper_pearson", "connection_classes", "distance_profile",
+           "extrapolated_text", "feature_profile", "fit_space_constant",
+           "is_extrapolated", "like_to_like_bound", "like_to_like_index",
+           "space_constant_status"]
+
+CONFIDENCE = 0.95
+"""The confidence level of every interval the profiles give."""
+
+
+def clopper_pearson(k, n, confidence=CONFIDENCE, *, side="two-sided"):
+    """The exact binomial interval of k connected pairs out of n.
+
+    Clopper & Pearson (1934), from beta quantiles: the lower end is the
+    a-quantile of Beta(k, n - k + 1), the upper the (1 - a)-quantile of
+    Beta(k + 1, n - k), with a = (1 - confidence) / 2 (``side``
+    "two-sided") or 1 - confidence (``side`` "upper" or "lower": a one-sided
+    bound, the other end 0 or 1). NaN where n is 0.
+
+    >>> lo, hi = clopper_pearson(0, 20, side="upper")
+    >>> float(lo), round(float(hi), 4)        # 1 - 0.05 ** (1 / 20)
+    (0.0, 0.1391)
+    """
+    from scipy.stats import beta
+
+    k = np.asarray(k, dtype=float)
+    n = np.asarray(n, dtype=float)
+    a = (1.0 - confidence) / (2.0 if side == "two-sided" else 1.0)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        low = np.where(k > 0, beta.ppf(a, k, n - k + 1), 0.0)
+        high = np.where(k < n, beta.ppf(1.0 - a, k + 1, n - k), 1.0)
+    if side == "upper":
+        low = np.zeros_like(low)
+    elif side == "lower":
+        high = np.ones_like(high)
+    empty = n <= 0
+    return np.where(empty, np.nan, low), np.where(empty, np.nan, high)
 
 
 @dataclass(frozen=True)
@@ -53,9 +96,15 @@ class Profile:
     def centers(self):
         return 0.5 * (self.edges[1:] + self.edges[:-1])
 
+    def interval(self):
+        """(low, high): each bin's 95 % Clopper-Pearson interval."""
+        return clopper_pearson(self.n_connected, self.n_pairs)
+
     def as_dict(self):
+        low, high = self.interval()
         return {"quantity": self.quantity, "edges": self.edges.tolist(),
                 "probability": _nan_none(self.probability),
+                "ci_low": _nan_none(low), "ci_high": _nan_none(high),
                 "mean_weight": _nan_none(self.mean_weight),
                 "n_pairs": self.n_pairs.tolist(),
                 "n_connected": self.n_connected.tolist()}
@@ -75,7 +124,8 @@ class SpaceConstant:
     interval lies above zero and is no wider than ``span``, the largest
     distance the profile covers), ``"not determined"`` (wider, reaching
     zero, or no interval), ``"no decay"`` (sigma beyond ten times ``span``:
-    flat over the sheet) or ``"no fit"``.
+    flat over the sheet) or ``"no fit"``. ``extrapolated`` is True where a
+    finite sigma lies beyond ``span`` (:func:`is_extrapolated`).
     """
 
     sigma: float
@@ -86,6 +136,7 @@ class SpaceConstant:
     message: str = ""
     span: float = float("nan")
     status: str = NO_FIT
+    extrapolated: bool = False
 
     def as_dict(self):
         return {k: (None if isinstance(v, float) and not np.isfinite(v) else v)
@@ -203,7 +254,26 @@ def fit_space_constant(profile):
     note = "; ".join(dict.fromkeys(str(w.message) for w in caught))
     low, high, span = sigma - 1.96 * err, sigma + 1.96 * err, top
     return SpaceConstant(sigma, low, high, float(p0), bool(np.isfinite(err)),
-                         note, span, space_constant_status(sigma, low, high, span))
+                         note, span, space_constant_status(sigma, low, high, span),
+                         is_extrapolated(sigma, span))
+
+
+def extrapolated_text(span):
+    """How the report and its figures mark an extrapolated sigma.
+
+    >>> extrapolated_text(410.0)
+    'extrapolated: binned only to 410 um'
+    """
+    return f"extrapolated: binned only to {span:.3g} um"
+
+
+def is_extrapolated(sigma, span):
+    """Whether a fitted sigma lies beyond the largest binned distance.
+
+    >>> is_extrapolated(523.0, 410.0), is_extrapolated(100.0, 500.0)
+    (True, False)
+    """
+    return bool(np.isfinite(sigma) and np.isfinite(span) and sigma > span)
 
 
 def space_constant_status(sigma, ci_low, ci_high, span):
@@ -230,6 +300,28 @@ def like_to_like_index(profile):
     if not np.isfinite(first) or not np.isfinite(last) or last == 0:
         return float("inf") if np.isfinite(first) and first > 0 else float("nan")
     return float(first / last)
+
+
+def like_to_like_bound(profile, confidence=CONFIDENCE):
+    """The lower bound of the like-to-like index where it is infinite.
+
+    With k > 0 of the same-feature pairs connected and none of the n
+    orthogonal ones, the index is at least the same-feature probability
+    over the one-sided ``confidence`` upper Clopper-Pearson bound of the
+    orthogonal probability, 1 - (1 - confidence) ** (1 / n). None where the
+    index is finite or undefined.
+
+    >>> edges = np.array([0.0, 45.0, 90.0])
+    >>> prof = Profile(edges, np.array([0.3, 0.0]), np.ones(2),
+    ...                np.array([100, 100]), np.array([30, 0]))
+    >>> round(like_to_like_bound(prof), 2)      # 0.3 / (1 - 0.05 ** 0.01)
+    10.16
+    """
+    if like_to_like_index(profile) != float("inf"):
+        return None
+    n_orth = int(profile.n_pairs[-1])
+    _, high = clopper_pearson(0, n_orth, confidence, side="upper")
+    return float(profile.probability[0] / high)
 
 
 CLASSES = ("E->E", "E->I_untuned", "I_untuned->E", "E->I_tuned",
@@ -265,8 +357,9 @@ def connection_classes(circuit, W):
     return out
 
 
-def circuit_rules(circuit, W, *, features=None, positions=None, period=DEFAULT_PERIOD,
-                  n_feature_bins=6, n_distance_bins=25):
+def circuit_profiles(circuit, W, *, features=None, positions=None,
+                     period=DEFAULT_PERIOD, n_feature_bins=6,
+                     n_distance_bins=25):
     """Connection profiles and fits of every class, as plain dicts (JSON-ready).
 
     Interneurons have no feature or position of their own; each gets the
@@ -306,6 +399,10 @@ def circuit_rules(circuit, W, *, features=None, positions=None, period=DEFAULT_P
             row["feature_profile"] = prof.as_dict()
             idx = like_to_like_index(prof)
             row["like_to_like_index"] = idx if np.isfinite(idx) else None
+            row["like_to_like_bound"] = like_to_like_bound(prof)
+            row["like_to_like_counts"] = [
+                int(prof.n_connected[0]), int(prof.n_pairs[0]),
+                int(prof.n_connected[-1]), int(prof.n_pairs[-1])]
         pp, pq = prop(post, positions, p_i), prop(pre, positions, p_i)
         if pp is not None and J.size:
             ok_post = np.isfinite(pp).all(axis=1)
