@@ -162,3 +162,86 @@ def test_space_constant_beyond_the_binned_distances_is_extrapolated():
     inside = fit_space_constant(Profile(edges, k / n, np.ones(25), n, k))
     assert inside.status == "determined" and inside.sigma < 400.0
     assert not inside.extrapolated
+
+
+# --- the space constant's likelihood, dispersion and lack of fit ----------------
+
+
+def _gaussian_bins(p0, sigma, n_pairs, seed, top=400.0, n_bins=20, draw=None):
+    edges = np.linspace(0.0, top, n_bins + 1)
+    d = 0.5 * (edges[1:] + edges[:-1])
+    n = np.full(n_bins, n_pairs)
+    mean = p0 * np.exp(-d ** 2 / (2 * sigma ** 2))
+    rng = np.random.default_rng(seed)
+    k = rng.binomial(n, mean) if draw is None else draw(n, mean, rng)
+    return Profile(edges, k / n, np.ones(n_bins), n, k, "distance (um)"), d, k, n
+
+
+def test_the_space_constant_maximises_the_binomial_likelihood():
+    """The fit's (p0, sigma) maximise the log-likelihood of the binned counts
+    as scipy.stats.binom gives it: no point of a fine grid around it
+    (scipy.optimize.brute) does better."""
+    from scipy.optimize import brute
+    from scipy.stats import binom
+
+    prof, d, k, n = _gaussian_bins(0.4, 120.0, 300, seed=3)
+    fit = fit_space_constant(prof)
+
+    def nll(theta):
+        p = theta[0] * np.exp(-d ** 2 / (2 * theta[1] ** 2))
+        return -float(binom.logpmf(k, n, np.clip(p, 1e-12, 1 - 1e-12)).sum())
+
+    grid = brute(nll, ((fit.p0 * 0.9, fit.p0 * 1.1), (fit.sigma * 0.9,
+                                                       fit.sigma * 1.1)),
+                 Ns=41, finish=None)
+    assert nll((fit.p0, fit.sigma)) <= nll(grid) + 1e-9
+    assert fit.sigma == pytest.approx(120.0, rel=0.1)
+    assert not fit.lack_of_fit and fit.dispersion < 2.0
+
+
+def test_overdispersed_bins_widen_the_interval_and_keep_the_truth_inside():
+    """Bins drawn from a beta-binomial around the same Gaussian
+    (scipy.stats.betabinom, intra-bin correlation 0.05): Pearson's X^2 is
+    improbable under the binomial model, the fit says so, and the interval,
+    widened by the dispersion, still holds the sigma the bins were drawn
+    with (McCullagh & Nelder 1989's quasi-binomial correction, from
+    memory)."""
+    from scipy.stats import betabinom
+
+    rho = 0.05
+
+    def draw(n, mean, rng):
+        a, b = mean * (1 / rho - 1), (1 - mean) * (1 / rho - 1)
+        return betabinom.rvs(n, a, b, random_state=rng)
+
+    prof, *_ = _gaussian_bins(0.4, 120.0, 2000, seed=5, draw=draw)
+    fit = fit_space_constant(prof)
+    assert fit.lack_of_fit and fit.dispersion > 10
+    assert fit.ci_low < 120.0 < fit.ci_high
+
+
+def test_a_profile_that_is_no_gaussian_is_flagged_in_the_report_and_figure():
+    """A near-certain first bin and a flat 0.4 beyond, the shape of the E->E
+    profile of photograph-patch weights: the Gaussian misses the bins, and
+    the report's sigma and the figure's legend say so (matplotlib's legend,
+    read back)."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    from matplotlib.figure import Figure
+
+    from eidecomp.analysis.plotting import plot_profile
+    from eidecomp.analysis.profiles import LACK_OF_FIT_TEXT
+    from eidecomp.analysis.report import _sigma_text
+
+    edges = np.linspace(0.0, 500.0, 11)
+    n = np.full(10, 3000)
+    k = np.r_[2990, np.full(9, 1200)]
+    prof = Profile(edges, k / n, np.ones(10), n, k, "distance (um)")
+    fit = fit_space_constant(prof)
+    assert fit.lack_of_fit and "Pearson X^2" in fit.message
+    assert LACK_OF_FIT_TEXT in _sigma_text({"space_constant": fit.as_dict()})
+    ax = Figure().subplots()
+    plot_profile(ax, prof.as_dict(), fit.as_dict())
+    labels = [t.get_text() for t in ax.get_legend().get_texts()]
+    assert any(LACK_OF_FIT_TEXT in label for label in labels)

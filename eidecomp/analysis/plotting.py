@@ -11,7 +11,7 @@ holds neither.
 import numpy as np
 
 from ..types import EXCITATORY, TUNED, UNTUNED
-from .profiles import extrapolated_text
+from .profiles import LACK_OF_FIT_TEXT, extrapolated_text
 
 __all__ = ["POPULATION_COLORS", "SERIES_COLORS", "plot_error_density",
            "plot_lambda_path", "plot_matrix", "plot_population_graph",
@@ -249,7 +249,8 @@ def plot_profile(ax, profile, fit=None, title=""):
     starts at 0. A Gaussian fit (a ``SpaceConstant`` dict) is drawn solid
     with its sigma when its status is "determined", dashed and labelled
     otherwise; a sigma beyond the largest binned distance is labelled
-    "extrapolated".
+    "extrapolated", and a fit the bins reject (``lack_of_fit``) is drawn
+    dotted and says so.
     """
     centers = 0.5 * (np.asarray(profile["edges"][1:]) +
                      np.asarray(profile["edges"][:-1]))
@@ -270,9 +271,12 @@ def plot_profile(ax, profile, fit=None, title=""):
                      status, f"Gaussian fit: sigma {status}")
         if status == "determined" and fit.get("extrapolated"):
             label += f"\n{extrapolated_text(top)}"
+        if fit.get("lack_of_fit"):
+            label += f"\n{LACK_OF_FIT_TEXT}"
+        style = (":" if fit.get("lack_of_fit") else
+                 "-" if status == "determined" else "--")
         ax.plot(d, fit["p0"] * np.exp(-d ** 2 / (2 * fit["sigma"] ** 2)),
-                color=_FIT, ls="-" if status == "determined" else "--",
-                label=label)
+                color=_FIT, ls=style, label=label)
     if fit or "ci_low" in profile:
         ax.legend(fontsize=8)
     shown = np.concatenate([p, _floats(profile.get("ci_high", [])),

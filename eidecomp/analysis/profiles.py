@@ -9,15 +9,21 @@ fraction of pairs with J > 0 and the mean weight the mean of J over the
 connected ones. Self-pairs of a square block (the same unit) are left out.
 
 * Distance: p(d) = p0 exp(-d^2 / (2 sigma^2)) is fitted to the binned
-  probabilities by weighted least squares (scipy.optimize.curve_fit, each
-  bin weighted by its binomial standard error), giving the space constant
-  sigma with a 95 % confidence interval from the fit's covariance
-  (sigma +- 1.96 se). A sigma is reported as a number only when the data
-  bound it (``SpaceConstant.status``): an interval wider than the distances
-  the profile covers, or reaching zero, is "not determined", and a sigma ten
-  times beyond the largest binned distance is "no decay". A sigma beyond
-  the largest binned distance, but not ten times beyond, is marked
-  ``extrapolated``: the fit places it where no pair was binned.
+  counts by binomial maximum likelihood (k connected of n pairs in each
+  bin; common practice for a probability curve), giving the space constant
+  sigma with a 95 % confidence interval sigma +- 1.96 se from the inverse
+  Fisher information, widened by the dispersion phi = X^2 / (bins - 2)
+  when phi > 1 (X^2 Pearson's statistic of the fit; the quasi-binomial
+  correction of McCullagh & Nelder 1989, Generalized Linear Models, from
+  memory). Where X^2 is improbable under the binomial model
+  (:data:`LACK_OF_FIT_P`) the Gaussian does not describe the bins and the
+  fit says so (``SpaceConstant.lack_of_fit``). A sigma is reported as a
+  number only when the data bound it (``SpaceConstant.status``): an
+  interval wider than the distances the profile covers, or reaching zero,
+  is "not determined", and a sigma ten times beyond the largest binned
+  distance is "no decay". A sigma beyond the largest binned distance, but
+  not ten times beyond, is marked ``extrapolated``: the fit places it where
+  no pair was binned.
 * Every bin's probability carries its 95 % Clopper-Pearson interval
   (Clopper & Pearson 1934, Biometrika 26:404), the exact binomial interval
   that ``scipy.stats.binomtest(k, n).proportion_ci(method="exact")`` gives.
@@ -28,8 +34,9 @@ connected ones. Self-pairs of a square block (the same unit) are left out.
   support, the same-feature probability over the one-sided 95 % upper
   Clopper-Pearson bound of the orthogonal one (0 of n connected).
   Pairs with the same preferred orientation connect about twice as often
-  as orthogonal ones in mouse V1 (Ko et al. 2011, Nature 473:87), a check
-  value, not an input.
+  as orthogonal ones among layer 2/3 pyramidal cells of mouse V1 (Ko et
+  al. 2011, Nature, doi:10.1038/nature09880; the factor from memory), a
+  check value, not an input.
 """
 
 import warnings
@@ -42,7 +49,8 @@ from ..types import active_interneurons
 from .circular import circular_difference
 
 __all__ = ["CLASSES", "CONFIDENCE", "DETERMINED", "NOT_DETERMINED", "NO_DECAY",
-           "NO_FIT", "Profile", "SpaceConstant", "circuit_profiles",
+           "LACK_OF_FIT_P", "LACK_OF_FIT_TEXT", "NO_FIT", "Profile", "SpaceConstant",
+           "circuit_profiles",
            "clopper_pearson", "connection_classes", "distance_profile",
            "extrapolated_text", "feature_profile", "fit_space_constant",
            "is_extrapolated", "like_to_like_bound", "like_to_like_index",
@@ -114,6 +122,10 @@ class Profile:
 DETERMINED, NOT_DETERMINED, NO_DECAY, NO_FIT = (
     "determined", "not determined", "no decay", "no fit")
 NO_DECAY_FACTOR = 10.0  # sigma beyond this many times the largest distance
+LACK_OF_FIT_P = 1e-3
+"""A Gaussian whose Pearson X^2 over the bins has a chi-square p-value below
+this (bins - 2 degrees of freedom) does not describe the profile (our
+threshold)."""
 
 
 @dataclass(frozen=True)
@@ -126,6 +138,10 @@ class SpaceConstant:
     zero, or no interval), ``"no decay"`` (sigma beyond ten times ``span``:
     flat over the sheet) or ``"no fit"``. ``extrapolated`` is True where a
     finite sigma lies beyond ``span`` (:func:`is_extrapolated`).
+    ``dispersion`` is Pearson's X^2 over its degrees of freedom (1 for
+    binomial scatter around the curve), and ``lack_of_fit`` is True where
+    X^2 is improbable under the binomial model (:data:`LACK_OF_FIT_P`):
+    the bins do not follow a Gaussian of distance.
     """
 
     sigma: float
@@ -137,6 +153,8 @@ class SpaceConstant:
     span: float = float("nan")
     status: str = NO_FIT
     extrapolated: bool = False
+    dispersion: float = float("nan")
+    lack_of_fit: bool = False
 
     def as_dict(self):
         return {k: (None if isinstance(v, float) and not np.isfinite(v) else v)
@@ -219,43 +237,84 @@ def fit_space_constant(profile):
     >>> round(fit.sigma), fit.status
     (100, 'determined')
     """
-    from scipy.optimize import curve_fit
-
     x = profile.centers
-    p = profile.probability
-    n = profile.n_pairs
+    n = np.asarray(profile.n_pairs, dtype=float)
+    k = np.asarray(profile.n_connected, dtype=float)
     top = float(profile.edges[-1])
-    ok = np.isfinite(p) & (n > 0)
-    if ok.sum() < 3 or not np.any(p[ok] > 0):
+    ok = n > 0
+    if ok.sum() < 3 or not np.any(k[ok] > 0):
         return SpaceConstant(np.nan, np.nan, np.nan, np.nan, False,
                              "too few connected distance bins to fit", top)
-    x, p, n = x[ok], p[ok], n[ok]
-    # binomial standard error, floored so that empty bins still count
-    se = np.sqrt(np.maximum(p * (1 - p), 1.0 / n) / n)
+    x, k, n = x[ok], k[ok], n[ok]
+    # the search's own warnings (overflow in exp far from the optimum) are
+    # facts of this fit, not lines for the user
+    with warnings.catch_warnings(), np.errstate(all="ignore"):
+        warnings.simplefilter("ignore")
+        fit = _binomial_gaussian(x, k, n)
+    if fit is None:
+        return SpaceConstant(np.nan, np.nan, np.nan, np.nan, False,
+                             "the likelihood has no maximum", top)
+    p0, sigma, err, phi, p_value = fit
+    low, high = sigma - 1.96 * err, sigma + 1.96 * err
+    lack = bool(p_value < LACK_OF_FIT_P)
+    note = (f"Pearson X^2 p-value {p_value:.2g}: the bins do not follow a "
+            "Gaussian of distance" if lack else "")
+    return SpaceConstant(sigma, low, high, p0, bool(np.isfinite(err)), note,
+                         top, space_constant_status(sigma, low, high, top),
+                         is_extrapolated(sigma, top), phi, lack)
 
-    def gauss(d, p0, sigma):
-        return p0 * np.exp(-(d ** 2) / (2 * sigma ** 2))
 
-    above = x[p >= p.max() / np.e ** 0.5]
-    guess = (float(p.max()), float(max(above.max(), x[1] - x[0])))
-    # the fit's own warnings (a covariance it cannot estimate, an overflow
-    # in exp on the way) are facts of this fit: kept in its message, not
-    # shown to the user as extra lines
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
-        try:
-            (p0, sigma), cov = curve_fit(gauss, x, p, p0=guess, sigma=se,
-                                         absolute_sigma=True, maxfev=10000)
-        except (RuntimeError, ValueError) as exc:
-            return SpaceConstant(np.nan, np.nan, np.nan, np.nan, False, str(exc),
-                                 top)
-    sigma = abs(float(sigma))
-    err = float(np.sqrt(cov[1, 1])) if np.isfinite(cov[1, 1]) else np.nan
-    note = "; ".join(dict.fromkeys(str(w.message) for w in caught))
-    low, high, span = sigma - 1.96 * err, sigma + 1.96 * err, top
-    return SpaceConstant(sigma, low, high, float(p0), bool(np.isfinite(err)),
-                         note, span, space_constant_status(sigma, low, high, span),
-                         is_extrapolated(sigma, span))
+def _binomial_gaussian(x, k, n):
+    """(p0, sigma, se of sigma, dispersion, lack-of-fit p-value) of the
+    binomial maximum-likelihood fit of p0 exp(-x^2 / (2 sigma^2)) to k of n
+    in each bin, or None. Fitted over logit(p0) and log(sigma), so the
+    bounds 0 < p0 < 1, sigma > 0 hold by construction."""
+    from scipy.optimize import minimize
+    from scipy.special import expit, logit
+    from scipy.stats import chi2
+
+    tiny = 1e-12
+    p_hat = k / n
+    above = x[p_hat >= p_hat.max() / np.e ** 0.5]
+    start = np.array([logit(min(max(p_hat.max(), 1e-3), 1 - 1e-3)),
+                      np.log(max(above.max(), x[1] - x[0]))])
+
+    def curve(theta):
+        e = np.exp(-x ** 2 / (2 * np.exp(2 * theta[1])))
+        return np.clip(expit(theta[0]) * e, tiny, 1 - tiny)
+
+    def nll(theta):
+        p = curve(theta)
+        return -float(np.sum(k * np.log(p) + (n - k) * np.log1p(-p)))
+
+    best = None
+    for method in ("Nelder-Mead", "BFGS"):  # a robust search, then polished
+        res = minimize(nll, start if best is None else best.x, method=method,
+                       **({"options": {"xatol": 1e-10, "fatol": 1e-12,
+                                       "maxiter": 4000}}
+                          if method == "Nelder-Mead" else {}))
+        if np.all(np.isfinite(res.x)) and (best is None or res.fun <= best.fun):
+            best = res
+    if best is None:
+        return None
+    p0, sigma = float(expit(best.x[0])), float(np.exp(best.x[1]))
+    e = np.exp(-x ** 2 / (2 * sigma ** 2))
+    p = np.clip(p0 * e, tiny, 1 - tiny)
+    grad = np.stack([e, p0 * e * x ** 2 / sigma ** 3])   # d p / d(p0, sigma)
+    info = (grad * (n / (p * (1 - p)))) @ grad.T         # Fisher information
+    dof = len(x) - 2
+    x2 = float(np.sum((k - n * p) ** 2 / (n * p * (1 - p))))
+    phi = x2 / dof
+    try:
+        cov = np.linalg.inv(info) * max(phi, 1.0)
+        err = float(np.sqrt(cov[1, 1])) if cov[1, 1] >= 0 else np.nan
+    except np.linalg.LinAlgError:
+        err = np.nan
+    return p0, sigma, err, phi, float(chi2.sf(x2, dof))
+
+
+LACK_OF_FIT_TEXT = "the Gaussian misses the bins"
+"""How the report and its figures mark a fit with ``lack_of_fit``."""
 
 
 def extrapolated_text(span):

@@ -34,7 +34,7 @@ from ..params import (
 from ..progress import announcer
 from ..types import TUNED, UNTUNED
 from . import plotting
-from .profiles import circuit_profiles, extrapolated_text
+from .profiles import LACK_OF_FIT_TEXT, circuit_profiles, extrapolated_text
 from .tuning import interneuron_pools
 
 __all__ = ["CAUTIONS", "LAM_PATH_TEXT", "PATH_MAX_UNITS", "PROFILES_TITLE",
@@ -261,7 +261,8 @@ def _figures(circuit, meta, W, L, path_points, profiles, cv, tell, svg=False):
 def _sigma_text(row):
     """sigma [95 % CI] when the data bound it, else what the fit found
     (analysis.profiles.SpaceConstant.status); a sigma beyond the largest
-    binned distance is marked "extrapolated"."""
+    binned distance is marked "extrapolated", and a Gaussian the bins reject
+    says so, with its dispersion."""
     from .profiles import DETERMINED, NO_FIT
 
     sc = row.get("space_constant") or {}
@@ -269,11 +270,14 @@ def _sigma_text(row):
     if status == NO_FIT:
         return "-"
     if status != DETERMINED:
-        return status
-    text = (f"{sc['sigma']:.3g} [{_fmt(sc.get('ci_low'), '.3g')}, "
-            f"{_fmt(sc.get('ci_high'), '.3g')}]")
-    if sc.get("extrapolated"):
-        text += f", {extrapolated_text(sc['span'])}"
+        text = status
+    else:
+        text = (f"{sc['sigma']:.3g} [{_fmt(sc.get('ci_low'), '.3g')}, "
+                f"{_fmt(sc.get('ci_high'), '.3g')}]")
+        if sc.get("extrapolated"):
+            text += f", {extrapolated_text(sc['span'])}"
+    if sc.get("lack_of_fit"):
+        text += f"; {LACK_OF_FIT_TEXT} (dispersion {sc['dispersion']:.3g})"
     return text
 
 
