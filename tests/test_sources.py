@@ -1,11 +1,13 @@
 """Every outside reference in the tests and the docs carries its source.
 
 The project's rule: a paper's equation, table, theorem, section or figure,
-a citation by author, and a fact a test takes as its reference name where
-they come from, within a few lines: a citation with a year (``Candes et al.
-2011``, ``Walker and Ni (2011)``), a reference library (numpy, scipy,
-cvxpy, ...), or the words "common practice" (a fact of the trade, no source
-named) or "from memory" (recalled, not checked).
+a citation by author, a quoted fact of the trade (a range of a biophysical
+quantity such as "85-114 um", a ratio such as "about twice") and a fact a
+test takes as its reference name where they come from, within a few lines:
+a citation with a year (``Candes et al. 2011``, ``Walker and Ni (2011)``),
+a reference library (numpy, scipy, cvxpy, ...), the script that measured
+it (``measured by benchmarks/...``), or the words "common practice" (a fact
+of the trade, no source named) or "from memory" (recalled, not checked).
 
 The check is textual, so it can only catch a missing label, not a wrong
 one: the labels themselves were checked by hand (the commit log says how).
@@ -31,6 +33,11 @@ TRIGGERS = [
     ("figure", r"\b(?:Fig\.|Figs\.|Figure)\s*\d"),
     ("author", rf"\b{_NAME} et al\b|\b{_NAME} (?:&|and) {_NAME} \(?(?:1[89]|20)\d\d"),
     ("reference", r"\bReferences?:"),
+    # a quoted fact of the trade: a range of a biophysical quantity, or a
+    # ratio ("about twice", "about 2x")
+    ("quantity", r"\b\d+(?:\.\d+)?\s*(?:-|to)\s*\d+(?:\.\d+)?\s*"
+                 r"(?:um|mV|nA|nF|Hz)\b|\babout (?:\d+(?:\.\d+)?\s*(?:x|times)\b"
+                 r"|twice\b)"),
 ]
 
 # What labels it.
@@ -47,6 +54,8 @@ LABELS = [
     ("standard", r"\b(?:POSIX|RFC \d+|W3C|XML 1\.0|NEP \d+)"),
     # a consistency check whose reference is the project's own text says so
     ("own text", r"the project's own"),
+    # a figure the project measured itself names the script that measures it
+    ("own measurement", r"measured (?:by|with|in) `?benchmarks/\w+\.py"),
 ]
 
 _TRIGGERS = [(name, re.compile(p)) for name, p in TRIGGERS]
@@ -102,6 +111,9 @@ def scanned_files():
     ("the stable program of Zhou et al., eq. 4", "equation"),
     ("the schedule of Lin et al. is used", "author"),
     ("# Reference: the value recorded in the notes", "reference"),
+    ("sigma within the 85-114 um of the literature", "quantity"),
+    ("same-feature pairs connect about twice as often", "quantity"),
+    ("rates of 140-300 Hz at the operating point", "quantity"),
     # labelled: none may be caught
     ("the weight of Candes et al. 2011, Theorem 1.1", None),
     ("Walker and Ni (2011), section 3", None),
@@ -109,6 +121,8 @@ def scanned_files():
     ("the dual certificate (section 2.1, from memory)", None),
     ("eq. 4: a bound, common practice", None),
     ("# Reference: scipy.linalg.svd of the same matrix", None),
+    ("sigma of 85-114 um (Levy & Reyes 2012)", None),
+    ("rates of 140-300 Hz (measured by benchmarks/spiking.py)", None),
     ("Girko's circular law, Tao & Vu 2010, section 1", None),
     ("# the dual residual (Boyd et\n# al. 2011, section 3.3)", None),
     ("# the certificate of their section\n# 2.1 holds", "section"),
