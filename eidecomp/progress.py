@@ -54,23 +54,24 @@ def announcer(progress):
 
 def solver_labeller(callback):
     """The function that says what a solver's iterations are solving, beside
-    its per-iteration ``callback``: the ``label`` method of the object the
-    callback is bound to when it has one (``Progress.solver`` ->
-    ``Progress.label``, which puts the text in each iteration's line), else
-    the ``eidecomp`` logger at level INFO, so a plain function of the
-    solver's five arguments is never called with a label.
+    its per-iteration ``callback``: when the callback is a
+    :class:`Progress`'s ``solver``, that Progress's :meth:`Progress.label`
+    (the text goes into each iteration's line; None clears it), else the
+    ``eidecomp`` logger at level INFO, so a plain function of the solver's
+    five arguments is never called with a label.
 
-    >>> seen = []
-    >>> class Lines:
-    ...     def solver(self, *args): pass
-    ...     def label(self, text): seen.append(text)
-    >>> solver_labeller(Lines().solver)("target rank 3, lam 0.1")
-    >>> seen
-    ['target rank 3, lam 0.1']
-    >>> solver_labeller(print)("logged: print has no label method")
+    >>> import io
+    >>> lines = Progress(io.StringIO())
+    >>> solver_labeller(lines.solver)("target rank 3, lam 0.1")
+    >>> lines.context
+    ', target rank 3, lam 0.1'
+    >>> solver_labeller(print)("logged: print is no Progress")
     """
-    label = getattr(getattr(callback, "__self__", None), "label", None)
-    return label if callable(label) else announcer(None)
+    owner = getattr(callback, "__self__", None)
+    if isinstance(owner, Progress):
+        return owner.label
+    tell = announcer(None)
+    return lambda text: tell(text) if text else None
 
 
 class Progress:

@@ -201,7 +201,7 @@ def test_the_space_constant_maximises_the_binomial_likelihood():
 
 def test_overdispersed_bins_widen_the_interval_and_keep_the_truth_inside():
     """Bins drawn from a beta-binomial around the same Gaussian
-    (scipy.stats.betabinom, intra-bin correlation 0.05): Pearson's X^2 is
+    (scipy.stats.betabinom, intra-bin correlation 0.05): the deviance is
     improbable under the binomial model, the fit says so, and the interval,
     widened by the dispersion, still holds the sigma the bins were drawn
     with (McCullagh & Nelder 1989's quasi-binomial correction, from
@@ -239,7 +239,7 @@ def test_a_profile_that_is_no_gaussian_is_flagged_in_the_report_and_figure():
     k = np.r_[2990, np.full(9, 1200)]
     prof = Profile(edges, k / n, np.ones(10), n, k, "distance (um)")
     fit = fit_space_constant(prof)
-    assert fit.lack_of_fit and "Pearson X^2" in fit.message
+    assert fit.lack_of_fit and "deviance p-value" in fit.message
     assert LACK_OF_FIT_TEXT in _sigma_text({"space_constant": fit.as_dict()})
     ax = Figure().subplots()
     plot_profile(ax, prof.as_dict(), fit.as_dict())

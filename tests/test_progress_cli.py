@@ -103,3 +103,9 @@ def test_a_target_rank_search_names_the_lam_of_each_iteration_line():
     s = np.linalg.svd(L, compute_uv=False)
     assert dec.rank == 3
     assert np.linalg.matrix_rank(L, tol=REPORTED_RANK_RTOL * s[0]) == 3
+    # a later plain solve on the same lines is not labelled as the search
+    out.truncate(0)
+    out.seek(0)
+    robust_pca(W, lam=0.2, progress=lines.solver)
+    later = [t for t in out.getvalue().splitlines() if "robust PCA" in t]
+    assert later and not any("target rank" in t for t in later)

@@ -266,9 +266,12 @@ def _scipy_interval(prof):
     maximum of scipy.stats.binom's log-likelihood of the binned counts
     (scipy.optimize.minimize, L-BFGS-B over (p0, sigma) themselves), its
     observed information by finite differences of that log-likelihood
-    (scipy.optimize.approx_fprime), widened by Pearson's dispersion where
-    it exceeds 1 (the quasi-binomial correction, McCullagh & Nelder 1989,
-    from memory)."""
+    (scipy.optimize.approx_fprime), widened by the dispersion where it
+    exceeds 1: the deviance, twice the log-likelihood ratio of one
+    probability per bin (scipy.stats.binom.logpmf at k / n) against the
+    curve, over its degrees of freedom (the bins with a connection or one
+    expected, less two; the quasi-binomial correction, McCullagh & Nelder
+    1989, from memory)."""
     from scipy.optimize import approx_fprime, minimize
     from scipy.stats import binom
 
@@ -289,7 +292,9 @@ def _scipy_interval(prof):
     H = np.array([approx_fprime(t, lambda u, i=i: approx_fprime(
         u, nll, steps)[i], steps) for i in range(2)])
     p = curve(t)
-    phi = float(np.sum((k - n * p) ** 2 / (n * p * (1 - p)))) / (len(x) - 2)
+    saturated = float(binom.logpmf(k, n, k / n).sum())
+    dof = max(int(np.sum((k > 0) | (n * p >= 1.0))) - 2, 1)
+    phi = 2.0 * (saturated + nll(t)) / dof
     half = 1.96 * np.sqrt(np.linalg.inv(0.5 * (H + H.T))[1, 1] * max(phi, 1.0))
     return t[1] - half, t[1] + half
 

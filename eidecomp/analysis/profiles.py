@@ -12,10 +12,14 @@ connected ones. Self-pairs of a square block (the same unit) are left out.
   counts by binomial maximum likelihood (k connected of n pairs in each
   bin; common practice for a probability curve), giving the space constant
   sigma with a 95 % confidence interval sigma +- 1.96 se from the inverse
-  Fisher information, widened by the dispersion phi = X^2 / (bins - 2)
-  when phi > 1 (X^2 Pearson's statistic of the fit; the quasi-binomial
-  correction of McCullagh & Nelder 1989, Generalized Linear Models, from
-  memory). Where X^2 is improbable under the binomial model
+  Fisher information, widened by the dispersion phi = D / (bins - 2) when
+  phi > 1 (D the deviance: twice the log-likelihood ratio of one
+  probability per bin against the curve; the quasi-binomial correction of
+  McCullagh & Nelder 1989, Generalized Linear Models, from memory), its
+  degrees of freedom the bins with a connection or at least one expected,
+  less two. The deviance, not Pearson's X^2, because a bin the curve puts near zero but
+  that holds a connection would make X^2 arbitrarily large. Where D is
+  improbable under the binomial model
   (:data:`LACK_OF_FIT_P`) the Gaussian does not describe the bins and the
   fit says so (``SpaceConstant.lack_of_fit``). A sigma is reported as a
   number only when the data bound it (``SpaceConstant.status``): an
@@ -123,7 +127,7 @@ DETERMINED, NOT_DETERMINED, NO_DECAY, NO_FIT = (
     "determined", "not determined", "no decay", "no fit")
 NO_DECAY_FACTOR = 10.0  # sigma beyond this many times the largest distance
 LACK_OF_FIT_P = 1e-3
-"""A Gaussian whose Pearson X^2 over the bins has a chi-square p-value below
+"""A Gaussian whose deviance over the bins has a chi-square p-value below
 this (bins - 2 degrees of freedom) does not describe the profile (our
 threshold)."""
 
@@ -138,9 +142,9 @@ class SpaceConstant:
     zero, or no interval), ``"no decay"`` (sigma beyond ten times ``span``:
     flat over the sheet) or ``"no fit"``. ``extrapolated`` is True where a
     finite sigma lies beyond ``span`` (:func:`is_extrapolated`).
-    ``dispersion`` is Pearson's X^2 over its degrees of freedom (1 for
-    binomial scatter around the curve), and ``lack_of_fit`` is True where
-    X^2 is improbable under the binomial model (:data:`LACK_OF_FIT_P`):
+    ``dispersion`` is the fit's deviance over its degrees of freedom (about
+    1 for binomial scatter around the curve), and ``lack_of_fit`` is True
+    where the deviance is improbable under the binomial model (:data:`LACK_OF_FIT_P`):
     the bins do not follow a Gaussian of distance.
     """
 
@@ -257,7 +261,7 @@ def fit_space_constant(profile):
     p0, sigma, err, phi, p_value = fit
     low, high = sigma - 1.96 * err, sigma + 1.96 * err
     lack = bool(p_value < LACK_OF_FIT_P)
-    note = (f"Pearson X^2 p-value {p_value:.2g}: the bins do not follow a "
+    note = (f"deviance p-value {p_value:.2g}: the bins do not follow a "
             "Gaussian of distance" if lack else "")
     return SpaceConstant(sigma, low, high, p0, bool(np.isfinite(err)), note,
                          top, space_constant_status(sigma, low, high, top),
@@ -302,15 +306,22 @@ def _binomial_gaussian(x, k, n):
     p = np.clip(p0 * e, tiny, 1 - tiny)
     grad = np.stack([e, p0 * e * x ** 2 / sigma ** 3])   # d p / d(p0, sigma)
     info = (grad * (n / (p * (1 - p)))) @ grad.T         # Fisher information
-    dof = len(x) - 2
-    x2 = float(np.sum((k - n * p) ** 2 / (n * p * (1 - p))))
-    phi = x2 / dof
+    # degrees of freedom: the bins that carry information (a connection, or
+    # at least one expected); far empty bins the curve puts at zero add
+    # nothing to the deviance and would dilute the dispersion
+    dof = max(int(np.sum((k > 0) | (n * p >= 1.0))) - 2, 1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        terms = (np.where(k > 0, k * np.log(k / (n * p)), 0.0)
+                 + np.where(k < n, (n - k) * np.log((n - k) / (n * (1 - p))),
+                            0.0))
+    deviance = float(2.0 * np.sum(terms))
+    phi = deviance / dof
     try:
         cov = np.linalg.inv(info) * max(phi, 1.0)
         err = float(np.sqrt(cov[1, 1])) if cov[1, 1] >= 0 else np.nan
     except np.linalg.LinAlgError:
         err = np.nan
-    return p0, sigma, err, phi, float(chi2.sf(x2, dof))
+    return p0, sigma, err, phi, float(chi2.sf(deviance, dof))
 
 
 LACK_OF_FIT_TEXT = "the Gaussian misses the bins"
@@ -354,10 +365,15 @@ def space_constant_status(sigma, ci_low, ci_high, span):
 
 
 def like_to_like_index(profile):
-    """Probability at the same feature over that at the orthogonal one."""
+    """Probability at the same feature over that at the orthogonal one:
+    infinite where orthogonal pairs exist and none is connected, NaN where
+    either bin has no pair (undefined)."""
     first, last = profile.probability[0], profile.probability[-1]
-    if not np.isfinite(first) or not np.isfinite(last) or last == 0:
-        return float("inf") if np.isfinite(first) and first > 0 else float("nan")
+    if not (np.isfinite(first) and np.isfinite(last)) or \
+            profile.n_pairs[0] == 0 or profile.n_pairs[-1] == 0:
+        return float("nan")
+    if last == 0:
+        return float("inf") if first > 0 else float("nan")
     return float(first / last)
 
 
@@ -375,10 +391,14 @@ def like_to_like_bound(profile, confidence=CONFIDENCE):
     ...                np.array([100, 100]), np.array([30, 0]))
     >>> round(like_to_like_bound(prof), 2)      # 0.3 / (1 - 0.05 ** 0.01)
     10.16
+    >>> no_orthogonal_pair = Profile(edges, np.array([0.3, np.nan]), np.ones(2),
+    ...                              np.array([100, 0]), np.array([30, 0]))
+    >>> like_to_like_bound(no_orthogonal_pair) is None
+    True
     """
-    if like_to_like_index(profile) != float("inf"):
-        return None
     n_orth = int(profile.n_pairs[-1])
+    if like_to_like_index(profile) != float("inf") or n_orth == 0:
+        return None
     _, high = clopper_pearson(0, n_orth, confidence, side="upper")
     return float(profile.probability[0] / high)
 

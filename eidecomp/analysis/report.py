@@ -34,7 +34,14 @@ from ..params import (
 from ..progress import announcer
 from ..types import TUNED, UNTUNED
 from . import plotting
-from .profiles import LACK_OF_FIT_TEXT, circuit_profiles, extrapolated_text
+from .profiles import (
+    CONFIDENCE,
+    LACK_OF_FIT_P,
+    LACK_OF_FIT_TEXT,
+    NO_DECAY_FACTOR,
+    circuit_profiles,
+    extrapolated_text,
+)
 from .tuning import interneuron_pools
 
 __all__ = ["CAUTIONS", "LAM_PATH_TEXT", "PATH_MAX_UNITS", "PROFILES_TITLE",
@@ -408,13 +415,19 @@ def _sections(meta, profiles, med, have_units):
         "'>= x' the counts support: the same-feature probability over the "
         "one-sided 95 % upper Clopper-Pearson bound of the orthogonal one "
         "(Clopper &amp; Pearson 1934). Space constant sigma of a "
-        "Gaussian fit of probability against distance, with its 95 % interval, "
+        "Gaussian of distance fitted to the binned counts (binomial maximum "
+        f"likelihood), with its {CONFIDENCE:.0%} interval, "
         "given as a number only where the data bound it: 'not determined' "
         "where the interval is wider than the distances the profile covers or "
-        "reaches zero, 'no decay' where the fitted sigma is more than ten "
-        "times those distances, 'extrapolated' where it lies beyond the "
-        "largest binned distance (in um). Interneurons take the feature and "
-        "position of their input pool.</p>",
+        "reaches zero, 'no decay' where the fitted sigma is more than "
+        f"{NO_DECAY_FACTOR:g} times those distances, 'extrapolated' where it "
+        "lies beyond the largest binned distance (in um). "
+        f"'{LACK_OF_FIT_TEXT}' where the bins scatter about the curve more "
+        "than binomial chance allows (deviance p-value below "
+        f"{LACK_OF_FIT_P:g}): the dispersion beside it is how many times "
+        "more (1 is binomial), and the interval is already widened by its "
+        "square root. Interneurons take the feature and position of their "
+        "input pool.</p>",
         _table(["class", "probability", "like-to-like",
                 "connected: same, orthogonal", "sigma [95 % CI]"],
                profile_rows),

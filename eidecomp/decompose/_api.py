@@ -427,9 +427,13 @@ def robust_pca(W, *, lam=None, method=METHODS[0], observed=None,
         if target_rank is None:
             dec, _ = solve(lam)
         else:
-            dec = _search_rank(solve, lam,
-                               int(_check_rank(target_rank, W.shape)),
-                               tell=solver_labeller(progress))
+            label = solver_labeller(progress)
+            try:
+                dec = _search_rank(solve, lam,
+                                   int(_check_rank(target_rank, W.shape)),
+                                   tell=label)
+            finally:
+                label(None)             # later solves are not this search
     _warn_if_stopped(dec)
     if ids is not None:
         with adopting_arrays():  # the same (read-only) arrays, now labelled
