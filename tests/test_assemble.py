@@ -5,7 +5,7 @@ References outside the project:
   least-squares problem, and a converged HALS factor must be its solution;
 * scipy.optimize.linear_sum_assignment: matches recovered tuned pools to the
   planted ones (the Jaccard criterion of the issue);
-* numpy: the exact baselines reproduce W to rounding, and (b)'s
+* numpy: the exact baselines reproduce W to rounding, and the global baseline's
   construction is the identity W = (W + e 1^T) - e 1^T (docs/assembly.md).
 The planted circuits are synthetic ground truth (datasets.make_planted_circuit)
 with disjoint J_EE and tuned supports, which makes them identifiable.

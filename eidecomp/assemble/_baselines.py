@@ -1,16 +1,16 @@
 """Reference constructions to score a circuit against (docs/assembly.md).
 
-(a) one private interneuron per E unit: exact, at a 1:1 ratio;
-(b) one global interneuron with compensating excitation: exact, dense J_EE;
-(c) dropping the negative weights: no interneurons;
-(d) a plain nonnegative factorisation of the negative side of W with the
+private: one private interneuron per E unit: exact, at a 1:1 ratio;
+global: one global interneuron with compensating excitation: exact, dense J_EE;
+drop: dropping the negative weights: no interneurons;
+nmf: a plain nonnegative factorisation of the negative side of W with the
     circuit's n_I, without the low-rank/sparse split: scikit-learn's NMF
     (coordinate descent, NNDSVDa start, in chunks of NMF_CHUNK sweeps until
     the measured stop of :func:`plain_factorisation`, up to NMF_MAX_ITER
     sweeps), with its convergence and KKT residual reported.
-(b) and (d) are also scored at the circuit's operating point: (b) with its
-smallest excitatory weights pruned until its error equals the circuit's, and
-(d) with J_EE pruned to the circuit's density.
+global and nmf are also scored at the circuit's operating point (global@error:
+its smallest excitatory weights pruned until its error equals the circuit's;
+nmf@density: J_EE pruned to the circuit's density).
 """
 
 from typing import NamedTuple
@@ -32,14 +32,14 @@ def _density(J):
 
 
 def private_interneurons(W):
-    """(a): interneuron j is driven by E unit j alone and carries its
+    """private: interneuron j is driven by E unit j alone and carries its
     negative outputs: J_IE = I, J_EI = max(-W, 0), J_EE = max(W, 0)."""
     n = W.shape[0]
     return np.maximum(W, 0), np.maximum(-W, 0), np.eye(n)
 
 
 def global_interneuron(W):
-    """(b): J_EE = W + e 1^T with e_i = max(0, -min_j W_ij), J_EI = e,
+    """global: J_EE = W + e 1^T with e_i = max(0, -min_j W_ij), J_EI = e,
     J_IE = 1^T; W_eff = W exactly."""
     e = np.maximum(0.0, -W.min(axis=1))
     return W + e[:, None], e[:, None], np.ones((1, W.shape[1]))
@@ -69,16 +69,16 @@ def _blocks(n):
 
 
 def _exact_rows(W, circuit_error):
-    """(a), (b) and (c) by blocks of rows: their relative errors and J_EE
-    densities, and (b)'s density once pruned to ``circuit_error``."""
-    e = np.maximum(0.0, -W.min(axis=1))       # (b)'s compensating excitation
+    """private, global and drop by blocks of rows: their relative errors and J_EE
+    densities, and global's density once pruned to ``circuit_error``."""
+    e = np.maximum(0.0, -W.min(axis=1))       # global's compensating excitation
     sq = {"private": 0.0, "global": 0.0, "drop": 0.0}
     nnz = {"private": 0, "global": 0, "drop": 0}
     for rows in _blocks(W.shape[0]):
         Wb = W[rows]
         J, EI, _ = private_interneurons(Wb)
         sq["private"] += float(np.sum((Wb - (J - EI)) ** 2))
-        nnz["drop"] += np.count_nonzero(J)    # (a) and (c): J_EE = max(W, 0)
+        nnz["drop"] += np.count_nonzero(J)    # private and drop: J_EE = max(W, 0)
         sq["drop"] += float(np.sum((Wb - J) ** 2))
         Jg = Wb + e[rows, None]
         sq["global"] += float(np.sum((Wb - (Jg - e[rows, None])) ** 2))
@@ -90,7 +90,7 @@ def _exact_rows(W, circuit_error):
            for k in sq}
     if circuit_error is None:
         return out, None
-    values = np.empty(nnz["global"])          # (b)'s nonzeros, to be sorted
+    values = np.empty(nnz["global"])          # global's nonzeros, to be sorted
     at = 0
     for rows in _blocks(W.shape[0]):
         Jg = W[rows] + e[rows, None]
@@ -226,13 +226,13 @@ def nmf_scored(n):
 
 def baselines(W, n_i, *, circuit_error=None, circuit_density=None, seed=0,
               plain=None, max_iter=None):
-    """Score the four reference constructions on W ((d) only up to
+    """Score the four reference constructions on W (nmf only up to
     :data:`NMF_MAX_UNITS` units).
 
     Returns a tuple of BaselineResult; with ``circuit_error`` and
-    ``circuit_density``, two more rows score (b) and (d) at the circuit's
-    error and density. ``plain``: the nmf baseline's factorisation when the caller has
-    it (:func:`plain_factorisation` of max(-W, 0) with ``n_i``);
+    ``circuit_density``, two more rows score global and nmf at the
+    circuit's error and density. ``plain``: the nmf baseline's factorisation
+    when the caller has it (:func:`plain_factorisation` of max(-W, 0) with ``n_i``);
     ``max_iter``: the nmf baseline's sweeps (default NMF_MAX_ITER).
     """
     exact, dens = _exact_rows(W, circuit_error)
