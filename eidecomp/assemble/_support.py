@@ -200,7 +200,7 @@ def swap_search(M, A, B, fit, objective, *, l1=0.0, max_rounds=None):
     ``fit(A, B)`` (a few HALS sweeps, returning new A, B) settle, and keeps
     the trial when ``objective(A, B)`` fell; when no piece helps, it tries
     dividing a wide component in two instead (:func:`_division_trials`). A
-    merged pair of pools, which HALS alone keeps for ever, is split this
+    merged pair of pools, which HALS alone keeps for ever, is divided this
     way. Rounds end when no trial helps (SWAP_PIECES pieces x 2
     SWAP_CANDIDATES components, then SWAP_PIECES divided components x
     SWAP_CANDIDATES sharing a pool), or after

@@ -5,7 +5,7 @@ OpenBLAS free to use every core, each call wakes a pool of threads for a few
 microseconds of work, and while other work runs on the machine the pool's
 spinning threads compete with it: a 200 x 200 solve was measured at 3.5 s
 against 0.17 s on one thread (benchmarks/hard.py shows both settings). Large
-matrices are the opposite case: their products are worth splitting. So, as
+matrices are the opposite case: their products are worth spreading over threads. So, as
 scikit-learn does for its small inner loops (threadpoolctl), a solve whose
 smaller side is below ``ONE_THREAD_BELOW`` runs with one BLAS thread, and a
 larger one with the library's default. An explicit limit set by the user

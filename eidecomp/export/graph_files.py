@@ -61,7 +61,7 @@ def to_graphml_bytes(G):
     _check_xml_text(G)
     writer = GraphMLWriter(encoding="utf-8", prettyprint=True)
     writer.add_graph_element(G)
-    # not nx.generate_graphml: it splits the text into lines, turning a CR
+    # not nx.generate_graphml: it breaks the text into lines, turning a CR
     # (and U+0085, U+2028...) of a value into a line break. The writer emits
     # no CR of its own: every CR is from a value, written as a reference so
     # that a parser does not read it as LF.

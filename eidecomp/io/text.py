@@ -140,7 +140,7 @@ def _cell_error(path, cell, line_no, col):
     return InputError(f"{path}: {what} at row {line_no}, column {col}")
 
 
-def _split(path, lines, delimiter):
+def _cells(path, lines, delimiter):
     """Rows of cells from csv.reader, with the file line each row starts on
     (a quoted cell may span lines); a csv.Error names its line."""
     reader = csv.reader([ln for _, ln in lines], delimiter=delimiter)
@@ -188,9 +188,9 @@ def _table_rows(path, lines, suffix):
     of separator by suffix (and, for ``.txt``, by the first line)."""
     first = lines[0][1]
     if suffix == ".csv" or (suffix == ".txt" and "," in first):
-        rows, numbers = _split(path, lines, ",")
+        rows, numbers = _cells(path, lines, ",")
     elif suffix == ".tsv" or (suffix == ".txt" and "\t" in first):
-        rows, numbers = _split(path, lines, "\t")
+        rows, numbers = _cells(path, lines, "\t")
     else:
         rows = [_BLANK_RUN.split(ln.strip(_BLANKS)) for _, ln in lines]
         numbers = [k for k, _ in lines]  # the file's line of each row
