@@ -12,9 +12,9 @@ Targets (issue 7): N = 10,000 (rank 50) recovers L to 1e-5 in under 2
 full-SVD times and 6 GB; float32 to 1e-4 in under 3.5 GB; N = 20,000 in
 float32 completes.
 
-With --dask N[,N...] it also runs the dask engine (a local cluster of two
-single-threaded workers limited to 1.5 GB each) on the float32 matrix of
-each size read from disk, and prints its time, the peak memory of this
+With --dask N[,N...] it also runs the dask engine (a local cluster of
+decompose.LOCAL_WORKERS single-threaded workers limited to 1.5 GB each) on
+the float32 matrix of each size read from disk, and prints its time, the peak memory of this
 process and the workers' limit, and whether its rank matches the in-memory
 engine's. S and Y live in .npy files beside the output (4 files of the size
 of W), so the run needs that much free disk.
@@ -151,7 +151,7 @@ def main():
                     continue
                 print(f"{n:6d} {'dask f32':>8} {q['rank']:5d} {q['n_iter']:5d} "
                       f"{q['time']:8.1f} {q['peak'] / 1e9:8.2f} {q['err']:8.1e} "
-                      f"   2 workers x 1.5 GB; rank "
+                      f"   {LOCAL_WORKERS} workers x 1.5 GB; rank "
                       f"{'matches' if q['rank'] == r['rank'] else 'DIFFERS'}",
                       flush=True)
             for f in (base + "_W.npy", base + "_L0.npy"):

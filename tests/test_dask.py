@@ -2,8 +2,8 @@
 
 Reference: eidecomp's in-memory ALM (checked against cvxpy and tensorly in
 their suites) on the same planted matrix (Candes et al. 2011 setting); the
-dask engine runs on a local distributed cluster of two workers (the dist
-extra, installed by .ci/run).
+dask engine runs on a local distributed cluster of decompose.LOCAL_WORKERS
+workers (the dist extra, installed by .ci/run).
 """
 
 import json

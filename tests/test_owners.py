@@ -12,6 +12,7 @@ from pathlib import Path
 
 import pytest
 
+from eidecomp.analysis.profiles import LACK_OF_FIT_P
 from eidecomp.decompose import LOCAL_WORKERS
 from eidecomp.params import (
     ALPHA_DEFAULT,
@@ -51,3 +52,11 @@ def test_the_tau_scan_is_stated_as_its_owner_holds_it():
     text = _text("docs/simulators.md")
     lo, hi, n_grid, _ = STABILITY_SCAN
     assert f"{n_grid} ratios over [{lo:g}, {hi:g}]" in text
+    step = (hi / lo) ** (1 / (n_grid - 1))
+    assert f"(a factor {step:.3g} apart)" in _text("DEVELOPERS.md")
+
+
+def test_the_lack_of_fit_threshold_is_stated_as_its_owner_holds_it():
+    said = re.findall(r"chi-square p-value below (\S+) "
+                      r"\(`profiles.LACK_OF_FIT_P`\)", _text("docs/analysis.md"))
+    assert [float(x) for x in said] == [LACK_OF_FIT_P]
