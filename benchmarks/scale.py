@@ -14,9 +14,9 @@ float32 completes.
 
 With --dask N[,N...] it also runs the dask engine (a local cluster of
 decompose.LOCAL_WORKERS single-threaded workers limited to 1.5 GB each) on
-the float32 matrix of each size read from disk, and prints its time, the peak memory of this
-process and the workers' limit, and whether its rank matches the in-memory
-engine's. S and Y live in .npy files beside the output (4 files of the size
+the float32 matrix of each size read from disk, and prints its time, the
+peak memory of this process and the workers' limit, and whether its rank
+matches the in-memory engine's. S and Y live in .npy files beside the output (4 files of the size
 of W), so the run needs that much free disk.
 
 Usage: python benchmarks/scale.py [--sizes 1000,2000,5000,10000]
@@ -33,6 +33,8 @@ from pathlib import Path
 
 import numpy as np
 from _peak import PEAK
+
+from eidecomp.decompose import LOCAL_WORKERS
 
 CHILD = PEAK + r"""
 import json, sys, time
