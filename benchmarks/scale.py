@@ -16,8 +16,8 @@ With --dask N[,N...] it also runs the dask engine (a local cluster of
 decompose.LOCAL_WORKERS single-threaded workers limited to 1.5 GB each) on
 the float32 matrix of each size read from disk, and prints its time, the
 peak memory of this process and the workers' limit, and whether its rank
-matches the in-memory engine's. S and Y live in .npy files beside the output (4 files of the size
-of W), so the run needs that much free disk.
+matches the in-memory engine's. S and Y live in .npy files beside the
+output (4 files of the size of W), so the run needs that much free disk.
 
 Usage: python benchmarks/scale.py [--sizes 1000,2000,5000,10000]
        [--float32 10000,20000] [--svd-max 5000] [--dask 20000]
