@@ -223,6 +223,8 @@ def observed_entries(observed, shape, *, ignore_diagonal=False,
                 raise InputError(f"{name} must hold only True/False (or 1/0), "
                                  "True where an entry is observed")
             obs = obs.astype(bool)
+        elif isinstance(observed, np.ndarray):   # the caller's own array
+            obs = obs.copy()      # copied: results freeze their arrays
     if ignore_diagonal:
         if shape[0] != shape[1]:
             raise InputError(f"ignore_diagonal needs a square W, got "

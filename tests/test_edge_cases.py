@@ -102,3 +102,20 @@ def test_utf8_byte_order_mark_is_accepted(tmp_path):
     p.write_text("0,-0.5\n0.25,0\n", encoding="utf-8-sig")
     assert p.read_bytes()[:3] == b"\xef\xbb\xbf"
     assert np.array_equal(read_matrix(p), [[0.0, -0.5], [0.25, 0.0]])
+
+
+def test_the_callers_mask_of_observed_entries_is_left_as_it_was():
+    """The result keeps its own frozen copy of ``observed``: the caller's
+    array stays writeable and shares no memory with it (numpy's flags and
+    numpy.shares_memory)."""
+    import numpy as np
+
+    from eidecomp import robust_pca
+
+    W = np.random.default_rng(0).normal(size=(20, 20))
+    mask = np.ones((20, 20), bool)
+    mask[0, 1] = False
+    dec = robust_pca(W, observed=mask)
+    assert mask.flags.writeable and not np.shares_memory(mask, dec.observed)
+    assert not dec.observed.flags.writeable
+    assert (dec.observed == mask).all()
