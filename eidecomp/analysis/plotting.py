@@ -244,7 +244,9 @@ def plot_population_graph(ax, P):
 def plot_profile(ax, profile, fit=None, title=""):
     """Connection probability against a binned difference, with a fit.
 
-    Each bin's probability carries its 95 % Clopper-Pearson interval (the
+    Each bin's probability stands at the mean difference of its pairs
+    (``positions``, else the bin's centre) and carries its 95 %
+    Clopper-Pearson interval (the
     profile's ``ci_low`` and ``ci_high``, where given); the probability axis
     starts at 0. A Gaussian fit (a ``SpaceConstant`` dict) is drawn solid
     with its sigma when its status is "determined", dashed and labelled
@@ -252,8 +254,9 @@ def plot_profile(ax, profile, fit=None, title=""):
     "extrapolated", and a fit the bins reject (``lack_of_fit``) is drawn
     dotted and says so.
     """
-    centers = 0.5 * (np.asarray(profile["edges"][1:]) +
-                     np.asarray(profile["edges"][:-1]))
+    centers = (_floats(profile["positions"]) if "positions" in profile else
+               0.5 * (np.asarray(profile["edges"][1:]) +
+                      np.asarray(profile["edges"][:-1])))
     p = _floats(profile["probability"])
     if "ci_low" in profile and "ci_high" in profile:
         err = np.vstack([p - _floats(profile["ci_low"]),
