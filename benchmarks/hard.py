@@ -31,7 +31,7 @@ Planted trial t at size n and grid point (r, s) is drawn from
 SeedSequence([--seed, n, 1000 r, 1000 s, t]); --trials T runs T instances
 of every random row.
 
-Table 1 (eidecomp.robust_pca, max_iter = --max-iter, the strict stop
+Printed table 1 (eidecomp.robust_pca, max_iter = --max-iter, the strict stop
 stop="residuals": these rows measure the solver against its residual
 targets; table 4 measures the default stop)
 ----------------------------------------------------
@@ -45,8 +45,8 @@ lib s             time of the same solve with no limit (the library's choice;
 svd s             one np.linalg.svd(W, full_matrices=False), best of 3, no limit
 x svd             lib s / svd s: the cost in full-SVD units
 
-Table 2 (references on the same problems)
------------------------------------------
+Printed table 2 (references on the same problems)
+-------------------------------------------------
 tl s, tl it       tensorly.decomposition.robust_pca with the PCP mapping of
                   tests/test_tensorly.py: reg_J = 1/2, reg_E = lam,
                   mu_init = 1.25 / ||W||_2, learning_rate = 1.1, tol =
@@ -69,8 +69,8 @@ cvx s, cvx obj    cvxpy with CLARABEL (ConvexPCP(W, observed).solve(lam); the
                   and its objective
 |d|/cvx           |objective - cvx obj| / cvx obj
 
-Table 3 (path and rank search, no thread limit)
------------------------------------------------
+Printed table 3 (path and rank search, no thread limit)
+-------------------------------------------------------
 lambda_path(W, n_lams=8) and robust_pca(W, target_rank=k) on the planted
 grid point (0.15, 0.15) at n = 200 (60 with --quick; near the edge of the
 region where PCP recovers L0, and slow for the ALM) with k its planted rank,
@@ -81,8 +81,8 @@ sum of dec.n_iter over the path, every iteration the callback saw for the
 rank search; x svd: time / one full SVD of W; conv: converged solves /
 solves; rank: ranks of the path's ends, or the rank found. Shown, not gated.
 
-Table 4 (natural statistics, default stop, beside tensorly)
-----------------------------------------------------------
+Printed table 4 (natural statistics, default stop, beside tensorly)
+-------------------------------------------------------------------
 The natural-statistics matrices of benchmarks/_hard_cases.py, solved by
 robust_pca(W) at its defaults (the certified stop), and by tensorly as in
 table 2 on the same matrix in the same process: iterations, time, certified

@@ -84,7 +84,8 @@ if __name__ == "__main__":
 
 
 def planted(n, dtype, seed=0):
-    """W, L0 of the Candes et al. setting, built in ``dtype`` to save memory."""
+    """W, L0 of the planted setting of Candes et al. (2011), built in
+    ``dtype`` to save memory."""
     rng = np.random.default_rng(seed)
     r = max(1, n // 200)
     X = (rng.standard_normal((n, r)) / np.sqrt(n)).astype(dtype)

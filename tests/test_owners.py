@@ -12,7 +12,7 @@ from pathlib import Path
 
 import pytest
 
-from eidecomp.analysis.profiles import LACK_OF_FIT_P
+from eidecomp.analysis.profiles import FIT_SUBDIVISIONS, LACK_OF_FIT_P
 from eidecomp.decompose import LOCAL_WORKERS
 from eidecomp.params import (
     ALPHA_DEFAULT,
@@ -54,6 +54,11 @@ def test_the_tau_scan_is_stated_as_its_owner_holds_it():
     assert f"{n_grid} ratios over [{lo:g}, {hi:g}]" in text
     step = (hi / lo) ** (1 / (n_grid - 1))
     assert f"(a factor {step:.3g} apart)" in _text("DEVELOPERS.md")
+
+
+def test_the_fit_subdivisions_are_stated_as_their_owner_holds_them():
+    said = re.findall(r"(\d+) times finer bins", _text("docs/analysis.md"))
+    assert [int(x) for x in said] == [FIT_SUBDIVISIONS]
 
 
 def test_the_lack_of_fit_threshold_is_stated_as_its_owner_holds_it():

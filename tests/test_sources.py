@@ -94,6 +94,7 @@ def scanned_files():
     files = sorted(p for p in (ROOT / "tests").glob("*.py")
                    if p.resolve() != SELF)
     files += sorted((ROOT / "docs").glob("*.md"))
+    files += sorted((ROOT / "benchmarks").glob("*.py"))
     files.append(ROOT / "README.md")
     return files
 
